@@ -1,0 +1,68 @@
+import numpy as np
+import pytest
+from astropy import units as u
+from astropy.time import Time
+from astropy.timeseries import TimeSeries
+
+from core.errors import PhasewiseError
+from core.folding import period_step, phase_fold, phase_grid_times, snap_to_peak, two_cycles
+
+
+def test_phase_fold_matches_astropy_timeseries_fold():
+    # reference: astropy.timeseries.TimeSeries.fold with normalised phase wrapped to [0, 1)
+    rng = np.random.default_rng(3)
+    t = np.sort(2460000.0 + rng.uniform(0, 300, 500))
+    period, epoch = 0.5731, 2460010.123
+    ts = TimeSeries(time=Time(t, format="jd", scale="tdb"))
+    folded = ts.fold(
+        period=period * u.day,
+        epoch_time=Time(epoch, format="jd", scale="tdb"),
+        normalize_phase=True,
+        wrap_phase=1,
+    )
+    ref = np.asarray(folded.time.value, dtype=float)
+    # fold() sorts nothing; rows keep their order
+    ours = phase_fold(t, period, epoch)
+    np.testing.assert_allclose(ours, ref, atol=1e-6)
+    assert ours.min() >= 0.0 and ours.max() < 1.0
+
+
+def test_phase_fold_zero_at_epoch_and_rejects_bad_period():
+    assert phase_fold(np.array([10.0, 10.5, 11.0]), 1.0, 10.0).tolist() == [0.0, 0.5, 0.0]
+    with pytest.raises(PhasewiseError, match="field 'period': a period must be positive"):
+        phase_fold(np.array([1.0]), 0.0)
+
+
+def test_two_cycles_repeats_values():
+    ph, m = two_cycles(np.array([0.1, 0.7]), np.array([12.0, 13.0]))
+    assert ph.tolist() == pytest.approx([0.1, 0.7, 1.1, 1.7])
+    assert m.tolist() == [12.0, 13.0, 12.0, 13.0]
+
+
+def test_phase_grid_times_spans_the_cycles():
+    ph, t = phase_grid_times(0.5, 100.0, n=5, cycles=2.0)
+    assert ph.tolist() == [0.0, 0.5, 1.0, 1.5, 2.0]
+    assert t.tolist() == [100.0, 100.25, 100.5, 100.75, 101.0]
+
+
+def test_period_step_moves_last_point_by_the_stated_cycles():
+    t = np.linspace(0.0, 250.0, 1000)
+    p = 0.61
+    dp = period_step(p, 250.0, cycles=0.01)
+    # the number of elapsed cycles at the last point changes by 0.01 (first order)
+    shift = t[-1] / p - t[-1] / (p + dp)
+    assert shift == pytest.approx(0.01, rel=1e-3)
+    assert period_step(2.0, 0.0, cycles=0.1) == pytest.approx(0.2)
+
+
+def test_snap_to_peak_climbs_to_the_local_maximum():
+    f = np.linspace(0.1, 10.0, 10001)
+    power = np.exp(-0.5 * ((f - 1.745) / 0.01) ** 2) + 0.6 * np.exp(-0.5 * ((f - 3.49) / 0.01) ** 2)
+    # a click on the flank of the first peak, far outside the search window
+    i = snap_to_peak(f, power, 1.70, half_width=3)
+    assert f[i] == pytest.approx(1.745, abs=1e-3)
+    # a click near the second (lower) peak picks it, not the global maximum
+    i = snap_to_peak(f, power, 3.52)
+    assert f[i] == pytest.approx(3.49, abs=1e-3)
+    with pytest.raises(PhasewiseError, match="non-empty"):
+        snap_to_peak(np.array([]), np.array([]), 1.0)
