@@ -1,0 +1,14 @@
+"""The vetting desk: the PySide6 + pyqtgraph window where stars are decided.
+
+Importing this package imports Qt; the command line imports it only inside
+the commands that open a window.  :class:`MainWindow` is the window; other
+views dock into it with :meth:`MainWindow.add_view`.
+"""
+
+from .qt_guard import protect_singletons
+
+protect_singletons()
+
+from .main_window import MainWindow  # noqa: E402
+
+__all__ = ["MainWindow"]

@@ -1,0 +1,166 @@
+"""Light curve: magnitude against time, bands apart, points excludable."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QRectF, Signal
+from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+
+from .plots import make_plot, set_labels
+from .style import EXCLUDED_COLOUR, band_style
+
+__all__ = ["LightCurvePanel"]
+
+MAX_BANDS = 8
+
+
+class LightCurvePanel(QWidget):
+    """Magnitude against time (bright up), one symbol and colour per band.
+
+    Signals
+    -------
+    exclusionRequested(indices, exclude)
+        Point indices (into the full light curve) the user selected; ``exclude``
+        is False when the user asked to restore them.
+    """
+
+    exclusionRequested = Signal(object, bool)
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plot = make_plot(select=True)
+        self.vb = self.plot.getPlotItem().getViewBox()
+        self.vb.invertY(True)
+        self.legend = self.plot.getPlotItem().addLegend(
+            offset=(-10, 10),
+            labelTextSize="9pt",
+            brush=pg.mkBrush(255, 255, 255, 210),
+            pen=pg.mkPen("#bbbbbb"),
+        )
+        self.scatter = []
+        self.errors = []
+        for i in range(MAX_BANDS):
+            colour, symbol = band_style(i)
+            s = pg.ScatterPlotItem(
+                size=6, symbol=symbol, pen=pg.mkPen(colour, width=1), brush=pg.mkBrush(colour)
+            )
+            e = pg.ErrorBarItem(pen=pg.mkPen(colour, width=1), beam=0)
+            e.setVisible(False)
+            self.plot.addItem(e)
+            self.plot.addItem(s)
+            self.scatter.append(s)
+            self.errors.append(e)
+        self.excluded = pg.ScatterPlotItem(
+            size=7, symbol="x", pen=pg.mkPen(EXCLUDED_COLOUR, width=1), brush=None
+        )
+        self.plot.addItem(self.excluded)
+        self.legend.addItem(self.excluded, "excluded")
+
+        self.show_errors = QCheckBox("Error bars")
+        self.select_box = QCheckBox("Select points")
+        self.select_box.setToolTip(
+            "Drag a rectangle to exclude points (Shift+drag works too); "
+            "hold Ctrl while releasing to restore them."
+        )
+        self.info = QLabel()
+        bar = QHBoxLayout()
+        bar.addWidget(QLabel("<b>Light curve</b>"))
+        bar.addWidget(self.info, 1)
+        bar.addWidget(self.select_box)
+        bar.addWidget(self.show_errors)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(2, 2, 2, 2)
+        layout.addLayout(bar)
+        layout.addWidget(self.plot, 1)
+
+        self.show_errors.toggled.connect(self._toggle_errors)
+        self.select_box.toggled.connect(self._toggle_select)
+        self.vb.sigRectSelected.connect(self._rect_selected)
+        self.lc = None
+        self.t0 = 0.0
+        set_labels(self.plot, "Time (d)", "Magnitude (mag)")
+
+    # ------------------------------------------------------------- drawing
+    def set_lightcurve(self, lc) -> None:
+        self.lc = lc
+        if lc is None:
+            for s, e in zip(self.scatter, self.errors, strict=True):
+                s.setData([], [])
+                e.setVisible(False)
+            self.excluded.setData([], [])
+            self.info.setText("")
+            return
+        t = np.asarray(lc.time, dtype=float)
+        finite = np.isfinite(t)
+        self.t0 = float(np.floor(t[finite].min())) if finite.any() else 0.0
+        x = t - self.t0
+        good = lc.good
+        bands = list(lc.bands)
+        # bands with only excluded points still deserve a legend entry
+        for b in dict.fromkeys(str(v) for v in lc.band):
+            if b not in bands:
+                bands.append(b)
+        self.legend.clear()
+        for i in range(MAX_BANDS):
+            s, e = self.scatter[i], self.errors[i]
+            if i < len(bands):
+                sel = good & (lc.band == bands[i])
+                s.setData(x[sel], lc.mag[sel])
+                if self.show_errors.isChecked() and lc.has_errors:
+                    e.setData(x=x[sel], y=lc.mag[sel], height=2 * lc.mag_err[sel])
+                    e.setVisible(True)
+                else:
+                    e.setVisible(False)
+                self.legend.addItem(s, f"{bands[i]} ({int(sel.sum())})")
+            else:
+                s.setData([], [])
+                e.setVisible(False)
+        bad = ~good & np.isfinite(x) & np.isfinite(lc.mag)
+        self.excluded.setData(x[bad], lc.mag[bad])
+        self.legend.addItem(self.excluded, f"excluded ({int(bad.sum())})")
+        set_labels(self.plot, f"Time − {self.t0:.0f} ({lc.time_scale}, d)", "Magnitude (mag)")
+        self.info.setText(
+            f"{lc.star_id}: {lc.n_good} of {lc.n_points} points, baseline {lc.baseline:.1f} d"
+        )
+        self._set_range(x, lc.mag, np.isfinite(x) & np.isfinite(lc.mag))
+
+    def _set_range(self, x, mag, sel) -> None:
+        if not sel.any():
+            return
+        x0, x1 = float(x[sel].min()), float(x[sel].max())
+        lo, hi = np.percentile(mag[sel], [0.2, 99.8])
+        pad_x = 0.02 * (x1 - x0 if x1 > x0 else 1.0)
+        pad_y = 0.08 * (hi - lo if hi > lo else 1.0)
+        self.vb.setRange(
+            xRange=(x0 - pad_x, x1 + pad_x), yRange=(lo - pad_y, hi + pad_y), padding=0
+        )
+        self.vb.disableAutoRange()
+
+    def _toggle_errors(self, _on: bool) -> None:
+        if self.lc is not None:
+            rng = self.vb.viewRange()
+            self.set_lightcurve(self.lc)
+            self.vb.setRange(xRange=rng[0], yRange=rng[1], padding=0)
+
+    def _toggle_select(self, on: bool) -> None:
+        self.vb.select_mode = on
+
+    # ----------------------------------------------------------- selection
+    def points_in(self, rect: QRectF) -> np.ndarray:
+        """Indices of the light curve's points inside a data rectangle."""
+        if self.lc is None:
+            return np.zeros(0, dtype=int)
+        x = np.asarray(self.lc.time, dtype=float) - self.t0
+        y = np.asarray(self.lc.mag, dtype=float)
+        inside = (x >= rect.left()) & (x <= rect.right()) & (y >= rect.top()) & (y <= rect.bottom())
+        return np.flatnonzero(inside)
+
+    def _rect_selected(self, rect: QRectF, restore: bool) -> None:
+        self.select_rect(rect, restore)
+
+    def select_rect(self, rect: QRectF, restore: bool = False) -> None:
+        """Ask to exclude (or restore) the points inside ``rect`` (data coordinates)."""
+        idx = self.points_in(rect)
+        if idx.size:
+            self.exclusionRequested.emit(idx, not restore)

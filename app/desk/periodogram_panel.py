@@ -1,0 +1,299 @@
+"""Periodogram: power against frequency or period, candidates marked."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import QCheckBox, QComboBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+
+from core.folding import snap_to_peak
+
+from .plots import make_plot, set_labels
+from .style import MARKER_COLOUR, fmt_period
+
+__all__ = ["PeriodogramPanel", "METHODS"]
+
+#: (core method name, menu text)
+METHODS = (
+    ("gls", "Generalized Lomb–Scargle"),
+    ("mhgls", "Multi-harmonic periodogram"),
+    ("pdm", "Phase dispersion minimisation"),
+    ("ce", "Conditional entropy"),
+)
+MAX_LABELS = 8
+FAP_STYLES = ((0.1, "#999999"), (0.01, "#666666"), (0.001, "#333333"))
+
+
+class PeriodogramPanel(QWidget):
+    """The periodogram of the current star.
+
+    Signals
+    -------
+    peakPicked(frequency)
+        The user clicked near a peak; the frequency is the snapped maximum.
+    methodChanged(method)
+        The user chose another periodogram method.
+    windowRequested(bool)
+        The spectral window is wanted (compute it) or hidden.
+    """
+
+    peakPicked = Signal(float)
+    methodChanged = Signal(str)
+    windowRequested = Signal(bool)
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plot = make_plot()
+        self.item = self.plot.getPlotItem()
+        self.vb = self.item.getViewBox()
+        self.curve = pg.PlotDataItem(
+            pen=pg.mkPen("#0072B2", width=1),
+            clipToView=True,
+            autoDownsample=True,
+            downsampleMethod="peak",
+        )
+        self.window_curve = pg.PlotDataItem(
+            pen=pg.mkPen("#E69F00", width=1, style=Qt.PenStyle.DashLine),
+            clipToView=True,
+            autoDownsample=True,
+            downsampleMethod="peak",
+        )
+        self.window_curve.setVisible(False)
+        self.item.addItem(self.window_curve)
+        self.item.addItem(self.curve)
+        self.cand_points = pg.ScatterPlotItem(
+            size=9, symbol="t", pen=pg.mkPen("#D55E00"), brush=pg.mkBrush("#D55E00")
+        )
+        self.item.addItem(self.cand_points)
+        self.labels = []
+        for _ in range(MAX_LABELS):
+            text = pg.TextItem(color="#202020", anchor=(0.5, 1.15))
+            text.setVisible(False)
+            self.item.addItem(text, ignoreBounds=True)
+            self.labels.append(text)
+        self.fap_lines = []
+        for fap, colour in FAP_STYLES:
+            line = pg.InfiniteLine(
+                angle=0,
+                movable=False,
+                pen=pg.mkPen(colour, style=Qt.PenStyle.DotLine),
+                label=f"FAP {fap:g}",
+                labelOpts={"position": 0.95, "color": colour, "anchors": [(1, 1), (1, 1)]},
+            )
+            line.setVisible(False)
+            self.item.addItem(line, ignoreBounds=True)
+            self.fap_lines.append(line)
+        self.marker = pg.InfiniteLine(angle=90, movable=False, pen=pg.mkPen(MARKER_COLOUR, width=2))
+        self.item.addItem(self.marker, ignoreBounds=True)
+
+        self.method_box = QComboBox()
+        for key, text in METHODS:
+            self.method_box.addItem(text, key)
+        self.axis_box = QComboBox()
+        self.axis_box.addItems(["Frequency", "Period"])
+        self.log_box = QCheckBox("Log axis")
+        self.window_box = QCheckBox("Spectral window")
+        self.status = QLabel()
+        bar = QHBoxLayout()
+        bar.addWidget(QLabel("<b>Periodogram</b>"))
+        bar.addWidget(self.method_box)
+        bar.addWidget(self.axis_box)
+        bar.addWidget(self.log_box)
+        bar.addWidget(self.window_box)
+        bar.addStretch(1)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(2, 2, 2, 2)
+        layout.addLayout(bar)
+        layout.addWidget(self.plot, 1)
+        layout.addWidget(self.status)
+
+        self.view = None  # PeriodogramView
+        self.window_power = None
+        self.candidates: list[dict] = []
+        self.frequency = None  # marked frequency
+        self.method_box.currentIndexChanged.connect(
+            lambda _i: self.methodChanged.emit(self.method_box.currentData())
+        )
+        self.axis_box.currentIndexChanged.connect(lambda _i: self._redraw(reset_range=True))
+        self.log_box.toggled.connect(self._log_toggled)
+        self.window_box.toggled.connect(self._window_toggled)
+        self.plot.scene().sigMouseClicked.connect(self._clicked)
+        self._update_labels()
+
+    # ---------------------------------------------------------- coordinates
+    @property
+    def period_axis(self) -> bool:
+        return self.axis_box.currentIndex() == 1
+
+    def _x(self, frequency):
+        """Display x of frequencies (period if toggled; log10 if log axis)."""
+        f = np.asarray(frequency, dtype=float)
+        with np.errstate(divide="ignore"):
+            x = 1.0 / f if self.period_axis else f
+            if self.log_box.isChecked():
+                x = np.log10(x)
+        return x
+
+    def _frequency_at(self, x: float) -> float:
+        if self.log_box.isChecked():
+            x = 10.0**x
+        return 1.0 / x if self.period_axis else x
+
+    def _update_labels(self) -> None:
+        power_label = "Power"
+        if self.view is not None and self.view.method in ("pdm", "ce"):
+            power_label = "Power (larger = better)"
+        if self.period_axis:
+            set_labels(self.plot, "Period (d)", power_label)
+        else:
+            set_labels(self.plot, "Frequency (cycles/d)", power_label)
+
+    # ------------------------------------------------------------- drawing
+    def set_computing(self, text: str = "computing…") -> None:
+        self.status.setText(text)
+
+    def clear(self) -> None:
+        self.view = None
+        self.window_power = None
+        self.candidates = []
+        self.curve.setData([], [])
+        self.window_curve.setData([], [])
+        self.cand_points.setData([], [])
+        for t in self.labels:
+            t.setVisible(False)
+        for line in self.fap_lines:
+            line.setVisible(False)
+
+    def set_periodogram(self, view, candidates=()) -> None:
+        """Show a :class:`~app.desk.services.PeriodogramView` and candidates."""
+        self.view = view
+        self.window_power = None
+        self.candidates = list(candidates)
+        index = self.method_box.findData(view.method)
+        if index >= 0 and index != self.method_box.currentIndex():
+            self.method_box.blockSignals(True)
+            self.method_box.setCurrentIndex(index)
+            self.method_box.blockSignals(False)
+        self.status.setText(
+            f"{len(view.frequency):,} frequencies, {len(self.candidates)} candidates"
+        )
+        self._redraw(reset_range=True)
+        if self.window_box.isChecked():
+            self.windowRequested.emit(True)
+
+    def set_window(self, power) -> None:
+        self.window_power = None if power is None else np.asarray(power, dtype=float)
+        self._redraw(reset_range=False)
+
+    def set_frequency(self, frequency: float | None) -> None:
+        self.frequency = frequency
+        if frequency is None or not np.isfinite(frequency) or frequency <= 0:
+            self.marker.setVisible(False)
+            return
+        self.marker.setVisible(True)
+        self.marker.setValue(float(self._x(frequency)))
+
+    def _redraw(self, reset_range: bool) -> None:
+        self._update_labels()
+        view = self.view
+        if view is None:
+            return
+        f, p = view.frequency, view.power
+        positive = f > 0
+        f, p = f[positive], p[positive]
+        x = self._x(f)
+        if self.period_axis:  # keep x increasing for clip-to-view
+            x, p_draw = x[::-1], p[::-1]
+        else:
+            p_draw = p
+        self.curve.setData(x, p_draw)
+        if self.window_power is not None and self.window_box.isChecked():
+            w = self.window_power[positive]
+            w = w[::-1] if self.period_axis else w
+            top = float(np.nanmax(p)) if p.size else 1.0
+            wmax = float(np.nanmax(w)) if w.size else 1.0
+            self.window_curve.setData(x, w * (top / wmax if wmax > 0 else 1.0))
+            self.window_curve.setVisible(True)
+        else:
+            self.window_curve.setVisible(False)
+        cf = np.array([c["frequency"] for c in self.candidates], dtype=float)
+        cp = np.array([c["power"] for c in self.candidates], dtype=float)
+        self.cand_points.setData(self._x(cf), cp)
+        for i, text in enumerate(self.labels):
+            if i < len(self.candidates):
+                c = self.candidates[i]
+                marks = ", ".join(_mark_text(c))
+                label = f"{i + 1}: {fmt_period(c['period'])} d"
+                if marks:
+                    label += f"\n{marks}"
+                text.setText(label)
+                text.setPos(float(self._x(c["frequency"])), float(c["power"]))
+                text.setVisible(True)
+            else:
+                text.setVisible(False)
+        levels = dict(view.fap_levels)
+        for (fap, _colour), line in zip(FAP_STYLES, self.fap_lines, strict=True):
+            if fap in levels and np.isfinite(levels[fap]):
+                line.setValue(levels[fap])
+                line.setVisible(True)
+            else:
+                line.setVisible(False)
+        self.set_frequency(self.frequency)
+        if reset_range and x.size:
+            finite = np.isfinite(x)
+            top = float(np.nanmax(p)) if p.size else 1.0
+            self.vb.setRange(
+                xRange=(float(x[finite].min()), float(x[finite].max())),
+                yRange=(min(0.0, float(np.nanmin(p))), top * 1.18),
+                padding=0.02,
+            )
+            self.vb.disableAutoRange()
+
+    def _log_toggled(self, _on: bool) -> None:
+        self.item.setLogMode(x=False, y=False)  # we transform x ourselves
+        self._redraw(reset_range=True)
+
+    def _window_toggled(self, on: bool) -> None:
+        if on and self.window_power is None:
+            self.windowRequested.emit(True)
+        self._redraw(reset_range=False)
+
+    # --------------------------------------------------------------- input
+    def _clicked(self, ev) -> None:
+        if ev.button() != Qt.MouseButton.LeftButton or self.view is None:
+            return
+        pos = ev.scenePos()
+        if not self.vb.sceneBoundingRect().contains(pos):
+            return
+        x = self.vb.mapSceneToView(pos).x()
+        self.pick_at(self._frequency_at(x))
+        ev.accept()
+
+    def pick_at(self, frequency: float) -> float | None:
+        """Snap a frequency to the nearest peak's maximum and announce it."""
+        if self.view is None or not np.isfinite(frequency):
+            return None
+        i = snap_to_peak(self.view.frequency, self.view.power, frequency)
+        f = float(self.view.frequency[i])
+        self.peakPicked.emit(f)
+        return f
+
+
+def _mark_text(candidate: dict) -> list[str]:
+    marks = list(candidate.get("marks") or ())
+    details = candidate.get("mark_details") or {}
+    out = []
+    for m in marks:
+        d = details.get(m) if isinstance(details, dict) else None
+        if m == "alias" and d is not None:
+            if isinstance(d, dict):
+                wf = d.get("window_frequency", d.get("window"))
+                out.append(f"alias ({wf:.4g} c/d)" if isinstance(wf, (int, float)) else "alias")
+            elif isinstance(d, (int, float)):
+                out.append(f"alias ({d:.4g} c/d)")
+            else:
+                out.append(f"alias ({d})")
+        else:
+            out.append(str(m))
+    return out

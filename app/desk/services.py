@@ -1,0 +1,134 @@
+"""The one place the desk calls into ``core``.
+
+Every computation the window shows comes from here: analysis, periodograms,
+Fourier fits, the ledger, import and export.  Widgets receive a
+:class:`CoreServices` object so that each call site is plain and the calls
+are easy to find; nothing here computes anything itself.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["CoreServices", "PeriodogramView"]
+
+
+@dataclass(frozen=True)
+class PeriodogramView:
+    """What the periodogram panel draws."""
+
+    frequency: np.ndarray
+    power: np.ndarray
+    method: str
+    fap_levels: tuple[tuple[float, float], ...] = ()  # (fap, power level)
+
+
+class CoreServices:
+    """Calls into core used by the desk (real science, no Qt)."""
+
+    # ------------------------------------------------------------ settings
+    def default_settings(self):
+        from core.analysis import AnalysisSettings
+
+        return AnalysisSettings()
+
+    def periodogram_settings(self, settings):
+        pg = getattr(settings, "periodogram", None)
+        if pg is None:
+            from core.periodogram import PeriodogramSettings
+
+            pg = PeriodogramSettings()
+        return pg
+
+    def with_periodogram_settings(self, settings, pg_settings):
+        if hasattr(settings, "periodogram"):
+            return dataclasses.replace(settings, periodogram=pg_settings)
+        return settings
+
+    def replace_periodogram(self, pg_settings, **changes):
+        return dataclasses.replace(pg_settings, **changes)
+
+    # ------------------------------------------------------------- science
+    def analyse(self, lc, settings) -> dict[str, Any]:
+        from core.analysis import analyse
+
+        return analyse(lc, settings).to_dict()
+
+    def compute_periodogram(self, lc, pg_settings) -> PeriodogramView:
+        from core import periodogram as core_pg
+
+        pgram = core_pg.compute_periodogram(lc, pg_settings)
+        levels = []
+        level_fn = getattr(core_pg, "false_alarm_level", None)
+        if level_fn is not None:
+            for fap in (0.1, 0.01, 0.001):
+                try:
+                    levels.append((fap, float(level_fn(pgram, fap))))
+                except Exception:  # a method without a FAP (PDM, entropy)
+                    break
+        return PeriodogramView(
+            np.asarray(pgram.frequency, dtype=float),
+            np.asarray(pgram.power, dtype=float),
+            str(pgram.method),
+            tuple(levels),
+        )
+
+    def spectral_window(self, time, frequency) -> np.ndarray:
+        from core.periodogram import spectral_window
+
+        return np.asarray(spectral_window(time, frequency), dtype=float)
+
+    def fit_fourier(self, time, mag, err, frequency, order, form="sine"):
+        from core.fourier import fit_fourier
+
+        return fit_fourier(time, mag, err, frequency, order, form=form)
+
+    # -------------------------------------------------------------- ledger
+    def open_ledger(self, path, readonly: bool = False):
+        from core.ledger import Ledger
+
+        return Ledger.open(Path(path), readonly=readonly)
+
+    def create_ledger(self, path):
+        from core.ledger import Ledger
+
+        return Ledger.create(Path(path))
+
+    def open_photometry(self, path, mapping=None):
+        from core.io import open_photometry
+
+        return open_photometry(Path(path), mapping)
+
+    def column_mapping(self, **roles):
+        from core.io import ColumnMapping
+
+        return ColumnMapping(**roles)
+
+    def add_star(self, ledger, lc) -> None:
+        ledger.add_star(lc)
+
+    def store_result(self, ledger, star_id: str, result: dict, settings) -> None:
+        ledger.store_result(star_id, result)
+
+    def write_catalogue(self, ledger, path, fmt: str | None = None):
+        from core.export import write_catalogue
+
+        return write_catalogue(ledger, Path(path), format=fmt)
+
+    def analyse_all(self, ledger, star_ids, settings, report=None, cancelled=None) -> None:
+        """Analyse stars of a ledger and store the results (core.batch when present)."""
+        star_ids = list(star_ids)
+        for i, star_id in enumerate(star_ids):
+            if cancelled is not None and cancelled():
+                return
+            if report is not None:
+                report(i, len(star_ids), f"analysing {star_id}")
+            result = self.analyse(ledger.lightcurve(star_id), settings)
+            self.store_result(ledger, star_id, result, settings)
+        if report is not None:
+            report(len(star_ids), len(star_ids), "done")

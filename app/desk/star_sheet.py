@@ -1,0 +1,286 @@
+"""Star sheet: the numbers, the ranked suggestions and the verdict controls."""
+
+from __future__ import annotations
+
+import html
+import math
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (
+    QComboBox,
+    QGridLayout,
+    QGroupBox,
+    QLabel,
+    QLineEdit,
+    QPushButton,
+    QTextBrowser,
+    QVBoxLayout,
+    QWidget,
+)
+
+from .style import STATUS_COLOURS, fmt, fmt_period, fmt_pm
+
+__all__ = ["StarSheet", "CLASS_CODES", "CAUTION"]
+
+#: The classes offered in the picker; the first ten have digit keys 1…9, 0.
+CLASS_CODES = (
+    "RRab",
+    "RRc",
+    "RRd",
+    "DCEP_F",
+    "DCEP_1O",
+    "T2CEP",
+    "ACEP",
+    "DSCT",
+    "EW",
+    "EA",
+    "EB",
+    "LPV",
+    "NONVAR",
+    "UNKNOWN",
+)
+
+CAUTION = (
+    "Classes, [Fe/H], absolute magnitudes and distances come from published empirical "
+    "relations with known scatter and limited calibration ranges. They are suggestions "
+    "to be checked, not measurements."
+)
+
+
+def _e(text) -> str:
+    return html.escape(str(text))
+
+
+def _num(x):
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return None
+    return v if math.isfinite(v) else None
+
+
+class StarSheet(QWidget):
+    """Numbers of the current star and the controls to decide on it.
+
+    Signals
+    -------
+    verdictRequested(status, class_code, note)
+        ``status`` is ``confirmed``, ``relabelled``, ``rejected`` or ``deferred``;
+        ``class_code`` is the top suggestion for a confirmation, the picked
+        class for a relabel, and empty otherwise.
+    """
+
+    verdictRequested = Signal(str, str, str)
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.browser = QTextBrowser()
+        self.browser.setOpenLinks(False)
+        self.verdict_label = QLabel()
+        self.verdict_label.setWordWrap(True)
+        self.verdict_label.setTextFormat(Qt.TextFormat.RichText)
+        self.confirm_button = QPushButton("Confirm suggestion")
+        self.relabel_button = QPushButton("Relabel as")
+        self.class_box = QComboBox()
+        for i, code in enumerate(CLASS_CODES):
+            key = str((i + 1) % 10) if i < 10 else ""
+            self.class_box.addItem(f"{code}   [{key}]" if key else code, code)
+        self.reject_button = QPushButton("Reject")
+        self.defer_button = QPushButton("Defer")
+        self.note_edit = QLineEdit(placeholderText="Note kept with the verdict")
+        for b in (self.confirm_button, self.relabel_button, self.reject_button, self.defer_button):
+            b.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        box = QGroupBox("Verdict")
+        grid = QGridLayout(box)
+        grid.addWidget(self.verdict_label, 0, 0, 1, 2)
+        grid.addWidget(self.confirm_button, 1, 0, 1, 2)
+        grid.addWidget(self.relabel_button, 2, 0)
+        grid.addWidget(self.class_box, 2, 1)
+        grid.addWidget(self.reject_button, 3, 0)
+        grid.addWidget(self.defer_button, 3, 1)
+        grid.addWidget(QLabel("Note:"), 4, 0, 1, 2)
+        grid.addWidget(self.note_edit, 5, 0, 1, 2)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(2, 2, 2, 2)
+        layout.addWidget(self.browser, 1)
+        layout.addWidget(box)
+        self.confirm_button.clicked.connect(self.confirm)
+        self.relabel_button.clicked.connect(lambda: self.relabel(self.class_box.currentData()))
+        self.reject_button.clicked.connect(lambda: self._verdict("rejected", ""))
+        self.defer_button.clicked.connect(lambda: self._verdict("deferred", ""))
+        self.result: dict | None = None
+        self.star_id: str | None = None
+
+    # ------------------------------------------------------------ verdicts
+    def top_suggestion(self) -> str | None:
+        suggestions = (self.result or {}).get("suggestions") or []
+        return suggestions[0].get("class_code") if suggestions else None
+
+    def confirm(self) -> None:
+        code = self.top_suggestion()
+        if code:
+            self._verdict("confirmed", code)
+        else:
+            self.verdict_label.setText("<i>No suggestion to confirm: relabel instead.</i>")
+
+    def relabel(self, class_code: str) -> None:
+        index = self.class_box.findData(class_code)
+        if index >= 0:
+            self.class_box.setCurrentIndex(index)
+        self._verdict("relabelled", class_code)
+
+    def _verdict(self, status: str, class_code: str) -> None:
+        if self.star_id is not None:
+            self.verdictRequested.emit(status, class_code or "", self.note_edit.text().strip())
+
+    # ------------------------------------------------------------- display
+    def set_star(self, star_id: str, result: dict | None, verdict, trial_period=None) -> None:
+        self.star_id = star_id
+        self.result = result or {}
+        self.note_edit.setText(_get(verdict, "note") or "")
+        code = _get(verdict, "class_code")
+        if code and self.class_box.findData(code) >= 0:
+            self.class_box.setCurrentIndex(self.class_box.findData(code))
+        elif self.top_suggestion() and self.class_box.findData(self.top_suggestion()) >= 0:
+            self.class_box.setCurrentIndex(self.class_box.findData(self.top_suggestion()))
+        self.set_verdict(verdict)
+        self.render(trial_period)
+
+    def set_verdict(self, verdict) -> None:
+        status = _get(verdict, "status") or "unreviewed"
+        colour = STATUS_COLOURS.get(status, "#333")
+        parts = [f"<b style='color:{colour}'>{_e(status)}</b>"]
+        if _get(verdict, "class_code"):
+            parts.append(f"as <b>{_e(_get(verdict, 'class_code'))}</b>")
+        if _num(_get(verdict, "period")):
+            parts.append(f"at P = {fmt_period(_num(_get(verdict, 'period')))} d")
+        self.verdict_label.setText(" ".join(parts))
+        top = self.top_suggestion()
+        self.confirm_button.setText(f"Confirm {top}" if top else "Confirm suggestion")
+        self.confirm_button.setEnabled(bool(top))
+
+    def render(self, trial_period=None) -> None:
+        r = self.result or {}
+        out = [f"<h3 style='margin:0'>{_e(self.star_id)}</h3>"]
+        status = r.get("status")
+        if status and status != "ok":
+            out.append(
+                f"<p style='color:#B03000'><b>{_e(status)}</b>: {_e(r.get('reason', ''))}</p>"
+            )
+        rows = []
+
+        def add(name, value, unit=""):
+            rows.append(
+                f"<tr><td style='color:#444;padding-right:8px'>{name}</td>"
+                f"<td>{value}{(' ' + unit) if unit and value != '–' else ''}</td></tr>"
+            )
+
+        add("Period", _e(fmt_pm(r.get("period"), r.get("period_err"), 7)), "d")
+        if trial_period and r.get("period") and not math.isclose(trial_period, r["period"]):
+            add("<b>Trial period</b>", f"<b>{fmt_period(trial_period)}</b>", "d")
+        add("Frequency", _e(fmt_pm(r.get("frequency"), r.get("frequency_err"), 6)), "c/d")
+        add("FAP", _e(fmt(r.get("fap"), 2)))
+        add("Method", _e(r.get("method") or "–"))
+        scale = r.get("time_scale") or ""
+        add("Epoch of max.", _e(fmt(r.get("epoch_max"), 10)), f"{scale} d".strip())
+        add("Points", f"{r.get('n_good', '–')} good of {r.get('n_points', '–')}")
+        bands = r.get("bands") or []
+        means = r.get("mean_mag_by_band") or {}
+        imeans = r.get("intensity_mean_mag_by_band") or {}
+        amps = r.get("amplitude_by_band") or {}
+        add("Rise time", _e(fmt(r.get("rise_time"), 3)), "phase")
+        add("O − C rms", _e(fmt(r.get("residual_std"), 3)), "mag")
+        four = r.get("fourier") or {}
+        if four:
+            add("Fourier", f"order {four.get('order', '–')}, {_e(four.get('form', ''))} series")
+            amps_f = four.get("amplitudes") or []
+            amps_e = four.get("amplitudes_err") or [None] * len(amps_f)
+            for i, (a, ae) in enumerate(zip(amps_f, amps_e, strict=False)):
+                if i >= 4:
+                    break
+                add(f"A{i + 1}", _e(fmt_pm(a, ae)), "mag")
+            for key in ("R21", "R31"):
+                add(key, _e(fmt_pm(four.get(key), four.get(f"{key}_err"))))
+            for key, name in (("phi21", "φ21"), ("phi31", "φ31")):
+                add(name, _e(fmt_pm(four.get(key), four.get(f"{key}_err"))), "rad")
+        secondary = r.get("secondary_periods") or []
+        for s in secondary[:3]:
+            if isinstance(s, dict):
+                kind = s.get("kind", "")
+                add("Secondary", f"{fmt_period(_num(s.get('period')))} d {_e(kind)}")
+            else:
+                add("Secondary", f"{fmt_period(_num(s))} d")
+        if r.get("period_ratio") is not None:
+            add("Period ratio", _e(fmt(r.get("period_ratio"), 4)))
+        out.append("<table cellspacing=0 cellpadding=1>" + "".join(rows) + "</table>")
+        if bands:
+            head = "".join(
+                f"<th align=right style='padding:0 4px'>{h}</th>"
+                for h in ("Band", "mean", "int. mean", "peak-to-peak")
+            )
+            body = "".join(
+                f"<tr><td align=right>{_e(b)}</td><td align=right>{fmt(means.get(b), 5)}</td>"
+                f"<td align=right>{fmt(imeans.get(b), 5)}</td>"
+                f"<td align=right>{fmt(amps.get(b), 3)}</td></tr>"
+                for b in bands
+            )
+            out.append(
+                "<p style='margin:4px 0 0 0'>Magnitudes (mag; int. = intensity):</p>"
+                f"<table cellspacing=0 cellpadding=1><tr>{head}</tr>{body}</table>"
+            )
+
+        physics = r.get("physics") or []
+        out.append("<h4 style='margin-bottom:2px'>Physical values</h4>")
+        out.append(f"<p style='color:#8A4B00;margin-top:0'><i>{_e(CAUTION)}</i></p>")
+        if physics:
+            prow = []
+            for p in physics:
+                if not isinstance(p, dict):
+                    continue
+                name = p.get("quantity") or p.get("name") or "?"
+                value = fmt_pm(p.get("value"), p.get("error", p.get("err")))
+                unit = p.get("unit") or ""
+                relation = p.get("relation") or p.get("citation") or ""
+                flags = p.get("flags") or []
+                flag_text = (
+                    f" <span style='color:#B03000'>[{_e(', '.join(map(str, flags)))}]</span>"
+                    if flags
+                    else ""
+                )
+                prow.append(
+                    f"<tr><td style='padding-right:8px'>{_e(name)}</td><td>{_e(value)} {_e(unit)}"
+                    f"{flag_text}<br><span style='color:#666;font-size:small'>{_e(relation)}</span>"
+                    "</td></tr>"
+                )
+            out.append("<table cellspacing=0 cellpadding=1>" + "".join(prow) + "</table>")
+        else:
+            out.append("<p>None for this class.</p>")
+
+        suggestions = r.get("suggestions") or []
+        out.append("<h4 style='margin-bottom:2px'>Suggestions</h4>")
+        if not suggestions:
+            out.append("<p>No suggestion.</p>")
+        out.append("<ol style='margin-top:0'>")
+        for s in suggestions:
+            reasons = "".join(f"<li>{_e(x)}</li>" for x in (s.get("reasons") or []))
+            against = "".join(
+                f"<li style='color:#B03000'>against: {_e(x)}</li>" for x in (s.get("against") or [])
+            )
+            note = f"<br><i>{_e(s.get('note'))}</i>" if s.get("note") else ""
+            out.append(
+                f"<li><b>{_e(s.get('class_code'))}</b> score {fmt(s.get('score'), 2)}"
+                f"{note}<ul>{reasons}{against}</ul></li>"
+            )
+        out.append("</ol>")
+        flags = r.get("flags") or []
+        if flags:
+            out.append(f"<p><b>Flags:</b> {_e(', '.join(map(str, flags)))}</p>")
+        self.browser.setHtml("".join(out))
+
+
+def _get(obj, name):
+    if obj is None:
+        return None
+    if isinstance(obj, dict):
+        return obj.get(name)
+    return getattr(obj, name, None)

@@ -1,0 +1,204 @@
+"""Click through the vetting workflow on a small ledger (pytest-qt, offscreen)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QPointF, QRectF, Qt
+
+from app.desk import MainWindow
+from app.desk.star_list import StarTableModel
+
+from .conftest import dispose
+from .fakes import FakeLedger, FakeServices, fake_ledger
+
+
+@pytest.fixture
+def desk(qtbot, qsettings, tmp_path):
+    path = tmp_path / "field.ledger.sqlite"
+    ledger = fake_ledger(path=str(path))
+    services = FakeServices()
+    services.open_ledger = lambda p, readonly=False: FakeLedger.open(p)
+    window = MainWindow(services, qsettings)
+    window.set_ledger(ledger, path)
+    window.show()
+    qtbot.waitUntil(lambda: window.periodogram.view is not None, timeout=10000)
+    yield window
+    dispose(window)
+
+
+def _click_row(qtbot, window, row):
+    view = window.star_list.view
+    rect = view.visualRect(window.star_list.proxy.index(row, 0))
+    qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+
+
+def _click_plot(qtbot, plot, x, y):
+    vb = plot.getPlotItem().getViewBox()
+    scene_pos = vb.mapViewToScene(QPointF(x, y))
+    widget_pos = plot.mapFromScene(scene_pos)
+    qtbot.mouseClick(plot.viewport(), Qt.MouseButton.LeftButton, pos=widget_pos)
+
+
+def _fold_phases(window):
+    return np.concatenate([s.getData()[0] for s in window.fold.main.bins])
+
+
+def test_open_select_pick_peak_nudge(desk, qtbot):
+    assert desk.current_star == "NV-001"
+    _click_row(qtbot, desk, 1)
+    qtbot.waitUntil(lambda: desk.current_star == "NV-002")
+    qtbot.waitUntil(lambda: desk.periodogram.view is not None and bool(desk.periodogram.candidates))
+    analysed = desk.session.period
+    second = desk.periodogram.candidates[1]
+    before = _fold_phases(desk).copy()
+    # click a little off the second candidate's peak: the pick snaps to its maximum
+    _click_plot(qtbot, desk.periodogram.plot, second["frequency"] + 0.0005, 0.5 * second["power"])
+    assert desk.session.period == pytest.approx(second["period"], rel=1e-3)
+    assert desk.session.period != pytest.approx(analysed, rel=1e-3)
+    assert not np.allclose(_fold_phases(desk), before)
+    assert f"{desk.session.period:.7f}" in desk.fold.main.fold.titleLabel.text
+    assert desk.fold.spin.value() == pytest.approx(desk.session.period, rel=1e-7)
+    # nudge with the keyboard: one small step longer, then a large step shorter
+    p = desk.session.period
+    step = desk.session.step()
+    qtbot.keyClick(desk, Qt.Key.Key_Period)
+    assert desk.session.period == pytest.approx(p + step)
+    qtbot.keyClick(desk, Qt.Key.Key_Less)
+    assert desk.session.period < p
+    qtbot.keyClick(desk, Qt.Key.Key_Backspace)
+    assert desk.session.period == pytest.approx(analysed)
+
+
+def test_verdicts_undo_and_reopen(desk, qtbot, qsettings):
+    ledger = desk.ledger
+    # confirm NV-001 at a nudged period
+    qtbot.keyClick(desk, Qt.Key.Key_Period)
+    nudged = desk.session.period
+    qtbot.keyClick(desk, Qt.Key.Key_Y)
+    v = ledger.verdict("NV-001")
+    assert (v.status, v.class_code) == ("confirmed", "RRab")
+    assert v.period == pytest.approx(nudged)
+    assert desk.current_star == "NV-002"  # advanced to the next unreviewed star
+    qtbot.keyClick(desk, Qt.Key.Key_2)  # relabel as RRc
+    assert (ledger.verdict("NV-002").status, ledger.verdict("NV-002").class_code) == (
+        "relabelled",
+        "RRc",
+    )
+    desk.sheet.note_edit.setText("blended with a neighbour")
+    qtbot.mouseClick(desk.sheet.reject_button, Qt.MouseButton.LeftButton)
+    assert ledger.verdict("NV-003").status == "rejected"
+    assert ledger.verdict("NV-003").note == "blended with a neighbour"
+    qtbot.keyClick(desk, Qt.Key.Key_D)
+    assert ledger.verdict("NV-004").status == "deferred"
+    model = desk.star_list.model
+    assert model.value("NV-004", "status") == "deferred"
+    assert model.status_counts()["unreviewed"] == 2
+    # undo the deferral: back to unreviewed, in the ledger and in the list
+    qtbot.keyClick(desk, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
+    assert ledger.verdict("NV-004").status == "unreviewed"
+    assert model.value("NV-004", "status") == "unreviewed"
+    assert desk.current_star == "NV-004"
+    # reopen the ledger in a new window: every verdict is there
+    path = desk.ledger_path
+    desk.close()
+    again = MainWindow(desk.services, qsettings)
+    again.open_ledger(path)
+    assert again.ledger.verdict("NV-001").status == "confirmed"
+    assert again.ledger.verdict("NV-002").class_code == "RRc"
+    assert again.ledger.verdict("NV-003").status == "rejected"
+    assert again.star_list.model.value("NV-002", "status") == "relabelled"
+    assert str(path) in again.recent_files()
+    dispose(again)
+
+
+def test_filter_the_list(desk, qtbot):
+    desk.set_verdict("rejected")
+    desk.activateWindow()
+    qtbot.keyClick(desk, Qt.Key.Key_F, Qt.KeyboardModifier.ControlModifier)  # Find: to the filter
+    assert desk.star_list.filter_edit.hasFocus()
+    qtbot.keyClicks(desk.star_list.filter_edit, "nv-00")
+    assert desk.star_list.proxy.rowCount() == 6
+    desk.star_list.filter_edit.clear()
+    qtbot.keyClicks(desk.star_list.filter_edit, "005")
+    assert desk.star_list.proxy.visible_star_ids() == ["NV-005"]
+    desk.star_list.filter_edit.clear()
+    desk.star_list.status_box.setCurrentIndex(desk.star_list.status_box.findData("rejected"))
+    assert desk.visible_star_ids() == ["NV-001"]
+    assert "1 of 6 shown" in desk.star_list.counts_label.text()
+
+
+def test_exclude_points_with_a_selection(desk, qtbot):
+    lc_panel = desk.lightcurve
+    x = np.asarray(desk.lc.time) - lc_panel.t0
+    rect = QRectF(QPointF(-1.0, 10.0), QPointF(float(np.median(x)), 20.0))
+    inside = lc_panel.points_in(rect)
+    assert 0 < inside.size < desk.lc.n_points
+    calls = desk.services.analyse_calls
+    lc_panel.vb.sigRectSelected.emit(rect, False)  # what a Shift+drag emits
+    mask = desk.ledger.masks["NV-001"]
+    assert mask[inside].all() and mask.sum() == inside.size
+    qtbot.waitUntil(lambda: desk.services.analyse_calls == calls + 1, timeout=10000)
+    qtbot.waitUntil(lambda: desk.result.get("n_good") == desk.lc.n_points - inside.size)
+    assert len(lc_panel.excluded.getData()[0]) == inside.size
+    # Ctrl on release restores
+    lc_panel.vb.sigRectSelected.emit(rect, True)
+    assert not desk.ledger.masks["NV-001"].any()
+
+
+def test_export_and_plots(desk, qtbot, tmp_path):
+    written = []
+    desk.services.write_catalogue = lambda ledger, path, fmt=None: (
+        written.append((path, fmt)) or path
+    )
+    done = []
+    desk.export_catalogue(tmp_path / "vetted.ecsv", "ecsv", on_done=done.append)
+    qtbot.waitUntil(lambda: bool(done), timeout=10000)
+    assert written == [(tmp_path / "vetted.ecsv", "ecsv")]
+    for which in ("lightcurve", "periodogram", "fold"):
+        png = desk.export_plot(which, tmp_path / f"{which}.png")
+        assert png.stat().st_size > 5000
+    svg = desk.export_plot("fold", tmp_path / "fold.svg")
+    assert "<svg" in svg.read_text()[:2000]
+
+
+def test_shortcut_sheet_lists_standard_and_own_keys(desk):
+    desk.show_shortcuts()
+    table = desk.shortcut_sheet.table
+    texts = {table.item(i, 1).text(): table.item(i, 2).text() for i in range(table.rowCount())}
+    assert texts["Undo verdict"]  # QKeySequence.Undo on this platform
+    assert texts["Confirm suggestion"].startswith("Y")
+    assert "Next candidate" in texts
+    desk.shortcut_sheet.close()
+
+
+def test_layout_persists(desk, qsettings):
+    desk.main_splitter.setSizes([300, 900, 400])
+    desk.save_layout()
+    assert qsettings.value("splitter/main") is not None
+    assert qsettings.value("window/geometry") is not None
+
+
+def test_star_model_scales_to_ten_thousand_rows(qtbot):
+    model = StarTableModel()
+    rows = [
+        (
+            f"S{i:05d}",
+            "unreviewed",
+            "RRab",
+            (i % 97) / 97,
+            None,
+            0.3 + (i % 50) / 100,
+            0.5,
+            1e-5,
+            "",
+            False,
+        )
+        for i in range(10_000)
+    ]
+    model.set_rows(rows)
+    assert model.rowCount() == 10_000
+    model.sort(5, Qt.SortOrder.DescendingOrder)
+    periods = [model.value(sid, "period") for sid in model.star_ids()[:3]]
+    assert periods == sorted(periods, reverse=True) and periods[0] == pytest.approx(0.79)
+    assert model.row_of("S00042") is not None
