@@ -158,9 +158,9 @@ class CadenceSettings:
 
     start_hjd: float = 2460680.5  # start of the first season's year, invented
     n_seasons: int = 3
-    runs_per_season: int = 4
-    run_nights: tuple[int, int] = (3, 8)  # min, max nights per run
-    v_per_night: float = 2.1
+    runs_per_season: int = 5
+    run_nights: tuple[int, int] = (3, 6)  # min, max nights per run
+    v_per_night: float = 2.2
     i_per_night: float = 1.0
     max_hour_angle: float = 3.5  # hours; airmass below ~2 (from memory)
     min_window: float = 1.0  # hours of usable window for a night to count
@@ -242,9 +242,11 @@ def make_cadence(
         splits = np.flatnonzero(np.diff(usable) > 1) + 1
         segment = max(np.split(usable, splits), key=len)
         chosen = np.zeros(nights.size, dtype=bool)
-        for _ in range(settings.runs_per_season):
+        # one run in each equal slice of the season, so runs spread over it
+        edges = np.linspace(segment[0], segment[-1] + 1, settings.runs_per_season + 1)
+        for a, b in zip(edges[:-1], edges[1:], strict=True):
             length = int(rng.integers(settings.run_nights[0], settings.run_nights[1] + 1))
-            first = int(rng.integers(segment[0], max(segment[0] + 1, segment[-1] - length + 2)))
+            first = int(rng.integers(int(a), max(int(a) + 1, int(b) - length + 1)))
             chosen[first : first + length] = True
         chosen &= np.isin(np.arange(nights.size), segment)
         idx = np.flatnonzero(chosen)

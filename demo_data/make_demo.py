@@ -49,8 +49,8 @@ def survey_table(survey) -> Table:
         parts["mag"].append(np.round(lc.mag, 3))
         parts["mag_err"].append(np.maximum(np.round(lc.mag_err, 3), 0.001))
         parts["band"].append(lc.band.astype(str))
-        parts["ra"].append(np.full(n, round(lc.meta.ra, 5)))
-        parts["dec"].append(np.full(n, round(lc.meta.dec, 5)))
+        parts["ra"].append(np.full(n, round(lc.meta.ra, 4)))
+        parts["dec"].append(np.full(n, round(lc.meta.dec, 4)))
     table = Table({k: np.concatenate(v) for k, v in parts.items()})
     units = {"hjd": "d", "mag": "mag", "mag_err": "mag", "ra": "deg", "dec": "deg"}
     for name, unit in units.items():
