@@ -454,10 +454,6 @@ def _field_apparent(rng: np.random.Generator, m_v: float, vi0: float, mu: tuple[
     return m_v + mod + 3.1 * ebv, vi0 + 1.28 * ebv
 
 
-def _nan_fourier() -> dict[str, float]:
-    return {"R21": np.nan, "phi31": np.nan}
-
-
 def _draw_rrab(rng, t0, cluster):
     # P: 0.45–0.8 d (REFERENCES: RRab typical 0.45–1.0 d); mean ~0.60 d for a
     # cluster between the Oosterhoff groups (mean P 0.55/0.65 d, REFERENCES)
