@@ -560,12 +560,11 @@ def _draw_dcep(rng, t0, cluster, subtype):
         period = float(10 ** rng.uniform(np.log10(3.0), np.log10(30.0)))  # F 3–30 d
         amp = float(rng.uniform(0.5, 1.1))  # from memory
         logp = np.log10(period)
-        # Hertzsprung progression: the bump crosses maximum near 10 d (REFERENCES,
-        # textbook); modelled as a dip of R21 and a swing of phi21 there (from memory)
-        R21 = 0.45 - 0.28 * np.exp(-(((logp - 1.0) / 0.08) ** 2))
-        phi21 = 2.4 + 1.3 / (1.0 + np.exp(-(logp - 1.0) / 0.04))
-        R = np.array([R21, 0.7 * R21 * rng.uniform(0.8, 1.1), 0.25])
-        phi = np.array([phi21, 2 * phi21 + 0.3, 3 * phi21 + 0.5])
+        # a sawtooth-like shape as for RRab (phi31 ~ 5, sine), with the
+        # Hertzsprung progression (bump crossing maximum near 10 d; REFERENCES,
+        # textbook) shown as a dip of R21 there (depth and width from memory)
+        R21 = 0.45 - 0.25 * np.exp(-(((logp - 1.0) / 0.08) ** 2))
+        R, phi = _rr_harmonics(rng, float(rng.uniform(4.9, 5.4)), float(R21), 5)
         m_v = -4.05 - 2.43 * (logp - 1.0) + rng.normal(0, 0.1)  # B07 PL
     else:
         period = float(rng.uniform(1.0, 5.0))  # 1O 1–5 d
@@ -611,7 +610,10 @@ def _draw_t2cep(rng, t0, cluster, subtype):
         alt = rng.uniform(0.2, 0.35)
 
         def base(t):
-            return amp * (main(t) + alt * np.cos(2 * np.pi * (t - epoch) / period))
+            # the sine term makes the minima alternate (deep near phase 0.25),
+            # a little cosine makes phase 0 the brighter maximum
+            arg = 2 * np.pi * (t - epoch) / period
+            return amp * (main(t) + alt * np.sin(arg) - 0.3 * alt * np.cos(arg))
     else:
         shape = _fourier_mode(period, epoch, [0.4, 0.22, 0.1], [2.6, 5.3, 1.7])
 
@@ -690,7 +692,9 @@ def _eclipse_flux(phase, depth1, depth2, width, ellipsoidal, reflection, phase2=
     flux = (
         1.0 - depth1 * np.exp(-0.5 * (d1 / width) ** 2) - depth2 * np.exp(-0.5 * (d2 / width) ** 2)
     )
-    flux -= ellipsoidal * 0.5 * (1 - np.cos(4 * np.pi * phase))
+    # ellipsoidal: faintest at conjunctions (phases 0 and 0.5), brightest at quadrature
+    flux -= ellipsoidal * 0.5 * (1 + np.cos(4 * np.pi * phase))
+    # reflection: the companion's lit face is seen near phase 0.5
     flux -= reflection * 0.5 * (1 + np.cos(2 * np.pi * phase))
     return flux
 
@@ -722,26 +726,20 @@ def _draw_eclipsing(rng, t0, cluster, code):
         flux = _eclipse_flux(phase, depth1 * ri, depth2 * ri, width, ell * ri, refl * ri, phase2)
         return -2.5 * np.log10(flux)
 
-    amp = -2.5 * np.log10(_eclipse_flux(0.0, depth1, depth2, width, ell, refl, phase2))
+    grid = np.linspace(0.0, 1.0, 4001)
+
+    def ptp(ri):
+        mag = -2.5 * np.log10(
+            _eclipse_flux(grid, depth1 * ri, depth2 * ri, width, ell * ri, refl * ri, phase2)
+        )
+        return float(mag.max() - mag.min())
+
     member = rng.random() < 0.3  # most binaries are field stars (invented share)
     m_v = float(rng.uniform(2.0, 5.0))
     info = {
         "period": period,
-        "amplitude_V": float(amp),
-        "amplitude_I": float(
-            -2.5
-            * np.log10(
-                _eclipse_flux(
-                    0.0,
-                    depth1 * ratio_i,
-                    depth2 * ratio_i,
-                    width,
-                    ell * ratio_i,
-                    refl * ratio_i,
-                    phase2,
-                )
-            )
-        ),
+        "amplitude_V": ptp(1.0),
+        "amplitude_I": ptp(ratio_i),
         "ratio_I": ratio_i,
         "epoch": epoch,
         "band_model": base,
