@@ -402,17 +402,25 @@ class _Levels:
 
 
 def _rr_harmonics(rng: np.random.Generator, phi31: float, R21: float, n: int) -> tuple:
-    """RRab-like harmonics: phi_k1 ~ (k−1)(phi31/2), R_k1 = R21 0.7^(k−2).
+    """RRab-like harmonics (sine form): phi_k1 ~ (k−1)(phi31/2 + 0.08), R falling fast.
 
     A sawtooth (fast rise, slow decline) has R_k1 = 1/k and phi_k1 = (k−1) pi
-    in the sine form; RRab are softer, with phi21 near phi31/2 and R_k1 falling
-    a little faster (from memory).
+    in the sine form; RRab are softer: phi21 near phi31/2, R31 ~ 0.7 R21 and
+    higher orders falling off fast (from memory).  The decay and the phase
+    step were tuned so that the rise from minimum to maximum light takes
+    ~0.15–0.2 of a cycle without spurious wiggles (rise time typical of RRab,
+    from memory).
     """
     k = np.arange(2, n + 1)
-    R = R21 * 0.7 ** (k - 2) * rng.uniform(0.9, 1.1, k.size)
+    R = R21 * 0.55 ** (k - 2) * rng.uniform(0.9, 1.1, k.size)
     R[0] = R21
-    phi = (k - 1) * (phi31 / 2.0) + rng.normal(0.0, 0.05, k.size)
-    phi[1] = phi31
+    if k.size > 1:
+        R[1] = R21 * rng.uniform(0.62, 0.75)
+    # below phi31 ~ 4.8 a smaller step keeps the curve free of wiggles
+    step = phi31 / 2.0 + 0.08 if phi31 >= 4.9 else 2.53 - 0.77 * (4.9 - phi31)
+    phi = (k - 1) * step + rng.normal(0.0, 0.03, k.size)
+    if k.size > 1:
+        phi[1] = phi31
     return R, phi
 
 
@@ -455,9 +463,9 @@ def _field_apparent(rng: np.random.Generator, m_v: float, vi0: float, mu: tuple[
 
 
 def _draw_rrab(rng, t0, cluster):
-    # P: 0.45–0.8 d (REFERENCES: RRab typical 0.45–1.0 d); mean ~0.60 d for a
+    # P: 0.47–0.8 d (REFERENCES: RRab typical 0.45–1.0 d); mean ~0.60 d for a
     # cluster between the Oosterhoff groups (mean P 0.55/0.65 d, REFERENCES)
-    period = float(np.clip(rng.normal(0.60, 0.07), 0.45, 0.80))
+    period = float(np.clip(rng.normal(0.60, 0.07), 0.47, 0.80))
     # Bailey diagram: amplitude falls with period; A_V 0.6–1.2 (from memory)
     amp = float(np.clip(0.95 - 2.8 * (period - 0.58) + rng.normal(0, 0.08), 0.6, 1.2))
     # phi31 (sine) from JK96 at the cluster's [Fe/H], with ~0.1 rad scatter;

@@ -346,3 +346,63 @@ def test_committed_demo_forms_agree_and_are_small():
     truth = Table.read(DEMO / make_demo.TRUTH_NAME, format="ascii.csv")
     assert len(truth) == make_demo.N_STARS
     assert set(truth["star_id"]) == set(long_ecsv["star_id"])
+
+
+def _phase_curve(star, cycles=1.0, n=4000):
+    t = star.truth
+    phase = np.linspace(0.0, cycles, n, endpoint=False)
+    return phase, star.model(t.epoch + phase * t.period, "V")
+
+
+def test_eclipsing_shapes(survey):
+    for star in _truth(survey, "EW") + _truth(survey, "EA"):
+        phase, mag = _phase_curve(star)
+        top = mag.min()  # maximum light
+        primary = mag[0] - top  # epoch is primary minimum
+        near_half = (phase > 0.35) & (phase < 0.65)
+        secondary = mag[near_half].max() - top
+        assert mag[0] == pytest.approx(mag.max(), abs=1e-4)  # deepest point at the epoch
+        if star.truth.class_code == "EW":
+            assert secondary / primary > 0.8  # (nearly) equal minima
+        else:
+            # narrow eclipses: most of the cycle is within 0.02 mag of maximum light
+            assert np.mean(mag - mag.min() < 0.02) > 0.6
+            assert secondary < primary  # unequal depths
+
+
+def test_pulsator_shapes(survey):
+    for star in _truth(survey, "T2CEP"):
+        if star.truth.subtype != "RVTAU":
+            continue
+        phase, mag = _phase_curve(star)
+        first = mag[(phase > 0.1) & (phase < 0.4)].max()
+        second = mag[(phase > 0.6) & (phase < 0.9)].max()
+        assert abs(first - second) > 0.1 * star.truth.amplitude_V  # alternating minima
+    for star in _truth(survey, "DSCT"):
+        t = star.truth
+        if t.subtype == "HADS":
+            assert t.amplitude_V > 0.3  # HADS above 0.3 mag (Poro et al. 2024)
+        else:
+            assert t.amplitude_V < 0.2
+    rises = []
+    for star in _truth(survey, "RRab"):
+        if star.truth.blazhko:
+            continue
+        phase, mag = _phase_curve(star)
+        rises.append((1.0 - phase[np.argmax(mag)]) % 1.0)
+    # steep rise: minimum to maximum light in ~0.15-0.2 of a cycle for most
+    # RRab (from memory)
+    assert np.median(rises) < 0.22 and np.percentile(rises, 90) < 0.26
+
+
+def test_every_model_is_finite_in_both_bands(survey):
+    time = np.linspace(survey.lightcurves[0].time[0], survey.lightcurves[0].time[-1], 500)
+    for star in survey.stars:
+        for band in ("V", "I"):
+            assert np.all(np.isfinite(star.model(time, band))), star.truth.star_id
+
+
+def test_field_follows_the_class_mix():
+    f = syn.synthetic_field(120, n_epochs=200, seed=9)
+    counts = Counter((t.class_code, t.subtype) for t in f.truth)
+    assert counts == Counter({k: v for k, v in syn.class_counts(120).items() if v})
