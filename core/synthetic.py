@@ -394,7 +394,7 @@ class _Levels:
     v_minus_i: float
     ratio_I: float
 
-    def add(self, base_V: np.ndarray, t: np.ndarray, band: np.ndarray) -> np.ndarray:
+    def add(self, base_V: np.ndarray, band: np.ndarray) -> np.ndarray:
         is_i = band == "I"
         scale = np.where(is_i, self.ratio_I, 1.0)
         mean = np.where(is_i, self.mean_V - self.v_minus_i, self.mean_V)
@@ -416,7 +416,7 @@ def _rr_harmonics(rng: np.random.Generator, phi31: float, R21: float, n: int) ->
     R[0] = R21
     if k.size > 1:
         R[1] = R21 * rng.uniform(0.62, 0.75)
-    # below phi31 ~ 4.8 a smaller step keeps the curve free of wiggles
+    # below phi31 ~ 4.9 a smaller step keeps the curve free of wiggles
     step = phi31 / 2.0 + 0.08 if phi31 >= 4.9 else 2.53 - 0.77 * (4.9 - phi31)
     phi = (k - 1) * step + rng.normal(0.0, 0.03, k.size)
     if k.size > 1:
@@ -456,9 +456,8 @@ def _field_apparent(rng: np.random.Generator, m_v: float, vi0: float, mu: tuple[
     lo = max(mu[0], 11.5 - m_v)
     hi = max(lo, min(mu[1], 19.3 - m_v))
     mod = rng.uniform(lo, hi)
-    ebv = (
-        0.08 + 0.04 * max(mod - 12.0, 0.0) + rng.uniform(0.0, 0.1)
-    )  # invented, grows with distance
+    # reddening grows with distance (invented)
+    ebv = 0.08 + 0.04 * max(mod - 12.0, 0.0) + rng.uniform(0.0, 0.1)
     return m_v + mod + 3.1 * ebv, vi0 + 1.28 * ebv
 
 
@@ -871,7 +870,7 @@ def draw_star(
         def model(t, band):
             t = np.asarray(t, float)
             band = np.broadcast_to(np.asarray(band, dtype=object), t.shape)
-            return levels.add(base(t), t, band)
+            return levels.add(base(t), band)
 
     # mean magnitudes of the noise-free model, averaged over the observing span
     grid = t0 + np.linspace(0.0, span, 6007)
