@@ -424,7 +424,8 @@ class _AstropyTable:
 def _to_float(values, mask) -> tuple[np.ndarray, np.ndarray, dict[int, str]]:
     """Float values, a mask of cells that could not be read, and why."""
     n = len(values)
-    mask = np.zeros(n, dtype=bool) if mask is None else mask.copy()
+    blank = np.zeros(n, dtype=bool) if mask is None else np.asarray(mask, dtype=bool)
+    mask = blank.copy()
     try:
         out = np.asarray(values, dtype=np.float64)
         if out.shape != (n,):
@@ -439,7 +440,8 @@ def _to_float(values, mask) -> tuple[np.ndarray, np.ndarray, dict[int, str]]:
     reasons = {}
     for i in np.flatnonzero(mask):
         text = str(values[i]).strip()
-        reasons[int(i)] = "empty cell" if text in ("", "--") else f"not a number: {text[:40]!r}"
+        empty = blank[i] or text in ("", "--")
+        reasons[int(i)] = "empty cell" if empty else f"not a number: {text[:40]!r}"
     return out, mask, reasons
 
 
