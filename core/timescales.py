@@ -34,7 +34,7 @@ from astropy.utils import iers
 from .errors import PhasewiseError
 from .lightcurve import TIME_SCALES
 
-__all__ = ["DEMO_OBSERVATORY", "MJD_OFFSET", "convert_times"]
+__all__ = ["DEMO_OBSERVATORY", "MJD_OFFSET", "convert_times", "to_time_scale"]
 
 # No network on the machines Phasewise runs on; never try to fetch IERS-A.
 iers.conf.auto_download = False
@@ -159,3 +159,25 @@ def convert_times(
         jd = _to_jd(values[finite], from_scale, star, location)
         result[finite] = _from_jd(jd, to_scale, star, location)
     return result[0] if scalar else result
+
+
+def to_time_scale(lc, to_scale: str, *, location: EarthLocation | None = None):
+    """A copy of a light curve with its times converted to ``to_scale``.
+
+    The star's coordinates come from ``lc.meta`` (``ra``, ``dec``); a
+    heliocentric or barycentric conversion also needs ``location``.
+    """
+    from dataclasses import replace
+
+    times = convert_times(
+        lc.time, lc.time_scale, to_scale, ra=lc.meta.ra, dec=lc.meta.dec, location=location
+    )
+    note = f"times converted {lc.time_scale} -> {to_scale} with astropy.time"
+    meta = replace(lc.meta, notes=(*lc.meta.notes, note))
+    return replace(
+        lc,
+        time=times,
+        time_scale=to_scale,
+        mag_err=lc.mag_err if lc.has_errors else None,
+        meta=meta,
+    )

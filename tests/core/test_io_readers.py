@@ -359,3 +359,23 @@ def test_write_refuses_mixed_scales_and_nothing(tmp_path):
         write_stars(mixed, tmp_path / "x.ecsv")
     with pytest.raises(PhasewiseError, match=r"nothing to write"):
         write_stars([], tmp_path / "x.ecsv")
+
+
+def test_votable_with_several_tables_says_which_was_read(tmp_path):
+    from astropy.io.votable.tree import Resource, TableElement, VOTableFile
+
+    votable = VOTableFile()
+    resource = Resource()
+    votable.resources.append(resource)
+    for name, star in (("phot", "A"), ("other", "B")):
+        table = Table({"star": [star] * 10, "mjd": np.arange(10.0), "mag": np.full(10, 15.0)})
+        element = TableElement.from_table(votable, table)
+        element.name = name
+        resource.tables.append(element)
+    path = tmp_path / "two.vot"
+    votable.to_xml(str(path))
+    source = open_photometry(path)
+    assert source.star_ids() == ("A",)
+    assert "read table 0 'phot'" in source.report.table
+    assert open_photometry(path, table="other").star_ids() == ("B",)
+    assert open_photometry(path, table=1).star_ids() == ("B",)

@@ -107,3 +107,21 @@ def test_barycentric_conversion_needs_coordinates_and_location():
 def test_unknown_scale_is_named():
     with pytest.raises(PhasewiseError, match=r"field 'to_scale': unknown time scale 'TT'"):
         convert_times(JD, "JD", "TT")
+
+
+def test_a_light_curve_converts_with_its_own_coordinates():
+    from core.lightcurve import LightCurve, StarMeta
+    from core.timescales import to_time_scale
+
+    lc = LightCurve(
+        "CAV-1", JD, np.full(JD.size, 15.0), time_scale="JD", meta=StarMeta(ra=RA, dec=DEC)
+    )
+    bjd = to_time_scale(lc, "BJD_TDB", location=DEMO_OBSERVATORY)
+    assert bjd.time_scale == "BJD_TDB" and not bjd.has_errors
+    assert np.array_equal(
+        bjd.time, convert_times(JD, "JD", "BJD_TDB", ra=RA, dec=DEC, location=DEMO_OBSERVATORY)
+    )
+    assert "JD -> BJD_TDB" in bjd.meta.notes[-1]
+    bare = LightCurve("CAV-2", JD, np.full(JD.size, 15.0), time_scale="JD")
+    with pytest.raises(PhasewiseError, match=r"needs the star's coordinates"):
+        to_time_scale(bare, "HJD", location=DEMO_OBSERVATORY)
