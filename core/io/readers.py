@@ -159,6 +159,10 @@ class _DelimitedTable:
 
     def _split(self, text: str) -> list[str]:
         if self.delimiter is None:
+            if '"' in text:
+                return [
+                    p for p in next(csv.reader([text], delimiter=" ", skipinitialspace=True)) if p
+                ]
             return text.split()
         if '"' in text:
             return next(csv.reader([text], delimiter=self.delimiter))
@@ -179,9 +183,11 @@ class _DelimitedTable:
                 if self.delimiter == "," and "," not in text and ";" in text:
                     self.delimiter = ";"  # European spreadsheets write semicolons
                 names = [c.strip() for c in self._split(text)]
-                if any(not n for n in names):
+                # a trailing delimiter (spreadsheet exports) leaves unnamed columns
+                names = [n or f"column {i + 1}" for i, n in enumerate(names)]
+                if len(set(n.lower() for n in names)) < len(names):
                     raise ReadError(
-                        f"the header has an empty column name: {text[:80]!r}",
+                        f"the header names a column twice: {text[:80]!r}",
                         file=self.file,
                         row=number,
                     )
@@ -593,9 +599,8 @@ class PhotometrySource:
             bad |= fail
         for i in sorted(why):  # one entry per skipped row, naming the first bad cell
             name, reason = why[i]
-            tally.skip(
-                file, rows[i], f"column '{name}': not a number", f"column '{name}': {reason}"
-            )
+            kind = "empty cell" if reason == "empty cell" else "not a number"
+            tally.skip(file, rows[i], f"column '{name}': {kind}", f"column '{name}': {reason}")
         keep = ~bad
         notes: list[str] = []
         time = values["time"][keep] + res.time_offset
@@ -727,8 +732,16 @@ def _open_table(path: Path, fmt: str | None, table):
 
 def _resolve(table, mapping, file: str) -> ResolvedColumns:
     res = resolve_columns(table.columns, mapping, file=file)
+    declared = table.meta.get("time_scale") or table.meta.get("timescale")
+    if declared and res.time_scale and not (mapping and mapping.time_scale):
+        said = normalise_scale(declared, where=file, field_name="time_scale")
+        if said != res.time_scale:
+            raise ReadError(
+                f"mixed time scales: column {res.roles['time']!r} reads as {res.time_scale} "
+                f"but the table header says time_scale {said}; give time_scale= in the mapping",
+                file=file,
+            )
     if not res.time_scale and not res.scale_column:
-        declared = table.meta.get("time_scale") or table.meta.get("timescale")
         if declared:
             scale = normalise_scale(declared, where=file, field_name="time_scale")
             res = ResolvedColumns(**{**res.__dict__, "time_scale": scale})

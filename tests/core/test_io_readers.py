@@ -186,7 +186,8 @@ def test_non_numeric_cells_skip_rows_with_line_numbers(tmp_path):
     assert reasons[15] == "column 'jd': not a number: 'oops'"  # one entry per row
     assert report.skip_counts == {
         "column 'mag': not a number": 1,
-        "column 'jd': not a number": 2,
+        "column 'jd': empty cell": 1,
+        "column 'jd': not a number": 1,
         "wrong number of fields": 1,
     }
 
@@ -379,3 +380,39 @@ def test_votable_with_several_tables_says_which_was_read(tmp_path):
     assert "read table 0 'phot'" in source.report.table
     assert open_photometry(path, table="other").star_ids() == ("B",)
     assert open_photometry(path, table=1).star_ids() == ("B",)
+
+
+def test_header_meta_disagreeing_with_the_time_column(tmp_path):
+    table = Table({"id": ["A"] * 3, "hjd": [1.0, 2.0, 3.0], "mag": [1.0, 2.0, 3.0]})
+    table.meta["time_scale"] = "BJD_TDB"
+    table.write(tmp_path / "m.ecsv")
+    with pytest.raises(
+        ReadError,
+        match=r"m.ecsv: mixed time scales: column 'hjd' reads as HJD but the table header says time_scale BJD_TDB",
+    ):
+        open_photometry(tmp_path / "m.ecsv")
+    assert (
+        open_photometry(tmp_path / "m.ecsv", ColumnMapping(time_scale="HJD")).star("A").time_scale
+        == "HJD"
+    )
+
+
+def test_time_scale_from_the_table_header(tmp_path):
+    table = Table({"id": ["A"] * 3, "time": [1.0, 2.0, 3.0], "mag": [1.0, 2.0, 3.0]})
+    table.meta["time_scale"] = "MJD"
+    table.write(tmp_path / "h.ecsv")
+    assert open_photometry(tmp_path / "h.ecsv").star("A").time_scale == "MJD"
+
+
+def test_trailing_delimiter_and_repeated_header_names(tmp_path):
+    lc = open_photometry(_file(tmp_path, "t.csv", "jd,mag,\n1,15,\n2,16,\n")).star("t")
+    assert list(lc.mag) == [15.0, 16.0]
+    with pytest.raises(ReadError, match=r"r.csv: row 1: the header names a column twice"):
+        open_photometry(_file(tmp_path, "r.csv", "jd,mag,MAG\n1,2,3\n"))
+
+
+def test_whitespace_text_with_quoted_ids(tmp_path):
+    text = 'star hjd mag\n"CAV 1" 2460000.5 15.1\n"CAV 1"   2460001.5 15.2\nB 2460000.5 14\n'
+    source = open_photometry(_file(tmp_path, "w.txt", text))
+    assert source.star_ids() == ("CAV 1", "B")
+    assert list(source.star("CAV 1").mag) == [15.1, 15.2]
