@@ -501,6 +501,17 @@ class PhotometrySource:
                 self._tally.note(note if self.shape != "folder" else f"{part.table.file}: {note}")
             if part.table.table_note:
                 self._tally.note(part.table.table_note)
+        fixed = {}
+        for part in self._parts:
+            if part.resolved.scale_column is None and part.resolved.time_scale:
+                fixed.setdefault(part.resolved.time_scale, part.table.path.name)
+        if len(fixed) > 1 and not (self.mapping and self.mapping.time_scale):
+            listing = ", ".join(f"{scale} (e.g. {name})" for scale, name in fixed.items())
+            raise ReadError(
+                f"mixed time scales: the files are in {listing}; read them separately or "
+                "convert them to one scale",
+                file=str(self.path),
+            )
         if self.shape == "folder":
             merged = [s for s, where in self._where.items() if len(where) > 1]
             if merged:

@@ -254,11 +254,21 @@ def test_folder_with_files_in_different_scales(tmp_path):
     folder.mkdir()
     (folder / "a.csv").write_text("hjd,mag\n1,2\n")
     (folder / "b.csv").write_text("bjd,mag\n1,2\n")
-    source = open_photometry(folder)
     with pytest.raises(
-        ReadError, match=r"mixed time scales: star 'b' is in BJD_TDB, earlier stars in HJD"
+        ReadError,
+        match=r"f: mixed time scales: the files are in HJD \(e.g. a.csv\), BJD_TDB \(e.g. b.csv\)",
     ):
-        list(source.stars())
+        open_photometry(folder)
+
+
+def test_stars_in_different_scales_from_a_scale_column(tmp_path):
+    text = "id,time,mag,time_scale\nA,1,15,HJD\nA,2,15,HJD\nB,1,15,BJD_TDB\n"
+    source = open_photometry(_file(tmp_path, "s.csv", text))
+    assert source.star("A").time_scale == "HJD"
+    with pytest.raises(
+        ReadError, match=r"mixed time scales: star 'B' is in BJD_TDB, earlier stars in HJD"
+    ):
+        source.star("B")
 
 
 def _fits_with_two_tables(path):
