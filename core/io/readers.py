@@ -81,7 +81,7 @@ class ReadReport:
     columns_found: tuple[str, ...]
     columns_used: dict[str, str]
     time_scale: str
-    table: str | None  # which table of a multi-table FITS/VOTable file was read
+    table: str | None  # which table of a multi-table FITS/VOTable was read, or how (ECSV as text)
     n_stars: int
     rows_read: int
     rows_skipped: int
@@ -738,7 +738,49 @@ def _open_table(path: Path, fmt: str | None, table):
         raise ReadError("cannot open: no such file", file=str(path))
     if path.stat().st_size == 0:
         raise ReadError("empty file", file=str(path))
-    return _AstropyTable(path, fmt, table), fmt
+    try:
+        return _AstropyTable(path, fmt, table), fmt
+    except ReadError as exc:
+        if fmt != "ecsv":
+            raise
+        fallback = _ecsv_as_text(path, exc)
+        if fallback is None:
+            raise
+        return fallback, fmt
+
+
+def _ecsv_as_text(path: Path, failure: ReadError):
+    """Read an ECSV file that astropy refuses (a bad cell) as text, row by row.
+
+    ECSV data are delimited text under a commented header, so the text
+    reader can check each row and skip the bad ones with their line numbers.
+    The header's metadata is then not used (only the column names).
+    """
+    delimiter = None
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(7)
+            for raw in handle:
+                if not raw.startswith(b"#"):
+                    break
+                if raw.strip() in (b"# delimiter: ','", b"# delimiter: ,"):
+                    delimiter = ","
+    except OSError:
+        return None
+    if head != b"# %ECSV":
+        return None
+    try:
+        text_table = _DelimitedTable(path, "ascii")
+    except ReadError:
+        return None
+    text_table.delimiter = delimiter
+    if delimiter:
+        text_table.columns = text_table._read_header()
+    text_table.table_note = (
+        f"astropy could not read the ECSV file ({failure.reason}); read its rows as text, "
+        "checking each row (header metadata not used)"
+    )
+    return text_table
 
 
 def _resolve(table, mapping, file: str) -> ResolvedColumns:

@@ -426,3 +426,19 @@ def test_whitespace_text_with_quoted_ids(tmp_path):
     source = open_photometry(_file(tmp_path, "w.txt", text))
     assert source.star_ids() == ("CAV 1", "B")
     assert list(source.star("CAV 1").mag) == [15.1, 15.2]
+
+
+def test_ecsv_with_a_bad_cell_is_read_row_by_row(tmp_path):
+    table = Table(
+        {"star_id": ["A"] * 11, "hjd": np.arange(11.0) + 2460000, "mag": np.full(11, 15.0)}
+    )
+    table.write(tmp_path / "b.ecsv")
+    lines = (tmp_path / "b.ecsv").read_text().splitlines()
+    data_start = next(i for i, line in enumerate(lines) if not line.startswith("#")) + 1
+    lines[data_start + 4] = lines[data_start + 4].replace("15.0", "oops")
+    (tmp_path / "b.ecsv").write_text("\n".join(lines) + "\n")
+    source = open_photometry(tmp_path / "b.ecsv")
+    assert source.star("A").n_points == 10
+    assert source.report.skipped[0]["row"] == data_start + 5  # a line number of the file
+    assert source.report.skipped[0]["reason"] == "column 'mag': not a number: 'oops'"
+    assert "astropy could not read the ECSV file" in source.report.table
