@@ -271,15 +271,21 @@ class _DelimitedTable:
 
 
 # -------------------------------------------------------------- astropy backend
-def _pick_table(names: list[str], choice, file: str, kind: str) -> tuple[int, str | None]:
-    """Choose one of several tables by name or position; say which."""
-    listing = ", ".join(f"{i} {n!r}" for i, n in enumerate(names))
+def _pick_table(
+    names: list[str], numbers: list[int], choice, file: str, kind: str, label: str
+) -> tuple[int, str | None]:
+    """Choose one of several tables by name or number; say which was read.
+
+    ``numbers`` are what a user types for each table (the HDU number in a
+    FITS file, the position in a VOTable), ``label`` what they are called.
+    """
+    listing = ", ".join(f"{label} {i} {n!r}" for i, n in zip(numbers, names, strict=True))
     if choice is None:
         picked = 0
     elif isinstance(choice, (int, np.integer)) and not isinstance(choice, bool):
-        picked = int(choice)
-        if not 0 <= picked < len(names):
-            raise ReadError(f"no table {choice}; the {kind} file has: {listing}", file=file)
+        if int(choice) not in numbers:
+            raise ReadError(f"no table {label} {choice}; the {kind} file has: {listing}", file=file)
+        picked = numbers.index(int(choice))
     else:
         lowered = [str(n).lower() for n in names]
         if str(choice).lower() not in lowered:
@@ -287,9 +293,10 @@ def _pick_table(names: list[str], choice, file: str, kind: str) -> tuple[int, st
         picked = lowered.index(str(choice).lower())
     note = None
     if len(names) > 1 or choice is not None:
+        hint = "" if choice is not None else " (choose another with table=NAME or NUMBER)"
         note = (
-            f"{kind} file has {len(names)} table(s): {listing}; read table {picked} "
-            f"{names[picked]!r}" + ("" if choice is not None else " (choose another with table=)")
+            f"{kind} file has {len(names)} tables: {listing}; read {label} {numbers[picked]} "
+            f"{names[picked]!r}{hint}"
         )
     return picked, note
 
@@ -315,20 +322,11 @@ def _read_astropy(path: Path, fmt: str, table_choice):
                     ]
                 if not found:
                     raise ReadError("the FITS file holds no table", file=file)
-                if isinstance(table_choice, (int, np.integer)) and not isinstance(
-                    table_choice, bool
-                ):
-                    hdu_numbers = [i for i, _ in found]
-                    if int(table_choice) not in hdu_numbers:
-                        listing = ", ".join(f"HDU {i} {n!r}" for i, n in found)
-                        raise ReadError(
-                            f"no table in HDU {table_choice}; tables: {listing}", file=file
-                        )
-                    table_choice = hdu_numbers.index(int(table_choice))
-                picked, note = _pick_table([n for _, n in found], table_choice, file, "FITS")
-                hdu = found[picked][0]
-                if note:
-                    note = note.replace(f"read table {picked}", f"read HDU {hdu}")
+                numbers = [i for i, _ in found]
+                picked, note = _pick_table(
+                    [n for _, n in found], numbers, table_choice, file, "FITS", "HDU"
+                )
+                hdu = numbers[picked]
                 table = Table.read(path, format="fits", hdu=hdu)
             else:
                 from astropy.io import votable
@@ -337,7 +335,8 @@ def _read_astropy(path: Path, fmt: str, table_choice):
                 if not tables:
                     raise ReadError("the VOTable holds no table", file=file)
                 names = [t.name or t.ID or f"table {i}" for i, t in enumerate(tables)]
-                picked, note = _pick_table(names, table_choice, file, "VOTable")
+                numbers = list(range(len(tables)))
+                picked, note = _pick_table(names, numbers, table_choice, file, "VOTable", "table")
                 table = tables[picked].to_table()
         except PhasewiseError:
             raise
@@ -499,8 +498,8 @@ class PhotometrySource:
                 self._where.setdefault(star, []).append(i)
             for note in part.resolved.notes:
                 self._tally.note(note if self.shape != "folder" else f"{part.table.file}: {note}")
-            if part.table.table_note:
-                self._tally.note(part.table.table_note)
+            if part.table.table_note and self.shape == "folder":
+                self._tally.note(f"{part.table.file}: {part.table.table_note}")
         fixed = {}
         for part in self._parts:
             if part.resolved.scale_column is None and part.resolved.time_scale:

@@ -284,15 +284,18 @@ def test_fits_with_several_tables_says_which_was_read(tmp_path):
     _fits_with_two_tables(path)
     source = open_photometry(path)
     assert source.star_ids() == ("A",)
-    assert "read HDU 1 'PHOT'" in source.report.table
-    assert "2 table(s)" in source.report.table
+    assert source.report.table == (
+        "FITS file has 2 tables: HDU 1 'PHOT', HDU 2 'EXTRA'; read HDU 1 'PHOT' "
+        "(choose another with table=NAME or NUMBER)"
+    )
     assert open_photometry(path, table="extra").star_ids() == ("B",)
     assert open_photometry(path, table=2).star_ids() == ("B",)
     with pytest.raises(
-        ReadError, match=r"two.fits: no table 'SPECTRA'; the FITS file has: 0 'PHOT', 1 'EXTRA'"
+        ReadError,
+        match=r"two.fits: no table 'SPECTRA'; the FITS file has: HDU 1 'PHOT', HDU 2 'EXTRA'",
     ):
         open_photometry(path, table="SPECTRA")
-    with pytest.raises(ReadError, match=r"no table in HDU 5"):
+    with pytest.raises(ReadError, match=r"no table HDU 5; the FITS file has: HDU 1 'PHOT'"):
         open_photometry(path, table=5)
 
 
@@ -387,7 +390,9 @@ def test_votable_with_several_tables_says_which_was_read(tmp_path):
     votable.to_xml(str(path))
     source = open_photometry(path)
     assert source.star_ids() == ("A",)
-    assert "read table 0 'phot'" in source.report.table
+    assert "VOTable file has 2 tables: table 0 'phot', table 1 'other'; read table 0 'phot'" in (
+        source.report.table
+    )
     assert open_photometry(path, table="other").star_ids() == ("B",)
     assert open_photometry(path, table=1).star_ids() == ("B",)
 
