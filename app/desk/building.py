@@ -19,15 +19,17 @@ def build_ledger(services, files, mapping, target, settings, report=None, cancel
     target = Path(target)
     ledger = services.create_ledger(target)
     try:
-        lightcurves = []
-        for path in files:
+        services.record_settings(ledger, settings)
+        for i, path in enumerate(files):
+            if report is not None:
+                report(0, 0, f"reading {Path(path).name} ({i + 1} of {len(files)})")
             source = services.open_photometry(path, mapping)
-            for lc in source.stars():
-                services.add_star(ledger, lc)
-                lightcurves.append(lc.star_id)
-                if cancelled is not None and cancelled():
-                    return target
-        services.analyse_all(ledger, lightcurves, settings, report=report, cancelled=cancelled)
+            services.add_stars(ledger, source.stars(), source_file=path)
+            if cancelled is not None and cancelled():
+                return target
+        services.analyse_all(
+            ledger, ledger.star_ids(), settings, report=report, cancelled=cancelled
+        )
     finally:
         if hasattr(ledger, "close"):
             ledger.close()

@@ -34,7 +34,7 @@ from .star_sheet import CLASS_CODES, StarSheet
 from .style import configure_pyqtgraph
 from .workers import WorkerPool
 
-__all__ = ["MainWindow", "row_fields_from_result"]
+__all__ = ["MainWindow"]
 
 MAX_RECENT = 8
 STAR_CACHE = 256
@@ -53,20 +53,6 @@ def _get(obj, name, default=None):
     if isinstance(obj, dict):
         return obj.get(name, default)
     return getattr(obj, name, default)
-
-
-def row_fields_from_result(result: dict) -> dict:
-    """Star-list fields that come from an analysis result."""
-    suggestions = result.get("suggestions") or []
-    top = suggestions[0] if suggestions else {}
-    return {
-        "suggested_class": top.get("class_code"),
-        "suggested_score": top.get("score"),
-        "period": result.get("period"),
-        "amplitude": result.get("amplitude"),
-        "fap": result.get("fap"),
-        "flags": ",".join(str(f) for f in (result.get("flags") or [])),
-    }
 
 
 class MainWindow(QMainWindow):
@@ -428,6 +414,7 @@ class MainWindow(QMainWindow):
         self.setWindowTitle(f"Phasewise — {name}")
         if self.ledger_path:
             self._add_recent(str(self.ledger_path))
+        self._update_undo_labels()
         self.ledgerChanged.emit()
         ids = self.star_list.model.star_ids()
         target = first_star if first_star in ids else (ids[0] if ids else None)
@@ -463,6 +450,8 @@ class MainWindow(QMainWindow):
         lc = self.ledger.lightcurve(star_id)
         stored = self.ledger.result(star_id)
         result = dict(_get(stored, "result") or {}) if stored is not None else {}
+        if stored is not None and _get(stored, "failed"):
+            result = {"status": "failed", "reason": _get(stored, "error") or "analysis failed"}
         stale = bool(_get(stored, "stale", False))
         self._stars[star_id] = (lc, result, stale)
         while len(self._stars) > STAR_CACHE:
@@ -637,13 +626,9 @@ class MainWindow(QMainWindow):
             QMessageBox.warning(self, "Verdict not saved", str(exc))
             return
         self.verdict = self.ledger.verdict(star_id)
-        self.star_list.model.update_star(
-            star_id,
-            status=status,
-            verdict_class=class_code,
-            period=period if period else self.star_list.model.value(star_id, "period"),
-        )
+        self._refresh_row(star_id)
         self.star_list.update_counts()
+        self._update_undo_labels()
         self.sheet.set_verdict(self.verdict)
         self.statusBar().showMessage(
             f"{star_id}: {status}"
@@ -696,19 +681,50 @@ class MainWindow(QMainWindow):
         if entry is None or entry is False:
             self.statusBar().showMessage("Nothing to " + word.lower()[:-2] + ".")
             return
-        star_id = _get(entry, "star_id")
-        self._stars.pop(star_id, None) if star_id else self._stars.clear()
-        self.refresh_rows()
-        if star_id and star_id != self.session.star_id:
-            self.select_star(star_id)
+        entries = _get(entry, "entries") or ()
+        star_ids = list(dict.fromkeys(_get(e, "star_id") for e in entries if _get(e, "star_id")))
+        if not entries and _get(entry, "star_id"):
+            star_ids = [_get(entry, "star_id")]
+        for sid in star_ids:
+            self._stars.pop(sid, None)
+        if any(_get(e, "what") == "excluded" for e in entries):
+            self._periodograms = OrderedDict(
+                (k, v) for k, v in self._periodograms.items() if k[0] not in star_ids
+            )
+        if len(star_ids) <= 20 and hasattr(self.ledger, "star_row"):
+            for sid in star_ids:
+                self._refresh_row(sid)
+            self.star_list.update_counts()
+        else:
+            self.refresh_rows()
+        target = star_ids[0] if len(star_ids) == 1 else None
+        if target and target != self.session.star_id:
+            self.select_star(target)
         elif self.session.star_id:
             self.load_star(self.session.star_id)
-        self.statusBar().showMessage(
-            f"{word}: {_get(entry, 'what', '') or 'last change'}"
-            + (f" on {star_id}" if star_id else "")
+        label = _get(entry, "label") or _get(entry, "what") or "last change"
+        self.statusBar().showMessage(f"{word}: {label}")
+        for sid in star_ids:
+            self.verdictChanged.emit(sid)
+        self._update_undo_labels()
+
+    def _refresh_row(self, star_id: str) -> None:
+        """Re-read one star's list line from the ledger."""
+        if self.ledger is not None and hasattr(self.ledger, "star_row"):
+            self.star_list.model.replace_row(self.ledger.star_row(star_id))
+
+    def _update_undo_labels(self) -> None:
+        ledger = self.ledger
+        undo = getattr(ledger, "undo_label", lambda: None)() if ledger is not None else None
+        redo = getattr(ledger, "redo_label", lambda: None)() if ledger is not None else None
+        self.act_undo.setText(f"&Undo {undo}" if undo else "&Undo")
+        self.act_redo.setText(f"&Redo {redo}" if redo else "&Redo")
+        self.act_undo.setEnabled(
+            ledger is not None and bool(undo or not hasattr(ledger, "undo_label"))
         )
-        if star_id:
-            self.verdictChanged.emit(star_id)
+        self.act_redo.setEnabled(
+            ledger is not None and bool(redo or not hasattr(ledger, "redo_label"))
+        )
 
     # ============================================================= exclusion
     def exclude_points(self, indices, exclude: bool) -> None:
@@ -725,6 +741,8 @@ class MainWindow(QMainWindow):
             return
         new_lc = lc.with_excluded(mask)
         self._stars[star_id] = (new_lc, self.result or {}, True)
+        self._refresh_row(star_id)
+        self._update_undo_labels()
         self.lc = new_lc
         self.lightcurve.set_lightcurve(new_lc)
         self._set_fold_band(self.fold.band_box.currentText() or None)
@@ -742,11 +760,11 @@ class MainWindow(QMainWindow):
 
         def done(result):
             services.store_result(ledger, star_id, result, settings)
-            self._stars[star_id] = (lc, result, False)
+            self._stars.pop(star_id, None)
             self._periodograms = OrderedDict(
                 (k, v) for k, v in self._periodograms.items() if k[0] != star_id
             )
-            self.star_list.model.update_star(star_id, **row_fields_from_result(result))
+            self._refresh_row(star_id)
             if self.session.star_id == star_id:
                 self.load_star(star_id)
             self.statusBar().showMessage(f"{star_id}: analysed ({result.get('status', '')})")
@@ -779,8 +797,8 @@ class MainWindow(QMainWindow):
             return results
 
         def done(results):
-            for sid, result in results:
-                services.store_result(ledger, sid, result, settings)
+            services.record_settings(ledger, settings)
+            services.store_results(ledger, results, settings)
             self._stars.clear()
             self._periodograms.clear()
             self.refresh_rows()

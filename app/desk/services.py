@@ -109,11 +109,27 @@ class CoreServices:
 
         return ColumnMapping(**roles)
 
-    def add_star(self, ledger, lc) -> None:
-        ledger.add_star(lc)
+    def add_stars(self, ledger, lightcurves, source_file=None) -> int:
+        return ledger.add_stars(lightcurves, source_file=source_file)
+
+    def settings_record(self, settings) -> tuple[dict, str]:
+        from core.settings import settings_hash, settings_to_dict
+
+        return settings_to_dict(settings), settings_hash(settings)
+
+    def record_settings(self, ledger, settings) -> None:
+        """Tell the ledger which settings results are computed with (others go stale)."""
+        as_dict, digest = self.settings_record(settings)
+        ledger.set_analysis_settings(as_dict, digest)
 
     def store_result(self, ledger, star_id: str, result: dict, settings) -> None:
-        ledger.store_result(star_id, result)
+        digest = result.get("settings_hash") or self.settings_record(settings)[1]
+        ledger.store_results([(star_id, digest, result)])
+
+    def store_results(self, ledger, items, settings) -> None:
+        """Store ``(star_id, result_dict)`` pairs in one transaction."""
+        fallback = self.settings_record(settings)[1]
+        ledger.store_results([(sid, r.get("settings_hash") or fallback, r) for sid, r in items])
 
     def write_catalogue(self, ledger, path, fmt: str | None = None):
         from core.export import write_catalogue
@@ -121,14 +137,19 @@ class CoreServices:
         return write_catalogue(ledger, Path(path), format=fmt)
 
     def analyse_all(self, ledger, star_ids, settings, report=None, cancelled=None) -> None:
-        """Analyse stars of a ledger and store the results (core.batch when present)."""
+        """Analyse stars of a ledger and store the results, in chunks of one transaction."""
         star_ids = list(star_ids)
+        chunk: list = []
         for i, star_id in enumerate(star_ids):
             if cancelled is not None and cancelled():
-                return
+                break
             if report is not None:
                 report(i, len(star_ids), f"analysing {star_id}")
-            result = self.analyse(ledger.lightcurve(star_id), settings)
-            self.store_result(ledger, star_id, result, settings)
+            chunk.append((star_id, self.analyse(ledger.lightcurve(star_id), settings)))
+            if len(chunk) >= 50:
+                self.store_results(ledger, chunk, settings)
+                chunk = []
+        if chunk:
+            self.store_results(ledger, chunk, settings)
         if report is not None:
             report(len(star_ids), len(star_ids), "done")

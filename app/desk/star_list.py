@@ -86,7 +86,15 @@ def row_values(row) -> list:
             if value is not None:
                 break
         values.append(value)
-    return _clean(values)
+    values = _clean(values)
+    extra = []
+    if get("failed", False):
+        extra.append("failed")
+    elif get("analysed", True) is False:
+        extra.append("not analysed")
+    if extra:
+        values[8] = ",".join(extra + ([values[8]] if values[8] else []))
+    return values
 
 
 def _clean(values: list) -> list:
@@ -155,6 +163,15 @@ class StarTableModel(QAbstractTableModel):
             return
         for name, value in fields.items():
             self._rows[i][FIELDS.index(name)] = value
+        self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
+
+    def replace_row(self, row) -> None:
+        """Put a fresh ledger row in place of the star's current one."""
+        values = row_values(row)
+        i = self._index.get(values[0])
+        if i is None:
+            return
+        self._rows[i] = values
         self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
 
     def set_current(self, star_id: str | None) -> None:

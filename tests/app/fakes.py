@@ -176,6 +176,18 @@ class FakeServices(CoreServices):
         }
 
 
+@dataclass(frozen=True)
+class Entry:
+    star_id: str
+    what: str
+
+
+@dataclass(frozen=True)
+class Action:
+    label: str
+    entries: tuple
+
+
 @dataclass
 class Row:
     star_id: str
@@ -234,11 +246,20 @@ class FakeLedger:
     def close(self):
         self.closed = True
 
-    def add_star(self, lc):
-        self.stars[lc.star_id] = lc
+    def add_stars(self, lightcurves, *, source_file=None):
+        n = 0
+        for lc in lightcurves:
+            self.stars[lc.star_id] = lc
+            n += 1
+        return n
 
-    def store_result(self, star_id, result):
-        self.results[star_id] = result
+    def set_analysis_settings(self, settings, settings_hash):
+        self.settings = (settings, settings_hash)
+
+    def store_results(self, items):
+        for star_id, _hash, result in items:
+            self.results[star_id] = result
+        return len(items)
 
     def star_ids(self):
         return list(self.stars)
@@ -258,7 +279,7 @@ class FakeLedger:
     def verdict(self, star_id):
         return self.verdicts.get(star_id, Verdict(star_id))
 
-    def set_verdict(self, star_id, status, class_code=None, period=None, note=None):
+    def set_verdict(self, star_id, status, *, class_code=None, period=None, note=None):
         if status not in ("confirmed", "relabelled", "rejected", "deferred", "unreviewed"):
             raise PhasewiseError(f"unknown status {status!r}", field="status")
         old = self.verdict(star_id)
@@ -273,7 +294,7 @@ class FakeLedger:
         star_id, old, new = self.log.pop()
         self.verdicts[star_id] = old
         self.undone.append((star_id, old, new))
-        return {"star_id": star_id, "what": "verdict"}
+        return Action(f"undo verdict on {star_id}", (Entry(star_id, "verdict"),))
 
     def redo(self):
         if not self.undone:
@@ -281,10 +302,19 @@ class FakeLedger:
         star_id, old, new = self.undone.pop()
         self.verdicts[star_id] = new
         self.log.append((star_id, old, new))
-        return {"star_id": star_id, "what": "verdict"}
+        return Action(f"redo verdict on {star_id}", (Entry(star_id, "verdict"),))
+
+    def undo_label(self):
+        return f"verdict on {self.log[-1][0]}" if self.log else None
+
+    def redo_label(self):
+        return f"verdict on {self.undone[-1][0]}" if self.undone else None
 
     def history(self):
         return list(self.log)
+
+    def star_row(self, star_id):
+        return next(r for r in self.star_rows() if r.star_id == star_id)
 
     def star_rows(self):
         rows = []
@@ -315,6 +345,6 @@ def fake_ledger(n_stars=6, n_points=300, path="mem://test"):
     for i in range(n_stars):
         period = 0.45 + 0.07 * i
         lc = make_star(f"NV-{i + 1:03d}", period, n=n_points, bands=("V", "I"), seed=i)
-        ledger.add_star(lc)
-        ledger.store_result(lc.star_id, services.analyse(lc, None))
+        ledger.add_stars([lc])
+        ledger.store_results([(lc.star_id, "x", services.analyse(lc, None))])
     return ledger

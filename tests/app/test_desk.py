@@ -166,7 +166,8 @@ def test_shortcut_sheet_lists_standard_and_own_keys(desk):
     desk.show_shortcuts()
     table = desk.shortcut_sheet.table
     texts = {table.item(i, 1).text(): table.item(i, 2).text() for i in range(table.rowCount())}
-    assert texts["Undo verdict"]  # QKeySequence.Undo on this platform
+    undo = next(v for k, v in texts.items() if k.startswith("Undo"))
+    assert undo  # QKeySequence.Undo on this platform
     assert texts["Confirm suggestion"].startswith("Y")
     assert "Next candidate" in texts
     desk.shortcut_sheet.close()
