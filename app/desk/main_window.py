@@ -1066,8 +1066,7 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event) -> None:
         self.save_layout()
-        self.workers.cancel_all()
-        self.workers.wait(15000)
+        self.workers.shutdown()
         self.close_ledger()
         super().closeEvent(event)
 

@@ -107,6 +107,21 @@ class WorkerPool(QObject):
         self.pool = QThreadPool(self)
         self.pool.setMaxThreadCount(max_threads)
         self._running: set[Worker] = set()
+        self.closed = False
+
+    def _guard(self, fn: Callable) -> Callable:
+        # results that arrive after the window closed are dropped
+        def call(*args):
+            if not self.closed:
+                fn(*args)
+
+        return call
+
+    def shutdown(self, msecs: int = 15000) -> None:
+        """Cancel every worker, wait for them, and drop their late signals."""
+        self.cancel_all()
+        self.wait(msecs)
+        self.closed = True
 
     def start(
         self,
@@ -120,13 +135,13 @@ class WorkerPool(QObject):
     ) -> Worker:
         worker = Worker(fn, *args, **kwargs)
         if on_result:
-            worker.signals.result.connect(on_result)
+            worker.signals.result.connect(self._guard(on_result))
         if on_error:
-            worker.signals.error.connect(on_error)
+            worker.signals.error.connect(self._guard(on_error))
         if on_progress:
-            worker.signals.progress.connect(on_progress)
+            worker.signals.progress.connect(self._guard(on_progress))
         if on_finished:
-            worker.signals.finished.connect(on_finished)
+            worker.signals.finished.connect(self._guard(on_finished))
         worker.signals.finished.connect(lambda w=worker: self._running.discard(w))
         self._running.add(worker)
         _LIVE.add(worker)
