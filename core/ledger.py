@@ -426,6 +426,8 @@ class Ledger:
         pragma = {"quick": "quick_check", "full": "integrity_check", "none": None}
         if check not in pragma:
             raise LedgerError(f"unknown check {check!r}; expected quick, full or none")
+        side_files = [Path(f"{path}{s}") for s in ("-wal", "-shm")]
+        existed = [p.exists() for p in side_files]
         try:
             conn = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
         except sqlite3.Error as exc:
@@ -438,12 +440,17 @@ class Ledger:
                 if [r[0] for r in rows] != ["ok"]:
                     detail = "; ".join(str(r[0]) for r in rows[:3])
                     raise LedgerError(f"damaged: SQLite check failed: {detail}", file=path)
+            if app_id != APPLICATION_ID:
+                raise LedgerError("an SQLite file, but not a Phasewise ledger", file=path)
         except sqlite3.DatabaseError as exc:
-            raise LedgerError(f"damaged or not a ledger: {exc}", file=path) from exc
-        finally:
             conn.close()
-        if app_id != APPLICATION_ID:
-            raise LedgerError("an SQLite file, but not a Phasewise ledger", file=path)
+            _remove_new_side_files(side_files, existed)
+            raise LedgerError(f"damaged or not a ledger: {exc}", file=path) from exc
+        except LedgerError:
+            conn.close()
+            _remove_new_side_files(side_files, existed)
+            raise
+        conn.close()
         return int(version)
 
     @staticmethod
@@ -1151,6 +1158,20 @@ class _Transaction:
                 self.conn.execute("ROLLBACK")
                 raise LedgerError(f"cannot write: {error}", file=self.path) from error
         self.conn.execute("ROLLBACK")
+
+
+def _remove_new_side_files(side_files: list[Path], existed: list[bool]) -> None:
+    # Leave a refused file as it was found: drop empty WAL/SHM files our check made.
+    for side, was_there in zip(side_files, existed, strict=True):
+        try:
+            if (
+                not was_there
+                and side.exists()
+                and (side.name.endswith("-shm") or not side.stat().st_size)
+            ):
+                side.unlink()
+        except OSError:
+            pass
 
 
 def _pid_alive(pid: int) -> bool:
