@@ -533,10 +533,19 @@ class Ledger:
         return f"Ledger({str(self.path)!r}, {self.n_stars} stars, {mode})"
 
     # ------------------------------------------------------------ plumbing
-    def _query(self, sql: str, params: Iterable[Any] = ()) -> sqlite3.Cursor:
+    def _query(self, sql: str, params: Iterable[Any] = ()) -> _Rows:
+        # Rows are fetched under the lock, so threads sharing one ledger never
+        # interleave on the connection.
+        with self._mutex:
+            if self._conn is None:
+                raise LedgerError("the ledger is closed", file=self.path)
+            cursor = self._conn.execute(sql, tuple(params))
+            return _Rows(cursor.fetchall(), cursor.lastrowid)
+
+    def _stream(self, sql: str) -> Iterable[tuple[Any, ...]]:
         if self._conn is None:
             raise LedgerError("the ledger is closed", file=self.path)
-        return self._conn.execute(sql, tuple(params))
+        return self._conn.execute(sql)
 
     def _write(self) -> _Transaction:
         if self._conn is None:
@@ -702,6 +711,11 @@ class Ledger:
             ),
             has_errors=bool(has_errors),
         )
+
+    def lightcurves(self, star_ids: Iterable[str] | None = None) -> Iterable[LightCurve]:
+        """Light curves of the given stars (all, in import order, by default), one at a time."""
+        for star_id in self._order if star_ids is None else star_ids:
+            yield self.lightcurve(star_id)
 
     def star_info(self, star_id: str) -> dict[str, Any]:
         """Coordinates, source file and its checksum, time scale, number of points."""
@@ -1123,7 +1137,7 @@ class Ledger:
         )
         with self._mutex:
             for sql in queries:
-                for row in self._query(sql):
+                for row in self._stream(sql):
                     for value in row:
                         data = value if isinstance(value, bytes) else repr(value).encode()
                         digest.update(len(data).to_bytes(8, "little"))
@@ -1134,6 +1148,23 @@ class Ledger:
         """SQLite's full ``integrity_check`` of the open file."""
         rows = self._query("PRAGMA integrity_check").fetchall()
         return [r[0] for r in rows] == ["ok"]
+
+
+class _Rows:
+    """Fetched rows with the cursor's ``lastrowid``."""
+
+    def __init__(self, rows: list[tuple[Any, ...]], lastrowid: int | None) -> None:
+        self.rows = rows
+        self.lastrowid = lastrowid
+
+    def fetchone(self) -> tuple[Any, ...] | None:
+        return self.rows[0] if self.rows else None
+
+    def fetchall(self) -> list[tuple[Any, ...]]:
+        return self.rows
+
+    def __iter__(self):
+        return iter(self.rows)
 
 
 class _Transaction:

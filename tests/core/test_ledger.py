@@ -368,3 +368,34 @@ def test_settings_round_trip(led):
         "abc123",
     )
     assert json.loads(json.dumps(led.history()[-1].new))["settings_hash"] == "abc123"
+
+
+def test_threads_share_one_ledger(led):
+    import threading
+
+    errors = []
+
+    def decide(star, status):
+        try:
+            for _ in range(20):
+                led.set_verdict(star, status)
+                led.star_rows()
+        except Exception as exc:  # collected and asserted below
+            errors.append(exc)
+
+    threads = [
+        threading.Thread(target=decide, args=(s, st))
+        for s, st in (("NGX-000", "rejected"), ("NGX-001", "deferred"), ("NGX-002", "confirmed"))
+    ]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert errors == []
+    assert [v.status for v in led.verdicts()[:3]] == ["rejected", "deferred", "confirmed"]
+    assert sum(1 for h in led.history() if h.what == "verdict") == 60
+
+
+def test_lightcurves_iterates_in_import_order(led):
+    assert [lc.star_id for lc in led.lightcurves()] == led.star_ids()
+    assert [lc.star_id for lc in led.lightcurves(["NGX-003", "NGX-000"])] == ["NGX-003", "NGX-000"]
