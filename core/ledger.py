@@ -70,6 +70,7 @@ __all__ = [
     "StarRow",
     "HistoryEntry",
     "Action",
+    "Change",
     "LockHolder",
     "file_checksum",
 ]
@@ -211,6 +212,14 @@ class Action:
 
 
 @dataclass(frozen=True)
+class Change:
+    """What a committed write changed, for listeners (see :meth:`Ledger.subscribe`)."""
+
+    what: str  # import, verdict, excluded, results, settings, undo, redo
+    star_ids: tuple[str, ...]
+
+
+@dataclass(frozen=True)
 class LockHolder:
     """Who holds a ledger for writing."""
 
@@ -318,6 +327,7 @@ class Ledger:
         self._token: str | None = None
         self._ids: dict[str, int] = {}
         self._order: list[str] = []
+        self._listeners: list[Callable[[Change], None]] = []
         self._load_ids()
 
     # ------------------------------------------------------------- opening
@@ -547,12 +557,12 @@ class Ledger:
             raise LedgerError("the ledger is closed", file=self.path)
         return self._conn.execute(sql)
 
-    def _write(self) -> _Transaction:
+    def _write(self, what: str) -> _Transaction:
         if self._conn is None:
             raise LedgerError("the ledger is closed", file=self.path)
         if self.readonly:
             raise LedgerError("opened read-only; cannot change it", file=self.path)
-        return _Transaction(self)
+        return _Transaction(self, what)
 
     def _load_ids(self) -> None:
         rows = self._query("SELECT id, star_id FROM stars ORDER BY id").fetchall()
@@ -608,31 +618,49 @@ class Ledger:
         """
         source = None if source_file is None else str(source_file)
         added: list[str] = []
-        with self._mutex, self._write():
-            for lc in lightcurves:
-                if lc.star_id in self._ids or lc.star_id in added:
-                    raise LedgerError(
-                        f"star {lc.star_id!r} is already in this ledger", file=self.path
-                    )
-                self._insert_star(lc, source, source_checksum)
-                added.append(lc.star_id)
-            if added:
-                action = self._new_action("import", f"import {len(added)} stars")
-                self._log(
-                    action,
-                    None,
-                    "import",
-                    None,
-                    {
-                        "n_stars": len(added),
-                        "source_file": source,
-                        "source_checksum": source_checksum,
-                        "first": added[0],
-                        "last": added[-1],
-                    },
-                )
-        self._load_ids()
+        try:
+            with self._mutex, self._write("import") as tx:
+                tx.star_ids = added
+                self._add(lightcurves, added, source, source_checksum)
+                self._load_ids()  # before the listeners hear of it
+        except BaseException:
+            self._load_ids()
+            raise
         return len(added)
+
+    def _add(
+        self,
+        lightcurves: Iterable[LightCurve],
+        added: list[str],
+        source: str | None,
+        source_checksum: str | None,
+    ) -> None:
+        seen: set[str] = set()
+        for lc in lightcurves:
+            if lc.star_id in self._ids:
+                raise LedgerError(f"star {lc.star_id!r} is already in this ledger", file=self.path)
+            if lc.star_id in seen:
+                raise LedgerError(
+                    f"star {lc.star_id!r} appears twice in this import", file=self.path
+                )
+            self._insert_star(lc, source, source_checksum)
+            added.append(lc.star_id)
+            seen.add(lc.star_id)
+        if added:
+            action = self._new_action("import", f"import {len(added)} stars")
+            self._log(
+                action,
+                None,
+                "import",
+                None,
+                {
+                    "n_stars": len(added),
+                    "source_file": source,
+                    "source_checksum": source_checksum,
+                    "first": added[0],
+                    "last": added[-1],
+                },
+            )
 
     def _insert_star(self, lc: LightCurve, source: str | None, checksum: str | None) -> None:
         meta = lc.meta.to_dict()
@@ -753,7 +781,8 @@ class Ledger:
             )
         if np.array_equal(old, new):
             return
-        with self._mutex, self._write():
+        with self._mutex, self._write("excluded") as tx:
+            tx.star_ids = [star_id]
             action = self._new_action("do", f"exclude points of {star_id}")
             self._apply_excluded(key, new)
             self._log(
@@ -776,7 +805,7 @@ class Ledger:
         new_value = {"settings": _plain(dict(settings)), "settings_hash": str(settings_hash)}
         if old is not None and old[1] == str(settings_hash):
             return
-        with self._mutex, self._write():
+        with self._mutex, self._write("settings"):
             self._query(
                 "INSERT OR REPLACE INTO meta(key, value) VALUES ('analysis_settings', ?)",
                 (_dumps(new_value),),
@@ -812,10 +841,12 @@ class Ledger:
         """
         rows = []
         now = _now()
+        items = list(items)
         for star_id, settings_hash, result in items:
             summary = _summary(result)
             rows.append((self._key(star_id), str(settings_hash), now, _dumps(result), *summary))
-        with self._mutex, self._write():
+        with self._mutex, self._write("results") as tx:
+            tx.star_ids = [str(item[0]) for item in items]
             self._conn.executemany(
                 "INSERT OR REPLACE INTO results(star, settings_hash, computed_at, failed, error, "
                 "result, status, suggested_class, suggested_score, suggested_period, period, "
@@ -828,8 +859,10 @@ class Ledger:
     def store_failures(self, items: Iterable[tuple[str, str, str]]) -> int:
         """Record failed analyses ``(star_id, settings_hash, message)`` in one transaction."""
         now = _now()
+        items = list(items)
         rows = [(self._key(s), str(h), now, str(m)) for s, h, m in items]
-        with self._mutex, self._write():
+        with self._mutex, self._write("results") as tx:
+            tx.star_ids = [str(item[0]) for item in items]
             self._conn.executemany(
                 "INSERT OR REPLACE INTO results(star, settings_hash, computed_at, failed, error, "
                 "flags, outdated) VALUES (?, ?, ?, 1, ?, '[]', 0)",
@@ -924,7 +957,8 @@ class Ledger:
         checked = [self._checked_verdict(*item) for item in items]
         if not checked:
             return []
-        with self._mutex, self._write():
+        with self._mutex, self._write("verdict") as tx:
+            tx.star_ids = [v.star_id for v in checked]
             text = label or (
                 f"verdict {checked[0].status} on {checked[0].star_id}"
                 if len(checked) == 1
@@ -996,6 +1030,13 @@ class Ledger:
     # ------------------------------------------------------------ the list
     def star_rows(self) -> list[StarRow]:
         """Every star's list line, in import order, from one query."""
+        return self._star_rows("", ())
+
+    def star_row(self, star_id: str) -> StarRow:
+        """One star's list line (to refresh a row after a change)."""
+        return self._star_rows("WHERE s.id = ?", (self._key(star_id),))[0]
+
+    def _star_rows(self, where: str, params: tuple[Any, ...]) -> list[StarRow]:
         current = self.settings_hash
         rows = self._query(
             "SELECT s.star_id, v.status, r.suggested_class, r.suggested_score, "
@@ -1003,7 +1044,8 @@ class Ledger:
             "r.flags, r.star IS NOT NULL, COALESCE(r.failed, 0), r.settings_hash, "
             "COALESCE(r.outdated, 0) "
             "FROM stars s JOIN verdicts v ON v.star = s.id LEFT JOIN results r ON r.star = s.id "
-            "ORDER BY s.id"
+            f"{where} ORDER BY s.id",
+            params,
         ).fetchall()
         out = []
         for row in rows:
@@ -1027,6 +1069,16 @@ class Ledger:
                 )
             )
         return out
+
+    # ------------------------------------------------------------ listeners
+    def subscribe(self, callback: Callable[[Change], None]) -> Callable[[], None]:
+        """Call ``callback(Change)`` after every committed change; returns an unsubscribe."""
+        self._listeners.append(callback)
+        return lambda: self._listeners.remove(callback) if callback in self._listeners else None
+
+    def _notify(self, change: Change) -> None:
+        for callback in list(self._listeners):
+            callback(change)
 
     # ------------------------------------------------------------- history
     def history(self, star_id: str | None = None) -> list[HistoryEntry]:
@@ -1068,11 +1120,14 @@ class Ledger:
         return self._walk("redo")
 
     def _walk(self, direction: str) -> Action | None:
-        with self._mutex, self._write():
-            target = self._next_action(direction)
-            if target is None:
+        with self._mutex:
+            if self._next_action(direction) is None:
                 return None
-            target_id, label = target
+            return self._walk_one(direction)
+
+    def _walk_one(self, direction: str) -> Action:
+        with self._write(direction) as tx:
+            target_id, label = self._next_action(direction)
             entries = self._query(
                 "SELECT star_id, what, old, new FROM history WHERE action = ? ORDER BY id",
                 (target_id,),
@@ -1086,6 +1141,7 @@ class Ledger:
                     before, after = after, before
                 self._restore(star_id, what, after)
                 self._log(action, star_id, what, before, after)
+                tx.star_ids.append(star_id)
             state = "undone" if direction == "undo" else "done"
             self._query("UPDATE actions SET state = ? WHERE id = ?", (state, target_id))
         return self._action(action)
@@ -1170,24 +1226,29 @@ class _Rows:
 class _Transaction:
     """``BEGIN IMMEDIATE`` … ``COMMIT`` (or ``ROLLBACK`` on error)."""
 
-    def __init__(self, ledger: Ledger) -> None:
+    def __init__(self, ledger: Ledger, what: str) -> None:
+        self.ledger = ledger
         self.conn = ledger._conn
         self.path = ledger.path
+        self.what = what
+        self.star_ids: list[str] = []
 
-    def __enter__(self) -> None:
+    def __enter__(self) -> _Transaction:
         try:
             self.conn.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as exc:
             raise LedgerError(f"cannot write: {exc}", file=self.path) from exc
+        return self
 
     def __exit__(self, exc_type: Any, exc: Any, tb: Any) -> None:
         if exc_type is None:
             try:
                 self.conn.execute("COMMIT")
-                return
             except sqlite3.Error as error:
                 self.conn.execute("ROLLBACK")
                 raise LedgerError(f"cannot write: {error}", file=self.path) from error
+            self.ledger._notify(Change(self.what, tuple(self.star_ids)))
+            return
         self.conn.execute("ROLLBACK")
 
 

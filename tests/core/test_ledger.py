@@ -399,3 +399,31 @@ def test_threads_share_one_ledger(led):
 def test_lightcurves_iterates_in_import_order(led):
     assert [lc.star_id for lc in led.lightcurves()] == led.star_ids()
     assert [lc.star_id for lc in led.lightcurves(["NGX-003", "NGX-000"])] == ["NGX-003", "NGX-000"]
+
+
+def test_duplicate_within_one_import(path):
+    stars = make_stars(n=2)
+    with Ledger.create(path) as ledger:
+        with pytest.raises(LedgerError, match="'NGX-001' appears twice in this import"):
+            ledger.add_stars(stars + stars[1:])
+        assert ledger.n_stars == 0 and ledger.star_ids() == []
+
+
+def test_listeners_hear_committed_changes_only(led):
+    heard = []
+    unsubscribe = led.subscribe(heard.append)
+    led.set_verdict("NGX-001", "deferred")
+    with pytest.raises(LedgerError):
+        led.set_verdict("NGX-001", "relabelled")  # refused before any write
+    led.store_results([("NGX-002", "h", result_dict())])
+    led.undo()
+    assert [(c.what, c.star_ids) for c in heard] == [
+        ("verdict", ("NGX-001",)),
+        ("results", ("NGX-002",)),
+        ("undo", ("NGX-001",)),
+    ]
+    # a listener can read the ledger at once: the change is committed
+    assert led.star_row("NGX-002").suggested_class == "RRab"
+    unsubscribe()
+    led.set_verdict("NGX-003", "rejected")
+    assert len(heard) == 3
