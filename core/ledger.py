@@ -465,7 +465,9 @@ class Ledger:
 
     @staticmethod
     def _take_lock(conn: sqlite3.Connection, path: Path) -> str:
-        token = uuid.uuid4().hex
+        # the token carries the process start time, so a reused pid is not mistaken
+        # for the holder
+        token = f"{uuid.uuid4().hex}/{_process_start(os.getpid()) or ''}"
         host = socket.gethostname()
         try:
             conn.execute("BEGIN IMMEDIATE")
@@ -475,10 +477,13 @@ class Ledger:
                 f"another process is writing to it and did not finish within 10 s ({exc})",
                 file=path,
             ) from exc
-        row = conn.execute("SELECT pid, host, since, program FROM lock WHERE id = 1").fetchone()
+        row = conn.execute(
+            "SELECT pid, host, since, program, token FROM lock WHERE id = 1"
+        ).fetchone()
         if row is not None:
             holder = LockHolder(int(row[0]), row[1], row[2], row[3])
-            if holder.host != host or _pid_alive(holder.pid):
+            started = row[4].partition("/")[2]
+            if holder.host != host or _holder_alive(holder.pid, started):
                 conn.execute("ROLLBACK")
                 conn.close()
                 where = "" if holder.host == host else " (another machine: cannot check it)"
@@ -1264,6 +1269,22 @@ def _remove_new_side_files(side_files: list[Path], existed: list[bool]) -> None:
                 side.unlink()
         except OSError:
             pass
+
+
+def _process_start(pid: int) -> str | None:
+    """Start time of a process in clock ticks since boot (Linux), else None."""
+    try:
+        with open(f"/proc/{pid}/stat", encoding="ascii") as handle:
+            return handle.read().rsplit(")", 1)[1].split()[19]
+    except (OSError, IndexError):
+        return None
+
+
+def _holder_alive(pid: int, started: str) -> bool:
+    if not _pid_alive(pid):
+        return False
+    now = _process_start(pid)
+    return not (started and now and now != started)
 
 
 def _pid_alive(pid: int) -> bool:

@@ -210,3 +210,21 @@ def test_kill_during_import_leaves_previous_state(tmp_path):
     proc.wait()
     with Ledger.open(path, check="full") as ledger:
         assert ledger.n_stars == 0  # one transaction: all or nothing
+
+
+def test_reused_pid_is_not_taken_for_the_holder(path):
+    # a lock row naming a live pid (ours) but another start time: a dead holder
+    # whose pid was reused, so the lock is stale and is taken over
+    import socket
+
+    conn = sqlite3.connect(path)
+    conn.execute(
+        "INSERT INTO lock(id, token, pid, host, since, program) VALUES (1, ?, ?, ?, ?, ?)",
+        ("dead/1", os.getpid(), socket.gethostname(), "2026-01-01T00:00:00", "phasewise 0.1.0"),
+    )
+    conn.commit()
+    conn.close()
+    if not Path(f"/proc/{os.getpid()}/stat").exists():
+        pytest.skip("no /proc: start times cannot be compared here")
+    with Ledger.open(path) as ledger:
+        assert ledger.lock_holder().since != "2026-01-01T00:00:00"
