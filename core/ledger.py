@@ -339,8 +339,9 @@ class Ledger:
             if not overwrite:
                 raise LedgerError("a file of that name exists; choose another name", file=path)
             Ledger.open(path).close()  # refuses if another process holds it or it is damaged
-            for suffix in ("", "-wal", "-shm"):
-                Path(f"{path}{suffix}").unlink(missing_ok=True)
+        # WAL/SHM files left beside a deleted ledger would be replayed into the new one
+        for suffix in ("", "-wal", "-shm"):
+            Path(f"{path}{suffix}").unlink(missing_ok=True)
         # built under a temporary name and renamed, so a crash never leaves half a ledger
         temp = path.with_name(f".{path.name}.{uuid.uuid4().hex[:8]}.tmp")
         try:

@@ -2,6 +2,7 @@
 
 import json
 import sqlite3
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -427,3 +428,17 @@ def test_listeners_hear_committed_changes_only(led):
     unsubscribe()
     led.set_verdict("NGX-003", "rejected")
     assert len(heard) == 3
+
+
+def test_create_ignores_side_files_of_a_deleted_ledger(path):
+    with Ledger.create(path) as ledger:
+        ledger.add_stars(make_stars(n=2))
+        ledger.set_verdict("NGX-000", "rejected")
+        # copy the live WAL aside, as a crash would leave it beside a deleted file
+        wal = Path(f"{path}-wal").read_bytes()
+    path.unlink()
+    Path(f"{path}-wal").write_bytes(wal)
+    with Ledger.create(path) as fresh:
+        assert fresh.n_stars == 0
+    with Ledger.open(path, check="full") as again:
+        assert again.integrity_check() and again.n_stars == 0
