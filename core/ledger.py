@@ -1110,6 +1110,16 @@ class Ledger:
     def can_redo(self) -> bool:
         return self._next_action("redo") is not None
 
+    def undo_label(self) -> str | None:
+        """What :meth:`undo` would undo (for an Edit menu), or None."""
+        action = self._next_action("undo")
+        return None if action is None else action[1]
+
+    def redo_label(self) -> str | None:
+        """What :meth:`redo` would redo, or None."""
+        action = self._next_action("redo")
+        return None if action is None else action[1]
+
     def _next_action(self, direction: str) -> tuple[int, str] | None:
         if direction == "undo":
             sql = "SELECT id, label FROM actions WHERE state = 'done' ORDER BY id DESC LIMIT 1"

@@ -151,7 +151,9 @@ def test_undo_redo_walk_history_without_deleting(led):
     led.set_verdict("NGX-000", "confirmed", class_code="RRab", period=0.5)
     led.set_verdict("NGX-000", "rejected")
     n_before = len(led.history())
+    assert led.undo_label() == "verdict rejected on NGX-000" and led.redo_label() is None
     undone = led.undo()
+    assert led.redo_label() == "verdict rejected on NGX-000"
     assert undone.kind == "undo"
     assert [e.new["status"] for e in undone.entries] == ["confirmed"]
     assert led.verdict("NGX-000").status == "confirmed"
