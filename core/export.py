@@ -379,6 +379,7 @@ def _write_votable(table: Table, path: Path) -> None:
     meta = table.meta
     out.meta = {}
     votable = from_table(out)
+    votable.version = "1.4"  # TIMESYS needs 1.4
     resource = votable.resources[0]
     vtable = resource.tables[0]
     vtable.name = "vetted_catalogue"
@@ -386,6 +387,7 @@ def _write_votable(table: Table, path: Path) -> None:
     for field in vtable.fields:
         field.ucd = table[field.name].meta["ucd"]
         field.description = table[field.name].description
+    _add_time_system(votable, vtable, table)
     for key in ("program", "date", "ledger", "ledger_checksum", "settings_hash"):
         resource.infos.append(Info(name=key, value=str(meta[key] or "")))
     resource.infos.append(
@@ -395,6 +397,38 @@ def _write_votable(table: Table, path: Path) -> None:
         resource.infos.append(Info(name="relation", value=relation))
     resource.infos.append(Info(name="caution", value=meta["caution"]))
     writeto(votable, str(path))
+
+
+# VOTable 1.4 TIMESYS for each Phasewise time scale: (time scale, reference position,
+# origin).  HJD and JD record no time scale of their own (IVOA allows "UNKNOWN").
+_TIMESYS = {
+    "JD": ("UNKNOWN", "TOPOCENTER", "JD-origin"),
+    "MJD": ("UNKNOWN", "TOPOCENTER", "MJD-origin"),
+    "HJD": ("UNKNOWN", "HELIOCENTER", "JD-origin"),
+    "BJD_TDB": ("TDB", "BARYCENTER", "JD-origin"),
+}
+
+
+def _add_time_system(votable, vtable, table: Table) -> None:
+    """Tie epoch_max to a TIMESYS element when every row has the same time scale."""
+    from astropy.io.votable.tree import TimeSys
+
+    scales = set(table["time_scale"]) - {""}
+    if len(scales) != 1 or next(iter(scales)) not in _TIMESYS:
+        return
+    timescale, refposition, origin = _TIMESYS[next(iter(scales))]
+    votable.time_systems.append(
+        TimeSys(
+            ID="epoch_system",
+            timeorigin=origin,
+            timescale=timescale,
+            refposition=refposition,
+            config={"version": "1.4", "version_1_4_or_later": True},
+        )
+    )
+    for field in vtable.fields:
+        if field.name == "epoch_max":
+            field.ref = "epoch_system"
 
 
 _WRITERS = {"ecsv": _write_ecsv, "csv": _write_csv, "fits": _write_fits, "votable": _write_votable}

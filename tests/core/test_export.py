@@ -235,3 +235,15 @@ def test_format_errors(led, tmp_path):
 def test_empty_catalogue_still_writes(led, tmp_path):
     assert write_catalogue(led, tmp_path / "none.fits", statuses=("deferred",)) == 0
     assert len(Table.read(tmp_path / "none.fits")) == 0
+
+
+def test_votable_time_system_for_the_epoch(led, tmp_path):
+    path = tmp_path / "vetted.vot"
+    write_catalogue(led, path)
+    votable = parse(str(path), verify="exception")
+    (system,) = list(votable.iter_timesys())
+    # HJD is heliocentric; its clock is not recorded (IVOA VOTable 1.4, TIMESYS)
+    assert (system.refposition, system.timescale) == ("HELIOCENTER", "UNKNOWN")
+    assert system.timeorigin in ("JD-origin", 0.0, 0)  # the JD origin, as written or parsed
+    field = {f.name: f for f in votable.get_first_table().fields}["epoch_max"]
+    assert field.ref == system.ID
