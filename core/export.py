@@ -71,7 +71,12 @@ _HEAD = (
     _c("time_scale", None, "time.scale", "time scale of epoch_max", True),
 )
 _TAIL = (
-    _c("fourier_order", None, "meta.number;stat.fit.param", "order of the Fourier series"),
+    _c(
+        "fourier_order",
+        None,
+        "meta.number;stat.fit.param",
+        "order of the Fourier series (-1: no fit)",
+    ),
     _c("A1", u.mag, "src.var.amplitude;stat.fit.param", "first Fourier amplitude"),
     _c("A1_err", u.mag, "stat.error;stat.fit.param", "error of A1"),
     _c("R21", None, "stat.fit.param;arith.ratio", "Fourier amplitude ratio A2/A1"),
@@ -191,7 +196,7 @@ def _row(star: str, info, verdict, stored, bands) -> dict[str, Any]:
     absolute = _physics(result, "M_")
     modulus = _physics(result, "mu")
     distance = _physics(result, "distance")
-    secondary = _first(result.get("secondary_periods")) or {}
+    secondary = _first(result.get("secondary_periods"))
     row = {
         "star_id": star,
         "ra": _number(info["ra"]),
@@ -207,7 +212,7 @@ def _row(star: str, info, verdict, stored, bands) -> dict[str, Any]:
         "A1_err": _number(_first(fourier.get("amplitudes_err"))),
         "fourier_form": fourier.get("form") or "",
         "fap": _number(result.get("fap")),
-        "period2": _number(secondary.get("period") if isinstance(secondary, dict) else None),
+        "period2": _number(secondary.get("period") if isinstance(secondary, dict) else secondary),
         "period_ratio": _number(result.get("period_ratio")),
         "feh": _number(feh.get("value")),
         "feh_err": _number(feh.get("err")),

@@ -247,3 +247,15 @@ def test_votable_time_system_for_the_epoch(led, tmp_path):
     assert system.timeorigin in ("JD-origin", 0.0, 0)  # the JD origin, as written or parsed
     field = {f.name: f for f in votable.get_first_table().fields}["epoch_max"]
     assert field.ref == system.ID
+
+
+def test_star_without_analysis_exports_blanks(tmp_path):
+    with Ledger.create(tmp_path / "bare.ledger.sqlite") as ledger:
+        ledger.add_stars([LightCurve("BARE-1", np.arange(12.0), np.ones(12))])
+        ledger.set_verdict("BARE-1", "relabelled", class_code="EA", period=2.5)
+        path = tmp_path / "bare.ecsv"
+        assert write_catalogue(ledger, path) == 1
+    row = Table.read(path)[0]
+    assert (row["class"], row["period"], row["fourier_order"]) == ("EA", 2.5, -1)
+    assert np.ma.is_masked(row["fap"]) or math.isnan(row["fap"])
+    assert row["time_scale"] == "JD"  # from the star's photometry
