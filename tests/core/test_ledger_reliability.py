@@ -228,3 +228,40 @@ def test_reused_pid_is_not_taken_for_the_holder(path):
         pytest.skip("no /proc: start times cannot be compared here")
     with Ledger.open(path) as ledger:
         assert ledger.lock_holder().since != "2026-01-01T00:00:00"
+
+
+RESULT_WRITER = """
+import sys
+from core.ledger import Ledger
+ledger = Ledger.open(sys.argv[1])
+ledger.set_analysis_settings({"method": "gls"}, "s1")
+ids = ledger.star_ids()
+for k in range(0, len(ids), 5):
+    batch = ids[k : k + 5]
+    ledger.store_results([(s, "s1", {"status": "ok", "period": 0.5, "big": "x" * 20000}) for s in batch])
+    print(" ".join(batch), flush=True)
+    if k >= 20:
+        sys.stdout.flush()
+        import time; time.sleep(0.2)
+"""
+
+
+def test_killed_result_writer_keeps_every_reported_batch(path):
+    proc = subprocess.Popen(
+        [sys.executable, "-c", RESULT_WRITER, str(path)],
+        cwd=ROOT,
+        stdout=subprocess.PIPE,
+        text=True,
+    )
+    reported = []
+    for _ in range(6):
+        reported.extend(proc.stdout.readline().split())
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    with Ledger.open(path, check="full") as ledger:
+        assert ledger.integrity_check()
+        for star in reported:
+            assert ledger.result(star).result["period"] == 0.5
+        missing = ledger.stars_needing_analysis("s1", "stale")
+        assert set(missing).isdisjoint(reported)
+        assert len(missing) + len(reported) <= ledger.n_stars
