@@ -156,3 +156,29 @@ def test_ledger_new_imports_files(tmp_path, capsys):
     code, _, err = run(capsys, "ledger", "new", tmp_path / "other.ledger.sqlite", bad)
     assert code == 2 and "missing.csv" in err
     assert not (tmp_path / "other.ledger.sqlite").exists()
+
+
+def test_subprocess_exit_code_and_message_when_locked(ledger_path):
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2]
+    with Ledger.open(ledger_path):
+        proc = subprocess.run(
+            [
+                sys.executable,
+                "-m",
+                "app",
+                "verdict",
+                str(ledger_path),
+                "QZ-0",
+                "--status",
+                "rejected",
+            ],
+            cwd=root,
+            capture_output=True,
+            text=True,
+        )
+    assert proc.returncode == 2
+    assert f"phasewise: error: {ledger_path}: held for writing by process" in proc.stderr

@@ -444,3 +444,16 @@ def test_create_ignores_side_files_of_a_deleted_ledger(path):
         assert fresh.n_stars == 0
     with Ledger.open(path, check="full") as again:
         assert again.integrity_check() and again.n_stars == 0
+
+
+def test_no_sql_outside_the_ledger_module():
+    # the ledger is the only module that speaks SQL (DESIGN.md, architecture)
+    root = Path(__file__).resolve().parents[2]
+    offenders = [
+        str(p.relative_to(root))
+        for folder in ("core", "app")
+        for p in (root / folder).rglob("*.py")
+        if p.name != "ledger.py" or p.parent.name != "core"
+        if "sqlite3" in p.read_text(encoding="utf-8")
+    ]
+    assert offenders == []
