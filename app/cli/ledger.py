@@ -17,6 +17,10 @@ from core.ledger import VERDICT_STATUSES, Ledger, file_checksum
 DECISIONS = tuple(s for s in VERDICT_STATUSES if s != "unreviewed")
 
 
+def _stars(n: int) -> str:
+    return f"{n} star" if n == 1 else f"{n} stars"
+
+
 def register(subparsers: argparse._SubParsersAction) -> None:
     ledger = subparsers.add_parser("ledger", help="make or describe a ledger (a vetting job)")
     actions = ledger.add_subparsers(dest="ledger_command", metavar="ACTION", required=True)
@@ -94,7 +98,7 @@ def run_new(args: argparse.Namespace) -> int:
             )
             report = source.report
             print(
-                f"{path}: {added} stars imported; rows read {report.rows_read}, "
+                f"{path}: {_stars(added)} imported; rows read {report.rows_read}, "
                 f"skipped {report.rows_skipped}"
             )
             for reason, count in report.skip_counts.items():
@@ -106,7 +110,7 @@ def run_new(args: argparse.Namespace) -> int:
         for suffix in ("", "-wal", "-shm"):
             Path(f"{args.ledger}{suffix}").unlink(missing_ok=True)
         raise
-    print(f"{args.ledger}: {ledger.n_stars} stars")
+    print(f"{args.ledger}: {_stars(ledger.n_stars)}")
     ledger.close()
     return 0
 
@@ -115,7 +119,7 @@ def run_info(args: argparse.Namespace) -> int:
     with Ledger.open(args.ledger, readonly=True) as ledger:
         rows = ledger.star_rows()
         counts = ledger.status_counts()
-        print(f"{args.ledger}: {ledger.n_stars} stars")
+        print(f"{args.ledger}: {_stars(ledger.n_stars)}")
         print("  " + ", ".join(f"{status} {n}" for status, n in counts.items()))
         analysed = sum(r.analysed for r in rows)
         print(
@@ -185,9 +189,9 @@ def _confirm_above(args: argparse.Namespace) -> int:
                 ],
                 label=f"confirm {len(chosen)} suggestions with score >= {score:g}",
             )
-    print(f"{args.ledger}: {len(chosen)} stars {verb} with top score >= {score:g}")
+    print(f"{args.ledger}: {_stars(len(chosen))} {verb} with top score >= {score:g}")
     if stale:
-        print(f"  skipped {stale} stars whose analysis is stale; analyse them again first")
+        print(f"  skipped {_stars(stale)} whose analysis is stale; analyse them again first")
     return 0
 
 
@@ -252,5 +256,5 @@ def run_export(args: argparse.Namespace) -> int:
         statuses = tuple(s.strip() for item in args.status for s in item.split(",") if s.strip())
     with Ledger.open(args.ledger, readonly=True) as ledger:
         n = write_catalogue(ledger, args.output, format=args.format, statuses=statuses)
-    print(f"{args.output}: {n} stars ({', '.join(statuses)}) from {args.ledger}")
+    print(f"{args.output}: {_stars(n)} ({', '.join(statuses)}) from {args.ledger}")
     return 0

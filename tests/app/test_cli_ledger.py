@@ -109,7 +109,7 @@ def test_export_command(ledger_path, tmp_path, capsys):
     run(capsys, "verdict", ledger_path, "--confirm-above", "0.9")
     target = tmp_path / "vetted.fits"
     code, out, _ = run(capsys, "export", ledger_path, "-o", target)
-    assert code == 0 and "1 stars (confirmed, relabelled)" in out
+    assert code == 0 and "1 star (confirmed, relabelled)" in out
     assert list(Table.read(target)["star_id"]) == ["QZ-0"]
     code, out, _ = run(
         capsys, "export", ledger_path, "-o", tmp_path / "all.dat", "--format", "csv",
