@@ -457,3 +457,40 @@ def test_no_sql_outside_the_ledger_module():
         if "sqlite3" in p.read_text(encoding="utf-8")
     ]
     assert offenders == []
+
+
+def test_undo_redo_match_an_editor_stack_model(led):
+    # Reference model: the usual two-stack editor undo (common practice, no source).
+    rng = np.random.default_rng(21)
+    stars = led.star_ids()
+    state = {s: "unreviewed" for s in stars}
+    undo_stack, redo_stack = [], []
+    for _ in range(120):
+        move = rng.choice(["do", "do", "undo", "redo"])
+        if move == "do":
+            star = str(rng.choice(stars))
+            status = str(rng.choice(["confirmed", "rejected", "deferred"]))
+            undo_stack.append((star, state[star], status))
+            redo_stack.clear()
+            state[star] = status
+            led.set_verdict(star, status)
+        elif move == "undo":
+            action = led.undo()
+            if undo_stack:
+                star, old, new = undo_stack.pop()
+                redo_stack.append((star, old, new))
+                state[star] = old
+                assert action.entries[0].star_id == star
+            else:
+                assert action is None
+        else:
+            action = led.redo()
+            if redo_stack:
+                star, old, new = redo_stack.pop()
+                undo_stack.append((star, old, new))
+                state[star] = new
+                assert action.entries[0].star_id == star
+            else:
+                assert action is None
+        assert {v.star_id: v.status for v in led.verdicts()} == state
+    assert led.can_undo() == bool(undo_stack) and led.can_redo() == bool(redo_stack)
