@@ -123,6 +123,11 @@ def main() -> None:
             lambda: [ledger.set_verdict(s, "confirmed", class_code="RRab") for s in pick[:20]]
         )
         print(f"  verdict committed             {t_verdict / 20 * 1e3:8.2f} ms per verdict")
+        items = [(s, "confirmed", "RRab", 0.5, None) for s in ids]
+        _, t_bulk = timed(lambda: ledger.set_verdicts(items, label="bulk confirm"))
+        print(f"  bulk confirm {n} (one action)  {t_bulk:7.2f} s")
+        _, t_undo = timed(ledger.undo)
+        print(f"  undo of the bulk confirm      {t_undo:8.2f} s")
         _, t_needing = timed(lambda: ledger.stars_needing_analysis(settings_hash, "stale"))
         print(f"  stars_needing_analysis        {t_needing * 1e3:8.1f} ms")
         _, t_sum = timed(ledger.checksum)
