@@ -126,6 +126,13 @@ def main() -> None:
         items = [(s, "confirmed", "RRab", 0.5, None) for s in ids]
         _, t_bulk = timed(lambda: ledger.set_verdicts(items, label="bulk confirm"))
         print(f"  bulk confirm {n} (one action)  {t_bulk:7.2f} s")
+        from core.export import write_catalogue
+
+        for suffix in (".fits", ".vot"):
+            target = folder / f"bench_vetted{suffix}"
+            _, t_export = timed(lambda t=target: write_catalogue(ledger, t))
+            print(f"  export {n} stars as {suffix:6s}    {t_export:8.2f} s")
+            target.unlink()
         _, t_undo = timed(ledger.undo)
         print(f"  undo of the bulk confirm      {t_undo:8.2f} s")
         _, t_needing = timed(lambda: ledger.stars_needing_analysis(settings_hash, "stale"))
