@@ -1043,38 +1043,29 @@ class Ledger:
         return self._star_rows("WHERE s.id = ?", (self._key(star_id),))[0]
 
     def _star_rows(self, where: str, params: tuple[Any, ...]) -> list[StarRow]:
+        # stale is worked out in SQL and rows are built positionally: this is
+        # what a 10,000-star list waits for
         current = self.settings_hash
         rows = self._query(
             "SELECT s.star_id, v.status, r.suggested_class, r.suggested_score, "
             "r.suggested_period, v.class_code, COALESCE(v.period, r.period), r.amplitude, r.fap, "
-            "r.flags, r.star IS NOT NULL, COALESCE(r.failed, 0), r.settings_hash, "
-            "COALESCE(r.outdated, 0) "
+            "r.flags, r.star IS NOT NULL, COALESCE(r.failed, 0), "
+            "r.star IS NOT NULL AND (r.outdated OR (? IS NOT NULL AND r.settings_hash != ?)) "
             "FROM stars s JOIN verdicts v ON v.star = s.id LEFT JOIN results r ON r.star = s.id "
             f"{where} ORDER BY s.id",
-            params,
+            (current, current, *params),
         ).fetchall()
-        out = []
-        for row in rows:
-            analysed = bool(row[10])
-            stale = analysed and (bool(row[13]) or (current is not None and row[12] != current))
-            out.append(
-                StarRow(
-                    star_id=row[0],
-                    status=row[1],
-                    suggested_class=row[2],
-                    suggested_score=row[3],
-                    suggested_period=row[4],
-                    verdict_class=row[5],
-                    period=row[6],
-                    amplitude=row[7],
-                    fap=row[8],
-                    flags=tuple(json.loads(row[9])) if row[9] and row[9] != "[]" else (),
-                    analysed=analysed,
-                    failed=bool(row[11]),
-                    stale=stale,
-                )
+        loads = json.loads
+        return [
+            StarRow(
+                *row[:9],
+                tuple(loads(row[9])) if row[9] and row[9] != "[]" else (),
+                bool(row[10]),
+                bool(row[11]),
+                bool(row[12]),
             )
-        return out
+            for row in rows
+        ]
 
     # ------------------------------------------------------------ listeners
     def subscribe(self, callback: Callable[[Change], None]) -> Callable[[], None]:
