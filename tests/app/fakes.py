@@ -13,7 +13,6 @@ import numpy as np
 from astropy.timeseries import LombScargle
 
 from app.desk.services import CoreServices, PeriodogramView
-from core.errors import PhasewiseError
 from core.lightcurve import LightCurve
 
 
@@ -176,175 +175,17 @@ class FakeServices(CoreServices):
         }
 
 
-@dataclass(frozen=True)
-class Entry:
-    star_id: str
-    what: str
+def real_ledger(path, n_stars=6, n_points=300):
+    """A real :class:`core.ledger.Ledger` with invented stars and stand-in results."""
+    from core.ledger import Ledger
 
-
-@dataclass(frozen=True)
-class Action:
-    label: str
-    entries: tuple
-
-
-@dataclass
-class Row:
-    star_id: str
-    status: str
-    suggested_class: str | None
-    suggested_score: float | None
-    verdict_class: str | None
-    period: float | None
-    amplitude: float | None
-    fap: float | None
-    flags: tuple
-    stale: bool
-
-
-@dataclass(frozen=True)
-class StoredResult:
-    result: dict
-    settings_hash: str = "x"
-    stale: bool = False
-
-
-@dataclass(frozen=True)
-class Verdict:
-    star_id: str
-    status: str = "unreviewed"
-    class_code: str | None = None
-    period: float | None = None
-    note: str | None = None
-
-
-class FakeLedger:
-    """In-memory ledger following the contract; ``path`` lets it 'reopen'."""
-
-    store: dict = {}
-
-    def __init__(self, path=None):
-        self.path = path
-        self.stars, self.results, self.verdicts, self.masks = {}, {}, {}, {}
-        self.log, self.undone = [], []
-        self.closed = False
-
-    @classmethod
-    def create(cls, path):
-        ledger = cls(path)
-        cls.store[str(path)] = ledger
-        return ledger
-
-    @classmethod
-    def open(cls, path, readonly=False):
-        if str(path) not in cls.store:
-            raise PhasewiseError("no such ledger", file=str(path))
-        ledger = cls.store[str(path)]
-        ledger.closed = False
-        return ledger
-
-    def close(self):
-        self.closed = True
-
-    def add_stars(self, lightcurves, *, source_file=None):
-        n = 0
-        for lc in lightcurves:
-            self.stars[lc.star_id] = lc
-            n += 1
-        return n
-
-    def set_analysis_settings(self, settings, settings_hash):
-        self.settings = (settings, settings_hash)
-
-    def store_results(self, items):
-        for star_id, _hash, result in items:
-            self.results[star_id] = result
-        return len(items)
-
-    def star_ids(self):
-        return list(self.stars)
-
-    def lightcurve(self, star_id):
-        lc = self.stars[star_id]
-        mask = self.masks.get(star_id)
-        return lc if mask is None else lc.with_excluded(mask)
-
-    def set_excluded(self, star_id, mask):
-        self.masks[star_id] = np.asarray(mask, dtype=bool).copy()
-
-    def result(self, star_id):
-        r = self.results.get(star_id)
-        return None if r is None else StoredResult(r)
-
-    def verdict(self, star_id):
-        return self.verdicts.get(star_id, Verdict(star_id))
-
-    def set_verdict(self, star_id, status, *, class_code=None, period=None, note=None):
-        if status not in ("confirmed", "relabelled", "rejected", "deferred", "unreviewed"):
-            raise PhasewiseError(f"unknown status {status!r}", field="status")
-        old = self.verdict(star_id)
-        new = Verdict(star_id, status, class_code, period, note)
-        self.verdicts[star_id] = new
-        self.log.append((star_id, old, new))
-        self.undone.clear()
-
-    def undo(self):
-        if not self.log:
-            return None
-        star_id, old, new = self.log.pop()
-        self.verdicts[star_id] = old
-        self.undone.append((star_id, old, new))
-        return Action(f"undo verdict on {star_id}", (Entry(star_id, "verdict"),))
-
-    def redo(self):
-        if not self.undone:
-            return None
-        star_id, old, new = self.undone.pop()
-        self.verdicts[star_id] = new
-        self.log.append((star_id, old, new))
-        return Action(f"redo verdict on {star_id}", (Entry(star_id, "verdict"),))
-
-    def undo_label(self):
-        return f"verdict on {self.log[-1][0]}" if self.log else None
-
-    def redo_label(self):
-        return f"verdict on {self.undone[-1][0]}" if self.undone else None
-
-    def history(self):
-        return list(self.log)
-
-    def star_row(self, star_id):
-        return next(r for r in self.star_rows() if r.star_id == star_id)
-
-    def star_rows(self):
-        rows = []
-        for sid in self.stars:
-            r = self.results.get(sid) or {}
-            v = self.verdict(sid)
-            s = (r.get("suggestions") or [{}])[0]
-            rows.append(
-                Row(
-                    sid,
-                    v.status,
-                    s.get("class_code"),
-                    s.get("score"),
-                    v.class_code,
-                    v.period or r.get("period"),
-                    r.get("amplitude"),
-                    r.get("fap"),
-                    tuple(r.get("flags") or ()),
-                    False,
-                )
-            )
-        return rows
-
-
-def fake_ledger(n_stars=6, n_points=300, path="mem://test"):
     services = FakeServices()
-    ledger = FakeLedger.create(path)
-    for i in range(n_stars):
-        period = 0.45 + 0.07 * i
-        lc = make_star(f"NV-{i + 1:03d}", period, n=n_points, bands=("V", "I"), seed=i)
-        ledger.add_stars([lc])
-        ledger.store_results([(lc.star_id, "x", services.analyse(lc, None))])
+    ledger = Ledger.create(path)
+    lcs = [
+        make_star(f"NV-{i + 1:03d}", 0.45 + 0.07 * i, n=n_points, bands=("V", "I"), seed=i)
+        for i in range(n_stars)
+    ]
+    ledger.add_stars(lcs, source_file="invented.csv")
+    ledger.set_analysis_settings({"stand_in": True}, "x")
+    ledger.store_results([(lc.star_id, "x", services.analyse(lc, None)) for lc in lcs])
     return ledger

@@ -10,15 +10,14 @@ from app.desk import MainWindow
 from app.desk.star_list import StarTableModel
 
 from .conftest import dispose
-from .fakes import FakeLedger, FakeServices, fake_ledger
+from .fakes import FakeServices, real_ledger
 
 
 @pytest.fixture
 def desk(qtbot, qsettings, tmp_path):
     path = tmp_path / "field.ledger.sqlite"
-    ledger = fake_ledger(path=str(path))
+    ledger = real_ledger(path)
     services = FakeServices()
-    services.open_ledger = lambda p, readonly=False: FakeLedger.open(p)
     window = MainWindow(services, qsettings)
     window.set_ledger(ledger, path)
     window.show()
@@ -136,25 +135,29 @@ def test_exclude_points_with_a_selection(desk, qtbot):
     assert 0 < inside.size < desk.lc.n_points
     calls = desk.services.analyse_calls
     lc_panel.vb.sigRectSelected.emit(rect, False)  # what a Shift+drag emits
-    mask = desk.ledger.masks["NV-001"]
+    mask = desk.ledger.excluded("NV-001")
     assert mask[inside].all() and mask.sum() == inside.size
     qtbot.waitUntil(lambda: desk.services.analyse_calls == calls + 1, timeout=10000)
     qtbot.waitUntil(lambda: desk.result.get("n_good") == desk.lc.n_points - inside.size)
     assert len(lc_panel.excluded.getData()[0]) == inside.size
     # Ctrl on release restores
     lc_panel.vb.sigRectSelected.emit(rect, True)
-    assert not desk.ledger.masks["NV-001"].any()
+    assert not desk.ledger.excluded("NV-001").any()
 
 
 def test_export_and_plots(desk, qtbot, tmp_path):
-    written = []
-    desk.services.write_catalogue = lambda ledger, path, fmt=None: (
-        written.append((path, fmt)) or path
-    )
+    from astropy.table import Table
+
+    qtbot.keyClick(desk, Qt.Key.Key_Y)  # confirm NV-001
+    qtbot.keyClick(desk, Qt.Key.Key_3)  # relabel NV-002 as RRd
     done = []
     desk.export_catalogue(tmp_path / "vetted.ecsv", "ecsv", on_done=done.append)
-    qtbot.waitUntil(lambda: bool(done), timeout=10000)
-    assert written == [(tmp_path / "vetted.ecsv", "ecsv")]
+    qtbot.waitUntil(lambda: bool(done), timeout=20000)
+    assert done == [2]  # core.export.write_catalogue returns the number of stars
+    table = Table.read(tmp_path / "vetted.ecsv", format="ascii.ecsv")
+    rows = {str(r["star_id"]): r for r in table}
+    assert set(rows) == {"NV-001", "NV-002"}
+    assert str(rows["NV-002"]["class"]) == "RRd"
     for which in ("lightcurve", "periodogram", "fold"):
         png = desk.export_plot(which, tmp_path / f"{which}.png")
         assert png.stat().st_size > 5000
