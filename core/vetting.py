@@ -141,14 +141,16 @@ class VettingSession:
         """The period to compare against, shown in the second fold.
 
         Twice the trial period for eclipsing classes (two minima per cycle);
-        otherwise the best candidate other than the current one.
+        otherwise the best candidate that is not the trial period (a nudge of
+        less than 0.1 % keeps the trial period "at" its candidate, so the
+        comparison stays put while the period is fine-tuned).
         """
         if self.period is None:
             return None
         if class_code in ECLIPSING_CLASSES:
             return 2.0 * self.period
         for p in self.candidates:
-            if not math.isclose(p, self.period, rel_tol=1e-6):
+            if not math.isclose(p, self.period, rel_tol=1e-3):
                 return p
         return 2.0 * self.period
 

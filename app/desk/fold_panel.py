@@ -18,6 +18,7 @@ from PySide6.QtWidgets import (
 
 from core.folding import phase_fold, phase_grid_times
 
+from .plots import FastPoints, cache_axes
 from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_colours
 
 __all__ = ["FoldView", "FoldPanel"]
@@ -47,6 +48,8 @@ class FoldView(pg.GraphicsLayoutWidget):
                 p.getAxis(name).enableAutoSIPrefix(False)
             p.getAxis("left").setWidth(52)
         self.resid.setXLink(self.fold)
+        cache_axes(self.fold)
+        cache_axes(self.resid)
         self.fold.getViewBox().invertY(True)
         self.resid.getViewBox().invertY(True)
         self.fold.setLabel("left", "Magnitude (mag)")
@@ -57,12 +60,12 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.title = title
         self.bins = []
         for colour in time_colours(TIME_BINS):
-            s = pg.ScatterPlotItem(size=5, pen=None, brush=pg.mkBrush(colour))
+            s = FastPoints(colour, size=4.5, square=True, repeat_x=1.0)
             self.fold.addItem(s)
             self.bins.append(s)
         self.model_curve = pg.PlotCurveItem(pen=pg.mkPen(MODEL_COLOUR, width=2))
         self.fold.addItem(self.model_curve)
-        self.resid_points = pg.ScatterPlotItem(size=4, pen=None, brush=pg.mkBrush("#444444"))
+        self.resid_points = FastPoints("#444444", size=3.0, square=True, repeat_x=1.0)
         self.resid.addItem(self.resid_points)
         self.zero = pg.InfiniteLine(angle=0, pos=0.0, pen=pg.mkPen(EXCLUDED_COLOUR))
         self.resid.addItem(self.zero, ignoreBounds=True)
@@ -74,6 +77,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.epoch = None
         self.fit = None
         self._range_set = False
+        self._drawn = None
 
     def set_data(self, time, mag, err, order: int = 4, form: str = "sine") -> None:
         """New points (one band): sort by time bin once, so a nudge only folds."""
@@ -82,6 +86,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         t, m, e = t[keep], np.asarray(mag, float)[keep], np.asarray(err, float)[keep]
         order_idx = np.argsort(t, kind="stable")
         self.t, self.m, self.e = t[order_idx], m[order_idx], e[order_idx]
+        self._drawn = None
         n = self.t.size
         edges = np.linspace(0, n, TIME_BINS + 1).astype(int)  # equal-count time bins
         self.slices = [slice(edges[i], edges[i + 1]) for i in range(TIME_BINS)]
@@ -89,9 +94,11 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.form = form or "sine"
         self.period = None
         self._range_set = False
+        self._drawn = None
 
     def clear(self) -> None:
         self.t = None
+        self._drawn = None
         for s in self.bins:
             s.setData([], [])
         self.model_curve.setData([], [])
@@ -103,6 +110,9 @@ class FoldView(pg.GraphicsLayoutWidget):
         if self.t is None or self.t.size == 0 or period is None or period <= 0:
             self.clear()
             return
+        if self._drawn == (float(period), id(self.t)):
+            return  # nothing moved (the other fold's period did)
+        self._drawn = (float(period), id(self.t))
         self.period = float(period)
         self.fit = None
         try:
@@ -115,16 +125,12 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.epoch = epoch
         phase = phase_fold(self.t, self.period, epoch)
         for s, sl in zip(self.bins, self.slices, strict=True):
-            ph = phase[sl]
-            mm = self.m[sl]
-            s.setData(np.concatenate([ph, ph + 1.0]), np.concatenate([mm, mm]))
+            s.setData(phase[sl], self.m[sl])  # drawn again at phase + 1 by the item
         if self.fit is not None:
             grid_phase, grid_t = phase_grid_times(self.period, epoch, MODEL_POINTS)
             self.model_curve.setData(grid_phase, np.asarray(self.fit.model(grid_t)))
             resid = self.m - np.asarray(self.fit.model(self.t))
-            self.resid_points.setData(
-                np.concatenate([phase, phase + 1.0]), np.concatenate([resid, resid])
-            )
+            self.resid_points.setData(phase, resid)
         else:
             self.model_curve.setData([], [])
             self.resid_points.setData([], [])

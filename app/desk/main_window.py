@@ -511,7 +511,7 @@ class MainWindow(QMainWindow):
         self.fold.show_alternative(self.session.alternative_period(code))
         self.periodogram.set_frequency(1.0 / period if period else None)
         if source not in ("analysis", "band"):
-            self.sheet.render(period)
+            self.sheet.show_trial_period(period, self.session.overridden)
 
     def step_star(self, step: int) -> None:
         sid = self.star_list.neighbour(self.session.star_id, step)

@@ -76,6 +76,8 @@ class StarSheet(QWidget):
         super().__init__(parent)
         self.browser = QTextBrowser()
         self.browser.setOpenLinks(False)
+        self.trial_label = QLabel()
+        self.trial_label.setTextFormat(Qt.TextFormat.RichText)
         self.verdict_label = QLabel()
         self.verdict_label.setWordWrap(True)
         self.verdict_label.setTextFormat(Qt.TextFormat.RichText)
@@ -92,14 +94,15 @@ class StarSheet(QWidget):
             b.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         box = QGroupBox("Verdict")
         grid = QGridLayout(box)
-        grid.addWidget(self.verdict_label, 0, 0, 1, 2)
-        grid.addWidget(self.confirm_button, 1, 0, 1, 2)
-        grid.addWidget(self.relabel_button, 2, 0)
-        grid.addWidget(self.class_box, 2, 1)
-        grid.addWidget(self.reject_button, 3, 0)
-        grid.addWidget(self.defer_button, 3, 1)
-        grid.addWidget(QLabel("Note:"), 4, 0, 1, 2)
-        grid.addWidget(self.note_edit, 5, 0, 1, 2)
+        grid.addWidget(self.trial_label, 0, 0, 1, 2)
+        grid.addWidget(self.verdict_label, 1, 0, 1, 2)
+        grid.addWidget(self.confirm_button, 2, 0, 1, 2)
+        grid.addWidget(self.relabel_button, 3, 0)
+        grid.addWidget(self.class_box, 3, 1)
+        grid.addWidget(self.reject_button, 4, 0)
+        grid.addWidget(self.defer_button, 4, 1)
+        grid.addWidget(QLabel("Note:"), 5, 0, 1, 2)
+        grid.addWidget(self.note_edit, 6, 0, 1, 2)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addWidget(self.browser, 1)
@@ -145,6 +148,15 @@ class StarSheet(QWidget):
             self.class_box.setCurrentIndex(self.class_box.findData(self.top_suggestion()))
         self.set_verdict(verdict)
         self.render(trial_period)
+        self.show_trial_period(trial_period, False)
+
+    def show_trial_period(self, period, overridden: bool) -> None:
+        """The period a verdict would record (the trial period)."""
+        if period is None:
+            self.trial_label.setText("")
+            return
+        note = " <span style='color:#B03000'>(changed by hand)</span>" if overridden else ""
+        self.trial_label.setText(f"Period for the verdict: <b>{fmt_period(period)} d</b>{note}")
 
     def set_verdict(self, verdict) -> None:
         status = _get(verdict, "status") or "unreviewed"

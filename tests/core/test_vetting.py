@@ -54,6 +54,10 @@ def test_halve_double_and_candidate_cycling():
 def test_alternative_period():
     s, _ = _session()
     assert s.alternative_period("RRab") == 0.3548
+    s.nudge(+3)  # fine-tuning keeps the comparison fold where it was
+    assert s.alternative_period("RRab") == 0.3548
+    s.set_period(0.3548)
+    assert s.alternative_period("RRab") == 0.55
     assert s.alternative_period("EW") == pytest.approx(1.1)
 
 

@@ -1,0 +1,233 @@
+"""Speed of the vetting desk: period nudge redraw, star switch, 10,000-star start.
+
+Run offscreen:  QT_QPA_PLATFORM=offscreen python benchmarks/bench_desk.py [--quick]
+
+Targets (DESIGN.md): redraw after a nudge <= 16 ms at 5,000 points and
+<= 50 ms at 50,000; star switch <= 100 ms with the analysis cached in the
+ledger; a 10,000-star ledger shows its first star <= 2 s after start.
+Figures are medians of repeated runs in this process; each line also prints
+the ratio to its target.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+
+def invented_star(star_id: str, n: int, period: float, seed: int):
+    from core.lightcurve import LightCurve
+
+    rng = np.random.default_rng(seed)
+    t = 2461000.0 + np.sort(rng.uniform(0.0, 900.0, n))
+    phase = (t / period) % 1.0
+    mag = 16.2 - 0.45 * np.sin(2 * np.pi * phase) - 0.15 * np.sin(4 * np.pi * phase)
+    mag += rng.normal(0.0, 0.02, n)
+    band = np.where(rng.random(n) < 0.7, "V", "I").astype(object)
+    mag = mag + np.where(band == "I", -0.5, 0.0)
+    return LightCurve(star_id, t, mag, np.full(n, 0.02), band=band, time_scale="HJD")
+
+
+def result_for(lc, period: float, analyse: bool):
+    """The analysis of ``lc`` from core.analysis, or a minimal stand-in when asked."""
+    if analyse:
+        from app.desk.services import CoreServices
+
+        s = CoreServices()
+        return s.analyse(lc, s.default_settings())
+    return {
+        "star_id": lc.star_id,
+        "status": "ok",
+        "period": period,
+        "frequency": 1 / period,
+        "primary_band": "V",
+        "bands": ["V", "I"],
+        "candidates": [
+            {"frequency": 1 / period, "period": period, "power": 0.9, "marks": []},
+            {
+                "frequency": 1 / period + 1.0027,
+                "period": 1 / (1 / period + 1.0027),
+                "power": 0.3,
+                "marks": ["alias"],
+            },
+        ],
+        "fourier": {"order": 4, "form": "sine"},
+        "suggestions": [{"class_code": "RRab", "score": 0.9, "reasons": ["period"]}],
+    }
+
+
+def make_ledger(path: Path, n_stars: int, n_points: int, analyse: bool):
+    from core.ledger import Ledger
+
+    ledger = Ledger.create(path)
+    lcs = [invented_star(f"BV-{i:05d}", n_points, 0.5 + 0.0003 * i, i) for i in range(n_stars)]
+    ledger.add_stars(lcs, source_file="invented.csv")
+    template = None
+    items = []
+    for lc in lcs:
+        if analyse or template is None:
+            template = result_for(lc, 0.5, analyse)
+        r = dict(template, star_id=lc.star_id)
+        items.append((lc.star_id, r.get("settings_hash", "bench"), r))
+    ledger.store_results(items)
+    ledger.close()
+
+
+def window_on(path: Path):
+    from PySide6.QtCore import QSettings
+    from PySide6.QtWidgets import QApplication
+
+    from app.desk import MainWindow
+
+    app = QApplication.instance() or QApplication([])
+    tmp = tempfile.mkdtemp()
+    window = MainWindow(settings=QSettings(f"{tmp}/b.ini", QSettings.Format.IniFormat))
+    window.show()
+    window.open_ledger(path)
+    window.wait_idle()
+    return app, window
+
+
+def dispose(window) -> None:
+    from PySide6.QtCore import QCoreApplication, QEvent
+
+    window.close()
+    window.deleteLater()
+    QCoreApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
+
+
+def bench_nudge(tmp: Path, n_points: int, repeats: int) -> float:
+    path = tmp / f"nudge{n_points}.ledger.sqlite"
+    make_ledger(path, 1, n_points, analyse=False)
+    app, window = window_on(path)
+    painted = count_paints(window.fold.main.bins[0])
+    times = []
+    for k in range(repeats):
+        before = painted[0]
+        t0 = time.perf_counter()
+        window.session.nudge(+1)
+        # the event loop delivers the scene's update and paints what changed, once
+        while painted[0] == before and time.perf_counter() - t0 < 2.0:
+            app.processEvents()
+        times.append(time.perf_counter() - t0)
+    dispose(window)
+    return statistics.median(times) * 1000
+
+
+def count_paints(item) -> list[int]:
+    """Count paints of one plot item (to know the frame after a nudge was drawn)."""
+    counter = [0]
+    original = item.paint
+
+    def paint(*args):
+        counter[0] += 1
+        return original(*args)
+
+    item.paint = paint
+    return counter
+
+
+def bench_switch(tmp: Path, repeats: int, analyse: bool) -> tuple[float, float]:
+    path = tmp / "switch.ledger.sqlite"
+    make_ledger(path, repeats + 2, 700, analyse=analyse)
+    app, window = window_on(path)
+    times, with_pgram = [], []
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        window.step_star(+1)
+        app.processEvents()
+        window.repaint()
+        times.append(time.perf_counter() - t0)
+        window.wait_idle()
+        window.repaint()
+        with_pgram.append(time.perf_counter() - t0)
+    dispose(window)
+    return statistics.median(times) * 1000, statistics.median(with_pgram) * 1000
+
+
+FIRST_STAR = r"""
+import sys, time
+t_start = float(sys.argv[2])
+sys.path.insert(0, sys.argv[3])
+from PySide6.QtCore import QSettings
+from PySide6.QtWidgets import QApplication
+app = QApplication([])
+from app.desk import MainWindow
+w = MainWindow(settings=QSettings(sys.argv[4], QSettings.Format.IniFormat))
+w.show()
+w.open_ledger(sys.argv[1])
+app.processEvents()
+w.repaint()
+shown = time.time() - t_start
+print(f"{shown:.3f} {w.current_star}")
+w.workers.shutdown()
+w.close()
+"""
+
+
+def bench_first_star(tmp: Path, n_stars: int) -> tuple[float, str]:
+    path = tmp / "big.ledger.sqlite"
+    t0 = time.perf_counter()
+    make_ledger(path, n_stars, 100, analyse=False)
+    print(
+        f"  (made a {n_stars:,}-star ledger in {time.perf_counter() - t0:.1f} s, "
+        f"{path.stat().st_size / 1e6:.1f} MB)"
+    )
+    start = time.time()
+    out = subprocess.run(
+        [sys.executable, "-c", FIRST_STAR, str(path), repr(start), str(ROOT), str(tmp / "f.ini")],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        check=True,
+    ).stdout.split()
+    return float(out[0]) * 1000, out[1]
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="fewer repeats, 2,000-star ledger")
+    parser.add_argument(
+        "--stand-in",
+        action="store_true",
+        help="store minimal results instead of running core.analysis",
+    )
+    args = parser.parse_args()
+    repeats = 10 if args.quick else 30
+    analyse = not args.stand_in
+    with tempfile.TemporaryDirectory() as d:
+        tmp = Path(d)
+        print("Phasewise desk benchmark (median of repeats, offscreen)")
+        for n, target in ((5_000, 16.0), (50_000, 50.0)):
+            ms = bench_nudge(tmp, n, repeats)
+            print(
+                f"nudge redraw, {n:>6,} points: {ms:7.1f} ms  (target {target:.0f} ms, "
+                f"ratio {ms / target:.2f})"
+            )
+        shown, full = bench_switch(tmp, max(repeats // 2, 5), analyse)
+        print(
+            f"star switch, cached analysis: {shown:7.1f} ms  (target 100 ms, ratio "
+            f"{shown / 100:.2f}); with its periodogram computed: {full:.1f} ms"
+        )
+        n_stars = 2_000 if args.quick else 10_000
+        ms, first = bench_first_star(tmp, n_stars)
+        print(
+            f"{n_stars:,}-star ledger, first star ({first}) shown: {ms:7.0f} ms after start "
+            f"(target 2000 ms, ratio {ms / 2000:.2f})"
+        )
+
+
+if __name__ == "__main__":
+    main()
