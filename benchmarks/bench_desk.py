@@ -114,7 +114,7 @@ def bench_nudge(tmp: Path, n_points: int, repeats: int) -> float:
     app, window = window_on(path)
     painted = count_paints(window.fold.main.bins[0])
     times = []
-    for k in range(repeats):
+    for _ in range(repeats):
         before = painted[0]
         t0 = time.perf_counter()
         window.session.nudge(+1)

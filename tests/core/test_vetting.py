@@ -58,7 +58,7 @@ def test_alternative_period():
     assert s.alternative_period("RRab") == 0.3548
     s.set_period(0.3548)
     assert s.alternative_period("RRab") == 0.55
-    assert s.alternative_period("EW") == pytest.approx(1.1)
+    assert s.alternative_period("EW") == pytest.approx(2 * 0.3548)
 
 
 def test_bad_input_messages():
