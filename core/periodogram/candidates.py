@@ -152,8 +152,8 @@ def find_candidates(
 ) -> tuple[Candidate, ...]:
     """The ``settings.n_candidates`` best distinct peaks, strongest first.
 
-    Peaks closer than 1/T (T the baseline; at least 3 grid steps) count as
-    one.  ``windows`` may pass precomputed :func:`window_peaks` (stars that
+    Peaks closer than ``settings.peak_separation / T`` (T the baseline; at
+    least 3 grid steps) count as one.  ``windows`` may pass precomputed :func:`window_peaks` (stars that
     share their epochs share them); by default they are computed from the
     light curve's good times.
     """
@@ -161,7 +161,7 @@ def find_candidates(
     frequency, power = periodogram.frequency, periodogram.power
     baseline = periodogram.baseline
     df = periodogram.frequency_step
-    separation = max(1.0 / baseline, 3 * df)
+    separation = max(settings.peak_separation / baseline, 3 * df)
     indices = _peak_indices(power, frequency, settings.n_candidates, separation)
     refined = []
     for i in indices:

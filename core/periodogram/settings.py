@@ -44,6 +44,9 @@ class PeriodogramSettings:
         Phase bins of phase dispersion minimisation.
     ce_phase_bins, ce_mag_bins : int
         Phase and magnitude bins of conditional entropy.
+    peak_separation : float
+        Candidates closer than this many peak widths 1/T count as one peak
+        (2 keeps the side lobes at ~1.5/T of a strong peak out).
     mark_tolerance : float
         Tolerance of the harmonic/subharmonic/alias marks, in units of the
         peak width 1/T.
@@ -65,6 +68,7 @@ class PeriodogramSettings:
     pdm_bins: int = 10
     ce_phase_bins: int = 10
     ce_mag_bins: int = 5
+    peak_separation: float = 2.0
     mark_tolerance: float = 0.5
     max_harmonic: int = 6
     window_threshold: float = 0.25
@@ -95,6 +99,7 @@ class PeriodogramSettings:
         require_int("pdm_bins", self.pdm_bins, 2, 100)
         require_int("ce_phase_bins", self.ce_phase_bins, 2, 100)
         require_int("ce_mag_bins", self.ce_mag_bins, 2, 100)
+        require_range("peak_separation", self.peak_separation, 0.1, 20)
         require_range("mark_tolerance", self.mark_tolerance, 0.01, 5)
         require_int("max_harmonic", self.max_harmonic, 2, 20)
         require_range("window_threshold", self.window_threshold, 0.01, 1)
