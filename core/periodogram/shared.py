@@ -30,6 +30,7 @@ def shared_epoch_periodograms(
     *,
     frequency=None,
     n_threads: int = 1,
+    batch_size: int = 16,
 ) -> tuple[Periodogram, ...]:
     """One periodogram per star for stars sharing the epochs ``time``.
 
@@ -45,6 +46,12 @@ def shared_epoch_periodograms(
         ``gls`` and ``mhgls`` run batched; ``pdm`` and ``ce`` star by star.
     frequency : array of float, optional
         Shared grid; by default :func:`frequency_grid` of all epochs.
+    n_threads : int
+        Threads of the transform.
+    batch_size : int
+        Stars per transform call: as fast as one call for all stars, and it
+        bounds the transform's work memory (3 complex arrays per star and
+        frequency).
 
     Returns
     -------
@@ -87,16 +94,19 @@ def shared_epoch_periodograms(
     t0 = 0.5 * (t_ok.min() + t_ok.max())
     kernel = KERNELS[METHOD_KERNELS[settings.method]]
     if kernel.statistic is None:
-        power, statistic = kernel.function(
-            t_filled - t0,
-            y,
-            None if err is None and good.all() else dy,
-            frequency,
-            settings,
-            grid=grid,
-            n_threads=n_threads,
-        )
-        power = np.atleast_2d(power)
+        weights_given = not (err is None and good.all())
+        power = np.empty((y.shape[0], frequency.size))
+        for start in range(0, y.shape[0], max(1, batch_size)):
+            rows = slice(start, start + max(1, batch_size))
+            power[rows], _ = kernel.function(
+                t_filled - t0,
+                y[rows],
+                dy[rows] if weights_given else None,
+                frequency,
+                settings,
+                grid=grid,
+                n_threads=n_threads,
+            )
         statistics = [None] * y.shape[0]
     else:  # PDM and CE are not transforms: drop the missing points star by star
         rows = [

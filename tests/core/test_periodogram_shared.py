@@ -108,3 +108,12 @@ def test_shape_and_point_errors_name_the_problem(field):
     sparse[1, 4:] = np.nan
     with pytest.raises(PhasewiseError, match="row 1.*4 good points"):
         shared_epoch_periodograms(t, sparse, err[:2])
+
+
+def test_batch_size_does_not_change_the_result(field):
+    t, mag, err, _ = field
+    settings = PeriodogramSettings(fmax=3.0)
+    whole = shared_epoch_periodograms(t, mag, err, settings, batch_size=100)
+    pieces = shared_epoch_periodograms(t, mag, err, settings, batch_size=5)
+    for a, b in zip(whole, pieces, strict=True):
+        np.testing.assert_allclose(a.power, b.power, rtol=1e-12, atol=1e-15)
