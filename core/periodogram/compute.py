@@ -41,7 +41,7 @@ def _prepare_frequency(frequency, settings, t) -> tuple[np.ndarray, RegularGrid 
     if frequency is None:
         grid = grid_parameters(t, settings)
         return grid.frequencies(), grid
-    frequency = np.asarray(frequency, dtype=float)
+    frequency = np.array(frequency, dtype=float)  # a copy: the result makes it read-only
     if frequency.ndim != 1 or frequency.size == 0 or not np.all(frequency > 0):
         raise PhasewiseError(
             "expected a 1-D array of positive frequencies (cycles/day)", field="frequency"

@@ -84,7 +84,7 @@ def shared_epoch_periodograms(
         grid = grid_parameters(t_ok, settings)
         frequency = grid.frequencies()
     else:
-        frequency = np.asarray(frequency, dtype=float)
+        frequency = np.array(frequency, dtype=float)  # a copy: it is made read-only below
         grid = regular_grid_of(frequency)
     weight = np.where(good, 1.0 / np.where(good, dy, 1.0) ** 2, 0.0)
     mean = (weight * np.where(good, y, 0.0)).sum(axis=1) / weight.sum(axis=1)

@@ -127,23 +127,27 @@ def test_fast_kernels_fall_back_to_exact_on_irregular_frequencies(sample):
     frequency = np.sort(np.random.default_rng(3).uniform(0.1, 3, 200))
     lc = LightCurve("V1", t, y, dy)
     pg = compute_periodogram(lc, PeriodogramSettings(), frequency=frequency)
+    assert frequency.flags.writeable  # the caller's array is left alone
     reference = LombScargle(t, y, dy).power(frequency, method="slow")
     assert np.max(np.abs(pg.power - reference)) < 1e-6
 
 
 # ---------------------------------------------------------------- PDM and CE
-def _pdm_theta_loop(t, y, f, n_bins):
-    # Stellingwerf (1978) eqs. 1-3, unit weights, non-overlapping bins: direct loops.
+def _pdm_theta_loop(t, y, f, n_bins, w=None):
+    # Stellingwerf (1978) eqs. 1-3, non-overlapping bins, by direct loops; with
+    # weights the sums of squares are weighted (our documented generalisation).
+    w = np.ones_like(y) if w is None else w
     phase = (t * f) % 1.0
     bins = np.minimum((phase * n_bins).astype(int), n_bins - 1)
     within, filled = 0.0, 0
     for b in range(n_bins):
-        sel = y[bins == b]
-        if sel.size:
-            within += ((sel - sel.mean()) ** 2).sum()
+        sel = bins == b
+        if sel.any():
+            mean_b = np.average(y[sel], weights=w[sel])
+            within += (w[sel] * (y[sel] - mean_b) ** 2).sum()
             filled += 1
     s2 = within / (y.size - filled)
-    sigma2 = y.var(ddof=1)
+    sigma2 = (w * (y - np.average(y, weights=w)) ** 2).sum() / (y.size - 1)
     return s2 / sigma2
 
 
@@ -172,6 +176,15 @@ def test_pdm_theta_matches_direct_loops(sample):
     np.testing.assert_allclose(theta, expected, rtol=1e-10)
     np.testing.assert_allclose(power, 1 - theta)
     assert theta[1] < 0.3 < theta[0]
+
+
+def test_weighted_pdm_matches_direct_loops(sample):
+    t, y, dy = sample
+    t = t - t.min()
+    frequency = np.array([0.3, 1 / TRUE_PERIOD, 2.2])
+    _, theta = KERNELS["pdm"].function(t, y, dy, frequency, PeriodogramSettings(pdm_bins=7))
+    expected = [_pdm_theta_loop(t, y, f, 7, 1 / dy**2) for f in frequency]
+    np.testing.assert_allclose(theta, expected, rtol=1e-10)
 
 
 def test_conditional_entropy_matches_histogram(sample):

@@ -176,3 +176,16 @@ def test_precomputed_window_peaks_are_used():
     pg = compute_periodogram(lc, PeriodogramSettings(fmax=5.0))
     without = find_candidates(pg, lc, windows=())
     assert all("alias" not in c.marks for c in without)
+
+
+def test_multiband_candidates_use_the_f_test():
+    rng = np.random.default_rng(30)
+    t = np.sort(rng.uniform(0, 50, 200))
+    band = np.where(np.arange(t.size) % 2 == 0, "g", "r")
+    y = np.where(band == "g", 15.0, 14.6) + 0.2 * np.sin(2 * np.pi * t / 0.77)
+    y = y + rng.normal(0, 0.02, t.size)
+    lc = LightCurve("M1", t, y, np.full(t.size, 0.02), band=band)
+    pg = compute_periodogram(lc, PeriodogramSettings(fmax=4.0))
+    best = find_candidates(pg, lc)[0]
+    assert abs(best.frequency - 1 / 0.77) < 0.2 / pg.baseline
+    assert best.fap_method == "f_test" and best.fap < 1e-20
