@@ -5,6 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from astropy.timeseries import LombScargle
+from hypothesis import given
+from hypothesis import settings as hyp_settings
+from hypothesis import strategies as st
 
 from core.errors import GridTooLargeError, PhasewiseError, SettingsError
 from core.lightcurve import LightCurve
@@ -290,3 +293,28 @@ def test_excluded_points_are_not_used(sample):
     pg = compute_periodogram(lc, PeriodogramSettings(fmax=3.0))
     reference = LombScargle(t[10:], y[10:], dy[10:]).power(pg.frequency, method="slow")
     assert np.max(np.abs(pg.power - reference)) < 1e-6
+
+
+# ---------------------------------------------------------------- properties
+
+
+@hyp_settings(max_examples=25, deadline=None)
+@given(
+    shift=st.floats(-1e4, 1e4),
+    offset=st.floats(-30, 30),
+    scale=st.floats(0.01, 100),
+    method=st.sampled_from(["gls", "mhgls", "pdm", "ce"]),
+)
+def test_power_is_invariant_to_time_origin_and_magnitude_zero_point_and_scale(
+    sample, shift, offset, scale, method
+):
+    # A periodogram cannot depend on the time origin, the magnitude zero point or
+    # the magnitude unit (errors scaled alike): common practice, no source.
+    t, y, dy = sample
+    settings = PeriodogramSettings(method=method, nterms=2, fmin=0.2, fmax=3.0)
+    base = compute_periodogram(LightCurve("P", t, y, dy), settings)
+    moved = compute_periodogram(
+        LightCurve("P", t + shift, offset + scale * y, scale * dy), settings
+    )
+    np.testing.assert_allclose(moved.power, base.power, atol=1e-7)
+    assert np.all(base.power <= 1 + 1e-9)
