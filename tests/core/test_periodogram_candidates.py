@@ -52,6 +52,23 @@ def test_window_of_nightly_sampling_peaks_at_one_cycle_per_day():
     assert any(abs(p.frequency - 2.0) < 0.01 for p in peaks)
 
 
+def test_window_of_seasonal_sampling_shows_the_year():
+    # Four 150-night observing seasons a year apart: window peaks at 1 c/d and 1/yr.
+    rng = np.random.default_rng(3)
+    nights = np.concatenate([np.arange(150) + 365 * k for k in range(4)])
+    nights = nights[rng.random(nights.size) < 0.5]
+    t = nights + 0.3 + rng.normal(0, 0.02, nights.size)
+    peaks = window_peaks(t)
+    baseline = t.max() - t.min()
+    assert any(abs(p.frequency - 1 / 365.0) < 1 / baseline for p in peaks)
+    assert any(abs(p.frequency - 1.0) < 1 / baseline for p in peaks)
+
+
+def test_random_sampling_has_no_window_peaks():
+    t = np.sort(np.random.default_rng(5).uniform(0, 300, 500))
+    assert window_peaks(t) == ()
+
+
 # ----------------------------------------------------------------- candidates
 def test_nightly_aliases_are_marked_through_the_one_day_window_peak():
     lc = _nightly_curve()
