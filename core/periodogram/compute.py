@@ -85,16 +85,24 @@ def compute_periodogram(
         frequency, grid = _prepare_frequency(frequency, settings, t)
         kernel = KERNELS[METHOD_KERNELS[settings.method]]
         t0 = 0.5 * (t[0] + t[-1])  # a small time origin keeps the transform's phases exact
-        power, statistic = kernel.function(
-            t - t0, y, dy, frequency, settings, grid=grid, n_threads=n_threads
-        )
+        if y.max() == y.min():
+            power, statistic = flat_power(frequency, kernel, settings)
+        else:
+            power, statistic = kernel.function(
+                t - t0, y, dy, frequency, settings, grid=grid, n_threads=n_threads
+            )
     else:
         per_band = [_band_arrays(lc, b, use_errors) for b in bands]
         t_all = np.concatenate([p[0] for p in per_band])
         _require_points(t_all.size, lc.star_id)
         frequency, grid = _prepare_frequency(frequency, settings, t_all)
         kernel = KERNELS[METHOD_KERNELS[settings.method]]
-        power, statistic = _multiband(per_band, t_all, frequency, grid, settings, kernel, n_threads)
+        if all(p[1].max() == p[1].min() for p in per_band):
+            power, statistic = flat_power(frequency, kernel, settings)
+        else:
+            power, statistic = _multiband(
+                per_band, t_all, frequency, grid, settings, kernel, n_threads
+            )
         t = t_all
     return Periodogram(
         frequency=frequency,
@@ -108,6 +116,20 @@ def compute_periodogram(
         statistic_name=kernel.statistic,
         kernel=kernel.name,
     )
+
+
+def flat_power(frequency, kernel, settings):
+    """Power of a constant curve: 0 everywhere (nothing to explain), never NaN.
+
+    The raw statistic takes its no-signal value: theta = 1 for PDM and
+    H = ln(n_mag) for conditional entropy, so that the power is 0 for both.
+    """
+    power = np.zeros(frequency.size)
+    if kernel.statistic == "theta":
+        return power, np.ones(frequency.size)
+    if kernel.statistic == "entropy":
+        return power, np.full(frequency.size, np.log(settings.ce_mag_bins))
+    return power, None
 
 
 def _require_points(n: int, star_id: str) -> None:

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import PhasewiseError
-from .compute import MIN_POINTS
+from .compute import MIN_POINTS, flat_power
 from .grid import grid_parameters, regular_grid_of
 from .kernels import KERNELS, METHOD_KERNELS
 from .result import Periodogram
@@ -88,6 +88,8 @@ def shared_epoch_periodograms(
         grid = regular_grid_of(frequency)
     weight = np.where(good, 1.0 / np.where(good, dy, 1.0) ** 2, 0.0)
     mean = (weight * np.where(good, y, 0.0)).sum(axis=1) / weight.sum(axis=1)
+    y_good = np.where(good, y, np.nan)
+    constant = np.nanmax(y_good, axis=1) == np.nanmin(y_good, axis=1)  # power 0, not 0/0
     y = np.where(good, y, mean[:, None])
     dy = np.where(good, dy, np.inf)
     t_filled = np.where(np.isfinite(t), t, np.nanmean(t))
@@ -109,14 +111,15 @@ def shared_epoch_periodograms(
             )
         statistics = [None] * y.shape[0]
     else:  # PDM and CE are not transforms: drop the missing points star by star
-        rows = [
-            kernel.function(
-                t_filled[g] - t0, yi[g], None if err is None else di[g], frequency, settings
+        power = np.empty((y.shape[0], frequency.size))
+        statistics = [None] * y.shape[0]
+        for i in np.flatnonzero(~constant):
+            g = good[i]
+            power[i], statistics[i] = kernel.function(
+                t_filled[g] - t0, y[i][g], None if err is None else dy[i][g], frequency, settings
             )
-            for yi, di, g in zip(y, dy, good, strict=True)
-        ]
-        power = np.stack([r[0] for r in rows])
-        statistics = [r[1] for r in rows]
+    for i in np.flatnonzero(constant):
+        power[i], statistics[i] = flat_power(frequency, kernel, settings)
     frequency.flags.writeable = False
     out = []
     for i in range(y.shape[0]):

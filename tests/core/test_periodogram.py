@@ -318,3 +318,23 @@ def test_power_is_invariant_to_time_origin_and_magnitude_zero_point_and_scale(
     )
     np.testing.assert_allclose(moved.power, base.power, atol=1e-7)
     assert np.all(base.power <= 1 + 1e-9)
+
+
+@pytest.mark.parametrize("method", ["gls", "mhgls", "pdm", "ce"])
+def test_constant_curve_has_zero_power_not_nan(method):
+    t = np.linspace(0, 30, 40) + 0.1 * np.sin(np.arange(40))
+    settings = PeriodogramSettings(method=method, fmax=3.0)
+    one = compute_periodogram(LightCurve("K1", t, np.full(40, 12.5)), settings)
+    two = compute_periodogram(
+        LightCurve(
+            "K2",
+            t,
+            np.where(np.arange(40) % 2 == 0, 12.5, 13.0),
+            band=np.where(np.arange(40) % 2 == 0, "V", "I"),
+        ),
+        settings,
+    )
+    for pg in (one, two):
+        assert np.all(pg.power == 0.0)
+        if pg.statistic is not None:
+            assert np.all(np.isfinite(pg.statistic))

@@ -117,3 +117,13 @@ def test_batch_size_does_not_change_the_result(field):
     pieces = shared_epoch_periodograms(t, mag, err, settings, batch_size=5)
     for a, b in zip(whole, pieces, strict=True):
         np.testing.assert_allclose(a.power, b.power, rtol=1e-12, atol=1e-15)
+
+
+@pytest.mark.parametrize("method", ["gls", "pdm", "ce"])
+def test_a_constant_star_in_a_batch_gets_zero_power(field, method):
+    t, mag, err, _ = field
+    mag = mag[:3].copy()
+    mag[1] = np.where(np.isfinite(mag[1]), 13.0, np.nan)
+    batch = shared_epoch_periodograms(t, mag, err[:3], PeriodogramSettings(method=method, fmax=2))
+    assert np.all(batch[1].power == 0.0)
+    assert np.all(np.isfinite(batch[0].power)) and batch[0].power.max() > 0.3
