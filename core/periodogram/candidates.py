@@ -13,8 +13,10 @@ median) / (1.4826 x local MAD), over grid points within +-0.5 c/d (at least
 100 grid steps) of the peak, leaving out +-2/T around it.  It applies to
 every method alike.
 
-FAP: see :mod:`core.periodogram.fap`; PDM and CE candidates carry the Baluev
-FAP of the GLS power at their frequency (``fap_method = "gls_at_frequency"``).
+FAP: see :mod:`core.periodogram.fap`; ``fap_method`` says which one:
+``"baluev"`` (GLS, one band), ``"f_test"`` (multi-harmonic, multi-band),
+``"gls_at_frequency"`` (PDM and CE carry the Baluev FAP of the GLS power at
+their frequency), ``"none"`` (a flat periodogram: FAP 1).
 """
 
 from __future__ import annotations
@@ -107,7 +109,10 @@ def _local_snr(power, frequency, index, baseline, df):
         return float("nan")
     median = np.median(around)
     mad = 1.4826 * np.median(np.abs(around - median))
-    return float((power[index] - median) / mad) if mad > 0 else float("inf")
+    excess = power[index] - median
+    if mad > 0:
+        return float(excess / mad)
+    return float("inf") if excess > 0 else 0.0
 
 
 def candidate_marks(
@@ -202,6 +207,8 @@ def _faps(periodogram, lc, settings, freqs, powers):
     fmin = float(periodogram.frequency[0])
     n_total = sum(t.size for t, _, _ in per_band)
     method = periodogram.method
+    if not np.any(powers > 0):  # a flat periodogram (constant curve): nothing found
+        return np.ones(len(powers)), "none"
     if method == "gls" and len(per_band) == 1:
         t, _, dy = per_band[0]
         return baluev_fap(powers, fmax, t, dy if use_errors else None), "baluev"

@@ -206,3 +206,12 @@ def test_multiband_candidates_use_the_f_test():
     best = find_candidates(pg, lc)[0]
     assert abs(best.frequency - 1 / 0.77) < 0.2 / pg.baseline
     assert best.fap_method == "f_test" and best.fap < 1e-20
+
+
+@pytest.mark.parametrize("method", ["gls", "pdm", "ce"])
+def test_constant_curve_candidates_are_not_significant(method):
+    t = np.linspace(0, 30, 40) + 0.1 * np.sin(np.arange(40))
+    lc = LightCurve("K1", t, np.full(40, 12.5))
+    pg = compute_periodogram(lc, PeriodogramSettings(method=method, fmax=3.0))
+    cands = find_candidates(pg, lc)
+    assert cands and all(c.fap == 1.0 and c.snr == 0.0 for c in cands)
