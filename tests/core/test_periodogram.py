@@ -19,6 +19,7 @@ from core.periodogram import (
     compute_periodogram,
     frequency_grid,
     grid_parameters,
+    grid_size,
 )
 
 TRUE_PERIOD = 0.61  # days, injected
@@ -65,8 +66,13 @@ def test_grid_follows_the_baseline():
 
 def test_grid_over_the_limit_names_size_and_limit():
     t = np.linspace(0, 1000, 50)
-    with pytest.raises(GridTooLargeError, match=r"249,996 frequencies.*limit of 100,000"):
-        grid_parameters(t, PeriodogramSettings(max_frequencies=100_000))
+    settings = PeriodogramSettings(max_frequencies=100_000)
+    with pytest.raises(GridTooLargeError, match=r"249,996 frequencies.*limit of 100,000") as info:
+        grid_parameters(t, settings)
+    assert (info.value.n_frequencies, info.value.limit) == (249_996, 100_000)
+    assert grid_size(t, settings) == 249_996  # the size to ask about, without raising
+    with pytest.raises(GridTooLargeError, match="field 'max_frequencies'"):
+        compute_periodogram(LightCurve("G1", t, np.sin(t)), settings)
 
 
 def test_grid_needs_a_baseline():
