@@ -203,7 +203,10 @@ def test_conditional_entropy_matches_histogram(sample):
     power, entropy = KERNELS["ce"].function(t, y, None, frequency, PeriodogramSettings())
     expected = [_ce_loop(t, y, f, 10, 5) for f in frequency]
     np.testing.assert_allclose(entropy, expected, rtol=1e-10)
-    np.testing.assert_allclose(power, 1 - entropy / np.log(5))
+    # H(m) of the 5 equal-width magnitude bins, by numpy's histogram
+    counts, _ = np.histogram(y, bins=5, range=(y.min(), y.max()))
+    p_mag = counts[counts > 0] / y.size
+    np.testing.assert_allclose(power, 1 - entropy / -(p_mag * np.log(p_mag)).sum())
     assert np.all((power >= 0) & (power <= 1))
 
 
@@ -347,3 +350,15 @@ def test_constant_curve_has_zero_power_not_nan(method):
         assert np.all(pg.power == 0.0)
         if pg.statistic is not None:
             assert np.all(np.isfinite(pg.statistic))
+
+
+def test_pdm_and_ce_see_no_period_in_noise():
+    # Stellingwerf (1978): theta ~ 1 without a signal; entropy near its maximum.
+    rng = np.random.default_rng(12)
+    t = np.sort(rng.uniform(0, 100, 300))
+    lc = LightCurve("W1", t, rng.normal(13.0, 0.05, t.size))
+    pdm = compute_periodogram(lc, PeriodogramSettings(method="pdm", fmax=5.0))
+    assert abs(np.median(pdm.statistic) - 1.0) < 0.05
+    assert pdm.best_power < 0.2
+    ce = compute_periodogram(lc, PeriodogramSettings(method="ce", fmax=5.0))
+    assert np.median(ce.power) < 0.1 and ce.best_power < 0.25
