@@ -18,6 +18,7 @@ __all__ = [
     "period_step",
     "snap_to_peak",
     "phase_grid_times",
+    "power_at_fap",
 ]
 
 
@@ -128,3 +129,40 @@ def snap_to_peak(frequency, power, f_click: float, half_width: int | None = None
             i -= 1
         else:
             return i
+
+
+def power_at_fap(fap_of_power, fap: float, lo: float = 0.0, hi: float = 1.0, tol: float = 1e-6):
+    """Periodogram power at which the false-alarm probability equals ``fap``.
+
+    Bisection on a FAP that falls as the power grows (as every FAP of a
+    normalised power does); used to draw FAP levels as lines.
+
+    Parameters
+    ----------
+    fap_of_power : callable
+        ``fap_of_power(power_array) -> fap_array``.
+    fap : float
+        Target probability in (0, 1).
+    lo, hi : float
+        Power interval searched.
+
+    Returns
+    -------
+    float or None
+        The power level, or None if ``fap`` is not reached inside [lo, hi].
+    """
+    if not 0.0 < fap < 1.0:
+        raise PhasewiseError(f"a false-alarm probability lies in (0, 1), got {fap!r}", field="fap")
+
+    def f(p: float) -> float:
+        return float(np.asarray(fap_of_power(np.array([p])), dtype=float).ravel()[0])
+
+    if f(hi) > fap or f(lo) < fap:
+        return None
+    while hi - lo > tol:
+        mid = 0.5 * (lo + hi)
+        if f(mid) > fap:
+            lo = mid
+        else:
+            hi = mid
+    return 0.5 * (lo + hi)

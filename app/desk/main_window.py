@@ -558,9 +558,9 @@ class MainWindow(QMainWindow):
             self.periodogram.set_computing("no periodogram (too few points)" if lc else "")
             return
         key = (star_id, repr(pg_settings))
-        candidates = (self.result or {}).get("candidates") or []
         if key in self._periodograms:
-            self.periodogram.set_periodogram(self._periodograms[key], candidates)
+            view = self._periodograms[key]
+            self.periodogram.set_periodogram(view, self._candidates_for(view))
             self.periodogram.set_frequency(
                 1.0 / self.session.period if self.session.period else None
             )
@@ -573,7 +573,7 @@ class MainWindow(QMainWindow):
             while len(self._periodograms) > PERIODOGRAM_CACHE:
                 self._periodograms.popitem(last=False)
             if self.session.star_id == star_id:
-                self.periodogram.set_periodogram(view, (self.result or {}).get("candidates") or [])
+                self.periodogram.set_periodogram(view, self._candidates_for(view))
                 p = self.session.period
                 self.periodogram.set_frequency(1.0 / p if p else None)
 
@@ -584,6 +584,13 @@ class MainWindow(QMainWindow):
             on_result=done,
             on_error=lambda msg: self.periodogram.set_computing(f"error: {msg}"),
         )
+
+    def _candidates_for(self, view) -> list:
+        """The analysis' candidates for its own method, else those of this periodogram."""
+        result = self.result or {}
+        if view.method == result.get("method") and result.get("candidates"):
+            return list(result["candidates"])
+        return list(view.candidates)
 
     def _method_changed(self, method: str) -> None:
         self._pg_method = method

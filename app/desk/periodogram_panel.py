@@ -281,19 +281,12 @@ class PeriodogramPanel(QWidget):
 
 
 def _mark_text(candidate: dict) -> list[str]:
-    marks = list(candidate.get("marks") or ())
-    details = candidate.get("mark_details") or {}
-    out = []
-    for m in marks:
-        d = details.get(m) if isinstance(details, dict) else None
-        if m == "alias" and d is not None:
-            if isinstance(d, dict):
-                wf = d.get("window_frequency", d.get("window"))
-                out.append(f"alias ({wf:.4g} c/d)" if isinstance(wf, (int, float)) else "alias")
-            elif isinstance(d, (int, float)):
-                out.append(f"alias ({d:.4g} c/d)")
-            else:
-                out.append(f"alias ({d})")
-        else:
-            out.append(str(m))
-    return out
+    """Short text of a candidate's marks (core writes one detail string per mark)."""
+    marks = [str(m) for m in (candidate.get("marks") or ())]
+    details = candidate.get("mark_details") or ()
+    if isinstance(details, dict):  # tolerate a mapping mark -> detail
+        details = [details.get(m, "") for m in marks]
+    details = [str(d) for d in details]
+    if len(details) == len(marks) and all(details):
+        return details
+    return marks

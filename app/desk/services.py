@@ -26,6 +26,7 @@ class PeriodogramView:
     power: np.ndarray
     method: str
     fap_levels: tuple[tuple[float, float], ...] = ()  # (fap, power level)
+    candidates: tuple[dict, ...] = ()  # found on this periodogram
 
 
 class CoreServices:
@@ -63,20 +64,31 @@ class CoreServices:
         from core import periodogram as core_pg
 
         pgram = core_pg.compute_periodogram(lc, pg_settings)
-        levels = []
-        level_fn = getattr(core_pg, "false_alarm_level", None)
-        if level_fn is not None:
-            for fap in (0.1, 0.01, 0.001):
-                try:
-                    levels.append((fap, float(level_fn(pgram, fap))))
-                except Exception:  # a method without a FAP (PDM, entropy)
-                    break
+        found = core_pg.find_candidates(pgram, lc, pg_settings)
         return PeriodogramView(
             np.asarray(pgram.frequency, dtype=float),
             np.asarray(pgram.power, dtype=float),
             str(pgram.method),
-            tuple(levels),
+            self.fap_levels(pgram, lc, pg_settings),
+            tuple(c.to_dict() for c in found),
         )
+
+    def fap_levels(self, pgram, lc, pg_settings) -> tuple[tuple[float, float], ...]:
+        """Power levels of FAP 0.1, 0.01 and 0.001 (GLS and multi-harmonic only)."""
+        if pgram.method not in ("gls", "mhgls"):
+            return ()
+        from core.folding import power_at_fap
+        from core.periodogram import candidates
+
+        def fap_of_power(power):
+            return candidates._faps(pgram, lc, pg_settings, np.zeros(len(power)), power)[0]
+
+        levels = []
+        for fap in (0.1, 0.01, 0.001):
+            level = power_at_fap(fap_of_power, fap)
+            if level is not None:
+                levels.append((fap, level))
+        return tuple(levels)
 
     def spectral_window(self, time, frequency) -> np.ndarray:
         from core.periodogram import spectral_window

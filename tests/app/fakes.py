@@ -1,8 +1,8 @@
 """Stand-ins for core modules not merged yet (tests only, never product code).
 
-``FakeLedger`` follows the ledger contract of DEVELOPERS.md in memory;
-``FakeServices`` answers the desk's core calls with astropy's Lomb–Scargle
-and a numpy least-squares Fourier fit.
+``FakeServices`` replaces ``core.analysis`` and ``core.fourier`` (astropy's
+Lomb–Scargle and a numpy least-squares Fourier fit); periodograms, the ledger
+and the export are the real core modules.
 """
 
 from __future__ import annotations
@@ -12,8 +12,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from astropy.timeseries import LombScargle
 
-from app.desk.services import CoreServices, PeriodogramView
+from app.desk.services import CoreServices
 from core.lightcurve import LightCurve
+from core.periodogram import PeriodogramSettings
 
 
 def make_star(star_id, period, n=300, amp=0.4, bands=("V",), seed=0, baseline=120.0):
@@ -60,17 +61,8 @@ def fake_fit(t, m, e, frequency, order):
 
 
 @dataclass(frozen=True)
-class FakePgSettings:
-    method: str = "gls"
-    fmin: float | None = None
-    fmax: float | None = None
-    oversampling: int = 5
-    nterms: int = 3
-
-
-@dataclass(frozen=True)
 class FakeSettings:
-    periodogram: FakePgSettings = field(default_factory=FakePgSettings)
+    periodogram: PeriodogramSettings = field(default_factory=PeriodogramSettings)
 
 
 class FakeServices(CoreServices):
@@ -80,17 +72,6 @@ class FakeServices(CoreServices):
 
     def default_settings(self):
         return FakeSettings()
-
-    def compute_periodogram(self, lc, pg_settings):
-        t, m, e = lc.arrays(lc.bands[0])
-        f = np.linspace(0.05, 6.0, 20000)
-        p = LombScargle(t, m, e).power(f)
-        return PeriodogramView(f, p, pg_settings.method, ((0.01, 0.2),))
-
-    def spectral_window(self, time, frequency):
-        return LombScargle(time, np.ones_like(time), fit_mean=False, center_data=False).power(
-            frequency
-        )
 
     def fit_fourier(self, time, mag, err, frequency, order, form="sine"):
         return fake_fit(time, mag, err, frequency, order)

@@ -5,7 +5,14 @@ from astropy.time import Time
 from astropy.timeseries import TimeSeries
 
 from core.errors import PhasewiseError
-from core.folding import period_step, phase_fold, phase_grid_times, snap_to_peak, two_cycles
+from core.folding import (
+    period_step,
+    phase_fold,
+    phase_grid_times,
+    power_at_fap,
+    snap_to_peak,
+    two_cycles,
+)
 
 
 def test_phase_fold_matches_astropy_timeseries_fold():
@@ -66,3 +73,18 @@ def test_snap_to_peak_climbs_to_the_local_maximum():
     assert f[i] == pytest.approx(3.49, abs=1e-3)
     with pytest.raises(PhasewiseError, match="non-empty"):
         snap_to_peak(np.array([]), np.array([]), 1.0)
+
+
+def test_power_at_fap_inverts_the_single_frequency_fap():
+    # Baluev 2008, eq. 6: fap_single(z) = (1 - z) ** ((N - 3) / 2); inverted in closed form
+    n = 101
+
+    def fap_single(z):
+        return (1.0 - z) ** ((n - 3) / 2)
+
+    for target in (0.1, 0.01, 0.001):
+        expected = 1.0 - target ** (2.0 / (n - 3))
+        assert power_at_fap(fap_single, target) == pytest.approx(expected, abs=1e-5)
+    assert power_at_fap(lambda z: np.full_like(z, 0.5), 0.01) is None
+    with pytest.raises(PhasewiseError, match="field 'fap'"):
+        power_at_fap(fap_single, 1.5)
