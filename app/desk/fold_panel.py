@@ -11,6 +11,7 @@ from PySide6.QtWidgets import (
     QHBoxLayout,
     QLabel,
     QPushButton,
+    QSizePolicy,
     QSplitter,
     QVBoxLayout,
     QWidget,
@@ -37,6 +38,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         super().__init__(parent)
         self.services = services
         self.ci.layout.setSpacing(2)
+        self.ci.setContentsMargins(2, 2, 6, 2)
         self.fold = self.addPlot(row=0, col=0)
         self.resid = self.addPlot(row=1, col=0)
         self.ci.layout.setRowStretchFactor(0, 3)
@@ -56,7 +58,14 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.resid.setLabel("left", "O − C (mag)")
         self.resid.setLabel("bottom", "Phase (0 = maximum light)")
         self.fold.hideAxis("bottom")
-        self.fold.setTitle(title, size="10pt")
+        self.fold.setTitle(title, size="9pt")
+        # a long title must not widen the plot beyond its view (it is clipped instead):
+        # the label keeps a fixed height and stops asking for its text's width
+        label = self.fold.titleLabel
+        label.updateMin = lambda: None
+        label.setMinimumWidth(0)
+        label.setMinimumHeight(18)
+        label.setMaximumHeight(18)
         self.title = title
         self.bins = []
         for colour in time_colours(TIME_BINS):
@@ -78,6 +87,9 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.fit = None
         self._range_set = False
         self._drawn = None
+
+    def _set_title(self, text: str) -> None:
+        self.fold.setTitle(text, size="9pt")
 
     def set_data(self, time, mag, err, order: int = 4, form: str = "sine") -> None:
         """New points (one band): sort by time bin once, so a nudge only folds."""
@@ -103,7 +115,7 @@ class FoldView(pg.GraphicsLayoutWidget):
             s.setData([], [])
         self.model_curve.setData([], [])
         self.resid_points.setData([], [])
-        self.fold.setTitle(self.title, size="10pt")
+        self._set_title(self.title)
 
     def set_period(self, period: float | None, epoch_hint: float | None = None) -> None:
         """Fold at ``period``; fit the Fourier series there and draw."""
@@ -136,8 +148,8 @@ class FoldView(pg.GraphicsLayoutWidget):
             self.resid_points.setData([], [])
         rms = ""
         if self.fit is not None:
-            rms = f", O−C rms {float(np.std(resid)):.3f} mag"
-        self.fold.setTitle(f"{self.title}P = {fmt_period(self.period)} d{rms}", size="10pt")
+            rms = f" · rms {float(np.std(resid)):.3f} mag"
+        self._set_title(f"{self.title}P = {fmt_period(self.period)} d{rms}")
         if not self._range_set:
             self._set_range()
 
@@ -175,7 +187,7 @@ class FoldPanel(QWidget):
     def __init__(self, services, parent=None) -> None:
         super().__init__(parent)
         self.main = FoldView(services, "")
-        self.alt = FoldView(services, "Alternative: ")
+        self.alt = FoldView(services, "Compare: ")
         self.spin = QDoubleSpinBox()
         self.spin.setDecimals(8)
         self.spin.setRange(1e-4, 1e5)
@@ -205,16 +217,21 @@ class FoldPanel(QWidget):
         bar.addWidget(QLabel("<b>Folded curve</b>  Period:"))
         bar.addWidget(self.spin)
         bar.addWidget(self.step_label)
-        for b in buttons:
-            bar.addWidget(b)
         bar.addWidget(QLabel("Band:"))
         bar.addWidget(self.band_box)
         bar.addStretch(1)
-        self.legend = QLabel(
+        buttons_row = QHBoxLayout()
+        for b in buttons:
+            buttons_row.addWidget(b)
+        buttons_row.addStretch(1)
+        self.legend_text = (
             "Points coloured by time of observation: dark purple = earliest, yellow = latest. "
             "Line: Fourier fit."
         )
+        self.legend = QLabel(self.legend_text)
         self.legend.setStyleSheet("color: #444;")
+        self.legend.setWordWrap(True)
+        self.legend.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
         self.splitter.addWidget(self.main)
         self.splitter.addWidget(self.alt)
@@ -222,6 +239,7 @@ class FoldPanel(QWidget):
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addLayout(bar)
+        layout.addLayout(buttons_row)
         layout.addWidget(self.splitter, 1)
         layout.addWidget(self.legend)
         self.spin.valueChanged.connect(self._spin_changed)

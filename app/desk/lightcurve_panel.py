@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Signal
-from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
 
 from .plots import make_plot, set_labels
 from .style import EXCLUDED_COLOUR, band_style
@@ -64,6 +64,7 @@ class LightCurvePanel(QWidget):
             "hold Ctrl while releasing to restore them."
         )
         self.info = QLabel()
+        self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         bar = QHBoxLayout()
         bar.addWidget(QLabel("<b>Light curve</b>"))
         bar.addWidget(self.info, 1)

@@ -123,7 +123,8 @@ class MainWindow(QMainWindow):
         self.main_splitter.addWidget(self.star_list)
         self.main_splitter.addWidget(self.centre_splitter)
         self.main_splitter.addWidget(self.sheet)
-        self.main_splitter.setStretchFactor(1, 1)
+        for index, stretch in enumerate((1, 3, 1)):
+            self.main_splitter.setStretchFactor(index, stretch)
         self.setCentralWidget(self.main_splitter)
         self.splitters = {
             "main": self.main_splitter,
@@ -1048,7 +1049,7 @@ class MainWindow(QMainWindow):
             QTimer.singleShot(0, self, self._default_sizes)
 
     def _default_sizes(self) -> None:
-        width = self.main_splitter.width()
+        width = max(self.main_splitter.width(), self.width() - 8)
         self.main_splitter.setSizes([int(0.24 * width), int(0.52 * width), int(0.24 * width)])
 
     def _restore_layout(self) -> bool:

@@ -5,7 +5,15 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import QCheckBox, QComboBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QComboBox,
+    QHBoxLayout,
+    QLabel,
+    QSizePolicy,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.folding import snap_to_peak
 
@@ -54,7 +62,7 @@ class PeriodogramPanel(QWidget):
             downsampleMethod="peak",
         )
         self.window_curve = pg.PlotDataItem(
-            pen=pg.mkPen("#E69F00", width=1, style=Qt.PenStyle.DashLine),
+            pen=pg.mkPen(150, 150, 150, 110, width=1),
             clipToView=True,
             autoDownsample=True,
             downsampleMethod="peak",
@@ -68,18 +76,22 @@ class PeriodogramPanel(QWidget):
         self.item.addItem(self.cand_points)
         self.labels = []
         for _ in range(MAX_LABELS):
-            text = pg.TextItem(color="#202020", anchor=(0.5, 1.15))
+            text = pg.TextItem(color="#202020", anchor=(0.5, 1.2))
             text.setVisible(False)
             self.item.addItem(text, ignoreBounds=True)
             self.labels.append(text)
         self.fap_lines = []
-        for fap, colour in FAP_STYLES:
+        for k, (fap, colour) in enumerate(FAP_STYLES):
             line = pg.InfiniteLine(
                 angle=0,
                 movable=False,
                 pen=pg.mkPen(colour, style=Qt.PenStyle.DotLine),
                 label=f"FAP {fap:g}",
-                labelOpts={"position": 0.95, "color": colour, "anchors": [(1, 1), (1, 1)]},
+                labelOpts={
+                    "position": 0.3 + 0.25 * k,
+                    "color": colour,
+                    "anchors": [(1, 1), (1, 1)],
+                },
             )
             line.setVisible(False)
             self.item.addItem(line, ignoreBounds=True)
@@ -88,13 +100,23 @@ class PeriodogramPanel(QWidget):
         self.item.addItem(self.marker, ignoreBounds=True)
 
         self.method_box = QComboBox()
+        self.method_box.setSizeAdjustPolicy(
+            QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
+        )
+        self.method_box.setMinimumContentsLength(10)
         for key, text in METHODS:
             self.method_box.addItem(text, key)
         self.axis_box = QComboBox()
         self.axis_box.addItems(["Frequency", "Period"])
-        self.log_box = QCheckBox("Log axis")
-        self.window_box = QCheckBox("Spectral window")
+        self.log_box = QCheckBox("Log")
+        self.log_box.setToolTip("Logarithmic frequency/period axis")
+        self.window_box = QCheckBox("Window")
+        self.window_box.setToolTip("Show the spectral window (where aliases fall)")
         self.status = QLabel()
+        self.status.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.candidate_list = QLabel()
+        self.candidate_list.setWordWrap(True)
+        self.candidate_list.setTextFormat(Qt.TextFormat.RichText)
         bar = QHBoxLayout()
         bar.addWidget(QLabel("<b>Periodogram</b>"))
         bar.addWidget(self.method_box)
@@ -106,6 +128,7 @@ class PeriodogramPanel(QWidget):
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addLayout(bar)
         layout.addWidget(self.plot, 1)
+        layout.addWidget(self.candidate_list)
         layout.addWidget(self.status)
 
         self.view = None  # PeriodogramView
@@ -160,6 +183,7 @@ class PeriodogramPanel(QWidget):
         self.curve.setData([], [])
         self.window_curve.setData([], [])
         self.cand_points.setData([], [])
+        self.candidate_list.setText("")
         for t in self.labels:
             t.setVisible(False)
         for line in self.fap_lines:
@@ -213,25 +237,29 @@ class PeriodogramPanel(QWidget):
             w = w[::-1] if self.period_axis else w
             top = float(np.nanmax(p)) if p.size else 1.0
             wmax = float(np.nanmax(w)) if w.size else 1.0
-            self.window_curve.setData(x, w * (top / wmax if wmax > 0 else 1.0))
+            # drawn behind, scaled to half the highest peak: it shows where aliases fall
+            self.window_curve.setData(x, w * (0.5 * top / wmax if wmax > 0 else 1.0))
             self.window_curve.setVisible(True)
         else:
             self.window_curve.setVisible(False)
         cf = np.array([c["frequency"] for c in self.candidates], dtype=float)
         cp = np.array([c["power"] for c in self.candidates], dtype=float)
         self.cand_points.setData(self._x(cf), cp)
+        listing = []
         for i, text in enumerate(self.labels):
             if i < len(self.candidates):
                 c = self.candidates[i]
-                marks = ", ".join(_mark_text(c))
-                label = f"{i + 1}: {fmt_period(c['period'])} d"
-                if marks:
-                    label += f"\n{marks}"
-                text.setText(label)
+                marks = "; ".join(_mark_text(c))
+                listing.append(
+                    f"<b>{i + 1}</b>: {fmt_period(c['period'])} d"
+                    + (f" <i>({marks})</i>" if marks else "")
+                )
+                text.setText(str(i + 1))
                 text.setPos(float(self._x(c["frequency"])), float(c["power"]))
                 text.setVisible(True)
             else:
                 text.setVisible(False)
+        self.candidate_list.setText(" · ".join(listing) if listing else "no candidates")
         levels = dict(view.fap_levels)
         for (fap, _colour), line in zip(FAP_STYLES, self.fap_lines, strict=True):
             if fap in levels and np.isfinite(levels[fap]):

@@ -6,7 +6,7 @@ import numpy as np
 import pyqtgraph as pg
 from pyqtgraph import functions as fn
 from PySide6.QtCore import QPointF, QRectF, Qt, Signal
-from PySide6.QtGui import QBrush, QColor, QPen
+from PySide6.QtGui import QBrush, QColor, QPen, QTransform
 from PySide6.QtWidgets import QGraphicsRectItem
 
 __all__ = ["SelectViewBox", "FastPoints", "make_plot"]
@@ -120,11 +120,17 @@ class FastPoints(pg.GraphicsObject):
 
     def paint(self, painter, *args) -> None:
         if self._x.size:
+            # map to device pixels ourselves, so a wide pen gives true squares/dots
+            transform = painter.transform()
+            painter.save()
+            painter.resetTransform()
             painter.setPen(self.pen)
-            painter.drawPoints(self._poly)
+            painter.drawPoints(transform.map(self._poly))
             if self.repeat_x:
-                painter.translate(self.repeat_x, 0.0)
-                painter.drawPoints(self._poly)
+                shifted = QTransform(transform)
+                shifted.translate(self.repeat_x, 0.0)
+                painter.drawPoints(shifted.map(self._poly))
+            painter.restore()
 
 
 def cache_axes(plot_item) -> None:
