@@ -16,7 +16,6 @@ __all__ = ["register", "DEMO_DIR", "DEMO_LEDGER", "demo_files", "ensure_demo_led
 
 DEMO_DIR = Path(__file__).resolve().parents[2] / "demo_data"
 DEMO_LEDGER = "demo.ledger.sqlite"
-PHOTOMETRY_SUFFIXES = {".csv", ".tsv", ".txt", ".dat", ".ecsv", ".fits", ".fit", ".xml", ".vot"}
 
 
 def _window_options(parser: argparse.ArgumentParser) -> None:
@@ -71,24 +70,38 @@ def register(subparsers) -> None:
 
 # ----------------------------------------------------------------- building
 def demo_files(folder: Path) -> list[Path]:
-    """Photometry files of the demo survey (everything but ledgers)."""
+    """The demo survey's photometry: its long table (ECSV, else CSV), else its star folder."""
     if not folder.is_dir():
         raise PhasewiseError("the demo survey folder is missing", file=str(folder))
-    files = sorted(
-        p
-        for p in folder.iterdir()
-        if p.is_file() and p.suffix.lower() in PHOTOMETRY_SUFFIXES and ".ledger" not in p.name
-    )
-    if not files:
-        raise PhasewiseError("no photometry files in the demo survey folder", file=str(folder))
-    return files
+    for pattern in ("*survey*.ecsv", "*survey*.csv"):
+        found = sorted(folder.glob(pattern))
+        if found:
+            return [found[0]]
+    if (folder / "stars").is_dir():
+        return [folder / "stars"]
+    raise PhasewiseError("no demo survey table or stars/ folder found", file=str(folder))
 
 
-def _up_to_date(ledger_path: Path, files: list[Path]) -> bool:
+def _up_to_date(ledger_path: Path, files: list[Path], settings) -> bool:
+    """The ledger is newer than its sources and was analysed with these settings."""
     if not ledger_path.exists():
         return False
     newest = max(p.stat().st_mtime for p in files)
-    return ledger_path.stat().st_mtime >= newest
+    if ledger_path.stat().st_mtime < newest:
+        return False
+    from app.desk.services import CoreServices
+
+    try:
+        ledger = CoreServices().open_ledger(ledger_path, readonly=True)
+    except PhasewiseError:
+        return False
+    try:
+        digest = CoreServices().settings_record(settings)[1]
+        return ledger.settings_hash == digest and not ledger.stars_needing_analysis(
+            digest, only="stale"
+        )
+    finally:
+        ledger.close()
 
 
 def _progress(done: int, total: int, message: str = "") -> None:
@@ -103,14 +116,15 @@ def ensure_demo_ledger(folder: Path, rebuild: bool = False, report=_progress) ->
 
     files = demo_files(folder)
     target = folder / DEMO_LEDGER
-    if rebuild or not _up_to_date(target, files):
-        services = CoreServices()
+    services = CoreServices()
+    settings = services.default_settings()
+    if rebuild or not _up_to_date(target, files, settings):
         for suffix in ("", "-wal", "-shm"):
             stale = target.with_name(target.name + suffix)
             if stale.exists():
                 stale.unlink()
         print(f"building {target} from {len(files)} file(s)…", file=sys.stderr)
-        build_ledger(services, files, None, target, services.default_settings(), report=report)
+        build_ledger(services, files, None, target, settings, report=report)
         print(file=sys.stderr)
     return target
 

@@ -206,3 +206,22 @@ def test_star_model_scales_to_ten_thousand_rows(qtbot):
     periods = [model.value(sid, "period") for sid in model.star_ids()[:3]]
     assert periods == sorted(periods, reverse=True) and periods[0] == pytest.approx(0.79)
     assert model.row_of("S00042") is not None
+
+
+def test_method_switch_and_axis_toggles(desk, qtbot):
+    box = desk.periodogram.method_box
+    box.setCurrentIndex(box.findData("pdm"))
+    qtbot.waitUntil(
+        lambda: desk.periodogram.view is not None and desk.periodogram.view.method == "pdm",
+        timeout=20000,
+    )
+    assert desk.periodogram.view.fap_levels == ()  # no FAP lines for PDM
+    assert desk.periodogram.candidates  # found on the PDM periodogram itself
+    qtbot.keyClick(desk, Qt.Key.Key_F)  # against period
+    x, _ = desk.periodogram.curve.getData()
+    assert desk.periodogram.period_axis and np.all(np.diff(x) > 0)
+    assert desk.periodogram.item.getAxis("bottom").labelText == "Period (d)"
+    qtbot.keyClick(desk, Qt.Key.Key_G)  # log axis
+    assert desk.periodogram.log_box.isChecked()
+    marker = desk.periodogram.marker.value()
+    assert marker == pytest.approx(np.log10(desk.session.period))

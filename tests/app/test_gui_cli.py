@@ -1,0 +1,63 @@
+"""The window commands run in a subprocess: exit code 0 and a real PNG."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+from PySide6.QtGui import QImage
+
+from .fakes import real_ledger
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def _run(*args, timeout=120):
+    env = {"QT_QPA_PLATFORM": "offscreen", "PATH": "/usr/bin:/bin", "HOME": str(ROOT)}
+    return subprocess.run(
+        [sys.executable, "-m", "app", *args],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=timeout,
+        env=env,
+    )
+
+
+def test_open_ledger_screenshot_exits_cleanly(tmp_path):
+    path = tmp_path / "field.ledger.sqlite"
+    real_ledger(path).close()
+    out = tmp_path / "desk.png"
+    proc = _run("open", str(path), "--screenshot", str(out), "--star", "NV-003")
+    assert proc.returncode == 0, proc.stderr
+    assert "deallocating" not in proc.stderr
+    image = QImage(str(out))
+    assert image.width() >= 1200 and image.height() >= 800
+    # non-trivial: many distinct colours (plots drawn), not a blank window
+    colours = {
+        image.pixel(x, y) for x in range(0, image.width(), 7) for y in range(0, image.height(), 7)
+    }
+    assert len(colours) > 50
+    assert out.stat().st_size > 50_000
+
+
+def test_unknown_star_and_missing_file_are_named(tmp_path):
+    path = tmp_path / "field.ledger.sqlite"
+    real_ledger(path).close()
+    proc = _run("open", str(path), "--screenshot", str(tmp_path / "x.png"), "--star", "NV-999")
+    assert proc.returncode == 2
+    assert "no star 'NV-999' in the ledger" in proc.stderr
+    proc = _run("open", str(tmp_path / "absent.ledger.sqlite"))
+    assert proc.returncode == 2 and "absent.ledger.sqlite: no such file" in proc.stderr
+
+
+def test_command_line_imports_no_qt():
+    code = "import sys; from app.cli import build_parser; build_parser().parse_args(['open', '-h'])"
+    proc = subprocess.run(
+        [sys.executable, "-c", code + "\n"], cwd=ROOT, capture_output=True, text=True
+    )
+    assert "--screenshot" in proc.stdout
+    check = "import sys; import app.cli as c; c.build_parser(); print('PySide6' in sys.modules)"
+    proc = subprocess.run([sys.executable, "-c", check], cwd=ROOT, capture_output=True, text=True)
+    assert proc.stdout.strip() == "False", proc.stderr
