@@ -173,12 +173,19 @@ def montgomery_odonoghue_sigma_f(
 
 # ---------------------------------------------------------------- the basis
 def _basis(theta: np.ndarray, order: int) -> np.ndarray:
-    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...]."""
-    arg = np.multiply.outer(theta, np.arange(1, order + 1))
+    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...].
+
+    Harmonics by complex powers ``exp(ikθ)`` (a running product, error of
+    order ``k`` ulp), which is several times faster than ``k`` trig calls.
+    """
+    theta = np.asarray(theta, dtype=float)
     out = np.empty((theta.size, 2 * order + 1))
     out[:, 0] = 1.0
-    out[:, 1::2] = np.cos(arg)
-    out[:, 2::2] = np.sin(arg)
+    if order:
+        z = np.exp(1j * theta)
+        powers = np.cumprod(np.broadcast_to(z[:, None], (theta.size, order)), axis=1)
+        out[:, 1::2] = powers.real
+        out[:, 2::2] = powers.imag
     return out
 
 
@@ -605,7 +612,7 @@ def choose_order(
     total = float(yw @ yw)
     chi2 = total - np.cumsum(qy**2)  # chi2 of the first j+1 columns
     diag = np.abs(np.diag(r))
-    grid = TWO_PI * np.arange(256) / 256
+    grid_basis = _basis(TWO_PI * np.arange(256) / 256, cap)
     data_range = float(np.ptp(y))
     orders: list[int] = []
     for order in range(1, cap + 1):
@@ -614,7 +621,7 @@ def choose_order(
             limited_by = "phase_gap"
             break
         beta = linalg.solve_triangular(r[:p, :p], qy[:p])
-        curve = _basis(grid, order) @ beta
+        curve = grid_basis[:, :p] @ beta
         if order > 1 and np.ptp(curve) > (1.0 + settings.max_overshoot) * data_range:
             limited_by = "overshoot"
             break
