@@ -626,6 +626,10 @@ def choose_order(
             limited_by = "overshoot"
             break
         orders.append(order)
+    if not orders:
+        raise PhasewiseError(
+            f"the phase coverage of {n} points cannot constrain a Fourier fit", field="order"
+        )
     cap = len(orders)
     chis = np.array([max(chi2[2 * o], total * 1e-24) for o in orders])
     if settings.criterion == "bic":
@@ -696,10 +700,17 @@ class _MultiFit:
 
 
 def _term_matrix(tau, freqs, terms):
+    """cos and sin of every term; harmonics by complex powers (see _basis)."""
     harm = np.array([k for _, k in terms], dtype=float)
     fidx = np.array([j for j, _ in terms], dtype=int)
-    arg = TWO_PI * np.multiply.outer(tau, harm * freqs[fidx])
-    return np.cos(arg), np.sin(arg), harm, fidx
+    blocks = []
+    for j in range(len(freqs)):
+        n_j = int(np.count_nonzero(fidx == j))
+        if n_j:
+            z = np.exp(1j * TWO_PI * freqs[j] * tau)
+            blocks.append(np.cumprod(np.broadcast_to(z[:, None], (tau.size, n_j)), axis=1))
+    wave = np.concatenate(blocks, axis=1)
+    return wave.real, wave.imag, harm, fidx
 
 
 def _linear_start(tau, y, sw, band_index, n_bands, freqs, terms):
@@ -753,7 +764,16 @@ def multi_frequency_fit(
         coef = x[n_f:].reshape(n_bands, per_band)[bidx]  # per point
         return freqs, coef
 
+    cache: dict[bytes, tuple] = {}
+
     def model_and_parts(x):
+        key = x.tobytes()
+        if key not in cache:
+            cache.clear()  # least_squares asks for fun and jac at the same point
+            cache[key] = _model_and_parts(x)
+        return cache[key]
+
+    def _model_and_parts(x):
         freqs, coef = unpack(x)
         cos_, sin_, harm, fidx = _term_matrix(tau, freqs, terms)
         c, s = coef[:, 1::2], coef[:, 2::2]
@@ -769,11 +789,12 @@ def multi_frequency_fit(
         dterm = TWO_PI * harm * tau[:, None] * (-c * sin_ + s * cos_)
         for j in range(n_f):
             out[:, j] = dterm[:, fidx == j].sum(axis=1)
-        base = n_f + bidx * per_band
-        out[rows, base] = 1.0
-        for i in range(n_t):
-            out[rows, base + 1 + 2 * i] = cos_[:, i]
-            out[rows, base + 2 + 2 * i] = sin_[:, i]
+        design = np.empty((t.size, per_band))
+        design[:, 0] = 1.0
+        design[:, 1::2] = cos_
+        design[:, 2::2] = sin_
+        # each point's coefficients sit in its own band's block
+        out[:, n_f:].reshape(t.size, n_bands, per_band)[rows, bidx] = design
         return -out * sw[:, None]
 
     if refine and n_f:

@@ -266,6 +266,15 @@ def test_refinement_matches_an_independent_curve_fit():
     assert r.frequency == pytest.approx(popt[1], abs=1e-3 * r.frequency_err)
     assert r.frequency_err == pytest.approx(np.sqrt(pcov[1, 1]), rel=0.02)
     assert r.amplitude == pytest.approx(np.hypot(popt[2], popt[3]), rel=1e-6)
+    # the linear fit at the refined frequency gives curve_fit's coefficients
+    fit = fit_fourier(t, mag, err, r.frequency, 2)
+    assert fit.A0 == pytest.approx(popt[0], abs=1e-3 * fit.A0_err)
+    np.testing.assert_allclose(
+        fit.amplitudes,
+        [np.hypot(popt[2], popt[3]), np.hypot(popt[4], popt[5])],
+        atol=1e-3 * min(fit.amplitudes_err),
+    )
+    np.testing.assert_allclose(fit.amplitudes_err[0], np.sqrt(pcov[2, 2]), rtol=0.05)
     assert r.period_err == pytest.approx(r.frequency_err / r.frequency**2)
 
 
