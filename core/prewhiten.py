@@ -74,6 +74,9 @@ class PrewhitenSettings:
         Highest ``|n|``, ``|m|`` tried for combinations.
     side_peak_fraction : float
         Offsets from ``k f1`` below this fraction of ``f1`` are side peaks.
+    search_oversampling : int
+        Oversampling of the default residual search grid; coarser than the
+        main search is enough, since the joint fit refines every peak.
     fourier : FourierSettings
         Settings for choosing the main order.
     """
@@ -88,6 +91,7 @@ class PrewhitenSettings:
     max_harmonic: int = 10
     max_combination: int = 2
     side_peak_fraction: float = 0.1
+    search_oversampling: int = 3
     fourier: FourierSettings = field(default_factory=FourierSettings)
 
     def __post_init__(self) -> None:
@@ -101,6 +105,7 @@ class PrewhitenSettings:
         require_int("max_harmonic", self.max_harmonic, 2, 100)
         require_int("max_combination", self.max_combination, 1, 10)
         require_range("side_peak_fraction", self.side_peak_fraction, 0.0, 0.5)
+        require_int("search_oversampling", self.search_oversampling, 1, 100)
 
 
 def _opt(x: float | None) -> float | None:
@@ -204,11 +209,15 @@ class Prewhitening:
 
 
 # ------------------------------------------------------------------- search
-def _default_search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
-    from .periodogram import PeriodogramSettings, compute_periodogram
+def _default_search(oversampling: int) -> Search:
+    def search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
+        from .periodogram import PeriodogramSettings, compute_periodogram
 
-    pg = compute_periodogram(residual, PeriodogramSettings(method="gls"))
-    return np.asarray(pg.frequency), np.asarray(pg.power)
+        settings = PeriodogramSettings(method="gls", oversampling=oversampling)
+        pg = compute_periodogram(residual, settings)
+        return np.asarray(pg.frequency), np.asarray(pg.power)
+
+    return search
 
 
 def _noise(t, r, sw, centre, box, samples):
@@ -313,14 +322,15 @@ def prewhiten(
     settings : PrewhitenSettings, optional
     search : callable, optional
         ``search(residual_lightcurve) -> (frequency, power)``; default the
-        generalized Lomb–Scargle of :func:`core.periodogram.compute_periodogram`.
+        generalized Lomb–Scargle of :func:`core.periodogram.compute_periodogram`
+        on its default range with ``search_oversampling``.
 
     Returns
     -------
     Prewhitening
     """
     settings = settings or PrewhitenSettings()
-    search = search or _default_search
+    search = search or _default_search(settings.search_oversampling)
     f_main = float(frequency)
     if not np.isfinite(f_main) or f_main <= 0:
         raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")

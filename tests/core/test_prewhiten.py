@@ -48,6 +48,18 @@ def _double_mode(t, combination=0.0):
     )
 
 
+def test_double_mode_cepheid_ratio_is_recovered():
+    # 1O/F ratio near 0.72 (Alcock et al. 1995, via REFERENCES.md); periods invented
+    t = _times(9)
+    p_f = 3.1
+    f_f, f_1o = 1 / p_f, 1 / (0.72 * p_f)
+    mag = 14 + 0.25 * np.sin(TWO_PI * f_f * t) + 0.08 * np.sin(2 * TWO_PI * f_f * t + 1)
+    mag = mag + 0.12 * np.sin(TWO_PI * f_1o * t + 2)
+    res = prewhiten(_star(t, mag, 9), f_f, search=gls_search)
+    assert [f.kind for f in res.frequencies[:2]] == ["main", "independent"]
+    assert res.period_ratio == pytest.approx(0.72, abs=5e-4)
+
+
 def test_two_independent_modes_give_the_injected_period_ratio():
     t = _times(1)
     res = prewhiten(_star(t, _double_mode(t), 1), F1O, search=gls_search)
