@@ -254,9 +254,34 @@ def _opt(x: float | None) -> float | None:
 class FourierFit:
     """A Fourier series fitted at a fixed frequency.
 
-    ``phases`` are referred to ``epoch`` (``t0`` of the series), which is
-    ``epoch_max`` unless an epoch was given.  Phase errors are at fixed
-    epoch.  ``R_k1`` and ``phi_k1`` hold the ratios for k = 2..order.
+    Attributes
+    ----------
+    epoch : float
+        ``t0`` the ``phases`` refer to: ``epoch_max`` unless one was given.
+    amplitudes, phases : tuple of float
+        ``A_i >= 0`` and ``phi_i`` in [0, 2 pi) of the declared ``form``;
+        phase errors are at fixed epoch.
+    R_k1, phi_k1 : tuple of float
+        ``A_k/A_1`` and ``phi_k - k phi_1`` (mod 2 pi) for k = 2..order;
+        ``R21``, ``R31``, ``phi21``, ``phi31`` (and ``_err``) are None when
+        the order is too low.
+    mean_mag : float
+        ``A0``, the magnitude mean of the fitted curve.
+    intensity_mean_mag : float
+        ``-2.5 log10`` of the phase mean of ``10**(-0.4 m)``.
+    peak_to_peak : float
+        Faintest minus brightest magnitude of the fitted curve.
+    epoch_max : float
+        Time of maximum light nearest the middle of the data; its error is
+        at fixed frequency.
+    rise_time : float
+        Phase from minimum light to the next maximum light, in [0, 1).
+    skewness : float
+        Skewness of the fitted curve's magnitudes over phase.
+    residual_std : float
+        rms of the residuals, with ``n_points - (2 order + 1)`` degrees of freedom.
+    bic : float
+        ``N ln(chi2/N) + p ln N`` (noise scale free).
     """
 
     frequency: float
