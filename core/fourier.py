@@ -40,8 +40,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import linalg, optimize
-from scipy import stats as _stats
+from scipy import linalg, optimize, special
 
 from .errors import PhasewiseError
 from .validation import require_choice, require_int, require_positive, require_range
@@ -666,7 +665,7 @@ def choose_order(
         for o in orders[1:]:
             dof = n - (2 * o + 1)
             fstat = ((chis[o - 2] - chis[o - 1]) / 2.0) / (chis[o - 1] / dof)
-            pval = float(_stats.f.sf(fstat, 2, dof))
+            pval = float(special.fdtrc(2, dof, fstat))  # F(2, dof) survival function
             scores.append(pval)
             if pval > settings.ftest_alpha:
                 break
