@@ -960,6 +960,10 @@ def refine_frequency(
     f0 = float(frequency)
     if not np.isfinite(f0) or f0 <= 0:
         raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
+    if t.size < 4:
+        raise PhasewiseError(
+            f"{t.size} good points cannot support refining a frequency", field="lightcurve"
+        )
     names, counts = np.unique(labels, return_counts=True)
     names = [str(n) for n in names[np.lexsort((names, -counts))]]
     if order is None:

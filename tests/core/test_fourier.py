@@ -314,6 +314,8 @@ def test_refinement_that_wanders_off_keeps_the_start():
     assert near.converged and abs(near.frequency - 2.0) < 3 * near.frequency_err
     with pytest.raises(PhasewiseError, match="field 'frequency'"):
         refine_frequency((t, mag, None), 0.0, 1)
+    with pytest.raises(PhasewiseError, match="field 'lightcurve'.*2 good points"):
+        refine_frequency((t[:2], mag[:2], None), 2.0, 1)
 
 
 # ------------------------------------------------------------ decomposition
