@@ -388,3 +388,36 @@ def test_a_given_epoch_shifts_each_phase_by_its_harmonic():
     np.testing.assert_allclose(given_.phases, expected, atol=1e-9)
     assert given_.phi31 == pytest.approx(free.phi31, abs=1e-9)
     np.testing.assert_allclose(given_.model(t), free.model(t), atol=1e-12)
+
+
+def test_errors_are_honest_on_the_synthetic_survey():
+    # Recovery on the seeded demo survey (core.synthetic): nightly cadence,
+    # seasonal gaps, magnitude-dependent noise, outliers removed by core.clean.
+    # Injected R21, phi31 (sine form, V) and period must lie within the
+    # covariance errors as often as Gaussian statistics say.
+    from core.clean import CleanSettings, clean
+    from core.synthetic import make_survey
+
+    survey = make_survey(n_stars=150, seed=20260)
+    z = []
+    for lc, star in zip(survey.lightcurves, survey.stars, strict=True):
+        truth = star.truth
+        if truth.class_code not in ("RRab", "RRc") or truth.blazhko:
+            continue
+        lc, _ = clean(lc, CleanSettings())
+        refined = refine_frequency(lc, 1 / truth.period)
+        fit = decompose(lc, refined.frequency)["V"]
+        if fit.order < 3:
+            continue
+        d_phi = np.mod(fit.phi31 - truth.phi31 + np.pi, TWO_PI) - np.pi
+        z.append(
+            (
+                (fit.R21 - truth.R21) / fit.R21_err,
+                d_phi / fit.phi31_err,
+                (refined.period - truth.period) / refined.period_err,
+            )
+        )
+    z = np.array(z)
+    assert len(z) >= 25
+    assert np.all(np.mean(np.abs(z) < 3, axis=0) >= 0.9)
+    assert np.all((0.6 < z.std(axis=0)) & (z.std(axis=0) < 1.6))
