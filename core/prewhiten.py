@@ -264,6 +264,8 @@ def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
     idx = np.flatnonzero(ok & inner)
     if idx.size == 0:
         idx = np.flatnonzero(ok)[:1]
+    if idx.size > 64:  # only the strongest few matter
+        idx = idx[np.argpartition(-power[idx], 63)[:64]]
     idx = idx[np.argsort(-power[idx], kind="stable")]
     chosen: list[float] = []
     for i in idx:
