@@ -200,3 +200,14 @@ def test_nightly_sampling_reports_the_aliases_of_a_second_mode():
     assert min(abs(np.array(found) - F_F)) < 1 / 300
     offsets = np.array(found) - second.frequency
     assert np.any(np.abs(np.abs(offsets) - 1.0) < 0.02)  # a +-1 c/d alias among them
+
+
+def test_default_search_is_the_project_periodogram_and_handles_bands():
+    pytest.importorskip("core.periodogram")
+    t = _times(12)
+    rng = np.random.default_rng(12)
+    band = np.where(rng.uniform(size=t.size) < 0.6, "V", "I")
+    mag = _double_mode(t) + np.where(band == "I", -0.5, 0.0)
+    res = prewhiten(_star(t, mag, 12, band=band), F1O)
+    assert res.frequencies[1].kind == "independent"
+    assert res.period_ratio == pytest.approx(0.745, abs=3e-4)
