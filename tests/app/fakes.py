@@ -1,8 +1,8 @@
 """Stand-ins for core modules not merged yet (tests only, never product code).
 
-``FakeServices`` replaces ``core.analysis`` and ``core.fourier`` (astropy's
-Lomb–Scargle and a numpy least-squares Fourier fit); periodograms, the ledger
-and the export are the real core modules.
+``FakeServices`` replaces ``core.analysis`` (astropy's Lomb–Scargle and a
+numpy least-squares Fourier fit); periodograms, Fourier fits in the folds,
+the ledger and the export are the real core modules.
 """
 
 from __future__ import annotations
@@ -72,9 +72,6 @@ class FakeServices(CoreServices):
 
     def default_settings(self):
         return FakeSettings()
-
-    def fit_fourier(self, time, mag, err, frequency, order, form="sine"):
-        return fake_fit(time, mag, err, frequency, order)
 
     def analyse(self, lc, settings):
         self.analyse_calls += 1
