@@ -5,9 +5,11 @@ the commands that open a window.  :class:`MainWindow` is the window; other
 views dock into it with :meth:`MainWindow.add_view`.
 """
 
+from .blas import single_threaded_blas
 from .qt_guard import protect_singletons
 
 protect_singletons()
+single_threaded_blas()
 
 from .main_window import MainWindow  # noqa: E402
 

@@ -25,6 +25,9 @@ from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_co
 __all__ = ["FoldView", "FoldPanel"]
 
 MODEL_POINTS = 400
+#: Above this many points the fit and residuals of a nudge use a fixed sample
+#: of the points (all points are still drawn), so a redraw stays quick.
+MAX_FIT_POINTS = 8000
 
 
 class FoldView(pg.GraphicsLayoutWidget):
@@ -80,6 +83,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.resid.addItem(self.zero, ignoreBounds=True)
         self.t = self.m = self.e = None
         self.slices: list[slice] = []
+        self.sample = slice(None)
         self.order = 4
         self.form = "sine"
         self.period = None
@@ -107,6 +111,11 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.period = None
         self._range_set = False
         self._drawn = None
+        if n > MAX_FIT_POINTS:
+            rng = np.random.default_rng(n)  # the same sample at every nudge
+            self.sample = np.sort(rng.choice(n, MAX_FIT_POINTS, replace=False))
+        else:
+            self.sample = slice(None)
 
     def clear(self) -> None:
         self.t = None
@@ -127,9 +136,10 @@ class FoldView(pg.GraphicsLayoutWidget):
         self._drawn = (float(period), id(self.t))
         self.period = float(period)
         self.fit = None
+        ts, ms, es = self.t[self.sample], self.m[self.sample], self.e[self.sample]
         try:
             self.fit = self.services.fit_fourier(
-                self.t, self.m, self.e, 1.0 / self.period, self.order, form=self.form
+                ts, ms, es, 1.0 / self.period, self.order, form=self.form
             )
             epoch = float(self.fit.epoch_max)
         except Exception:  # too few points for the order, singular fit: show the fold only
@@ -141,14 +151,16 @@ class FoldView(pg.GraphicsLayoutWidget):
         if self.fit is not None:
             grid_phase, grid_t = phase_grid_times(self.period, epoch, MODEL_POINTS)
             self.model_curve.setData(grid_phase, np.asarray(self.fit.model(grid_t)))
-            resid = self.m - np.asarray(self.fit.model(self.t))
-            self.resid_points.setData(phase, resid)
+            resid = ms - np.asarray(self.fit.model(ts))
+            self.resid_points.setData(phase[self.sample], resid)
         else:
             self.model_curve.setData([], [])
             self.resid_points.setData([], [])
         rms = ""
         if self.fit is not None:
             rms = f" · rms {float(np.std(resid)):.3f} mag"
+            if isinstance(self.sample, np.ndarray):
+                rms += f" (fit on {self.sample.size:,} of {self.t.size:,} points)"
         self._set_title(f"{self.title}P = {fmt_period(self.period)} d{rms}")
         if not self._range_set:
             self._set_range()
@@ -159,7 +171,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.fold.setRange(xRange=(0.0, 2.0), yRange=(lo - pad, hi + pad), padding=0.01)
         self.fold.getViewBox().disableAutoRange()
         if self.fit is not None:
-            r = self.m - np.asarray(self.fit.model(self.t))
+            r = self.m[self.sample] - np.asarray(self.fit.model(self.t[self.sample]))
             s = float(np.nanpercentile(np.abs(r), 99.5)) if r.size else 0.1
             s = s if s > 0 else 0.1
             self.resid.setYRange(-1.15 * s, 1.15 * s, padding=0)

@@ -152,6 +152,7 @@ def make_plot(title: str | None = None, select: bool = False) -> pg.PlotWidget:
         axis = item.getAxis(name)
         axis.enableAutoSIPrefix(False)
     item.setMenuEnabled(False)
+    cache_axes(item)
     return plot
 
 
