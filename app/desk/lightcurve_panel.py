@@ -7,7 +7,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Signal
 from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
 
-from .plots import make_plot, set_labels
+from .plots import make_plot, points_in_polygon, set_labels
 from .style import EXCLUDED_COLOUR, band_style
 
 __all__ = ["LightCurvePanel"]
@@ -58,6 +58,8 @@ class LightCurvePanel(QWidget):
         self.legend.addItem(self.excluded, "excluded")
 
         self.show_errors = QCheckBox("Error bars")
+        self.lasso_box = QCheckBox("Lasso")
+        self.lasso_box.setToolTip("Select with a free-hand lasso instead of a rectangle")
         self.select_box = QCheckBox("Select points")
         self.select_box.setToolTip(
             "Drag a rectangle to exclude points (Shift+drag works too); "
@@ -69,6 +71,7 @@ class LightCurvePanel(QWidget):
         bar.addWidget(QLabel("<b>Light curve</b>"))
         bar.addWidget(self.info, 1)
         bar.addWidget(self.select_box)
+        bar.addWidget(self.lasso_box)
         bar.addWidget(self.show_errors)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 2, 2, 2)
@@ -78,6 +81,8 @@ class LightCurvePanel(QWidget):
         self.show_errors.toggled.connect(self._toggle_errors)
         self.select_box.toggled.connect(self._toggle_select)
         self.vb.sigRectSelected.connect(self._rect_selected)
+        self.vb.sigLassoSelected.connect(self.select_lasso)
+        self.lasso_box.toggled.connect(lambda on: setattr(self.vb, "lasso", on))
         self.lc = None
         self.t0 = 0.0
         set_labels(self.plot, "Time (d)", "Magnitude (mag)")
@@ -156,6 +161,16 @@ class LightCurvePanel(QWidget):
         y = np.asarray(self.lc.mag, dtype=float)
         inside = (x >= rect.left()) & (x <= rect.right()) & (y >= rect.top()) & (y <= rect.bottom())
         return np.flatnonzero(inside)
+
+    def select_lasso(self, vertices, restore: bool = False) -> None:
+        """Ask to exclude (or restore) the points inside a lasso (data coordinates)."""
+        if self.lc is None:
+            return
+        x = np.asarray(self.lc.time, dtype=float) - self.t0
+        inside = points_in_polygon(x, np.asarray(self.lc.mag, dtype=float), vertices)
+        idx = np.flatnonzero(inside)
+        if idx.size:
+            self.exclusionRequested.emit(idx, not restore)
 
     def _rect_selected(self, rect: QRectF, restore: bool) -> None:
         self.select_rect(rect, restore)

@@ -9,22 +9,50 @@ from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QPen, QTransform
 from PySide6.QtWidgets import QGraphicsRectItem
 
-__all__ = ["SelectViewBox", "FastPoints", "make_plot"]
+__all__ = ["SelectViewBox", "FastPoints", "make_plot", "points_in_polygon"]
+
+
+def points_in_polygon(x, y, polygon) -> np.ndarray:
+    """Boolean mask of the points (x, y) inside a closed polygon (even-odd rule).
+
+    ``polygon`` is an (n, 2) array of vertices; vectorised ray casting over
+    its edges.
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    poly = np.asarray(polygon, dtype=float)
+    inside = np.zeros(x.shape, dtype=bool)
+    if poly.shape[0] < 3:
+        return inside
+    xj, yj = poly[-1]
+    for xi, yi in poly:
+        crosses = (yi > y) != (yj > y)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x_cross = (xj - xi) * (y - yi) / (yj - yi) + xi
+        inside ^= crosses & (x < x_cross)
+        xj, yj = xi, yi
+    return inside
 
 
 class SelectViewBox(pg.ViewBox):
-    """A view box whose left-drag selects a rectangle when selection is on.
+    """A view box whose left-drag selects a rectangle or a lasso when selection is on.
 
     Drag with Shift held (or with selection mode on) to select; hold Ctrl
-    as well to restore instead of exclude.  The rectangle is emitted in data
-    coordinates.
+    as well to restore instead of exclude.  The shape is emitted in data
+    coordinates: a rectangle, or the lasso's vertices when ``lasso`` is set.
     """
 
     sigRectSelected = Signal(QRectF, bool)  # rect (data coords), restore?
+    sigLassoSelected = Signal(object, bool)  # (n, 2) vertices (data coords), restore?
 
     def __init__(self, *args, **kwargs) -> None:
         super().__init__(*args, **kwargs)
         self.select_mode = False
+        self.lasso = False
+        self._lasso_points: list[tuple[float, float]] = []
+        self._lasso_item = pg.PlotCurveItem(pen=pg.mkPen("#CC0066", width=1))
+        self._lasso_item.setZValue(1e9)
+        self.addItem(self._lasso_item, ignoreBounds=True)
         self._band = QGraphicsRectItem(0, 0, 1, 1)
         self._band.setPen(QPen(QColor("#CC0066"), 0))
         self._band.setBrush(QBrush(QColor(204, 0, 102, 40)))
@@ -38,12 +66,26 @@ class SelectViewBox(pg.ViewBox):
             super().mouseDragEvent(ev, axis)
             return
         ev.accept()
+        restore = bool(ev.modifiers() & Qt.KeyboardModifier.ControlModifier)
+        if self.lasso:
+            if ev.isStart():
+                start = self.mapToView(ev.buttonDownPos())
+                self._lasso_points = [(start.x(), start.y())]
+            p = self.mapToView(ev.pos())
+            self._lasso_points.append((p.x(), p.y()))
+            xy = np.array(self._lasso_points + self._lasso_points[:1])
+            if ev.isFinish():
+                self._lasso_item.setData([], [])
+                self.sigLassoSelected.emit(np.array(self._lasso_points), restore)
+                self._lasso_points = []
+            else:
+                self._lasso_item.setData(xy[:, 0], xy[:, 1])
+            return
         start = self.mapToView(ev.buttonDownPos())
         end = self.mapToView(ev.pos())
         rect = QRectF(start, end).normalized()
         if ev.isFinish():
             self._band.hide()
-            restore = bool(ev.modifiers() & Qt.KeyboardModifier.ControlModifier)
             self.sigRectSelected.emit(rect, restore)
         else:
             self._band.setRect(rect)

@@ -225,3 +225,37 @@ def test_method_switch_and_axis_toggles(desk, qtbot):
     assert desk.periodogram.log_box.isChecked()
     marker = desk.periodogram.marker.value()
     assert marker == pytest.approx(np.log10(desk.session.period))
+
+
+def test_points_in_polygon_matches_qt():
+    from PySide6.QtCore import QPointF
+    from PySide6.QtGui import QPainterPath, QPolygonF
+
+    from app.desk.plots import points_in_polygon
+
+    rng = np.random.default_rng(5)
+    x, y = rng.uniform(-1, 3, 400), rng.uniform(-1, 3, 400)
+    star = np.array([[0, 0], [2, 0.4], [0.3, 0.8], [1.8, 2.2], [0.1, 1.9], [1.0, 1.0]])
+    ours = points_in_polygon(x, y, star)
+    # reference: Qt's QPainterPath with the even-odd fill rule
+    path = QPainterPath()
+    path.addPolygon(QPolygonF([QPointF(*p) for p in star]))
+    path.closeSubpath()
+    path.setFillRule(Qt.FillRule.OddEvenFill)
+    ref = np.array([path.contains(QPointF(a, b)) for a, b in zip(x, y, strict=True)])
+    assert 20 < ours.sum() < 380
+    assert np.count_nonzero(ours != ref) <= 2  # points exactly on an edge may differ
+
+
+def test_exclude_with_a_lasso(desk, qtbot):
+    panel = desk.lightcurve
+    x = np.asarray(desk.lc.time) - panel.t0
+    x0, x1 = float(np.percentile(x, 10)), float(np.percentile(x, 40))
+    lasso = np.array([[x0, 10.0], [x1, 10.0], [x1, 20.0], [x0, 20.0]])
+    panel.lasso_box.setChecked(True)
+    assert panel.vb.lasso
+    panel.vb.sigLassoSelected.emit(lasso, False)
+    mask = desk.ledger.excluded("NV-001")
+    expected = (x >= x0) & (x <= x1)
+    assert mask.sum() == expected.sum() and mask[expected].all()
+    desk.workers.wait(10000)
