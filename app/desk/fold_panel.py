@@ -158,7 +158,7 @@ class FoldView(pg.GraphicsLayoutWidget):
             self.resid_points.setData([], [])
         rms = ""
         if self.fit is not None:
-            rms = f" · rms {float(np.std(resid)):.3f} mag"
+            rms = f" · rms {float(self.fit.residual_std):.3f} mag"
             if isinstance(self.sample, np.ndarray):
                 rms += f" (fit on {self.sample.size:,} of {self.t.size:,} points)"
         self._set_title(f"{self.title}P = {fmt_period(self.period)} d{rms}")
