@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import (
@@ -12,6 +14,7 @@ from PySide6.QtWidgets import (
     QFormLayout,
     QGridLayout,
     QLabel,
+    QLineEdit,
     QSpinBox,
     QTableWidget,
     QTableWidgetItem,
@@ -31,7 +34,6 @@ ROLES = (
     ("band", "Band"),
     ("flux", "Flux (instead of magnitude)"),
     ("flux_err", "Flux error"),
-    ("zero_point", "Zero point"),
     ("ra", "RA (deg)"),
     ("dec", "Dec (deg)"),
 )
@@ -81,10 +83,23 @@ class ColumnMappingDialog(QDialog):
             form.addWidget(QLabel(text + ":"), k // 2, 2 * (k % 2))
             form.addWidget(box, k // 2, 2 * (k % 2) + 1)
             self.boxes[role] = box
+        row = (len(ROLES) + 1) // 2
         self.scale_box = QComboBox()
-        self.scale_box.addItems(TIME_SCALES)
-        form.addWidget(QLabel("Time scale:"), len(ROLES) // 2, 0)
-        form.addWidget(self.scale_box, len(ROLES) // 2, 1)
+        self.scale_box.addItem("from the time column's name", None)
+        for scale in TIME_SCALES:
+            self.scale_box.addItem(scale, scale)
+        self.scale_box.setToolTip(
+            "The time scale is never guessed: it comes from the column name (hjd, bjd, mjd …) "
+            "or from this choice"
+        )
+        form.addWidget(QLabel("Time scale:"), row, 0)
+        form.addWidget(self.scale_box, row, 1)
+        self.zero_point = QLineEdit(placeholderText="for flux columns, e.g. 25.0")
+        form.addWidget(QLabel("Zero point (mag):"), row, 2)
+        form.addWidget(self.zero_point, row, 3)
+        self.default_band = QLineEdit(placeholderText="band of files without a band column")
+        form.addWidget(QLabel("Default band:"), row + 1, 0)
+        form.addWidget(self.default_band, row + 1, 1)
         buttons = QDialogButtonBox(
             QDialogButtonBox.StandardButton.Ok | QDialogButtonBox.StandardButton.Cancel
         )
@@ -100,7 +115,12 @@ class ColumnMappingDialog(QDialog):
     def roles(self) -> dict[str, str]:
         """The chosen mapping as keyword arguments for ``ColumnMapping``."""
         out = {role: box.currentData() for role, box in self.boxes.items() if box.currentData()}
-        out["time_scale"] = self.scale_box.currentText()
+        if self.scale_box.currentData():
+            out["time_scale"] = self.scale_box.currentData()
+        if self.zero_point.text().strip():
+            out["zero_point"] = self.zero_point.text().strip()  # ColumnMapping checks it
+        if self.default_band.text().strip():
+            out["default_band"] = self.default_band.text().strip()
         return out
 
 
@@ -180,17 +200,17 @@ class ShortcutSheet(QDialog):
         super().__init__(parent)
         self.setWindowTitle("Keyboard shortcuts")
         rows = [
-            (group, action.text().replace("&", ""), action.shortcuts())
+            (group, action.text().replace("&", ""), _shown_keys(action.shortcuts()))
             for group, actions in groups
             for action in actions
-            if action.shortcuts()
+            if _shown_keys(action.shortcuts())
         ]
         table = QTableWidget(len(rows), 3)
         table.setHorizontalHeaderLabels(["Menu", "Action", "Keys"])
         for i, (group, text, keys) in enumerate(rows):
             table.setItem(i, 0, QTableWidgetItem(group))
             table.setItem(i, 1, QTableWidgetItem(text))
-            shown = ",  ".join(k.toString(QKeySequence.SequenceFormat.NativeText) for k in keys)
+            shown = ",   ".join(keys)
             table.setItem(i, 2, QTableWidgetItem(shown))
         table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         table.verticalHeader().setVisible(False)
@@ -204,3 +224,16 @@ class ShortcutSheet(QDialog):
         layout.addWidget(buttons)
         self.resize(560, 620)
         self.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose, False)
+
+
+def _shown_keys(sequences) -> list[str]:
+    """Key sequences as text, without the multimedia keys (named "Open", "Undo" …)
+    that some platforms add to the standard bindings."""
+    out = []
+    for seq in sequences:
+        text = seq.toString(QKeySequence.SequenceFormat.NativeText)
+        if text and (
+            "+" in text or len(text) == 1 or re.fullmatch(r"F\d+", text) or text == "Backspace"
+        ):
+            out.append(text)
+    return out

@@ -33,6 +33,11 @@ def test_mapping_dialog_previews_and_maps(qtbot, tmp_path):
     assert table.item(0, headers.index("star_id")).text() == "NV-000"
     roles = dialog.roles()
     assert roles["star_id"] == "star_id" and roles["mag"] == "mag"
+    assert "time_scale" not in roles  # never guessed: the column name or the user says
+    dialog.scale_box.setCurrentIndex(dialog.scale_box.findData("HJD"))
+    dialog.zero_point.setText("25.0")
+    assert dialog.roles()["time_scale"] == "HJD"
+    assert ColumnMapping(**dialog.roles()).zero_point == 25.0
     mapping = ColumnMapping(**roles)
     assert open_photometry(path, mapping).star_ids() == ("NV-000", "NV-001", "NV-002")
 
