@@ -143,6 +143,12 @@ def test_exclude_points_with_a_selection(desk, qtbot):
     # Ctrl on release restores
     lc_panel.vb.sigRectSelected.emit(rect, True)
     assert not desk.ledger.excluded("NV-001").any()
+    # undo brings the exclusion back, in the ledger and on screen
+    desk.workers.wait(10000)
+    qtbot.keyClick(desk, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
+    assert desk.ledger.excluded("NV-001").sum() == inside.size
+    assert len(desk.lightcurve.excluded.getData()[0]) == inside.size
+    desk.workers.wait(10000)
 
 
 def test_export_and_plots(desk, qtbot, tmp_path):
