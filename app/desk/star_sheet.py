@@ -22,23 +22,40 @@ from .style import STATUS_COLOURS, fmt, fmt_period, fmt_pm
 
 __all__ = ["StarSheet", "CLASS_CODES", "CAUTION"]
 
+
+def _class_codes() -> tuple[str, ...]:
+    """The rulebook's class codes (core.classify), in its order."""
+    try:
+        from core.classify import CLASS_CODES as codes
+    except ImportError:  # core.classify not installed: the field's usual designations
+        codes = (
+            "RRab",
+            "RRc",
+            "RRd",
+            "DCEP",
+            "DCEP(1O)",
+            "T2CEP",
+            "ACEP",
+            "DSCT",
+            "SXPHE",
+            "EA",
+            "EB",
+            "EW",
+            "LPV",
+            "CONST",
+            "UNKNOWN",
+        )
+    return tuple(codes)
+
+
 #: The classes offered in the picker; the first ten have digit keys 1…9, 0.
-CLASS_CODES = (
-    "RRab",
-    "RRc",
-    "RRd",
-    "DCEP_F",
-    "DCEP_1O",
-    "T2CEP",
-    "ACEP",
-    "DSCT",
-    "EW",
-    "EA",
-    "EB",
-    "LPV",
-    "NONVAR",
-    "UNKNOWN",
-)
+CLASS_CODES = _class_codes()
+
+
+def suggestion_class(suggestion: dict) -> str | None:
+    """The class code of a suggestion dict (core writes it under ``class``)."""
+    return suggestion.get("class") or suggestion.get("class_code")
+
 
 CAUTION = (
     "Classes, [Fe/H], absolute magnitudes and distances come from published empirical "
@@ -117,7 +134,7 @@ class StarSheet(QWidget):
     # ------------------------------------------------------------ verdicts
     def top_suggestion(self) -> str | None:
         suggestions = (self.result or {}).get("suggestions") or []
-        return suggestions[0].get("class_code") if suggestions else None
+        return suggestion_class(suggestions[0]) if suggestions else None
 
     def confirm(self) -> None:
         code = self.top_suggestion()
@@ -252,7 +269,7 @@ class StarSheet(QWidget):
                 name = p.get("quantity") or p.get("name") or "?"
                 value = fmt_pm(p.get("value"), p.get("error", p.get("err")))
                 unit = p.get("unit") or ""
-                relation = p.get("relation") or p.get("citation") or ""
+                relation = " — ".join(str(x) for x in (p.get("relation"), p.get("citation")) if x)
                 flags = p.get("flags") or []
                 flag_text = (
                     f" <span style='color:#B03000'>[{_e(', '.join(map(str, flags)))}]</span>"
@@ -278,10 +295,15 @@ class StarSheet(QWidget):
             against = "".join(
                 f"<li style='color:#B03000'>against: {_e(x)}</li>" for x in (s.get("against") or [])
             )
+            missing = "".join(
+                f"<li style='color:#666'>not measured: {_e(x)}</li>"
+                for x in (s.get("missing") or [])
+            )
             note = f"<br><i>{_e(s.get('note'))}</i>" if s.get("note") else ""
+            subtype = f" ({_e(s.get('subtype'))})" if s.get("subtype") else ""
             out.append(
-                f"<li><b>{_e(s.get('class_code'))}</b> score {fmt(s.get('score'), 2)}"
-                f"{note}<ul>{reasons}{against}</ul></li>"
+                f"<li><b>{_e(suggestion_class(s))}</b>{subtype} score {fmt(s.get('score'), 2)}"
+                f"{note}<ul>{reasons}{against}{missing}</ul></li>"
             )
         out.append("</ol>")
         flags = r.get("flags") or []

@@ -130,22 +130,23 @@ class FakeServices(CoreServices):
             "amplitude_by_band": {b: 0.4 for b in lc.bands},
             "suggestions": [
                 {
-                    "class_code": "RRab",
+                    "class": "RRab",
                     "score": 0.8,
                     "reasons": ["period in range"],
                     "against": [],
                     "period": 1 / best,
                     "note": "",
                 },
-                {"class_code": "RRc", "score": 0.2, "reasons": [], "against": ["R21 high"]},
+                {"class": "RRc", "score": 0.2, "reasons": [], "against": ["R21 high"]},
             ],
             "physics": [
                 {
                     "quantity": "[Fe/H]",
                     "value": -1.5,
-                    "error": 0.2,
+                    "err": 0.2,
                     "unit": "dex",
-                    "relation": "Invented test relation",
+                    "relation": "invented test relation",
+                    "citation": "nobody 2000",
                     "flags": [],
                 }
             ],
