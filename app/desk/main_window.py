@@ -790,36 +790,37 @@ class MainWindow(QMainWindow):
             self._reanalyse(self.session.star_id, self.lc)
 
     def reanalyse_all(self) -> None:
+        """Analyse every star again with the current settings (worker, progress, cancel).
+
+        Results are stored in chunks as they come, so a cancel keeps what was done.
+        """
         if self.ledger is None:
             return
-        ledger, services, settings = self.ledger, self.services, self.analysis_settings
+        ledger, services = self.ledger, self.services
+        if self.analysis_settings is None:
+            self.analysis_settings = services.default_settings()
+        settings = self.analysis_settings
+        services.record_settings(ledger, settings)
         ids = list(ledger.star_ids())
 
-        def run(report, cancelled):
-            results = []
-            for i, sid in enumerate(ids):
-                if cancelled():
-                    break
-                report(i, len(ids), sid)
-                results.append((sid, services.analyse(ledger.lightcurve(sid), settings)))
-            return results
-
-        def done(results):
-            services.record_settings(ledger, settings)
-            services.store_results(ledger, results, settings)
+        def finished() -> None:
             self._stars.clear()
             self._periodograms.clear()
             self.refresh_rows()
             if self.session.star_id:
                 self.load_star(self.session.star_id)
 
-        self.workers.run_with_progress(
+        worker = self.workers.run_with_progress(
             self,
             "Analysing stars",
-            run,
-            on_result=done,
+            services.analyse_all,
+            ledger,
+            ids,
+            settings,
             on_error=lambda msg: QMessageBox.warning(self, "Analysis", msg),
         )
+        worker.signals.finished.connect(self.workers._guard(finished))
+        return worker
 
     # =============================================================== dialogs
     def settings_dialog(self) -> None:

@@ -265,3 +265,15 @@ def test_exclude_with_a_lasso(desk, qtbot):
     expected = (x >= x0) & (x <= x1)
     assert mask.sum() == expected.sum() and mask[expected].all()
     desk.workers.wait(10000)
+
+
+def test_reanalyse_all_in_a_worker_keeps_verdicts(desk, qtbot):
+    qtbot.keyClick(desk, Qt.Key.Key_Y)
+    calls = desk.services.analyse_calls
+    worker = desk.reanalyse_all()
+    qtbot.waitUntil(lambda: worker.done.is_set(), timeout=30000)
+    qtbot.waitUntil(lambda: not desk.workers.busy, timeout=10000)
+    assert desk.services.analyse_calls == calls + 6
+    assert desk.ledger.verdict("NV-001").status == "confirmed"
+    stored = desk.ledger.result("NV-003")
+    assert stored is not None and not stored.stale  # stored with the recorded settings
