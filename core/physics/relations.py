@@ -497,7 +497,8 @@ RELATIONS: dict[str, Relation] = {
             example=Example(
                 {"ebv": 0.1, "rv": 3.1}, 0.31, 1e-12, "REFERENCES.md worked arithmetic"
             ),
-            notes="R_V = 3.1 by default (diffuse interstellar medium)",
+            notes="R_V = 3.1 by default (diffuse interstellar medium); no scatter of its own: "
+            "the uncertainty enters through E(B-V)",
         ),
         Relation(
             name="ccm89_ratio",
@@ -518,7 +519,8 @@ RELATIONS: dict[str, Relation] = {
             example=Example(
                 {"wavelength_um": 0.90, "rv": 3.1}, 0.479, 0.002, "CCM89 Table 3 (from memory)"
             ),
-            notes=f"the I band is taken at {I_BAND_WAVELENGTH_UM} µm",
+            notes=f"the I band is taken at {I_BAND_WAVELENGTH_UM} µm; the scatter of real sight lines "
+            "about the mean curve is not included",
         ),
     )
 }
