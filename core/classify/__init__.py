@@ -14,7 +14,7 @@ The rulebook is TOML (data only, validated on load; see
 :func:`user_rulebook_path`, replaces it.
 """
 
-from .features import FEATURES, Feature, feature_info, is_known_feature
+from .features import FEATURES, Feature, feature_info, features_from_result, is_known_feature
 from .rulebook import (
     CLASS_CODES,
     ClassRules,
@@ -32,6 +32,7 @@ __all__ = [
     "FEATURES",
     "Feature",
     "feature_info",
+    "features_from_result",
     "is_known_feature",
     "CLASS_CODES",
     "ClassRules",

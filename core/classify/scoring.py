@@ -11,8 +11,9 @@ Periods tried per class:
 
 * the periodogram's period P;
 * eclipsing classes: ``2 P`` instead, when the fold at 2P shows two minima
-  (``second_harmonic_weight >= two_minima_weight``) — the usual case where the
-  periodogram finds half the orbital period;
+  (``second_harmonic_weight >= two_minima_weight``) and the fold at P does not
+  already show two dips (``two_minima_at_p`` is not 1) — the usual case where
+  the periodogram finds half the orbital period;
 * when the analysis marks the chosen peak as an alias (``is_alias = 1``) and
   gives the other period (``alias_period``), that period too; the better one
   is kept and the suggestion says which.
@@ -198,7 +199,8 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
     used = period
     if entry.eclipsing and period is not None and period > 0:
         weight = values.get("second_harmonic_weight")
-        if weight is not None and weight >= book.two_minima_weight:
+        already_orbital = values.get("two_minima_at_p") == 1.0
+        if weight is not None and weight >= book.two_minima_weight and not already_orbital:
             used = 2.0 * period
             trial_values = _with_period(values, used)
             depth = values.get("depth_difference")

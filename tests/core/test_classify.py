@@ -13,7 +13,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.classify import FEATURES, Rule, Suggestion, parse_rulebook, suggest
+from core.classify import FEATURES, Rule, Suggestion, features_from_result, parse_rulebook, suggest
 
 SIGNIFICANT = {"fap": 1e-30, "snr": 40.0, "n_points": 600, "primary_band": "V"}
 
@@ -174,3 +174,46 @@ def test_scores_stay_in_unit_interval_and_ranked(features):
     scores = [s.score for s in ranked]
     assert all(0.0 <= s <= 1.0 and not math.isnan(s) for s in scores)
     assert scores == sorted(scores, reverse=True)
+
+
+def test_features_from_result_follows_the_contract():
+    result = {
+        "period": 0.1875, "period_err": 1e-6, "frequency": 1 / 0.1875, "fap": 1e-40,
+        "n_good": 612, "primary_band": "V", "amplitude": 0.55,
+        "amplitude_by_band": {"V": 0.55, "I": 0.41},
+        "mean_mag_by_band": {"V": 17.2, "I": 16.4},
+        "intensity_mean_mag_by_band": {"V": 17.15, "I": None},
+        "fourier": {"form": "cosine", "amplitudes": [0.27, 0.02, 0.01],
+                    "amplitudes_err": [0.002, 0.002, 0.002], "R21": 0.074, "R31": 0.037,
+                    "phi21": 1.0, "phi31": 4.0, "phi31_err": 0.1},
+        "rise_time": 0.5, "residual_std": 0.02, "period_ratio": None, "secondary_periods": [],
+        "eclipse": {"depth_difference": 0.01, "depth_difference_err": 0.008,
+                    "odd_harmonic_fraction": 0.03, "asymmetry": 0.02,
+                    "depth_secondary_at_p": None},
+        "candidates": [{"frequency": 1 / 0.1875, "period": 0.1875, "power": 0.8, "fap": 1e-40,
+                        "snr": 35.0, "marks": ["alias"],
+                        "mark_details": {"alias": {"parent_frequency": 1 / 0.23}}}],
+        "features": {"skewness": 0.3},
+    }  # fmt: skip
+    features = features_from_result(result)
+    assert features["log_period"] == pytest.approx(math.log10(0.1875))
+    assert features["amplitude_I"] == 0.41 and features["n_points"] == 612
+    # intensity mean preferred where given, magnitude mean otherwise
+    assert features["mean_mag_V"] == 17.15 and features["mean_mag_I"] == 16.4
+    assert features["colour_VI"] == pytest.approx(0.75)
+    # cosine → sine: phi21 - pi/2, phi31 - pi (REFERENCES.md, exact)
+    assert features["phi21"] == pytest.approx(1.0 - math.pi / 2 + 2 * math.pi)
+    assert features["phi31"] == pytest.approx(4.0 - math.pi)
+    assert features["A1"] == 0.27 and features["A3_err"] == 0.002
+    assert features["second_harmonic_weight"] == pytest.approx(0.97)
+    assert features["two_minima_at_p"] == 0.0
+    assert features["is_alias"] == 1.0 and features["alias_period"] == pytest.approx(0.23)
+    assert features["snr"] == 35.0 and features["skewness"] == 0.3
+    assert set(FEATURES) <= set(features)
+    top = suggest(features)[0]
+    assert top.class_code == "EW" and top.period == pytest.approx(0.375)
+
+
+def test_eclipsing_period_not_doubled_when_already_orbital():
+    features = {**EB_HALF, "two_minima_at_p": 1.0}
+    assert _get(suggest(features), "EB").period == pytest.approx(EB_HALF["period"])
