@@ -21,7 +21,7 @@ astronomer decides.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 from typing import Any
 
@@ -29,21 +29,33 @@ import numpy as np
 from scipy import stats
 
 from . import __version__
-from .classify import load_rulebook, suggest
+from .classify import features_from_result, load_rulebook, suggest
 from .clean import CleanReport, CleanSettings, clean
 from .eclipse import EclipseSettings, EclipseTest, eclipse_test
 from .errors import PhasewiseError
-from .fourier import FourierFit, FourierSettings, RefinedFrequency, choose_order, fit_fourier
-from .fourier import decompose, refine_frequency
+from .fourier import (
+    FourierFit,
+    FourierSettings,
+    RefinedFrequency,
+    choose_order,
+    decompose,
+    fit_fourier,
+    refine_frequency,
+)
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
-from .periodogram import Candidate, Periodogram, PeriodogramSettings, compute_periodogram
-from .periodogram import find_candidates
+from .periodogram import (
+    Candidate,
+    Periodogram,
+    PeriodogramSettings,
+    compute_periodogram,
+    find_candidates,
+)
 from .physics import PhysicalValue, PhysicsSettings, derive
 from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten
 from .settings import settings_hash, settings_to_dict
 from .validation import require_int, require_positive, require_range
 
-__all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse", "features_of"]
+__all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
 
 #: Result states. ``ok``: a significant period was found and measured.
 STATUSES = ("ok", "no_significant_period", "no_variability", "too_few_points", "failed")
@@ -325,16 +337,7 @@ def _analyse(
         status = "no_significant_period"
         fap_text = "unknown" if fap is None else f"{fap:.2g}"
         reason = f"false-alarm probability {fap_text} above {settings.fap_threshold:g}"
-    features = features_of(
-        analysed, fits, primary, refined, frequency, candidates[chosen], pw, ecl
-    )
-    suggestions = _suggest(features, settings)
-    physics: tuple[PhysicalValue, ...] = ()
-    if suggestions:
-        physics = derive(suggestions[0].class_code, features, settings.physics)
-    if lc.too_few_points is False and cleaned.n_good < 3 * 2 * fits[primary].order + 1:
-        flags.append("sparse curve for its Fourier order")
-    return AnalysisResult(
+    measured = AnalysisResult(
         status=status,
         reason=reason,
         primary_band=primary,
@@ -349,13 +352,18 @@ def _analyse(
         refined=refined,
         prewhitening=pw,
         eclipse=ecl,
-        features=features,
-        suggestions=suggestions,
-        physics=physics,
+        features=_extra_features(analysed, primary),
         outlier_times=outlier_times,
         flags=tuple(flags),
         **common,
     )
+    # one place turns results into features: the same function reads stored results
+    features = features_from_result(measured.to_dict())
+    suggestions = _suggest(features, settings)
+    physics: tuple[PhysicalValue, ...] = ()
+    if suggestions:
+        physics = derive(suggestions[0].class_code, features, settings.physics)
+    return replace(measured, features=features, suggestions=suggestions, physics=physics)
 
 
 def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any, ...]:
@@ -419,9 +427,9 @@ def _decompose_with_outliers(
         r = residual[sel]
         sigma = MAD_TO_SIGMA * np.median(np.abs(r - np.median(r)))
         if sigma > 0:
-            outliers[np.flatnonzero(sel)[np.abs(r - np.median(r)) > settings.outlier_sigma * sigma]] = (
-                True
-            )
+            outliers[
+                np.flatnonzero(sel)[np.abs(r - np.median(r)) > settings.outlier_sigma * sigma]
+            ] = True
     if not outliers.any():
         return fits, (), lc
     kept = lc.with_excluded(lc.excluded | outliers)
@@ -432,59 +440,7 @@ def _decompose_with_outliers(
     return (refit or fits), times, kept
 
 
-def features_of(
-    lc: LightCurve,
-    fits: dict[str, FourierFit],
-    primary: str,
-    refined: RefinedFrequency | None,
-    frequency: float,
-    candidate: Candidate | None,
-    pw: Prewhitening | None,
-    ecl: EclipseTest | None,
-) -> dict[str, Any]:
-    """The named features the rulebook and the relations read (see core.classify)."""
-    fit = fits[primary]
-    period = 1.0 / frequency
-    feats: dict[str, Any] = {
-        "period": period,
-        "log_period": math.log10(period),
-        "primary_band": primary,
-        "amplitude": fit.peak_to_peak,
-        "n_points": lc.n_good,
-        "residual_std": fit.residual_std,
-        "rise_time": fit.rise_time,
-    }
-    if refined is not None and refined.converged:
-        feats["period_err"] = refined.frequency_err / frequency**2
-    for band, f in fits.items():
-        feats[f"amplitude_{band}"] = f.peak_to_peak
-        feats[f"mean_mag_{band}"] = f.intensity_mean_mag
-    for k in (1, 2, 3):
-        if fit.order >= k:
-            feats[f"A{k}"] = fit.amplitudes[k - 1]
-            feats[f"A{k}_err"] = fit.amplitudes_err[k - 1]
-    for name in ("R21", "R31", "phi21", "phi31"):
-        value = getattr(fit, name)
-        if value is not None:
-            feats[name] = value
-            feats[f"{name}_err"] = getattr(fit, f"{name}_err")
+def _extra_features(lc: LightCurve, primary: str) -> dict[str, Any]:
+    """Features not read off the result dict (see ``features_from_result``)."""
     _, mag, _ = lc.arrays(primary)
-    if mag.size > 2:
-        feats["skewness"] = float(stats.skew(mag))
-    if "V" in fits and "I" in fits:
-        feats["colour_VI"] = fits["V"].intensity_mean_mag - fits["I"].intensity_mean_mag
-    if candidate is not None:
-        feats["fap"] = candidate.fap
-        feats["snr"] = candidate.snr
-        feats["is_alias"] = 1.0 if "alias" in candidate.marks else 0.0
-    if pw is not None:
-        feats["period_ratio"] = pw.period_ratio
-        feats["secondary_period"] = pw.secondary_period
-    if ecl is not None:
-        feats["depth_difference"] = ecl.depth_difference
-        feats["depth_difference_err"] = ecl.depth_difference_err
-        ratio = ecl.second_harmonic_ratio
-        if ratio is not None and np.isfinite(ratio):
-            # share of the first two harmonics' variance at 2P carried by the second
-            feats["second_harmonic_weight"] = ratio**2 / (1.0 + ratio**2)
-    return feats
+    return {"skewness": float(stats.skew(mag))} if mag.size > 2 else {}

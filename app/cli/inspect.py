@@ -84,13 +84,17 @@ def _fmt(value, digits: int = 4, err=None) -> str:
 
 def print_summary(r: dict) -> None:
     """A readable summary of a result dict."""
-    print(f"star {r['star_id']}: {r['n_good']} good of {r['n_points']} points, "
-          f"bands {', '.join(r['bands']) or '—'}, time scale {r['time_scale']}")
+    print(
+        f"star {r['star_id']}: {r['n_good']} good of {r['n_points']} points, "
+        f"bands {', '.join(r['bands']) or '—'}, time scale {r['time_scale']}"
+    )
     print(f"status: {r['status']}" + (f" ({r['reason']})" if r["reason"] else ""))
     if r.get("period") is None:
         return
-    print(f"period: {_fmt(r['period'], 7, r['period_err'])} d   "
-          f"FAP {r['fap']:.2g}   method {r['method']}")
+    print(
+        f"period: {_fmt(r['period'], 7, r['period_err'])} d   "
+        f"FAP {r['fap']:.2g}   method {r['method']}"
+    )
     print("candidates:")
     for c in r["candidates"][:SHOWN]:
         marks = f"  [{'; '.join(c['mark_details'] or c['marks'])}]" if c["marks"] else ""
@@ -103,8 +107,10 @@ def print_summary(r: dict) -> None:
             f"R31 {_fmt(f['R31'], 3, f['R31_err'])}  phi21 {_fmt(f['phi21'], 3, f['phi21_err'])}  "
             f"phi31 {_fmt(f['phi31'], 3, f['phi31_err'])} ({f['form']})"
         )
-    print(f"epoch of maximum: {_fmt(r['epoch_max'], 5)} ({r['time_scale']})   "
-          f"rise time {_fmt(r['rise_time'], 3)}")
+    print(
+        f"epoch of maximum: {_fmt(r['epoch_max'], 5)} ({r['time_scale']})   "
+        f"rise time {_fmt(r['rise_time'], 3)}"
+    )
     for s in r["secondary_periods"]:
         print(f"further frequency: P = {s['period']:.6f} d  ({s['kind']}: {s['label']})")
     if r["period_ratio"] is not None:
@@ -123,7 +129,9 @@ def print_summary(r: dict) -> None:
         print("physical values (published relations with known scatter):")
         for p in r["physics"]:
             flags = f"  [{'; '.join(p['flags'])}]" if p["flags"] else ""
-            print(f"  {p['quantity']} = {_fmt(p['value'], 3, p['err'])} {p['unit']}  "
-                  f"({p['relation']}){flags}")
+            print(
+                f"  {p['quantity']} = {_fmt(p['value'], 3, p['err'])} {p['unit']}  "
+                f"({p['relation']}){flags}"
+            )
     for flag in r["flags"]:
         print(f"flag: {flag}")
