@@ -11,7 +11,7 @@ from ..errors import GridTooLargeError
 from .candidates import Candidate, candidate_marks, find_candidates
 from .compute import MIN_POINTS, compute_periodogram, search_bands
 from .fap import baluev_fap, f_test_fap
-from .grid import RegularGrid, frequency_grid, grid_parameters, regular_grid_of
+from .grid import RegularGrid, frequency_grid, grid_parameters, grid_size, regular_grid_of
 from .kernels import KERNELS, METHOD_KERNELS, REFERENCE_KERNELS, Kernel
 from .result import Periodogram
 from .settings import DEFAULT_FMAX, METHODS, PeriodogramSettings
@@ -26,6 +26,7 @@ __all__ = [
     "GridTooLargeError",
     "RegularGrid",
     "grid_parameters",
+    "grid_size",
     "frequency_grid",
     "regular_grid_of",
     "compute_periodogram",

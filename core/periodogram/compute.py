@@ -122,13 +122,13 @@ def flat_power(frequency, kernel, settings):
     """Power of a constant curve: 0 everywhere (nothing to explain), never NaN.
 
     The raw statistic takes its no-signal value: theta = 1 for PDM and
-    H = ln(n_mag) for conditional entropy, so that the power is 0 for both.
+    H = H(m) = 0 for conditional entropy (one magnitude bin holds all).
     """
     power = np.zeros(frequency.size)
     if kernel.statistic == "theta":
         return power, np.ones(frequency.size)
     if kernel.statistic == "entropy":
-        return power, np.full(frequency.size, np.log(settings.ce_mag_bins))
+        return power, np.zeros(frequency.size)
     return power, None
 
 

@@ -9,7 +9,7 @@ import numpy as np
 from ..errors import GridTooLargeError, PhasewiseError
 from .settings import DEFAULT_FMAX, PeriodogramSettings
 
-__all__ = ["RegularGrid", "grid_parameters", "frequency_grid", "regular_grid_of"]
+__all__ = ["RegularGrid", "grid_parameters", "grid_size", "frequency_grid", "regular_grid_of"]
 
 
 class RegularGrid(NamedTuple):
@@ -27,7 +27,9 @@ class RegularGrid(NamedTuple):
         return self.fmin + self.df * (self.n - 1)
 
 
-def grid_parameters(time: np.ndarray, settings: PeriodogramSettings) -> RegularGrid:
+def grid_parameters(
+    time: np.ndarray, settings: PeriodogramSettings, *, check_limit: bool = True
+) -> RegularGrid:
     """The grid a search over ``time`` uses, without building it.
 
     ``fmin`` defaults to 1/T (T the baseline), ``fmax`` to 50 c/d, and the
@@ -37,8 +39,9 @@ def grid_parameters(time: np.ndarray, settings: PeriodogramSettings) -> RegularG
     Raises
     ------
     GridTooLargeError
-        If the grid has more than ``settings.max_frequencies`` points; the
-        message gives the size and the limit.
+        If the grid has more than ``settings.max_frequencies`` points (unless
+        ``check_limit=False``); the message gives the size and the limit, and
+        the error carries them as ``n_frequencies`` and ``limit``.
     """
     time = np.asarray(time, dtype=float)
     baseline = float(np.max(time) - np.min(time)) if time.size > 1 else 0.0
@@ -56,14 +59,21 @@ def grid_parameters(time: np.ndarray, settings: PeriodogramSettings) -> RegularG
         )
     df = 1.0 / (settings.oversampling * baseline)
     n = int(np.floor((fmax - fmin) / df)) + 1
-    if n > settings.max_frequencies:
-        raise GridTooLargeError(
+    if check_limit and n > settings.max_frequencies:
+        error = GridTooLargeError(
             f"the grid has {n:,} frequencies ({fmin:g}-{fmax:g} c/d, step {df:.3g} c/d), "
             f"more than the limit of {settings.max_frequencies:,}; narrow the range, "
             "lower the oversampling or raise the limit",
             field="max_frequencies",
         )
+        error.n_frequencies, error.limit = n, settings.max_frequencies
+        raise error
     return RegularGrid(fmin, df, n)
+
+
+def grid_size(time: np.ndarray, settings: PeriodogramSettings) -> int:
+    """Number of frequencies of the grid for ``time``, whatever the limit (to ask first)."""
+    return grid_parameters(time, settings, check_limit=False).n
 
 
 def frequency_grid(time: np.ndarray, settings: PeriodogramSettings) -> np.ndarray:

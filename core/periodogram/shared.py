@@ -74,8 +74,7 @@ def shared_epoch_periodograms(
     if np.any(n_good < MIN_POINTS):
         row = int(np.argmin(n_good))
         raise PhasewiseError(
-            f"star row {row} has {n_good[row]} good points; a periodogram needs at least "
-            f"{MIN_POINTS}",
+            f"this star has {n_good[row]} good points; a periodogram needs at least {MIN_POINTS}",
             row=row,
             field="mag",
         )

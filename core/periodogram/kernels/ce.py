@@ -6,9 +6,11 @@ n_phase x n_mag table of probabilities p(m, phi); the conditional entropy
 
     H = sum p(m, phi) ln[ p(phi) / p(m, phi) ]
 
-is lowest at the true period.  H lies in [0, ln n_mag]; the returned power
-is ``1 - H / ln(n_mag)`` (larger is better, in [0, 1]) and H is the raw
-statistic.  Errors are not used (as in the paper).
+is lowest at the true period.  H lies between 0 and the entropy of the
+magnitudes alone, H(m) = -sum p(m) ln p(m) (no information from the phase);
+the returned power is ``1 - H / H(m)``, the fraction of the magnitudes'
+entropy the phase explains (larger is better, in [0, 1], near 0 for noise),
+and H is the raw statistic.  Errors are not used (as in the paper).
 
 References
 ----------
@@ -19,7 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["conditional_entropy", "ce"]
+__all__ = ["conditional_entropy", "magnitude_entropy", "ce"]
 
 _CHUNK = 1_500_000
 
@@ -53,13 +55,23 @@ def conditional_entropy(t, y, frequency, n_phase, n_mag):
     return entropy
 
 
+def magnitude_entropy(y, n_mag):
+    """H(m) of the magnitudes binned as :func:`conditional_entropy` bins them."""
+    span = y.max() - y.min()
+    scaled = (y - y.min()) / span if span > 0 else np.zeros_like(y)
+    counts = np.bincount(np.minimum((scaled * n_mag).astype(np.intp), n_mag - 1))
+    p = counts[counts > 0] / y.size
+    return float(-(p * np.log(p)).sum())
+
+
 def ce(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
-    """Conditional-entropy power ``1 - H / ln(n_mag)`` and H."""
+    """Conditional-entropy power ``1 - H / H(m)`` and H."""
     n_phase = 10 if settings is None else settings.ce_phase_bins
     n_mag = 5 if settings is None else settings.ce_mag_bins
     y = np.asarray(y, dtype=float)
     if y.ndim == 1:
         entropy = conditional_entropy(t, y, frequency, n_phase, n_mag)
-    else:
-        entropy = np.stack([conditional_entropy(t, yi, frequency, n_phase, n_mag) for yi in y])
-    return 1.0 - entropy / np.log(n_mag), entropy
+        return 1.0 - entropy / magnitude_entropy(y, n_mag), entropy
+    entropy = np.stack([conditional_entropy(t, yi, frequency, n_phase, n_mag) for yi in y])
+    h_mag = np.array([magnitude_entropy(yi, n_mag) for yi in y])
+    return 1.0 - entropy / h_mag[:, None], entropy
