@@ -28,7 +28,7 @@ import numpy as np
 from scipy import linalg
 
 from .errors import PhasewiseError
-from .fourier import FourierSettings, _basis, choose_order, fit_fourier
+from .fourier import FourierFit, FourierSettings, _basis, choose_order, fit_fourier
 from .validation import require_int, require_positive, require_range
 
 __all__ = ["EclipseSettings", "EclipseTest", "eclipse_test"]
@@ -140,7 +140,12 @@ def _circular_distance(a: np.ndarray | float, b: float) -> np.ndarray:
     return np.minimum(d, 1.0 - d)
 
 
-def eclipse_test(lc: Any, frequency: float, settings: EclipseSettings | None = None) -> EclipseTest:
+def eclipse_test(
+    lc: Any,
+    frequency: float,
+    settings: EclipseSettings | None = None,
+    fit_at_period: FourierFit | None = None,
+) -> EclipseTest:
     """Compare alternate minima at twice the period and the curve's symmetry.
 
     Parameters
@@ -149,6 +154,9 @@ def eclipse_test(lc: Any, frequency: float, settings: EclipseSettings | None = N
     frequency : float
         The tested frequency ``1/P`` in cycles per day.
     settings : EclipseSettings, optional
+    fit_at_period : FourierFit, optional
+        A fit of the band with most points at ``frequency`` (e.g. from
+        :func:`core.fourier.decompose`) to reuse for the symmetry at ``P``.
 
     Raises
     ------
@@ -165,8 +173,11 @@ def eclipse_test(lc: Any, frequency: float, settings: EclipseSettings | None = N
     t, m, e = lc.arrays(band)
 
     # --- at P: symmetry about minimum light
-    at_p = FourierSettings(max_order=max(2, settings.max_order // 2))
-    fit_p = fit_fourier(t, m, e, f, choose_order(t, m, e, f, at_p).order)
+    if fit_at_period is not None and np.isclose(fit_at_period.frequency, f, rtol=1e-12, atol=0):
+        fit_p = fit_at_period
+    else:
+        at_p = FourierSettings(max_order=max(2, settings.max_order // 2))
+        fit_p = fit_fourier(t, m, e, f, choose_order(t, m, e, f, at_p).order)
     x = np.arange(512) / 512
     faint = -fit_p.rise_time  # phase of minimum light (phase 0 = maximum light)
     left, right = fit_p.model_phase(faint - x), fit_p.model_phase(faint + x)

@@ -40,8 +40,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import linalg, optimize
-from scipy import stats as _stats
+from scipy import linalg, optimize, special
 
 from .errors import PhasewiseError
 from .validation import require_choice, require_int, require_positive, require_range
@@ -254,9 +253,34 @@ def _opt(x: float | None) -> float | None:
 class FourierFit:
     """A Fourier series fitted at a fixed frequency.
 
-    ``phases`` are referred to ``epoch`` (``t0`` of the series), which is
-    ``epoch_max`` unless an epoch was given.  Phase errors are at fixed
-    epoch.  ``R_k1`` and ``phi_k1`` hold the ratios for k = 2..order.
+    Attributes
+    ----------
+    epoch : float
+        ``t0`` the ``phases`` refer to: ``epoch_max`` unless one was given.
+    amplitudes, phases : tuple of float
+        ``A_i >= 0`` and ``phi_i`` in [0, 2 pi) of the declared ``form``;
+        phase errors are at fixed epoch.
+    R_k1, phi_k1 : tuple of float
+        ``A_k/A_1`` and ``phi_k - k phi_1`` (mod 2 pi) for k = 2..order;
+        ``R21``, ``R31``, ``phi21``, ``phi31`` (and ``_err``) are None when
+        the order is too low.
+    mean_mag : float
+        ``A0``, the magnitude mean of the fitted curve.
+    intensity_mean_mag : float
+        ``-2.5 log10`` of the phase mean of ``10**(-0.4 m)``.
+    peak_to_peak : float
+        Faintest minus brightest magnitude of the fitted curve.
+    epoch_max : float
+        Time of maximum light nearest the middle of the data; its error is
+        at fixed frequency.
+    rise_time : float
+        Phase from minimum light to the next maximum light, in [0, 1).
+    skewness : float
+        Skewness of the fitted curve's magnitudes over phase.
+    residual_std : float
+        rms of the residuals, with ``n_points - (2 order + 1)`` degrees of freedom.
+    bic : float
+        ``N ln(chi2/N) + p ln N`` (noise scale free).
     """
 
     frequency: float
@@ -641,7 +665,7 @@ def choose_order(
         for o in orders[1:]:
             dof = n - (2 * o + 1)
             fstat = ((chis[o - 2] - chis[o - 1]) / 2.0) / (chis[o - 1] / dof)
-            pval = float(_stats.f.sf(fstat, 2, dof))
+            pval = float(special.fdtrc(2, dof, fstat))  # F(2, dof) survival function
             scores.append(pval)
             if pval > settings.ftest_alpha:
                 break
@@ -936,6 +960,10 @@ def refine_frequency(
     f0 = float(frequency)
     if not np.isfinite(f0) or f0 <= 0:
         raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
+    if t.size < 4:
+        raise PhasewiseError(
+            f"{t.size} good points cannot support refining a frequency", field="lightcurve"
+        )
     names, counts = np.unique(labels, return_counts=True)
     names = [str(n) for n in names[np.lexsort((names, -counts))]]
     if order is None:

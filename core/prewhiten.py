@@ -74,6 +74,10 @@ class PrewhitenSettings:
         Highest ``|n|``, ``|m|`` tried for combinations.
     side_peak_fraction : float
         Offsets from ``k f1`` below this fraction of ``f1`` are side peaks.
+    alias_candidates, alias_power_fraction
+        Besides the highest residual peak, up to ``alias_candidates - 1``
+        rival peaks with at least this fraction of its power are reported as
+        ``alternatives`` (aliases of the sampling window have near-equal peaks).
     search_oversampling : int
         Oversampling of the default residual search grid; coarser than the
         main search is enough, since the joint fit refines every peak.
@@ -92,6 +96,8 @@ class PrewhitenSettings:
     max_combination: int = 2
     side_peak_fraction: float = 0.1
     search_oversampling: int = 3
+    alias_candidates: int = 3
+    alias_power_fraction: float = 0.8
     fourier: FourierSettings = field(default_factory=FourierSettings)
 
     def __post_init__(self) -> None:
@@ -106,6 +112,8 @@ class PrewhitenSettings:
         require_int("max_combination", self.max_combination, 1, 10)
         require_range("side_peak_fraction", self.side_peak_fraction, 0.0, 0.5)
         require_int("search_oversampling", self.search_oversampling, 1, 100)
+        require_int("alias_candidates", self.alias_candidates, 1, 20)
+        require_range("alias_power_fraction", self.alias_power_fraction, 0.0, 1.0)
 
 
 def _opt(x: float | None) -> float | None:
@@ -119,7 +127,8 @@ class FoundFrequency:
     ``amplitude`` is the semi-amplitude of its first term in the band with
     most points; ``snr`` is measured on the final residuals; ``label`` names
     it (``f1``, ``f2``, ``2f1``, ``f1+f2``, ``f1+0.0250``); ``step`` is the
-    step that found it (0 for the main frequency).
+    step that found it (0 for the main frequency); ``alternatives`` are the
+    rival residual peaks of near-equal power at that step (often aliases).
     """
 
     frequency: float
@@ -130,6 +139,7 @@ class FoundFrequency:
     label: str
     step: int
     modulation_period: float | None = None
+    alternatives: tuple[float, ...] = ()
 
     @property
     def period(self) -> float:
@@ -146,6 +156,7 @@ class FoundFrequency:
             "label": self.label,
             "step": int(self.step),
             "modulation_period": _opt(self.modulation_period),
+            "alternatives": [float(x) for x in self.alternatives],
         }
 
 
@@ -241,6 +252,30 @@ def _noise(t, r, sw, centre, box, samples):
         sums[i] = current.sum()
         current = current * advance
     return float(np.mean(2.0 * np.abs(sums) / w.sum()))
+
+
+def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
+    """The highest residual peak and rivals within ``alias_power_fraction`` of it."""
+    ok = allowed & np.isfinite(power)
+    inner = np.zeros(grid.size, bool)
+    inner[1:-1] = (power[1:-1] >= power[:-2]) & (power[1:-1] >= power[2:])
+    inner[0] = grid.size > 1 and power[0] >= power[1]
+    inner[-1] = grid.size > 1 and power[-1] >= power[-2]
+    idx = np.flatnonzero(ok & inner)
+    if idx.size == 0:
+        idx = np.flatnonzero(ok)[:1]
+    if idx.size > 64:  # only the strongest few matter
+        idx = idx[np.argpartition(-power[idx], 63)[:64]]
+    idx = idx[np.argsort(-power[idx], kind="stable")]
+    chosen: list[float] = []
+    for i in idx:
+        if len(chosen) >= settings.alias_candidates:
+            break
+        if chosen and power[i] < settings.alias_power_fraction * power[idx[0]]:
+            break
+        if all(abs(grid[i] - c) >= resolution for c in chosen):
+            chosen.append(float(grid[i]))
+    return chosen
 
 
 def _label_independent(index: int) -> str:
@@ -356,6 +391,7 @@ def prewhiten(
             return Prewhitening((), 0, resolution, "too few points", None, float("nan"), t.size)
     freqs, orders = [f_main], [order]
     steps = [0]
+    alternatives: list[tuple[float, ...]] = [()]
     fit = multi_frequency_fit(t, m, e, freqs, orders, bidx, refine=settings.refine)
     fit = _keep_near(fit, t, m, e, freqs, orders, bidx, resolution, settings)
     stop, last_snr = "limit", None
@@ -375,13 +411,17 @@ def prewhiten(
         if candidates.size == 0:
             stop = "no peak"
             break
-        f_new = float(grid[candidates[np.argmax(power[candidates])]])
-        trial_freqs = [*fit.frequencies, f_new]
+        peaks = _top_peaks(grid, power, ~masked, resolution, settings)
+        trial_freqs = [*fit.frequencies, peaks[0]]
         trial_orders = [*orders, 1]
         trial = multi_frequency_fit(
             t, m, e, trial_freqs, trial_orders, bidx, refine=settings.refine
         )
         trial = _keep_near(trial, t, m, e, trial_freqs, trial_orders, bidx, resolution, settings)
+        # rival peaks of near-equal power, often aliases through the sampling
+        # window; a joint-fit chi-square does not tell them apart reliably, so
+        # they are reported for the classifier rather than chosen between here
+        others = tuple(peaks[1:])
         amp = trial.term_amplitude(0, sum(orders))
         f_found = float(trial.frequencies[-1])
         noise = _noise(
@@ -393,6 +433,7 @@ def prewhiten(
             break
         fit, freqs, orders = trial, list(trial.frequencies), trial_orders
         steps.append(step)
+        alternatives.append(others)
 
     # final figures from the final joint fit
     final = [float(x) for x in fit.frequencies]
@@ -415,6 +456,7 @@ def prewhiten(
                 label=names_[j],
                 step=steps[j],
                 modulation_period=mods[j],
+                alternatives=alternatives[j],
             )
         )
     n_params = len(final) + len(band_names) * (1 + 2 * sum(orders))

@@ -114,6 +114,16 @@ def test_sawtooth_pulsator_is_told_from_a_contact_binary():
     assert rr.depth_secondary_at_p is None or rr.depth_secondary_at_p < 0.02
 
 
+def test_a_given_fit_at_the_period_is_reused():
+    from core.fourier import decompose
+
+    lc = rrab_curve()
+    fit = decompose(lc, 1 / P_RR)["V"]
+    reused = eclipse_test(lc, 1 / P_RR, fit_at_period=fit)
+    assert reused.rise_time == fit.rise_time
+    assert reused.asymmetry == pytest.approx(eclipse_test(lc, 1 / P_RR).asymmetry, abs=0.05)
+
+
 def test_to_dict_is_plain_and_complete():
     d = eclipse_test(ew_curve(), 2 / P_ORB).to_dict()
     json.dumps(d)

@@ -9,6 +9,8 @@ import json
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, optimize
 
 from core.errors import PhasewiseError, SettingsError
@@ -312,6 +314,8 @@ def test_refinement_that_wanders_off_keeps_the_start():
     assert near.converged and abs(near.frequency - 2.0) < 3 * near.frequency_err
     with pytest.raises(PhasewiseError, match="field 'frequency'"):
         refine_frequency((t, mag, None), 0.0, 1)
+    with pytest.raises(PhasewiseError, match="field 'lightcurve'.*2 good points"):
+        refine_frequency((t[:2], mag[:2], None), 2.0, 1)
 
 
 # ------------------------------------------------------------ decomposition
@@ -350,3 +354,70 @@ def test_to_dict_is_plain_and_stable():
     for key in ("order", "form", "A0", "phases_err", "mean_mag", "intensity_mean_mag"):
         assert key in d
     assert d["peak_to_peak"] > 0 and 0 <= d["rise_time"] < 1
+
+
+@settings(max_examples=30, deadline=None)
+@given(
+    amps=st.lists(st.floats(0.02, 0.5), min_size=3, max_size=3),
+    phases=st.lists(st.floats(0.0, 6.28), min_size=3, max_size=3),
+)
+def test_any_sine_series_fitted_in_cosine_form_converts_back(amps, phases):
+    # cos x = sin(x + pi/2): phi_k1(sin) = phi_k1(cos) - (k - 1) pi / 2
+    t = sampling(n=120, seed=50)
+    mag = series(t, t[0], amps=amps, phases=phases)
+    sin_fit = fit_fourier(t, mag, None, FREQ, 3, form="sine", epoch=t[0])
+    cos_fit = fit_fourier(t, mag, None, FREQ, 3, form="cosine", epoch=t[0])
+    for k, (ps, pc) in enumerate(
+        ((sin_fit.phi21, cos_fit.phi21), (sin_fit.phi31, cos_fit.phi31)), start=2
+    ):
+        gap = np.mod(ps - convert_phase(pc, k) + np.pi, TWO_PI) - np.pi
+        assert abs(gap) < 1e-8
+    gaps = np.mod(np.array(sin_fit.phases) - phases + np.pi, TWO_PI) - np.pi
+    assert np.max(np.abs(gaps)) < 1e-8
+
+
+def test_a_given_epoch_shifts_each_phase_by_its_harmonic():
+    t = sampling(seed=60)
+    mag = series(t, t[0]) + np.random.default_rng(60).normal(0, 0.01, t.size)
+    free = fit_fourier(t, mag, None, FREQ, 4)
+    epoch = free.epoch_max + 0.1234
+    given_ = fit_fourier(t, mag, None, FREQ, 4, epoch=epoch)
+    assert given_.epoch == epoch and given_.epoch_max == pytest.approx(free.epoch_max)
+    k = np.arange(1, 5)
+    expected = np.mod(np.array(free.phases) + TWO_PI * k * FREQ * 0.1234, TWO_PI)
+    np.testing.assert_allclose(given_.phases, expected, atol=1e-9)
+    assert given_.phi31 == pytest.approx(free.phi31, abs=1e-9)
+    np.testing.assert_allclose(given_.model(t), free.model(t), atol=1e-12)
+
+
+def test_errors_are_honest_on_the_synthetic_survey():
+    # Recovery on the seeded demo survey (core.synthetic): nightly cadence,
+    # seasonal gaps, magnitude-dependent noise, outliers removed by core.clean.
+    # Injected R21, phi31 (sine form, V) and period must lie within the
+    # covariance errors as often as Gaussian statistics say.
+    from core.clean import CleanSettings, clean
+    from core.synthetic import make_survey
+
+    survey = make_survey(n_stars=150, seed=20260)
+    z = []
+    for lc, star in zip(survey.lightcurves, survey.stars, strict=True):
+        truth = star.truth
+        if truth.class_code not in ("RRab", "RRc") or truth.blazhko:
+            continue
+        lc, _ = clean(lc, CleanSettings())
+        refined = refine_frequency(lc, 1 / truth.period)
+        fit = decompose(lc, refined.frequency)["V"]
+        if fit.order < 3:
+            continue
+        d_phi = np.mod(fit.phi31 - truth.phi31 + np.pi, TWO_PI) - np.pi
+        z.append(
+            (
+                (fit.R21 - truth.R21) / fit.R21_err,
+                d_phi / fit.phi31_err,
+                (refined.period - truth.period) / refined.period_err,
+            )
+        )
+    z = np.array(z)
+    assert len(z) >= 25
+    assert np.all(np.mean(np.abs(z) < 3, axis=0) >= 0.9)
+    assert np.all((0.6 < z.std(axis=0)) & (z.std(axis=0) < 1.6))

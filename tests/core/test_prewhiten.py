@@ -185,3 +185,29 @@ def test_results_and_errors():
         PrewhitenSettings(snr_threshold=0)
     with pytest.raises(SettingsError, match="field 'max_frequencies'"):
         PrewhitenSettings(max_frequencies=-1)
+
+
+def test_nightly_sampling_reports_the_aliases_of_a_second_mode():
+    # one visit a night: the window has a peak at 1 c/d, so f2 - 1 and
+    # f2 + 1 rival f2 in the residuals (common practice, no source)
+    rng = np.random.default_rng(11)
+    t = np.arange(300.0) + rng.normal(0, 0.04, 300)
+    res = prewhiten(_star(t, _double_mode(t), 11), F1O, search=gls_search)
+    second = res.frequencies[1]
+    assert second.kind == "independent"
+    found = [second.frequency, *second.alternatives]
+    assert len(second.alternatives) >= 1
+    assert min(abs(np.array(found) - F_F)) < 1 / 300
+    offsets = np.array(found) - second.frequency
+    assert np.any(np.abs(np.abs(offsets) - 1.0) < 0.02)  # a +-1 c/d alias among them
+
+
+def test_default_search_is_the_project_periodogram_and_handles_bands():
+    pytest.importorskip("core.periodogram")
+    t = _times(12)
+    rng = np.random.default_rng(12)
+    band = np.where(rng.uniform(size=t.size) < 0.6, "V", "I")
+    mag = _double_mode(t) + np.where(band == "I", -0.5, 0.0)
+    res = prewhiten(_star(t, mag, 12, band=band), F1O)
+    assert res.frequencies[1].kind == "independent"
+    assert res.period_ratio == pytest.approx(0.745, abs=3e-4)
