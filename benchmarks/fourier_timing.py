@@ -92,6 +92,7 @@ def main() -> None:
         n_search.append(len(spent))
     rows[f"prewhiten (up to 5, {n_search[-1]} searches)"] = 1e3 * statistics.median(total[1:])
     rows["prewhiten without its searches"] = 1e3 * statistics.median(own[1:])
+    rows["prewhiten, default search"] = median_ms(lambda: prewhiten(lc, f, settings), repeat=10)
     for name, ms in rows.items():
         print(f"{name:40s} {ms:8.2f} ms")
 

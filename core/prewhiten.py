@@ -167,10 +167,11 @@ class Prewhitening:
     frequencies: tuple[FoundFrequency, ...]
     main_order: int
     resolution: float
-    stop_reason: str  # "snr", "limit", "no peak", "too few points"
+    stop_reason: str  # "snr", "limit", "no peak", "too few points", "search failed"
     last_snr: float | None  # of the refused peak, when stopped by SNR
     residual_std: float
     n_points: int
+    note: str = ""  # why the search failed, if it did
 
     @property
     def independent(self) -> tuple[FoundFrequency, ...]:
@@ -209,6 +210,7 @@ class Prewhitening:
             "main_order": int(self.main_order),
             "resolution": float(self.resolution),
             "stop_reason": self.stop_reason,
+            "note": self.note,
             "last_snr": _opt(self.last_snr),
             "residual_std": float(self.residual_std),
             "n_points": int(self.n_points),
@@ -394,14 +396,18 @@ def prewhiten(
     alternatives: list[tuple[float, ...]] = [()]
     fit = multi_frequency_fit(t, m, e, freqs, orders, bidx, refine=settings.refine)
     fit = _keep_near(fit, t, m, e, freqs, orders, bidx, resolution, settings)
-    stop, last_snr = "limit", None
+    stop, last_snr, note = "limit", None, ""
     for step in range(1, settings.max_frequencies + 1):
         n_params = len(freqs) + len(band_names) * (1 + 2 * sum(orders))
         if t.size - n_params - 3 < 2 * len(band_names) + 1:
             stop = "too few points"
             break
         residual = LightCurve(star_id, t, fit.residuals, e, band=labels, time_scale=time_scale)
-        grid, power = search(residual)
+        try:
+            grid, power = search(residual)
+        except PhasewiseError as exc:  # e.g. a grid too large to compute unasked
+            stop, note = "search failed", exc.reason
+            break
         grid, power = np.asarray(grid, float), np.asarray(power, float)
         masked = np.zeros(grid.size, bool)
         known = [k * f_main for k in range(1, orders[0] + 1)] + list(fit.frequencies[1:])
@@ -469,6 +475,7 @@ def prewhiten(
         last_snr=last_snr,
         residual_std=resid_std,
         n_points=int(t.size),
+        note=note,
     )
 
 

@@ -1,7 +1,8 @@
 """Prewhitening on invented multi-periodic stars (injected truth checked).
 
-Until ``core.periodogram`` lands, the residual search here is astropy's
-``LombScargle`` on a plain grid.
+The residual search is astropy's ``LombScargle`` on a plain grid (an
+independent reference), except in the test of the default search, which is
+the project's own ``core.periodogram``.
 """
 
 from __future__ import annotations
@@ -203,7 +204,6 @@ def test_nightly_sampling_reports_the_aliases_of_a_second_mode():
 
 
 def test_default_search_is_the_project_periodogram_and_handles_bands():
-    pytest.importorskip("core.periodogram")
     t = _times(12)
     rng = np.random.default_rng(12)
     band = np.where(rng.uniform(size=t.size) < 0.6, "V", "I")
@@ -211,3 +211,16 @@ def test_default_search_is_the_project_periodogram_and_handles_bands():
     res = prewhiten(_star(t, mag, 12, band=band), F1O)
     assert res.frequencies[1].kind == "independent"
     assert res.period_ratio == pytest.approx(0.745, abs=3e-4)
+
+
+def test_a_search_that_refuses_stops_prewhitening_with_its_reason():
+    from core.errors import GridTooLargeError
+
+    def refusing(lc):
+        raise GridTooLargeError("grid of 2,000,000 frequencies is above the limit")
+
+    t = _times(13)
+    res = prewhiten(_star(t, _double_mode(t), 13), F1O, search=refusing)
+    assert res.stop_reason == "search failed" and "above the limit" in res.note
+    assert len(res.frequencies) == 1 and res.frequencies[0].kind == "main"
+    assert res.to_dict()["note"] == res.note
