@@ -324,9 +324,15 @@ def _analyse(
         flags.append(f"{len(outlier_times)} outlier(s) set aside for the Fourier fit")
     primary = "V" if "V" in fits else next(iter(fits))
 
-    pw = prewhiten(analysed, frequency, settings.prewhiten)
+    # reuse the decomposition: its order for prewhitening, its fit for the eclipse test
+    pw_settings = settings.prewhiten
+    if pw_settings.main_order is None:
+        pw_settings = replace(pw_settings, main_order=fits[primary].order)
+    pw = prewhiten(analysed, frequency, pw_settings)
     try:
-        ecl = eclipse_test(analysed, frequency, settings.eclipse)
+        ecl = eclipse_test(
+            analysed, frequency, settings.eclipse, fit_at_period=fits.get(analysed.bands[0])
+        )
     except PhasewiseError as exc:
         ecl = None
         flags.append(f"eclipse test not possible: {exc.reason}")
