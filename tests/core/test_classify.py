@@ -13,12 +13,21 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.classify import FEATURES, Rule, Suggestion, features_from_result, parse_rulebook, suggest
+from core.classify import (
+    FEATURES,
+    Rule,
+    Suggestion,
+    features_from_result,
+    load_rulebook,
+    parse_rulebook,
+    shipped_rulebook_path,
+    suggest,
+)
 
 SIGNIFICANT = {"fap": 1e-30, "snr": 40.0, "n_points": 600, "primary_band": "V"}
 
 RRAB = {**SIGNIFICANT, "period": 0.58, "amplitude": 0.9, "R21": 0.47, "R31": 0.32,
-        "rise_time": 0.17, "skewness": -0.7}  # fmt: skip
+        "rise_time": 0.17, "skewness": -0.7, "asymmetry": 0.6}  # fmt: skip
 RRC = {**SIGNIFICANT, "period": 0.32, "amplitude": 0.45, "R21": 0.12, "R31": 0.06,
        "rise_time": 0.42, "skewness": -0.15}  # fmt: skip
 EW_HALF = {**SIGNIFICANT, "period": 0.1875, "amplitude": 0.55, "R21": 0.05, "rise_time": 0.5,
@@ -108,8 +117,10 @@ def test_missing_features_lower_confidence_a_little():
     full = _get(suggest(RRAB), "RRab")
     partial = _get(suggest({**RRAB, "rise_time": None, "skewness": float("nan")}), "RRab")
     assert partial.score < full.score
-    # weight 3 of 10 missing, missing_penalty 0.15 → 1 - 0.15 * 0.3
-    assert partial.score == pytest.approx(1 - 0.15 * 0.3)
+    rules = load_rulebook(shipped_rulebook_path()).get("RRab").rules
+    total = sum(r.weight for r in rules)
+    lost = sum(r.weight for r in rules if r.feature in ("rise_time", "skewness"))
+    assert partial.score == pytest.approx(1 - 0.15 * lost / total)  # missing_penalty 0.15
     assert set(partial.missing) == {"rise_time", "skewness"}
     assert _top({**RRAB, "rise_time": None}).class_code == "RRab"
 
