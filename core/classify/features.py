@@ -186,7 +186,8 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
     ``residual_std``, ``period_ratio``, ``secondary_periods``, ``eclipse``
     (``depth_difference``, ``depth_difference_err``, ``odd_harmonic_fraction``,
     ``asymmetry``, ``depth_secondary_at_p``) and ``candidates`` (the chosen
-    peak's ``snr`` and ``alias`` mark).  Entries already in
+    peak's ``snr`` and ``alias`` mark).  A first-order fit gives R21 = R31 =
+    0 (no significant harmonic; an upper limit).  Entries already in
     ``result["features"]`` win.  Anything absent is None.
     """
     out: dict[str, Any] = {name: None for name in FEATURES}
@@ -225,6 +226,11 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
         out[f"{name}_err"] = _float(fourier.get(f"{name}_err"))
         if name in shift and out[name] is not None:
             out[name] = (out[name] + shift[name]) % (2 * math.pi)
+    if fourier.get("order") == 1:
+        # The order choice found no significant second or third harmonic:
+        # R21 and R31 are taken as 0 (an upper limit, not a measurement).
+        out["R21"] = 0.0 if out["R21"] is None else out["R21"]
+        out["R31"] = 0.0 if out["R31"] is None else out["R31"]
 
     model = _model_shape(fourier)
     if model is not None:

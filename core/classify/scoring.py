@@ -170,9 +170,9 @@ def _score_class(entry: ClassRules, values: Mapping[str, Any], penalty: float) -
     else:
         missing_weight = total - present
         score = gate * (weighted / present) * (1.0 - penalty * missing_weight / total)
-    return _Trial(
-        min(1.0, max(0.0, score)), tuple(reasons), tuple(against), tuple(missing), dict(values)
-    )
+    # Rounded so that float noise does not reorder equal scores.
+    score = round(min(1.0, max(0.0, score)), 9)
+    return _Trial(score, tuple(reasons), tuple(against), tuple(missing), dict(values))
 
 
 def _with_period(values: Mapping[str, Any], period: float) -> dict[str, Any]:

@@ -37,7 +37,7 @@ EB_HALF = {**EW_HALF, "depth_difference": 0.3, "depth_difference_err": 0.02, "pe
 DCEP = {**SIGNIFICANT, "period": 8.3, "amplitude": 0.8, "R21": 0.4, "rise_time": 0.28,
         "skewness": -0.4}  # fmt: skip
 DSCT = {**SIGNIFICANT, "period": 0.071, "amplitude": 0.55, "R21": 0.3, "rise_time": 0.33,
-        "skewness": -0.4}  # fmt: skip
+        "skewness": -0.4, "asymmetry": 0.4}  # fmt: skip
 NOISE = {"fap": 0.6, "snr": 2.1, "period": 0.377, "amplitude": 0.02, "primary_band": "V"}
 
 
@@ -228,3 +228,30 @@ def test_features_from_result_follows_the_contract():
 def test_eclipsing_period_not_doubled_when_already_orbital():
     features = {**EB_HALF, "two_minima_at_p": 1.0}
     assert _get(suggest(features), "EB").period == pytest.approx(EB_HALF["period"])
+
+
+def test_model_skewness_and_rise_time_from_fourier_terms():
+    from scipy.stats import skew
+
+    # A sharp-maximum curve: sine series m = sum A_i sin(2 pi i phi + phi_i).
+    amplitudes, phases = [0.35, 0.17, 0.11], [0.3, 2.2, 4.4]
+    result = {"fourier": {"form": "sine", "amplitudes": amplitudes, "phases": phases, "order": 3}}
+    features = features_from_result(result)
+    phase = [i / 5000 for i in range(5000)]
+    curve = [
+        sum(
+            a * math.sin(2 * math.pi * (k + 1) * p + f)
+            for k, (a, f) in enumerate(zip(amplitudes, phases, strict=True))
+        )
+        for p in phase
+    ]
+    # scipy.stats.skew (population form) as the reference on an independent sampling.
+    assert features["skewness"] == pytest.approx(skew(curve), abs=2e-3)
+    brightest, faintest = phase[curve.index(min(curve))], phase[curve.index(max(curve))]
+    assert features["rise_time"] == pytest.approx((brightest - faintest) % 1.0, abs=1e-3)
+    single = features_from_result(
+        {"fourier": {"form": "sine", "amplitudes": [0.3], "phases": [1.0], "order": 1}}
+    )
+    assert single["skewness"] == pytest.approx(0.0, abs=1e-9)
+    assert single["rise_time"] == pytest.approx(0.5, abs=1e-3)
+    assert single["R21"] == 0.0  # order 1: no significant harmonic, taken as an upper limit
