@@ -14,9 +14,11 @@ Conventions (the analysis must follow them when it fills the mapping):
 * Fourier parameters are of the primary band and in the **sine** form
   ``m = A0 + sum A_i sin(2 pi i (t - t0) / P + phi_i)`` (Jurcsik & Kovács
   1996), phases in radians in [0, 2 pi).
-* ``skewness`` is the sample skewness of the *magnitudes* of the primary band:
-  positive means a tail toward faint values (narrow minima, as in eclipses),
-  negative a tail toward bright values (a sharp maximum, as in RRab stars).
+* ``skewness`` is the skewness of the primary band's Fourier *model* in
+  magnitudes, sampled evenly in phase: positive means a tail toward faint
+  values (narrow minima, as in eclipses), negative a tail toward bright values
+  (a sharp maximum, as in RRab stars).  :func:`features_from_result` computes
+  it (and ``rise_time`` if absent) from the Fourier amplitudes and phases.
 """
 
 from __future__ import annotations
@@ -26,6 +28,8 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
+
+import numpy as np
 
 __all__ = ["Feature", "FEATURES", "feature_info", "is_known_feature", "features_from_result"]
 
@@ -65,11 +69,21 @@ FEATURES: dict[str, Feature] = _features(
     ("phi21_err", "rad", "1-sigma uncertainty of phi21"),
     ("phi31_err", "rad", "1-sigma uncertainty of phi31"),
     ("rise_time", "phase", "phase interval from minimum to maximum light (0.5 = symmetric)"),
-    ("skewness", "", "sample skewness of the magnitudes (> 0: narrow minima)"),
+    (
+        "skewness",
+        "",
+        "skewness of the Fourier model magnitudes over one cycle (> 0: narrow minima); "
+        "the model, not the points, so outliers do not drive it",
+    ),
     ("period_ratio", "", "shorter / longer of the two strongest independent periods"),
     ("secondary_period", "d", "second independent period from prewhitening"),
     ("depth_difference", "mag", "difference of alternate minima when folded at 2 * period"),
     ("depth_difference_err", "mag", "1-sigma uncertainty of depth_difference"),
+    (
+        "depth_difference_fraction",
+        "",
+        "depth_difference / amplitude (filled in by suggest when both are known)",
+    ),
     (
         "second_harmonic_weight",
         "",
@@ -97,6 +111,11 @@ FEATURES: dict[str, Feature] = _features(
     ("fap", "", "false-alarm probability of the chosen peak"),
     ("snr", "", "signal-to-noise ratio of the chosen peak"),
     ("residual_std", "mag", "standard deviation of the residuals from the Fourier model"),
+    (
+        "amplitude_to_noise",
+        "",
+        "amplitude / residual_std (filled in by suggest when both are known)",
+    ),
     ("is_alias", "", "1 when the periodogram marks the chosen peak 'alias', else 0"),
     ("alias_period", "d", "the other period the alias mark points to (d)"),
     ("primary_band", "", "the band the Fourier parameters refer to", False),
@@ -167,7 +186,8 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
     ``residual_std``, ``period_ratio``, ``secondary_periods``, ``eclipse``
     (``depth_difference``, ``depth_difference_err``, ``odd_harmonic_fraction``,
     ``asymmetry``, ``depth_secondary_at_p``) and ``candidates`` (the chosen
-    peak's ``snr`` and ``alias`` mark).  Entries already in
+    peak's ``snr`` and ``alias`` mark).  A first-order fit gives R21 = R31 =
+    0 (no significant harmonic; an upper limit).  Entries already in
     ``result["features"]`` win.  Anything absent is None.
     """
     out: dict[str, Any] = {name: None for name in FEATURES}
@@ -206,6 +226,17 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
         out[f"{name}_err"] = _float(fourier.get(f"{name}_err"))
         if name in shift and out[name] is not None:
             out[name] = (out[name] + shift[name]) % (2 * math.pi)
+    if fourier.get("order") == 1:
+        # The order choice found no significant second or third harmonic:
+        # R21 and R31 are taken as 0 (an upper limit, not a measurement).
+        out["R21"] = 0.0 if out["R21"] is None else out["R21"]
+        out["R31"] = 0.0 if out["R31"] is None else out["R31"]
+
+    model = _model_shape(fourier)
+    if model is not None:
+        out["skewness"] = model[0]
+        if out["rise_time"] is None:
+            out["rise_time"] = model[1]
 
     secondary = result.get("secondary_periods") or []
     if secondary:
@@ -247,3 +278,30 @@ def _chosen_candidate(result: Mapping[str, Any]) -> Mapping[str, Any] | None:
         if abs((_float(best.get("frequency")) or 0) - frequency) <= 1e-6 * frequency + 1e-9:
             return best
     return candidates[0]
+
+
+def _model_shape(fourier: Mapping[str, Any]) -> tuple[float, float] | None:
+    """(skewness, rise time) of the Fourier model over one cycle, or None."""
+    amplitudes = fourier.get("amplitudes")
+    phases = fourier.get("phases")
+    if not amplitudes or not phases or len(amplitudes) != len(phases):
+        return None
+    try:
+        amp = np.asarray(amplitudes, dtype=float)
+        pha = np.asarray(phases, dtype=float)
+    except (TypeError, ValueError):
+        return None
+    if not (np.all(np.isfinite(amp)) and np.all(np.isfinite(pha))) or amp.sum() <= 0:
+        return None
+    phase = np.arange(2000) / 2000.0
+    order = np.arange(1, len(amp) + 1)[:, None]
+    angle = 2 * np.pi * order * phase + pha[:, None]
+    terms = np.sin(angle) if fourier.get("form", "sine") == "sine" else np.cos(angle)
+    curve = (amp[:, None] * terms).sum(axis=0)
+    spread = curve.std()
+    if spread == 0:
+        return None
+    skewness = float(np.mean((curve - curve.mean()) ** 3) / spread**3)
+    # Maximum light is the smallest magnitude; rise = phase from minimum to maximum.
+    rise = float((phase[np.argmin(curve)] - phase[np.argmax(curve)]) % 1.0)
+    return skewness, rise

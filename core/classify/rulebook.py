@@ -15,6 +15,8 @@ The rulebook is data only: no code, no eval.  Layout::
     weight = 3.0
     says = "RRab range"         # optional words used in the reasons
     required = false            # optional; true: the class scores 0 without it
+    gate = false                # optional; true: the score is also multiplied by
+                                # this rule's membership (e.g. significance)
     source = "common practice, no source"
 
     [class.T2CEP.subtype."W Vir"]   # subtypes are chosen by one feature's range
@@ -81,7 +83,7 @@ CLASS_CODES = (
     "UNKNOWN",
 )
 
-_RULE_KEYS = {"range", "margin", "weight", "source", "says", "required"}
+_RULE_KEYS = {"range", "margin", "weight", "source", "says", "required", "gate"}
 _RULE_REQUIRED = ("range", "margin", "weight", "source")
 _SUBTYPE_KEYS = {"feature", "range", "source"}
 _CLASS_KEYS = {"label", "eclipsing", "score", "subtype"}
@@ -101,6 +103,7 @@ class Rule:
     says: str = ""
     line: int = 0
     required: bool = False
+    gate: bool = False
 
     def membership(self, value: float) -> float:
         """1 inside ``[low, high]``, falling linearly to 0 one margin outside."""
@@ -404,13 +407,18 @@ def _parse_rule(path: tuple[str, ...], feature: str, body: dict, lines: _Lines, 
                 lines.key(rule_path, key), f"{what} {key}: expected non-empty text, got {value!r}"
             )
         texts[key] = value
-    required = body.get("required", False)
-    if not isinstance(required, bool):
-        raise fail(
-            lines.key(rule_path, "required"),
-            f"{what} required: expected true or false, got {required!r}",
-        )
-    return Rule(feature, low, high, margin, weight, texts["source"], texts["says"], line, required)
+    flags = {}
+    for key in ("required", "gate"):
+        flags[key] = body.get(key, False)
+        if not isinstance(flags[key], bool):
+            raise fail(
+                lines.key(rule_path, key),
+                f"{what} {key}: expected true or false, got {flags[key]!r}",
+            )
+    return Rule(
+        feature, low, high, margin, weight, texts["source"], texts["says"], line,
+        flags["required"], flags["gate"],
+    )  # fmt: skip
 
 
 def _parse_subtypes(path: tuple[str, ...], body: Any, lines: _Lines, fail) -> tuple[Subtype, ...]:

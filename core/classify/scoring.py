@@ -5,7 +5,9 @@ linearly to 0 one margin outside.  A class's score is the weighted mean of the
 memberships of the rules whose feature is present.  Missing features neither
 help nor hurt the mean, but lower confidence a little: the score is multiplied
 by ``1 - missing_penalty * (missing weight / total weight)``.  A rule marked
-``required`` makes the class score 0 when its feature is missing.
+``required`` makes the class score 0 when its feature is missing; a rule
+marked ``gate`` also multiplies the score by its membership (used for the
+significance of the period, which no amount of shape evidence replaces).
 
 Periods tried per class:
 
@@ -83,8 +85,8 @@ class Suggestion:
 
 
 def clean_features(features: Mapping[str, Any]) -> dict[str, Any]:
-    """Plain floats (NaN → None), with ``log_period`` and ``amplitude`` filled in
-    from ``period`` and ``amplitude_<primary_band>`` when absent."""
+    """Plain floats (NaN → None), with ``log_period``, ``amplitude`` and
+    ``depth_difference_fraction`` filled in when absent."""
     out: dict[str, Any] = {}
     for name, value in features.items():
         if value is None or isinstance(value, str):
@@ -105,6 +107,12 @@ def clean_features(features: Mapping[str, Any]) -> dict[str, Any]:
     band = out.get("primary_band")
     if out.get("amplitude") is None and isinstance(band, str):
         out["amplitude"] = out.get(f"amplitude_{band}")
+    noise = out.get("residual_std")
+    if out.get("amplitude_to_noise") is None and out.get("amplitude") is not None and noise:
+        out["amplitude_to_noise"] = out["amplitude"] / noise
+    depth, amplitude = out.get("depth_difference"), out.get("amplitude")
+    if out.get("depth_difference_fraction") is None and depth is not None and amplitude:
+        out["depth_difference_fraction"] = abs(depth) / amplitude
     return out
 
 
@@ -142,6 +150,7 @@ class _Trial:
 def _score_class(entry: ClassRules, values: Mapping[str, Any], penalty: float) -> _Trial:
     total = sum(rule.weight for rule in entry.rules)
     present = weighted = 0.0
+    gate = 1.0
     reasons, against, missing = [], [], []
     for rule in entry.rules:
         value = values.get(rule.feature)
@@ -151,6 +160,8 @@ def _score_class(entry: ClassRules, values: Mapping[str, Any], penalty: float) -
                 against.append(f"{rule.feature} is needed for {entry.code} but was not measured")
             continue
         member = rule.membership(value)
+        if rule.gate:
+            gate *= member
         present += rule.weight
         weighted += rule.weight * member
         (reasons if member >= 0.5 else against).append(_describe(rule, value, entry.code, member))
@@ -158,10 +169,10 @@ def _score_class(entry: ClassRules, values: Mapping[str, Any], penalty: float) -
         score = 0.0
     else:
         missing_weight = total - present
-        score = (weighted / present) * (1.0 - penalty * missing_weight / total)
-    return _Trial(
-        min(1.0, max(0.0, score)), tuple(reasons), tuple(against), tuple(missing), dict(values)
-    )
+        score = gate * (weighted / present) * (1.0 - penalty * missing_weight / total)
+    # Rounded so that float noise does not reorder equal scores.
+    score = round(min(1.0, max(0.0, score)), 9)
+    return _Trial(score, tuple(reasons), tuple(against), tuple(missing), dict(values))
 
 
 def _with_period(values: Mapping[str, Any], period: float) -> dict[str, Any]:

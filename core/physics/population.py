@@ -178,7 +178,7 @@ def population_summary(stars: Iterable[StarPhysics | Mapping[str, Any]]) -> Popu
     ``class_code``, ``period`` and ``physics`` (list of PhysicalValue dicts).
     """
     stars = [_as_star(s) for s in stars]
-    rrab = [s.period for s in stars if s.class_code == "RRab" and s.period]
+    rrab = [float(s.period) for s in stars if s.class_code == "RRab" and s.period]
     n_rrc = sum(1 for s in stars if s.class_code == "RRc")
     n_rrab = sum(1 for s in stars if s.class_code == "RRab")
     mean_p = mean_p_err = oo = None
@@ -198,7 +198,9 @@ def population_summary(stars: Iterable[StarPhysics | Mapping[str, Any]]) -> Popu
     for star in stars:
         mu = star.mu0()
         if mu is not None:
-            by_class.setdefault(star.class_code, []).append((star.star_id, mu[0], mu[1]))
+            by_class.setdefault(star.class_code, []).append(
+                (star.star_id, float(mu[0]), float(mu[1]))
+            )
     distances = tuple(
         d for code, members in by_class.items() if (d := class_distance(code, members)) is not None
     )

@@ -13,12 +13,21 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.classify import FEATURES, Rule, Suggestion, features_from_result, parse_rulebook, suggest
+from core.classify import (
+    FEATURES,
+    Rule,
+    Suggestion,
+    features_from_result,
+    load_rulebook,
+    parse_rulebook,
+    shipped_rulebook_path,
+    suggest,
+)
 
 SIGNIFICANT = {"fap": 1e-30, "snr": 40.0, "n_points": 600, "primary_band": "V"}
 
 RRAB = {**SIGNIFICANT, "period": 0.58, "amplitude": 0.9, "R21": 0.47, "R31": 0.32,
-        "rise_time": 0.17, "skewness": -0.7}  # fmt: skip
+        "rise_time": 0.17, "skewness": -0.7, "asymmetry": 0.6}  # fmt: skip
 RRC = {**SIGNIFICANT, "period": 0.32, "amplitude": 0.45, "R21": 0.12, "R31": 0.06,
        "rise_time": 0.42, "skewness": -0.15}  # fmt: skip
 EW_HALF = {**SIGNIFICANT, "period": 0.1875, "amplitude": 0.55, "R21": 0.05, "rise_time": 0.5,
@@ -28,7 +37,7 @@ EB_HALF = {**EW_HALF, "depth_difference": 0.3, "depth_difference_err": 0.02, "pe
 DCEP = {**SIGNIFICANT, "period": 8.3, "amplitude": 0.8, "R21": 0.4, "rise_time": 0.28,
         "skewness": -0.4}  # fmt: skip
 DSCT = {**SIGNIFICANT, "period": 0.071, "amplitude": 0.55, "R21": 0.3, "rise_time": 0.33,
-        "skewness": -0.4}  # fmt: skip
+        "skewness": -0.4, "asymmetry": 0.4}  # fmt: skip
 NOISE = {"fap": 0.6, "snr": 2.1, "period": 0.377, "amplitude": 0.02, "primary_band": "V"}
 
 
@@ -108,8 +117,10 @@ def test_missing_features_lower_confidence_a_little():
     full = _get(suggest(RRAB), "RRab")
     partial = _get(suggest({**RRAB, "rise_time": None, "skewness": float("nan")}), "RRab")
     assert partial.score < full.score
-    # weight 3 of 10 missing, missing_penalty 0.15 → 1 - 0.15 * 0.3
-    assert partial.score == pytest.approx(1 - 0.15 * 0.3)
+    rules = load_rulebook(shipped_rulebook_path()).get("RRab").rules
+    total = sum(r.weight for r in rules)
+    lost = sum(r.weight for r in rules if r.feature in ("rise_time", "skewness"))
+    assert partial.score == pytest.approx(1 - 0.15 * lost / total)  # missing_penalty 0.15
     assert set(partial.missing) == {"rise_time", "skewness"}
     assert _top({**RRAB, "rise_time": None}).class_code == "RRab"
 
@@ -217,3 +228,30 @@ def test_features_from_result_follows_the_contract():
 def test_eclipsing_period_not_doubled_when_already_orbital():
     features = {**EB_HALF, "two_minima_at_p": 1.0}
     assert _get(suggest(features), "EB").period == pytest.approx(EB_HALF["period"])
+
+
+def test_model_skewness_and_rise_time_from_fourier_terms():
+    from scipy.stats import skew
+
+    # A sharp-maximum curve: sine series m = sum A_i sin(2 pi i phi + phi_i).
+    amplitudes, phases = [0.35, 0.17, 0.11], [0.3, 2.2, 4.4]
+    result = {"fourier": {"form": "sine", "amplitudes": amplitudes, "phases": phases, "order": 3}}
+    features = features_from_result(result)
+    phase = [i / 5000 for i in range(5000)]
+    curve = [
+        sum(
+            a * math.sin(2 * math.pi * (k + 1) * p + f)
+            for k, (a, f) in enumerate(zip(amplitudes, phases, strict=True))
+        )
+        for p in phase
+    ]
+    # scipy.stats.skew (population form) as the reference on an independent sampling.
+    assert features["skewness"] == pytest.approx(skew(curve), abs=2e-3)
+    brightest, faintest = phase[curve.index(min(curve))], phase[curve.index(max(curve))]
+    assert features["rise_time"] == pytest.approx((brightest - faintest) % 1.0, abs=1e-3)
+    single = features_from_result(
+        {"fourier": {"form": "sine", "amplitudes": [0.3], "phases": [1.0], "order": 1}}
+    )
+    assert single["skewness"] == pytest.approx(0.0, abs=1e-9)
+    assert single["rise_time"] == pytest.approx(0.5, abs=1e-3)
+    assert single["R21"] == 0.0  # order 1: no significant harmonic, taken as an upper limit

@@ -200,3 +200,15 @@ def test_population_accepts_dicts_from_results():
               "physics": [v.to_dict() for v in values]}  # fmt: skip
     summary = population_summary([record])
     assert summary.distances[0].mu0 == pytest.approx(_by(values, "mu0")[0].value)
+
+
+def test_summary_is_plain_json():
+    import json
+
+    import numpy as np
+
+    stars = [
+        _star(f"s{i}", "RRab", np.float64(0.55 + 0.01 * i), np.float64(14.0), 0.1) for i in range(4)
+    ]
+    data = population_summary(stars).to_dict()
+    assert json.loads(json.dumps(data))["mean_rrab_period"] == pytest.approx(0.565)

@@ -166,3 +166,20 @@ def test_not_toml_and_missing_file(tmp_path):
 def test_per_band_amplitude_is_a_known_feature():
     text = GOOD.replace("[class.RRab.period]", "[class.RRab.amplitude_R]")
     assert parse_rulebook(text).get("RRab").rules[0].feature == "amplitude_R"
+
+
+def test_subtype_errors_name_their_line():
+    text = shipped_rulebook_path().read_text()
+    bad = text.replace("range = [4.0, 20.0]", "range = [20.0, 4.0]")
+    line = _line_of(bad, "range = [20.0, 4.0]")
+    with pytest.raises(
+        RulebookError, match=rf'line {line}: \[class\.T2CEP\.subtype\."W Vir"\] range: reversed'
+    ):
+        parse_rulebook(bad, name="copy.toml")
+    bad = text.replace(
+        '[class.LPV.subtype.Mira-like]\nfeature = "amplitude"',
+        '[class.LPV.subtype.Mira-like]\nfeature = "amplitud"',
+    )
+    line = _line_of(bad, 'feature = "amplitud"')
+    with pytest.raises(RulebookError, match=rf"line {line}: .*unknown feature 'amplitud'"):
+        parse_rulebook(bad, name="copy.toml")
