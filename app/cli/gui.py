@@ -109,31 +109,40 @@ def _progress(done: int, total: int, message: str = "") -> None:
         print(f"\r{done}/{total} {message:40.40}", end="", file=sys.stderr, flush=True)
 
 
-def ensure_demo_ledger(folder: Path, rebuild: bool = False, report=_progress) -> Path:
-    """The demo ledger in ``folder``, built from its survey files when needed."""
-    from app.desk.building import build_ledger
+def demo_needs_build(folder: Path, rebuild: bool = False) -> tuple[list[Path], Path, bool]:
+    """(survey files, demo ledger path, whether it must be (re)built)."""
     from app.desk.services import CoreServices
 
     files = demo_files(folder)
     target = folder / DEMO_LEDGER
-    services = CoreServices()
-    settings = services.default_settings()
-    if rebuild or not _up_to_date(target, files, settings):
-        for suffix in ("", "-wal", "-shm"):
-            stale = target.with_name(target.name + suffix)
-            if stale.exists():
-                stale.unlink()
+    settings = CoreServices().default_settings()
+    return files, target, rebuild or not _up_to_date(target, files, settings)
+
+
+def _remove_ledger(target: Path) -> None:
+    for suffix in ("", "-wal", "-shm"):
+        stale = target.with_name(target.name + suffix)
+        if stale.exists():
+            stale.unlink()
+
+
+def ensure_demo_ledger(folder: Path, rebuild: bool = False, report=_progress) -> Path:
+    """The demo ledger in ``folder``, built from its survey files when needed (no window)."""
+    from app.desk.building import build_ledger
+    from app.desk.services import CoreServices
+
+    files, target, build = demo_needs_build(folder, rebuild)
+    if build:
+        services = CoreServices()
+        _remove_ledger(target)
         print(f"building {target} from {len(files)} file(s)…", file=sys.stderr)
-        build_ledger(services, files, None, target, settings, report=report)
+        build_ledger(services, files, None, target, services.default_settings(), report=report)
         print(file=sys.stderr)
     return target
 
 
-def _ledger_from_files(paths, columns, ledger) -> Path:
-    from app.desk.building import build_ledger
-    from app.desk.services import CoreServices
-
-    services = CoreServices()
+def _target_for(paths, columns, ledger):
+    """(mapping, new ledger path) for photometry files given on the command line."""
     mapping = None
     if columns:
         from core.io import ColumnMapping
@@ -145,6 +154,14 @@ def _ledger_from_files(paths, columns, ledger) -> Path:
         raise PhasewiseError(
             "a ledger of that name exists; open it directly or give --ledger", file=str(target)
         )
+    return mapping, target
+
+
+def _ledger_from_files(paths, mapping, target) -> Path:
+    from app.desk.building import build_ledger
+    from app.desk.services import CoreServices
+
+    services = CoreServices()
     print(f"importing {len(paths)} file(s) into {target}…", file=sys.stderr)
     build_ledger(
         services, list(paths), mapping, target, services.default_settings(), report=_progress
@@ -154,7 +171,9 @@ def _ledger_from_files(paths, columns, ledger) -> Path:
 
 
 # ------------------------------------------------------------------ window
-def _show(ledger_path: Path | None, args) -> int:
+def _show(ledger_path: Path | None, args, build=None) -> int:
+    """Open the window on a ledger, or build one first inside it (``build``:
+    files, mapping, target) with a progress dialog and a Cancel button."""
     import gc
     import tempfile
 
@@ -179,10 +198,12 @@ def _show(ledger_path: Path | None, args) -> int:
         window.show()
         if ledger_path is not None:
             window.open_ledger(ledger_path)
-            if args.star:
-                if args.star not in window.star_list.model.star_ids():
-                    raise PhasewiseError(f"no star {args.star!r} in the ledger", field="--star")
-                window.select_star(args.star)
+            _select(window, args.star)
+        elif build is not None:
+            files, mapping, target = build
+            window.build_ledger(
+                files, mapping, target, on_done=lambda _path, w=window: _select(w, args.star)
+            )
         window.show_view(args.view)
         if args.screenshot:
             window.wait_idle()
@@ -201,6 +222,13 @@ def _show(ledger_path: Path | None, args) -> int:
             tmp.cleanup()
 
 
+def _select(window, star_id) -> None:
+    if star_id:
+        if star_id not in window.star_list.model.star_ids():
+            raise PhasewiseError(f"no star {star_id!r} in the ledger", field="--star")
+        window.select_star(star_id)
+
+
 def _attach_views(window) -> None:
     """Let other views (the population view) dock into the window if present."""
     try:
@@ -213,8 +241,13 @@ def _attach_views(window) -> None:
 
 
 def run_demo(args) -> int:
-    ledger = ensure_demo_ledger(Path(args.data), rebuild=args.rebuild)
-    return _show(ledger, args)
+    if args.screenshot:
+        return _show(ensure_demo_ledger(Path(args.data), rebuild=args.rebuild), args)
+    files, target, build = demo_needs_build(Path(args.data), args.rebuild)
+    if not build:
+        return _show(target, args)
+    _remove_ledger(target)
+    return _show(None, args, build=(files, None, target))
 
 
 def run_open(args) -> int:
@@ -228,4 +261,7 @@ def run_open(args) -> int:
         return _show(paths[0], args)
     if any(p.name.endswith(".sqlite") for p in paths):
         raise PhasewiseError("give one ledger, or photometry files, not both")
-    return _show(_ledger_from_files(paths, args.columns, args.ledger), args)
+    mapping, target = _target_for(paths, args.columns, args.ledger)
+    if args.screenshot:
+        return _show(_ledger_from_files(paths, mapping, target), args)
+    return _show(None, args, build=(paths, mapping, target))

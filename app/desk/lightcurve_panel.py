@@ -69,7 +69,7 @@ class LightCurvePanel(QWidget):
         self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         bar = QHBoxLayout()
         bar.addWidget(QLabel("<b>Light curve</b>"))
-        bar.addWidget(self.info, 1)
+        bar.addStretch(1)
         bar.addWidget(self.select_box)
         bar.addWidget(self.lasso_box)
         bar.addWidget(self.show_errors)
@@ -77,6 +77,7 @@ class LightCurvePanel(QWidget):
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addLayout(bar)
         layout.addWidget(self.plot, 1)
+        layout.addWidget(self.info)
 
         self.show_errors.toggled.connect(self._toggle_errors)
         self.select_box.toggled.connect(self._toggle_select)
@@ -126,8 +127,10 @@ class LightCurvePanel(QWidget):
         self.excluded.setData(x[bad], lc.mag[bad])
         self.legend.addItem(self.excluded, f"excluded ({int(bad.sum())})")
         set_labels(self.plot, f"Time − {self.t0:.0f} ({lc.time_scale}, d)", "Magnitude (mag)")
-        self.info.setText(
-            f"{lc.star_id}: {lc.n_good} of {lc.n_points} points, baseline {lc.baseline:.1f} d"
+        self.info.setText(f"{lc.n_good} of {lc.n_points} points · {lc.baseline:.0f} d")
+        self.info.setToolTip(
+            f"{lc.star_id}: {lc.n_good} good of {lc.n_points} points, "
+            f"baseline {lc.baseline:.1f} d, bands {', '.join(bands)}"
         )
         self._set_range(x, lc.mag, np.isfinite(x) & np.isfinite(lc.mag))
 

@@ -245,21 +245,24 @@ class PeriodogramPanel(QWidget):
         cf = np.array([c["frequency"] for c in self.candidates], dtype=float)
         cp = np.array([c["power"] for c in self.candidates], dtype=float)
         self.cand_points.setData(self._x(cf), cp)
-        listing = []
+        listing, details = [], []
         for i, text in enumerate(self.labels):
             if i < len(self.candidates):
                 c = self.candidates[i]
-                marks = "; ".join(_mark_text(c))
+                marks = ", ".join(str(m) for m in (c.get("marks") or ()))
                 listing.append(
                     f"<b>{i + 1}</b>: {fmt_period(c['period'])} d"
                     + (f" <i>({marks})</i>" if marks else "")
                 )
+                for d in _mark_text(c):
+                    details.append(f"{i + 1}: {d}")
                 text.setText(str(i + 1))
                 text.setPos(float(self._x(c["frequency"])), float(c["power"]))
                 text.setVisible(True)
             else:
                 text.setVisible(False)
         self.candidate_list.setText(" · ".join(listing) if listing else "no candidates")
+        self.candidate_list.setToolTip("\n".join(details) or "no marks")
         levels = dict(view.fap_levels)
         for (fap, _colour), line in zip(FAP_STYLES, self.fap_lines, strict=True):
             if fap in levels and np.isfinite(levels[fap]):

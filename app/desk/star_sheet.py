@@ -211,7 +211,8 @@ class StarSheet(QWidget):
         add("FAP", _e(fmt(r.get("fap"), 2)))
         add("Method", _e(r.get("method") or "–"))
         scale = r.get("time_scale") or ""
-        add("Epoch of max.", _e(fmt(r.get("epoch_max"), 10)), f"{scale} d".strip())
+        epoch = _num(r.get("epoch_max"))
+        add("Epoch of max.", f"{epoch:.5f}" if epoch is not None else "–", f"{scale} d".strip())
         add("Points", f"{r.get('n_good', '–')} good of {r.get('n_points', '–')}")
         bands = r.get("bands") or []
         means = r.get("mean_mag_by_band") or {}
