@@ -1,8 +1,14 @@
 import os
+import shutil
+from pathlib import Path
 
 import pytest
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+ROOT = Path(__file__).resolve().parents[2]
+#: The first stars of the committed demo survey: two RR Lyrae of each kind and constants.
+SUBSET = ("CAL-V001", "CAL-V002", "CAL-V003", "CAL-V004", "CAL-V005", "CAL-V006")
 
 
 @pytest.fixture
@@ -10,6 +16,36 @@ def qsettings(tmp_path):
     from PySide6.QtCore import QSettings
 
     return QSettings(str(tmp_path / "phasewise.ini"), QSettings.Format.IniFormat)
+
+
+@pytest.fixture(scope="session")
+def demo_subset(tmp_path_factory) -> Path:
+    """A ledger of six demo stars analysed by core.analysis (built once per run)."""
+    from core.analysis import AnalysisSettings, analyse
+    from core.io import open_photometry
+    from core.ledger import Ledger
+    from core.settings import settings_hash, settings_to_dict
+
+    path = tmp_path_factory.mktemp("ledger") / "subset.ledger.sqlite"
+    source = open_photometry(ROOT / "demo_data" / "stars")
+    settings = AnalysisSettings()
+    ledger = Ledger.create(path)
+    ledger.set_analysis_settings(settings_to_dict(settings), settings_hash(settings))
+    stars = [source.star(sid) for sid in SUBSET]
+    ledger.add_stars(stars, source_file="demo_data/stars")
+    ledger.store_results(
+        [(lc.star_id, settings_hash(settings), analyse(lc, settings).to_dict()) for lc in stars]
+    )
+    ledger.close()
+    return path
+
+
+@pytest.fixture
+def subset_copy(demo_subset, tmp_path) -> Path:
+    """A fresh copy of the six-star ledger for one test."""
+    target = tmp_path / "field.ledger.sqlite"
+    shutil.copy(demo_subset, target)
+    return target
 
 
 def dispose(window):

@@ -1,4 +1,8 @@
-"""Click through the vetting workflow on a small ledger (pytest-qt, offscreen)."""
+"""Click through the vetting workflow on six demo stars (pytest-qt, offscreen).
+
+Everything is real: the ledger, core.analysis results, periodograms, Fourier
+fits and the export.
+"""
 
 from __future__ import annotations
 
@@ -10,16 +14,12 @@ from app.desk import MainWindow
 from app.desk.star_list import StarTableModel
 
 from .conftest import dispose
-from .fakes import FakeServices, real_ledger
 
 
 @pytest.fixture
-def desk(qtbot, qsettings, tmp_path):
-    path = tmp_path / "field.ledger.sqlite"
-    ledger = real_ledger(path)
-    services = FakeServices()
-    window = MainWindow(services, qsettings)
-    window.set_ledger(ledger, path)
+def desk(qtbot, qsettings, subset_copy):
+    window = MainWindow(settings=qsettings)
+    window.open_ledger(subset_copy)
     window.show()
     qtbot.waitUntil(lambda: window.periodogram.view is not None, timeout=10000)
     yield window
@@ -44,9 +44,9 @@ def _fold_phases(window):
 
 
 def test_open_select_pick_peak_nudge(desk, qtbot):
-    assert desk.current_star == "NV-001"
+    assert desk.current_star == "CAL-V001"
     _click_row(qtbot, desk, 1)
-    qtbot.waitUntil(lambda: desk.current_star == "NV-002")
+    qtbot.waitUntil(lambda: desk.current_star == "CAL-V002")
     qtbot.waitUntil(lambda: desk.periodogram.view is not None and bool(desk.periodogram.candidates))
     analysed = desk.session.period
     second = desk.periodogram.candidates[1]
@@ -71,42 +71,42 @@ def test_open_select_pick_peak_nudge(desk, qtbot):
 
 def test_verdicts_undo_and_reopen(desk, qtbot, qsettings):
     ledger = desk.ledger
-    # confirm NV-001 at a nudged period
+    # confirm CAL-V001 at a nudged period
     qtbot.keyClick(desk, Qt.Key.Key_Period)
     nudged = desk.session.period
     qtbot.keyClick(desk, Qt.Key.Key_Y)
-    v = ledger.verdict("NV-001")
+    v = ledger.verdict("CAL-V001")
     assert (v.status, v.class_code) == ("confirmed", "RRab")
     assert v.period == pytest.approx(nudged)
-    assert desk.current_star == "NV-002"  # advanced to the next unreviewed star
+    assert desk.current_star == "CAL-V002"  # advanced to the next unreviewed star
     qtbot.keyClick(desk, Qt.Key.Key_2)  # relabel as RRc
-    assert (ledger.verdict("NV-002").status, ledger.verdict("NV-002").class_code) == (
+    assert (ledger.verdict("CAL-V002").status, ledger.verdict("CAL-V002").class_code) == (
         "relabelled",
         "RRc",
     )
     desk.sheet.note_edit.setText("blended with a neighbour")
     qtbot.mouseClick(desk.sheet.reject_button, Qt.MouseButton.LeftButton)
-    assert ledger.verdict("NV-003").status == "rejected"
-    assert ledger.verdict("NV-003").note == "blended with a neighbour"
+    assert ledger.verdict("CAL-V003").status == "rejected"
+    assert ledger.verdict("CAL-V003").note == "blended with a neighbour"
     qtbot.keyClick(desk, Qt.Key.Key_D)
-    assert ledger.verdict("NV-004").status == "deferred"
+    assert ledger.verdict("CAL-V004").status == "deferred"
     model = desk.star_list.model
-    assert model.value("NV-004", "status") == "deferred"
+    assert model.value("CAL-V004", "status") == "deferred"
     assert model.status_counts()["unreviewed"] == 2
     # undo the deferral: back to unreviewed, in the ledger and in the list
     qtbot.keyClick(desk, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
-    assert ledger.verdict("NV-004").status == "unreviewed"
-    assert model.value("NV-004", "status") == "unreviewed"
-    assert desk.current_star == "NV-004"
+    assert ledger.verdict("CAL-V004").status == "unreviewed"
+    assert model.value("CAL-V004", "status") == "unreviewed"
+    assert desk.current_star == "CAL-V004"
     # reopen the ledger in a new window: every verdict is there
     path = desk.ledger_path
     desk.close()
-    again = MainWindow(desk.services, qsettings)
+    again = MainWindow(settings=qsettings)
     again.open_ledger(path)
-    assert again.ledger.verdict("NV-001").status == "confirmed"
-    assert again.ledger.verdict("NV-002").class_code == "RRc"
-    assert again.ledger.verdict("NV-003").status == "rejected"
-    assert again.star_list.model.value("NV-002", "status") == "relabelled"
+    assert again.ledger.verdict("CAL-V001").status == "confirmed"
+    assert again.ledger.verdict("CAL-V002").class_code == "RRc"
+    assert again.ledger.verdict("CAL-V003").status == "rejected"
+    assert again.star_list.model.value("CAL-V002", "status") == "relabelled"
     assert str(path) in again.recent_files()
     dispose(again)
 
@@ -116,14 +116,14 @@ def test_filter_the_list(desk, qtbot):
     desk.activateWindow()
     qtbot.keyClick(desk, Qt.Key.Key_F, Qt.KeyboardModifier.ControlModifier)  # Find: to the filter
     assert desk.star_list.filter_edit.hasFocus()
-    qtbot.keyClicks(desk.star_list.filter_edit, "nv-00")
+    qtbot.keyClicks(desk.star_list.filter_edit, "cal-v00")
     assert desk.star_list.proxy.rowCount() == 6
     desk.star_list.filter_edit.clear()
     qtbot.keyClicks(desk.star_list.filter_edit, "005")
-    assert desk.star_list.proxy.visible_star_ids() == ["NV-005"]
+    assert desk.star_list.proxy.visible_star_ids() == ["CAL-V005"]
     desk.star_list.filter_edit.clear()
     desk.star_list.status_box.setCurrentIndex(desk.star_list.status_box.findData("rejected"))
-    assert desk.visible_star_ids() == ["NV-001"]
+    assert desk.visible_star_ids() == ["CAL-V001"]
     assert "1 of 6 shown" in desk.star_list.counts_label.text()
 
 
@@ -133,20 +133,22 @@ def test_exclude_points_with_a_selection(desk, qtbot):
     rect = QRectF(QPointF(-1.0, 10.0), QPointF(float(np.median(x)), 20.0))
     inside = lc_panel.points_in(rect)
     assert 0 < inside.size < desk.lc.n_points
-    calls = desk.services.analyse_calls
     lc_panel.vb.sigRectSelected.emit(rect, False)  # what a Shift+drag emits
-    mask = desk.ledger.excluded("NV-001")
+    mask = desk.ledger.excluded("CAL-V001")
     assert mask[inside].all() and mask.sum() == inside.size
-    qtbot.waitUntil(lambda: desk.services.analyse_calls == calls + 1, timeout=10000)
-    qtbot.waitUntil(lambda: desk.result.get("n_good") == desk.lc.n_points - inside.size)
+    assert desk.ledger.result("CAL-V001").stale  # until the re-analysis is stored
+    qtbot.waitUntil(lambda: not desk.ledger.result("CAL-V001").stale, timeout=20000)
+    stored = desk.ledger.result("CAL-V001").result
+    assert stored["n_good"] == desk.lc.n_points - inside.size
+    qtbot.waitUntil(lambda: desk.result.get("n_good") == stored["n_good"])
     assert len(lc_panel.excluded.getData()[0]) == inside.size
     # Ctrl on release restores
     lc_panel.vb.sigRectSelected.emit(rect, True)
-    assert not desk.ledger.excluded("NV-001").any()
+    assert not desk.ledger.excluded("CAL-V001").any()
     # undo brings the exclusion back, in the ledger and on screen
     desk.workers.wait(10000)
     qtbot.keyClick(desk, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
-    assert desk.ledger.excluded("NV-001").sum() == inside.size
+    assert desk.ledger.excluded("CAL-V001").sum() == inside.size
     assert len(desk.lightcurve.excluded.getData()[0]) == inside.size
     desk.workers.wait(10000)
 
@@ -154,16 +156,16 @@ def test_exclude_points_with_a_selection(desk, qtbot):
 def test_export_and_plots(desk, qtbot, tmp_path):
     from astropy.table import Table
 
-    qtbot.keyClick(desk, Qt.Key.Key_Y)  # confirm NV-001
-    qtbot.keyClick(desk, Qt.Key.Key_3)  # relabel NV-002 as RRd
+    qtbot.keyClick(desk, Qt.Key.Key_Y)  # confirm CAL-V001
+    qtbot.keyClick(desk, Qt.Key.Key_3)  # relabel CAL-V002 as RRd
     done = []
     desk.export_catalogue(tmp_path / "vetted.ecsv", "ecsv", on_done=done.append)
     qtbot.waitUntil(lambda: bool(done), timeout=20000)
     assert done == [2]  # core.export.write_catalogue returns the number of stars
     table = Table.read(tmp_path / "vetted.ecsv", format="ascii.ecsv")
     rows = {str(r["star_id"]): r for r in table}
-    assert set(rows) == {"NV-001", "NV-002"}
-    assert str(rows["NV-002"]["class"]) == "RRd"
+    assert set(rows) == {"CAL-V001", "CAL-V002"}
+    assert str(rows["CAL-V002"]["class"]) == "RRd"
     for which in ("lightcurve", "periodogram", "fold"):
         png = desk.export_plot(which, tmp_path / f"{which}.png")
         assert png.stat().st_size > 5000
@@ -261,7 +263,7 @@ def test_exclude_with_a_lasso(desk, qtbot):
     panel.lasso_box.setChecked(True)
     assert panel.vb.lasso
     panel.vb.sigLassoSelected.emit(lasso, False)
-    mask = desk.ledger.excluded("NV-001")
+    mask = desk.ledger.excluded("CAL-V001")
     expected = (x >= x0) & (x <= x1)
     assert mask.sum() == expected.sum() and mask[expected].all()
     desk.workers.wait(10000)
@@ -269,11 +271,12 @@ def test_exclude_with_a_lasso(desk, qtbot):
 
 def test_reanalyse_all_in_a_worker_keeps_verdicts(desk, qtbot):
     qtbot.keyClick(desk, Qt.Key.Key_Y)
-    calls = desk.services.analyse_calls
+    before = {sid: desk.ledger.result(sid).computed_at for sid in desk.ledger.star_ids()}
     worker = desk.reanalyse_all()
-    qtbot.waitUntil(lambda: worker.done.is_set(), timeout=30000)
+    qtbot.waitUntil(lambda: worker.done.is_set(), timeout=60000)
     qtbot.waitUntil(lambda: not desk.workers.busy, timeout=10000)
-    assert desk.services.analyse_calls == calls + 6
-    assert desk.ledger.verdict("NV-001").status == "confirmed"
-    stored = desk.ledger.result("NV-003")
+    after = {sid: desk.ledger.result(sid).computed_at for sid in desk.ledger.star_ids()}
+    assert all(after[sid] >= before[sid] for sid in before) and len(after) == 6
+    assert desk.ledger.verdict("CAL-V001").status == "confirmed"
+    stored = desk.ledger.result("CAL-V003")
     assert stored is not None and not stored.stale  # stored with the recorded settings

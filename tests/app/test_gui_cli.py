@@ -6,9 +6,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
 from PySide6.QtGui import QImage
-
-from .fakes import real_ledger
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -25,11 +24,10 @@ def _run(*args, timeout=120):
     )
 
 
-def test_open_ledger_screenshot_exits_cleanly(tmp_path):
-    path = tmp_path / "field.ledger.sqlite"
-    real_ledger(path).close()
+@pytest.mark.slow
+def test_open_ledger_screenshot_exits_cleanly(subset_copy, tmp_path):
     out = tmp_path / "desk.png"
-    proc = _run("open", str(path), "--screenshot", str(out), "--star", "NV-003")
+    proc = _run("open", str(subset_copy), "--screenshot", str(out), "--star", "CAL-V003")
     assert proc.returncode == 0, proc.stderr
     assert "deallocating" not in proc.stderr
     image = QImage(str(out))
@@ -42,12 +40,11 @@ def test_open_ledger_screenshot_exits_cleanly(tmp_path):
     assert out.stat().st_size > 50_000
 
 
-def test_unknown_star_and_missing_file_are_named(tmp_path):
-    path = tmp_path / "field.ledger.sqlite"
-    real_ledger(path).close()
-    proc = _run("open", str(path), "--screenshot", str(tmp_path / "x.png"), "--star", "NV-999")
+@pytest.mark.slow
+def test_unknown_star_and_missing_file_are_named(subset_copy, tmp_path):
+    proc = _run("open", str(subset_copy), "--screenshot", str(tmp_path / "x.png"), "--star", "V9")
     assert proc.returncode == 2
-    assert "no star 'NV-999' in the ledger" in proc.stderr
+    assert "no star 'V9' in the ledger" in proc.stderr
     proc = _run("open", str(tmp_path / "absent.ledger.sqlite"))
     assert proc.returncode == 2 and "absent.ledger.sqlite: no such file" in proc.stderr
 

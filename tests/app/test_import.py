@@ -11,7 +11,7 @@ from app.desk.dialogs import ColumnMappingDialog
 from core.io import ColumnMapping, open_photometry, write_stars
 
 from .conftest import dispose
-from .fakes import FakeServices, make_star
+from .fakes import make_star
 
 
 def _table(tmp_path: Path) -> Path:
@@ -44,7 +44,7 @@ def test_mapping_dialog_previews_and_maps(qtbot, tmp_path):
 
 def test_build_ledger_from_files_in_a_worker(qtbot, qsettings, tmp_path):
     path = _table(tmp_path)
-    window = MainWindow(FakeServices(), qsettings)
+    window = MainWindow(settings=qsettings)
     window.show()
     done = []
     target = tmp_path / "new.ledger.sqlite"
