@@ -55,6 +55,21 @@ def _get(obj, name, default=None):
     return getattr(obj, name, default)
 
 
+def _preload_science() -> None:
+    """Import the core modules the first star needs, in the background.
+
+    They take a good part of a second to import (scipy); a thread started
+    now overlaps that with building the window and reading the ledger.
+    """
+    import threading
+
+    def load() -> None:
+        import core.fourier  # noqa: F401
+        import core.periodogram  # noqa: F401
+
+    threading.Thread(target=load, name="preload-core", daemon=True).start()
+
+
 class MainWindow(QMainWindow):
     """The vetting desk.
 
@@ -79,6 +94,7 @@ class MainWindow(QMainWindow):
 
     def __init__(self, services: CoreServices | None = None, settings: QSettings | None = None):
         super().__init__()
+        _preload_science()
         configure_pyqtgraph()
         self.services = services or CoreServices()
         self.qsettings = settings or QSettings("Phasewise", "Phasewise")
@@ -405,11 +421,6 @@ class MainWindow(QMainWindow):
         self._periodograms.clear()
         self.ledger = ledger
         self.ledger_path = Path(path) if path else None
-        if self.analysis_settings is None:
-            try:
-                self.analysis_settings = self.services.default_settings()
-            except ImportError:
-                self.analysis_settings = None
         self.refresh_rows()
         name = self.ledger_path.name if self.ledger_path else "ledger"
         self.setWindowTitle(f"Phasewise — {name}")
@@ -423,6 +434,19 @@ class MainWindow(QMainWindow):
             self.statusBar().showMessage(f"No star {first_star!r} in this ledger.")
         if target:
             self.select_star(target)
+        if self.analysis_settings is None:
+            # core.analysis (and scipy.stats) load after the first star is on screen
+            self.workers.start(self.services.default_settings, on_result=self._settings_ready)
+
+    def _settings_ready(self, settings) -> None:
+        if self.analysis_settings is None:
+            self.analysis_settings = settings
+
+    def settings(self):
+        """The analysis settings in use (the defaults until changed)."""
+        if self.analysis_settings is None:
+            self.analysis_settings = self.services.default_settings()
+        return self.analysis_settings
 
     def refresh_rows(self) -> None:
         current = self.session.star_id
@@ -544,8 +568,6 @@ class MainWindow(QMainWindow):
 
     # =========================================================== periodogram
     def _pg_settings(self):
-        if self.analysis_settings is None:
-            return None
         pg = self.services.periodogram_settings(self.analysis_settings)
         if self._pg_method and getattr(pg, "method", None) != self._pg_method:
             pg = self.services.replace_periodogram(pg, method=self._pg_method)
@@ -760,7 +782,7 @@ class MainWindow(QMainWindow):
         self._reanalyse(star_id, new_lc)
 
     def _reanalyse(self, star_id: str, lc, on_done=None) -> None:
-        settings = self.analysis_settings
+        settings = self.settings()
         services, ledger = self.services, self.ledger
 
         def run():
@@ -797,9 +819,7 @@ class MainWindow(QMainWindow):
         if self.ledger is None:
             return
         ledger, services = self.ledger, self.services
-        if self.analysis_settings is None:
-            self.analysis_settings = services.default_settings()
-        settings = self.analysis_settings
+        settings = self.settings()
         services.record_settings(ledger, settings)
         ids = list(ledger.star_ids())
 
@@ -824,9 +844,7 @@ class MainWindow(QMainWindow):
 
     # =============================================================== dialogs
     def settings_dialog(self) -> None:
-        if self.analysis_settings is None:
-            self.analysis_settings = self.services.default_settings()
-        pg = self.services.periodogram_settings(self.analysis_settings)
+        pg = self.services.periodogram_settings(self.settings())
         dialog = AnalysisSettingsDialog(pg, self)
         if dialog.exec():
             try:
@@ -912,7 +930,7 @@ class MainWindow(QMainWindow):
 
         services, settings = (
             self.services,
-            self.analysis_settings or self.services.default_settings(),
+            self.settings(),
         )
 
         def done(path):

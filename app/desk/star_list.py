@@ -68,6 +68,24 @@ _ALIASES = {
 
 def row_values(row) -> list:
     """The list of :data:`FIELDS` (+ stale) of one ledger star row."""
+    if hasattr(row, "suggested_period") and hasattr(row, "analysed"):  # core.ledger.StarRow
+        flags = ",".join(row.flags) if row.flags else ""
+        if row.failed:
+            flags = "failed," + flags if flags else "failed"
+        elif not row.analysed:
+            flags = "not analysed," + flags if flags else "not analysed"
+        return [
+            row.star_id,
+            row.status or "unreviewed",
+            row.suggested_class,
+            row.suggested_score,
+            row.verdict_class,
+            row.period,
+            row.amplitude,
+            row.fap,
+            flags,
+            bool(row.stale),
+        ]
     if isinstance(row, dict):
         get = row.get
     elif isinstance(row, Sequence) and not hasattr(row, "_fields"):
