@@ -110,6 +110,7 @@ class MainWindow(QMainWindow):
         self._stars: OrderedDict = OrderedDict()
         self._periodograms: OrderedDict = OrderedDict()
         self._pg_method: str | None = None
+        self._pg_worker = None
         self.setWindowTitle("Phasewise — vetting desk")
         self.setWindowIcon(icon("phasewise"))
         self._build_panels()
@@ -590,6 +591,8 @@ class MainWindow(QMainWindow):
             return
         self.periodogram.clear()
         self.periodogram.set_computing("computing periodogram…")
+        if self._pg_worker is not None:
+            self._pg_worker.cancel()  # the user moved on: skip a periodogram still queued
 
         def done(view, key=key, star_id=star_id):
             self._periodograms[key] = view
@@ -600,7 +603,7 @@ class MainWindow(QMainWindow):
                 p = self.session.period
                 self.periodogram.set_frequency(1.0 / p if p else None)
 
-        self.workers.start(
+        self._pg_worker = self.workers.start(
             self.services.compute_periodogram,
             lc,
             pg_settings,

@@ -81,6 +81,10 @@ class Worker(QRunnable):
             _LIVE.discard(self)
 
     def _run(self) -> None:
+        if self._cancel.is_set():  # cancelled while waiting in the queue: never start
+            self.signals.cancelled.emit()
+            self.signals.finished.emit()
+            return
         try:
             result = self.fn(*self.args, **self.kwargs)
         except Cancelled:

@@ -280,3 +280,14 @@ def test_reanalyse_all_in_a_worker_keeps_verdicts(desk, qtbot):
     assert desk.ledger.verdict("CAL-V001").status == "confirmed"
     stored = desk.ledger.result("CAL-V003")
     assert stored is not None and not stored.stale  # stored with the recorded settings
+
+
+def test_holding_next_star_skips_stale_periodograms(desk, qtbot):
+    for _ in range(5):
+        qtbot.keyClick(desk, Qt.Key.Key_J)
+    assert desk.current_star == "CAL-V006"
+    desk.wait_idle()
+    assert desk.periodogram.view is not None
+    # the periodogram shown is the current star's (cached under its id)
+    key = next(k for k, v in desk._periodograms.items() if v is desk.periodogram.view)
+    assert key[0] == "CAL-V006"
