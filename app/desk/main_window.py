@@ -30,7 +30,7 @@ from .lightcurve_panel import LightCurvePanel
 from .periodogram_panel import PeriodogramPanel
 from .services import CoreServices
 from .star_list import StarListWidget
-from .star_sheet import CLASS_CODES, StarSheet
+from .star_sheet import CLASS_CODES, StarSheet, suggestion_class
 from .style import configure_pyqtgraph
 from .workers import WorkerPool
 
@@ -509,6 +509,7 @@ class MainWindow(QMainWindow):
         period = _get(self.verdict, "period") or result.get("period")
         self.session.load_star(star_id, period, candidates, lc.baseline)
         self.sheet.set_star(star_id, result, self.verdict, self.session.period)
+        self.sheet.show_trial_period(self.session.period, False, self._suggested_period())
         message = f"{star_id}: {result.get('status', 'not analysed')}"
         if stale:
             message += " — result is stale (settings changed); Ctrl+R re-analyses"
@@ -533,11 +534,10 @@ class MainWindow(QMainWindow):
     def _period_changed(self, period, source) -> None:
         step = self.session.step()
         self.fold.show_period(period, step, (self.result or {}).get("epoch_max"))
-        code = _get(self.verdict, "class_code") or self.sheet.top_suggestion()
-        self.fold.show_alternative(self.session.alternative_period(code))
+        self.fold.show_alternative(self.session.alternative_period(self._class_code()))
         self.periodogram.set_frequency(1.0 / period if period else None)
         if source not in ("analysis", "band"):
-            self.sheet.show_trial_period(period, self.session.overridden)
+            self.sheet.show_trial_period(period, self.session.overridden, self._suggested_period())
 
     def step_star(self, step: int) -> None:
         sid = self.star_list.neighbour(self.session.star_id, step)
@@ -561,9 +561,28 @@ class MainWindow(QMainWindow):
             "use_alternative": self.use_alternative,
         }[key]()
 
+    def _class_code(self) -> str | None:
+        """The verdict's class, else the current star's top suggestion."""
+        code = _get(self.verdict, "class_code")
+        if code:
+            return code
+        suggestions = (self.result or {}).get("suggestions") or []
+        return suggestion_class(suggestions[0]) if suggestions else None
+
+    def _suggested_period(self) -> float | None:
+        suggestions = (self.result or {}).get("suggestions") or []
+        period = suggestions[0].get("period") if suggestions else None
+        return float(period) if period else None
+
+    def verdict_period(self, status: str) -> float | None:
+        """The period a verdict records: the trial period if changed by hand; for a
+        confirmation otherwise the suggestion's own period (e.g. 2P for eclipsing)."""
+        if status == "confirmed" and not self.session.overridden and self._suggested_period():
+            return self._suggested_period()
+        return self.session.period
+
     def use_alternative(self) -> None:
-        code = _get(self.verdict, "class_code") or self.sheet.top_suggestion()
-        alt = self.session.alternative_period(code)
+        alt = self.session.alternative_period(self._class_code())
         if alt:
             self.session.set_period(alt, "candidate")
 
@@ -650,7 +669,7 @@ class MainWindow(QMainWindow):
             note = self.sheet.note_edit.text().strip()
         if status == "confirmed" and not class_code:
             class_code = self.sheet.top_suggestion()
-        period = self.session.period
+        period = self.verdict_period(status)
         try:
             self.ledger.set_verdict(
                 star_id, status, class_code=class_code, period=period, note=note or None

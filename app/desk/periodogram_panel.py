@@ -226,19 +226,22 @@ class PeriodogramPanel(QWidget):
         f, p = view.frequency, view.power
         positive = f > 0
         f, p = f[positive], p[positive]
+        # curves take linear x (pyqtgraph's log mode maps them and labels the axis
+        # in decades); markers, labels and ranges are in view coordinates (self._x)
+        lin = 1.0 / f if self.period_axis else f
         x = self._x(f)
         if self.period_axis:  # keep x increasing for clip-to-view
-            x, p_draw = x[::-1], p[::-1]
+            x, lin, p_draw = x[::-1], lin[::-1], p[::-1]
         else:
             p_draw = p
-        self.curve.setData(x, p_draw)
+        self.curve.setData(lin, p_draw)
         if self.window_power is not None and self.window_box.isChecked():
             w = self.window_power[positive]
             w = w[::-1] if self.period_axis else w
             top = float(np.nanmax(p)) if p.size else 1.0
             wmax = float(np.nanmax(w)) if w.size else 1.0
             # drawn behind, scaled to half the highest peak: it shows where aliases fall
-            self.window_curve.setData(x, w * (0.5 * top / wmax if wmax > 0 else 1.0))
+            self.window_curve.setData(lin, w * (0.5 * top / wmax if wmax > 0 else 1.0))
             self.window_curve.setVisible(True)
         else:
             self.window_curve.setVisible(False)
@@ -281,8 +284,8 @@ class PeriodogramPanel(QWidget):
             )
             self.vb.disableAutoRange()
 
-    def _log_toggled(self, _on: bool) -> None:
-        self.item.setLogMode(x=False, y=False)  # we transform x ourselves
+    def _log_toggled(self, on: bool) -> None:
+        self.item.setLogMode(x=on, y=False)
         self._redraw(reset_range=True)
 
     def _window_toggled(self, on: bool) -> None:

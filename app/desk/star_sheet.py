@@ -167,13 +167,17 @@ class StarSheet(QWidget):
         self.render(trial_period)
         self.show_trial_period(trial_period, False)
 
-    def show_trial_period(self, period, overridden: bool) -> None:
-        """The period a verdict would record (the trial period)."""
+    def show_trial_period(self, period, overridden: bool, suggested=None) -> None:
+        """The period a verdict would record: the trial period, and the
+        suggestion's own period for a confirmation when it differs."""
         if period is None:
             self.trial_label.setText("")
             return
         note = " <span style='color:#B03000'>(changed by hand)</span>" if overridden else ""
-        self.trial_label.setText(f"Period for the verdict: <b>{fmt_period(period)} d</b>{note}")
+        text = f"Period for the verdict: <b>{fmt_period(period)} d</b>{note}"
+        if suggested and not overridden and not math.isclose(suggested, period, rel_tol=1e-6):
+            text += f"<br>Confirm records the suggestion's <b>{fmt_period(suggested)} d</b>"
+        self.trial_label.setText(text)
 
     def set_verdict(self, verdict) -> None:
         status = _get(verdict, "status") or "unreviewed"

@@ -291,3 +291,19 @@ def test_holding_next_star_skips_stale_periodograms(desk, qtbot):
     # the periodogram shown is the current star's (cached under its id)
     key = next(k for k, v in desk._periodograms.items() if v is desk.periodogram.view)
     assert key[0] == "CAL-V006"
+
+
+def test_confirm_records_the_suggestions_period_unless_changed_by_hand(desk, qtbot):
+    # an eclipsing-style suggestion proposes twice the periodogram's period
+    analysed = desk.session.period
+    desk.result["suggestions"][0]["period"] = 2 * analysed
+    desk._period_changed(desk.session.period, "entry")
+    assert "Confirm records the suggestion" in desk.sheet.trial_label.text()
+    qtbot.keyClick(desk, Qt.Key.Key_Y)
+    assert desk.ledger.verdict("CAL-V001").period == pytest.approx(2 * analysed)
+    # a period set by hand wins
+    assert desk.current_star == "CAL-V002"
+    qtbot.keyClick(desk, Qt.Key.Key_Period)
+    nudged = desk.session.period
+    qtbot.keyClick(desk, Qt.Key.Key_Y)
+    assert desk.ledger.verdict("CAL-V002").period == pytest.approx(nudged)
