@@ -27,10 +27,8 @@ def build_ledger(services, files, mapping, target, settings, report=None, cancel
             services.add_stars(ledger, source.stars(), source_file=path)
             if cancelled is not None and cancelled():
                 return target
-        services.analyse_all(
-            ledger, ledger.star_ids(), settings, report=report, cancelled=cancelled
-        )
     finally:
         if hasattr(ledger, "close"):
             ledger.close()
+    services.analyse_ledger(target, settings, report=report, cancelled=cancelled)
     return target

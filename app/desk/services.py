@@ -165,3 +165,28 @@ class CoreServices:
             self.store_results(ledger, chunk, settings)
         if report is not None:
             report(len(star_ids), len(star_ids), "done")
+
+    def analyse_ledger(self, path, settings, report=None, cancelled=None) -> None:
+        """Analyse every unanalysed star of a closed ledger file.
+
+        Uses ``core.batch.analyse_ledger`` (worker processes) when present,
+        else analyses star by star here.
+        """
+        try:
+            from core.batch import analyse_ledger
+        except ImportError:
+            analyse_ledger = None
+        if analyse_ledger is not None:
+
+            def progress(p) -> None:
+                if report is not None and not (cancelled is not None and cancelled()):
+                    report(p.done, p.total, f"{p.rate:.1f} stars/s")
+
+            analyse_ledger(Path(path), settings, progress=progress, stop=cancelled)
+            return
+        ledger = self.open_ledger(path)
+        try:
+            ids = ledger.stars_needing_analysis(self.settings_record(settings)[1])
+            self.analyse_all(ledger, ids, settings, report=report, cancelled=cancelled)
+        finally:
+            ledger.close()
