@@ -5,11 +5,18 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from pyqtgraph import functions as fn
-from PySide6.QtCore import QPointF, QRectF, Qt, Signal
+from PySide6.QtCore import QRectF, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QPen, QTransform
 from PySide6.QtWidgets import QGraphicsRectItem
 
-__all__ = ["SelectViewBox", "FastPoints", "make_plot", "points_in_polygon"]
+__all__ = [
+    "SelectViewBox",
+    "FastPoints",
+    "make_plot",
+    "set_labels",
+    "cache_axes",
+    "points_in_polygon",
+]
 
 
 def points_in_polygon(x, y, polygon) -> np.ndarray:
@@ -202,6 +209,3 @@ def set_labels(plot: pg.PlotWidget, bottom: str, left: str) -> None:
     item = plot.getPlotItem()
     item.setLabel("bottom", bottom)
     item.setLabel("left", left)
-
-
-__all__ += ["set_labels", "QPointF"]
