@@ -231,10 +231,13 @@ def _select(window, star_id) -> None:
 
 def _attach_views(window) -> None:
     """Let other views (the population view) dock into the window if present."""
-    try:
-        import app.population as population
-    except ImportError:
+    import importlib
+    import importlib.util
+
+    if importlib.util.find_spec("app.population") is None:
         return
+    # present: import it for real, so an error inside it is reported, not hidden
+    population = importlib.import_module("app.population")
     attach = getattr(population, "attach", None)
     if attach is not None:
         attach(window)
