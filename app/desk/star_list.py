@@ -340,6 +340,7 @@ class StarListWidget(QWidget):
         header = self.view.horizontalHeader()
         header.setSectionsClickable(True)
         header.setSortIndicatorShown(True)
+        header.setSortIndicator(-1, Qt.SortOrder.AscendingOrder)  # ledger order until a click
         header.sectionClicked.connect(self._sort_by)
         header.setStretchLastSection(True)
         vheader = self.view.verticalHeader()
@@ -347,8 +348,10 @@ class StarListWidget(QWidget):
         vheader.setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
         vheader.setDefaultSectionSize(self.fontMetrics().height() + 6)
         self.view.setWordWrap(False)
-        for col, width in enumerate((90, 82, 72, 46, 58, 84, 66, 60, 60)):
+        for col, width in enumerate((80, 80, 72, 42, 62, 80, 66, 56, 60)):
             self.view.setColumnWidth(col, width)
+        # show the period before the (often still empty) verdict class
+        header.moveSection(5, 4)
         self.view.setAlternatingRowColors(True)
 
         top = QHBoxLayout()
