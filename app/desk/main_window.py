@@ -39,6 +39,7 @@ __all__ = ["MainWindow"]
 MAX_RECENT = 8
 STAR_CACHE = 256
 PERIODOGRAM_CACHE = 64
+PERIODOGRAM_DELAY_MS = 60
 EXPORT_FORMATS = (
     ("ecsv", "ECSV (*.ecsv)"),
     ("fits", "FITS (*.fits)"),
@@ -111,6 +112,11 @@ class MainWindow(QMainWindow):
         self._periodograms: OrderedDict = OrderedDict()
         self._pg_method: str | None = None
         self._pg_worker = None
+        self._pg_pending = None
+        self._pg_timer = QTimer(self)
+        self._pg_timer.setSingleShot(True)
+        self._pg_timer.setInterval(PERIODOGRAM_DELAY_MS)
+        self._pg_timer.timeout.connect(self._start_periodogram)
         self.setWindowTitle("Phasewise — vetting desk")
         self.setWindowIcon(icon("phasewise"))
         self._build_panels()
@@ -612,6 +618,16 @@ class MainWindow(QMainWindow):
         self.periodogram.set_computing("computing periodogram…")
         if self._pg_worker is not None:
             self._pg_worker.cancel()  # the user moved on: skip a periodogram still queued
+        # start a moment later: the star is drawn first, and stars skipped by a held
+        # key never start one
+        self._pg_pending = (key, star_id, lc, pg_settings)
+        self._pg_timer.start()
+
+    def _start_periodogram(self) -> None:
+        if self._pg_pending is None:
+            return
+        key, star_id, lc, pg_settings = self._pg_pending
+        self._pg_pending = None
 
         def done(view, key=key, star_id=star_id):
             self._periodograms[key] = view
@@ -1128,7 +1144,7 @@ class MainWindow(QMainWindow):
         app = QApplication.instance()
         while time.monotonic() < end:
             app.processEvents()
-            if not self.workers.busy:
+            if not self.workers.busy and not self._pg_timer.isActive():
                 app.processEvents()
                 return
             time.sleep(0.01)
