@@ -184,11 +184,36 @@ def test_shortcut_sheet_lists_standard_and_own_keys(desk):
     desk.shortcut_sheet.close()
 
 
-def test_layout_persists(desk, qsettings):
+def test_layout_and_recent_files_persist(desk, qsettings):
     desk.main_splitter.setSizes([300, 900, 400])
+    sizes = desk.main_splitter.sizes()
     desk.save_layout()
-    assert qsettings.value("splitter/main") is not None
-    assert qsettings.value("window/geometry") is not None
+    again = MainWindow(settings=qsettings)
+    again.resize(desk.size())
+    again.show()
+    assert again.main_splitter.sizes() == sizes
+    again._fill_recent()
+    assert [a.text() for a in again.recent_menu.actions()] == [str(desk.ledger_path)]
+    dispose(again)
+
+
+def test_analysis_settings_change_the_periodogram(desk, qtbot, monkeypatch):
+    from app.desk import dialogs
+
+    before = len(desk.periodogram.view.frequency)
+    monkeypatch.setattr(dialogs.AnalysisSettingsDialog, "exec", lambda self: True)
+    monkeypatch.setattr(
+        dialogs.AnalysisSettingsDialog,
+        "changes",
+        lambda self: {"method": "gls", "fmin": None, "fmax": 10.0, "oversampling": 2, "nterms": 3},
+    )
+    desk.settings_dialog()
+    assert desk.analysis_settings.periodogram.oversampling == 2
+    qtbot.waitUntil(lambda: desk.periodogram.view is not None, timeout=20000)
+    after = desk.periodogram.view
+    assert after.frequency.max() <= 10.0 + 1e-9 and len(after.frequency) < before / 5
+    # results made with the old settings now show as stale once re-analysis records them
+    assert "re-analyse" in desk.statusBar().currentMessage()
 
 
 def test_star_model_scales_to_ten_thousand_rows(qtbot):
