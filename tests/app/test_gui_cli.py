@@ -58,3 +58,24 @@ def test_command_line_imports_no_qt():
     check = "import sys; import app.cli as c; c.build_parser(); print('PySide6' in sys.modules)"
     proc = subprocess.run([sys.executable, "-c", check], cwd=ROOT, capture_output=True, text=True)
     assert proc.stdout.strip() == "False", proc.stderr
+
+
+def test_demo_ledger_is_reused_only_when_up_to_date(subset_copy, tmp_path):
+    import dataclasses
+    import os
+
+    from app.cli.gui import _up_to_date, demo_files
+    from core.analysis import AnalysisSettings
+
+    assert demo_files(ROOT / "demo_data") == [ROOT / "demo_data" / "caldera_survey.ecsv"]
+    source = tmp_path / "survey.ecsv"
+    source.write_text("# stand-in source file\n")
+    old = subset_copy.stat().st_mtime - 100
+    os.utime(source, (old, old))
+    settings = AnalysisSettings()
+    assert _up_to_date(subset_copy, [source], settings)
+    other = dataclasses.replace(settings, fap_threshold=0.01)
+    assert not _up_to_date(subset_copy, [source], other)  # analysed with other settings
+    os.utime(source, None)  # the survey changed after the ledger was built
+    assert not _up_to_date(subset_copy, [source], settings)
+    assert not _up_to_date(tmp_path / "absent.ledger.sqlite", [source], settings)
