@@ -23,7 +23,13 @@ from collections.abc import Callable, Sequence
 from .errors import PhasewiseError
 from .folding import period_step
 
-__all__ = ["VettingSession", "SMALL_STEP_CYCLES", "LARGE_STEP_CYCLES", "ECLIPSING_CLASSES"]
+__all__ = [
+    "VettingSession",
+    "SMALL_STEP_CYCLES",
+    "LARGE_STEP_CYCLES",
+    "ECLIPSING_CLASSES",
+    "NON_PERIODIC_CLASSES",
+]
 
 #: A small nudge moves the last point's phase by this many cycles.
 SMALL_STEP_CYCLES = 0.005
@@ -32,6 +38,8 @@ LARGE_STEP_CYCLES = 0.05
 #: Classes whose true period is often twice the periodogram's best period
 #: (two similar minima per cycle; common practice, no source).
 ECLIPSING_CLASSES = frozenset({"EA", "EB", "EW"})
+#: Classes a verdict records without a period (a constant star has none).
+NON_PERIODIC_CLASSES = frozenset({"CONST", "NONVAR"})
 
 
 class VettingSession:

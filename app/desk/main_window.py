@@ -21,7 +21,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.errors import PhasewiseError
-from core.vetting import VettingSession
+from core.vetting import NON_PERIODIC_CLASSES, VettingSession
 
 from .dialogs import AnalysisSettingsDialog, ColumnMappingDialog, ShortcutSheet
 from .fold_panel import FoldPanel
@@ -515,7 +515,7 @@ class MainWindow(QMainWindow):
         period = _get(self.verdict, "period") or result.get("period")
         self.session.load_star(star_id, period, candidates, lc.baseline)
         self.sheet.set_star(star_id, result, self.verdict, self.session.period)
-        self.sheet.show_trial_period(self.session.period, False, self._suggested_period())
+        self._update_trial_label()
         message = f"{star_id}: {result.get('status', 'not analysed')}"
         if stale:
             message += " — result is stale (settings changed); Ctrl+R re-analyses"
@@ -543,7 +543,7 @@ class MainWindow(QMainWindow):
         self.fold.show_alternative(self.session.alternative_period(self._class_code()))
         self.periodogram.set_frequency(1.0 / period if period else None)
         if source not in ("analysis", "band"):
-            self.sheet.show_trial_period(period, self.session.overridden, self._suggested_period())
+            self._update_trial_label()
 
     def step_star(self, step: int) -> None:
         sid = self.star_list.neighbour(self.session.star_id, step)
@@ -567,6 +567,15 @@ class MainWindow(QMainWindow):
             "use_alternative": self.use_alternative,
         }[key]()
 
+    def _update_trial_label(self) -> None:
+        code = self._class_code()
+        if code in NON_PERIODIC_CLASSES:
+            self.sheet.trial_label.setText(f"A verdict of {code} records no period")
+        else:
+            self.sheet.show_trial_period(
+                self.session.period, self.session.overridden, self._suggested_period()
+            )
+
     def _class_code(self) -> str | None:
         """The verdict's class, else the current star's top suggestion."""
         code = _get(self.verdict, "class_code")
@@ -580,9 +589,12 @@ class MainWindow(QMainWindow):
         period = suggestions[0].get("period") if suggestions else None
         return float(period) if period else None
 
-    def verdict_period(self, status: str) -> float | None:
-        """The period a verdict records: the trial period if changed by hand; for a
-        confirmation otherwise the suggestion's own period (e.g. 2P for eclipsing)."""
+    def verdict_period(self, status: str, class_code: str | None = None) -> float | None:
+        """The period a verdict records: none for a constant star; the trial period if
+        changed by hand; for a confirmation otherwise the suggestion's own period
+        (e.g. 2P for eclipsing)."""
+        if class_code in NON_PERIODIC_CLASSES:
+            return None
         if status == "confirmed" and not self.session.overridden and self._suggested_period():
             return self._suggested_period()
         return self.session.period
@@ -685,7 +697,7 @@ class MainWindow(QMainWindow):
             note = self.sheet.note_edit.text().strip()
         if status == "confirmed" and not class_code:
             class_code = self.sheet.top_suggestion()
-        period = self.verdict_period(status)
+        period = self.verdict_period(status, class_code)
         try:
             self.ledger.set_verdict(
                 star_id, status, class_code=class_code, period=period, note=note or None

@@ -332,3 +332,11 @@ def test_confirm_records_the_suggestions_period_unless_changed_by_hand(desk, qtb
     nudged = desk.session.period
     qtbot.keyClick(desk, Qt.Key.Key_Y)
     assert desk.ledger.verdict("CAL-V002").period == pytest.approx(nudged)
+
+
+def test_a_constant_star_is_confirmed_without_a_period(desk, qtbot):
+    desk.select_star("CAL-V004")
+    assert desk.sheet.top_suggestion() == "CONST"
+    qtbot.keyClick(desk, Qt.Key.Key_Y)
+    verdict = desk.ledger.verdict("CAL-V004")
+    assert (verdict.status, verdict.class_code, verdict.period) == ("confirmed", "CONST", None)
