@@ -8,6 +8,7 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
+    QGraphicsItem,
     QHBoxLayout,
     QLabel,
     QSizePolicy,
@@ -70,6 +71,9 @@ class PeriodogramPanel(QWidget):
         self.window_curve.setVisible(False)
         self.item.addItem(self.window_curve)
         self.item.addItem(self.curve)
+        # the curves stay put while the period marker moves: repaint them from a pixmap
+        for item in (self.curve.curve, self.window_curve.curve):
+            item.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
         self.cand_points = pg.ScatterPlotItem(
             size=9, symbol="t", pen=pg.mkPen("#D55E00"), brush=pg.mkBrush("#D55E00")
         )
