@@ -108,7 +108,7 @@ class LightCurvePanel(QWidget):
         for b in dict.fromkeys(str(v) for v in lc.band):
             if b not in bands:
                 bands.append(b)
-        self.legend.clear()
+        entries = []
         for i in range(MAX_BANDS):
             s, e = self.scatter[i], self.errors[i]
             if i < len(bands):
@@ -119,13 +119,14 @@ class LightCurvePanel(QWidget):
                     e.setVisible(True)
                 else:
                     e.setVisible(False)
-                self.legend.addItem(s, f"{bands[i]} ({int(sel.sum())})")
+                entries.append((s, f"{bands[i]} ({int(sel.sum())})"))
             else:
                 s.setData([], [])
                 e.setVisible(False)
         bad = ~good & np.isfinite(x) & np.isfinite(lc.mag)
         self.excluded.setData(x[bad], lc.mag[bad])
-        self.legend.addItem(self.excluded, f"excluded ({int(bad.sum())})")
+        entries.append((self.excluded, f"excluded ({int(bad.sum())})"))
+        self._set_legend(entries)
         set_labels(self.plot, f"Time − {self.t0:.0f} ({lc.time_scale}, d)", "Magnitude (mag)")
         self.info.setText(f"{lc.n_good} of {lc.n_points} points · {lc.baseline:.0f} d")
         self.info.setToolTip(
@@ -133,6 +134,18 @@ class LightCurvePanel(QWidget):
             f"baseline {lc.baseline:.1f} d, bands {', '.join(bands)}"
         )
         self._set_range(x, lc.mag, np.isfinite(x) & np.isfinite(lc.mag))
+
+    def _set_legend(self, entries) -> None:
+        """Legend rows; only their texts change when the next star has the same bands."""
+        items = [item for item, _ in entries]
+        if items == [sample.item for sample, _ in self.legend.items]:
+            for (_, label), (_, text) in zip(self.legend.items, entries, strict=True):
+                if label.text != text:
+                    label.setText(text)
+            return
+        self.legend.clear()
+        for item, text in entries:
+            self.legend.addItem(item, text)
 
     def _set_range(self, x, mag, sel) -> None:
         if not sel.any():
