@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from core.errors import PhasewiseError
 from core.folding import phase_fold, phase_grid_times
 
 from .plots import FastPoints, cache_axes
@@ -142,7 +143,8 @@ class FoldView(pg.GraphicsLayoutWidget):
                 ts, ms, es, 1.0 / self.period, self.order, form=self.form
             )
             epoch = float(self.fit.epoch_max)
-        except Exception:  # too few points for the order, singular fit: show the fold only
+        except (PhasewiseError, np.linalg.LinAlgError, ValueError):
+            # too few points for the order, a singular fit: show the fold without a model
             epoch = epoch_hint if epoch_hint is not None else float(self.t[0])
         self.epoch = epoch
         phase = phase_fold(self.t, self.period, epoch)

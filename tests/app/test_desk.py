@@ -340,3 +340,17 @@ def test_a_constant_star_is_confirmed_without_a_period(desk, qtbot):
     qtbot.keyClick(desk, Qt.Key.Key_Y)
     verdict = desk.ledger.verdict("CAL-V004")
     assert (verdict.status, verdict.class_code, verdict.period) == ("confirmed", "CONST", None)
+
+
+def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
+    from app.desk.fold_panel import FoldView
+    from app.desk.services import CoreServices
+
+    view = FoldView(CoreServices())
+    qtbot.addWidget(view)
+    t = np.array([0.0, 0.3, 0.7, 1.1, 1.6])
+    view.set_data(t, np.full(5, 15.0), np.full(5, 0.02), order=4)
+    view.set_period(0.5)
+    assert sum(len(b.getData()[0]) for b in view.bins) == 5
+    x_model, _ = view.model_curve.getData()
+    assert view.fit is None and (x_model is None or len(x_model) == 0)
