@@ -79,3 +79,26 @@ def test_demo_ledger_is_reused_only_when_up_to_date(subset_copy, tmp_path):
     os.utime(source, None)  # the survey changed after the ledger was built
     assert not _up_to_date(subset_copy, [source], settings)
     assert not _up_to_date(tmp_path / "absent.ledger.sqlite", [source], settings)
+
+
+@pytest.mark.slow
+def test_open_files_imports_them_into_a_new_ledger(tmp_path):
+    import shutil
+
+    folder = tmp_path / "night"
+    folder.mkdir()
+    for sid in ("CAL-V001", "CAL-V002"):
+        shutil.copy(ROOT / "demo_data" / "stars" / f"{sid}.csv", folder)
+    out = tmp_path / "shot.png"
+    proc = _run("open", str(folder), "--screenshot", str(out), "--star", "CAL-V002")
+    assert proc.returncode == 0, proc.stderr
+    ledger_path = tmp_path / "night.ledger.sqlite"
+    assert ledger_path.exists() and out.stat().st_size > 50_000
+    from core.ledger import Ledger
+
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        assert ledger.star_ids() == ["CAL-V001", "CAL-V002"]
+        assert ledger.result("CAL-V002").result["status"] == "ok"
+    # a second time the ledger exists: the user is told, nothing is overwritten
+    again = _run("open", str(folder), "--screenshot", str(out))
+    assert again.returncode == 2 and "a ledger of that name exists" in again.stderr
