@@ -102,3 +102,28 @@ def test_open_files_imports_them_into_a_new_ledger(tmp_path):
     # a second time the ledger exists: the user is told, nothing is overwritten
     again = _run("open", str(folder), "--screenshot", str(out))
     assert again.returncode == 2 and "a ledger of that name exists" in again.stderr
+
+
+@pytest.mark.slow
+def test_window_closed_by_the_user_exits_cleanly(subset_copy):
+    # the interactive path: app.exec() until the window closes, then a clean exit
+    script = (
+        "import sys\n"
+        "from PySide6.QtCore import QTimer\n"
+        "from PySide6.QtWidgets import QApplication\n"
+        "app = QApplication(sys.argv[:1])\n"
+        "QTimer.singleShot(2500, QApplication.closeAllWindows)\n"
+        "from app.cli import main\n"
+        f"sys.exit(main(['open', {str(subset_copy)!r}]))\n"
+    )
+    env = {"QT_QPA_PLATFORM": "offscreen", "PATH": "/usr/bin:/bin", "HOME": str(ROOT)}
+    proc = subprocess.run(
+        [sys.executable, "-c", script],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=120,
+    )
+    assert proc.returncode == 0, proc.stderr
+    assert "deallocating" not in proc.stderr and "Traceback" not in proc.stderr
