@@ -254,6 +254,11 @@ class MainWindow(QMainWindow):
         self.act_use_alt = a("Use the alternative period", self.use_alternative, "A")
         self.act_settings = a("Analysis &settings…", self.settings_dialog, K.Preferences)
         self.act_reanalyse = a("Re-analyse this star", self.reanalyse_current, "Ctrl+R")
+        self.act_analyse_stale = a(
+            "Analyse stars without a fresh result",
+            lambda: self.reanalyse_all("stale"),
+            "Ctrl+Shift+A",
+        )
         self.act_reanalyse_all = a("Re-analyse all stars", self.reanalyse_all, "Ctrl+Shift+R")
         self.act_shortcuts = a("&Keyboard shortcuts", self.show_shortcuts, K.HelpContents)
         self.act_about = a("&About Phasewise", self.show_about)
@@ -306,7 +311,9 @@ class MainWindow(QMainWindow):
             ]
         )
         m = bar.addMenu("&Analysis")
-        m.addActions([self.act_settings, self.act_reanalyse, self.act_reanalyse_all])
+        m.addActions(
+            [self.act_settings, self.act_reanalyse, self.act_analyse_stale, self.act_reanalyse_all]
+        )
         m = bar.addMenu("&Help")
         m.addActions([self.act_shortcuts, self.act_about])
         self.menu_groups = [
@@ -861,17 +868,25 @@ class MainWindow(QMainWindow):
         if self.lc is not None:
             self._reanalyse(self.session.star_id, self.lc)
 
-    def reanalyse_all(self) -> None:
-        """Analyse every star again with the current settings (worker, progress, cancel).
+    def reanalyse_all(self, only: str = "all"):
+        """Analyse stars with the current settings (worker, progress, cancel).
 
-        Results are stored in chunks as they come, so a cancel keeps what was done.
+        ``only="all"``: every star; ``"stale"``: stars without a result or with a
+        stale one.  Results are stored in chunks as they come, so a cancel keeps
+        what was done.
         """
         if self.ledger is None:
-            return
+            return None
         ledger, services = self.ledger, self.services
         settings = self.settings()
         services.record_settings(ledger, settings)
-        ids = list(ledger.star_ids())
+        if only == "all":
+            ids = list(ledger.star_ids())
+        else:
+            ids = ledger.stars_needing_analysis(services.settings_record(settings)[1], only=only)
+        if not ids:
+            self.statusBar().showMessage("Every star has a fresh result.")
+            return None
 
         def finished() -> None:
             self._stars.clear()

@@ -354,3 +354,16 @@ def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
     assert sum(len(b.getData()[0]) for b in view.bins) == 5
     x_model, _ = view.model_curve.getData()
     assert view.fit is None and (x_model is None or len(x_model) == 0)
+
+
+def test_analyse_only_stars_without_a_fresh_result(desk, qtbot):
+    import dataclasses
+
+    assert desk.reanalyse_all("stale") is None
+    assert desk.statusBar().currentMessage() == "Every star has a fresh result."
+    desk.analysis_settings = dataclasses.replace(desk.settings(), fap_threshold=0.01)
+    worker = desk.reanalyse_all("stale")  # other settings: all six are stale
+    qtbot.waitUntil(lambda: worker.done.is_set(), timeout=60000)
+    desk.wait_idle()
+    assert all(not desk.ledger.result(sid).stale for sid in desk.ledger.star_ids())
+    assert not any(row[9] for row in desk.star_list.model._rows)  # no "stale" left in the list
