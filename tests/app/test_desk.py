@@ -258,6 +258,10 @@ def test_method_switch_and_axis_toggles(desk, qtbot):
     assert desk.periodogram.log_box.isChecked()
     marker = desk.periodogram.marker.value()
     assert marker == pytest.approx(np.log10(desk.session.period))
+    # a click on a peak still picks it on a log period axis
+    target = desk.periodogram.candidates[1]
+    _click_plot(qtbot, desk.periodogram.plot, np.log10(target["period"]), 0.5 * target["power"])
+    assert desk.session.period == pytest.approx(target["period"], rel=2e-3)
 
 
 def test_points_in_polygon_matches_qt():
