@@ -57,13 +57,14 @@ class LightCurvePanel(QWidget):
         self.plot.addItem(self.excluded)
         self.legend.addItem(self.excluded, "excluded")
 
-        self.show_errors = QCheckBox("Error bars")
+        self.show_errors = QCheckBox("Errors")
+        self.show_errors.setToolTip("Show error bars (E)")
         self.lasso_box = QCheckBox("Lasso")
         self.lasso_box.setToolTip("Select with a free-hand lasso instead of a rectangle")
-        self.select_box = QCheckBox("Select points")
+        self.select_box = QCheckBox("Select")
         self.select_box.setToolTip(
-            "Drag a rectangle to exclude points (Shift+drag works too); "
-            "hold Ctrl while releasing to restore them."
+            "Drag a rectangle (or a lasso) to exclude points (Shift+drag works too); "
+            "hold Ctrl while releasing to restore them. (S)"
         )
         self.info = QLabel()
         self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)

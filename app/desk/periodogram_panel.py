@@ -107,11 +107,13 @@ class PeriodogramPanel(QWidget):
         self.method_box.setSizeAdjustPolicy(
             QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
         )
-        self.method_box.setMinimumContentsLength(10)
+        self.method_box.setMinimumContentsLength(7)
+        self.method_box.setToolTip("Periodogram method (recomputed in the background)")
         for key, text in METHODS:
             self.method_box.addItem(text, key)
         self.axis_box = QComboBox()
         self.axis_box.addItems(["Frequency", "Period"])
+        self.axis_box.setToolTip("Power against frequency or period (F)")
         self.log_box = QCheckBox("Log")
         self.log_box.setToolTip("Logarithmic frequency/period axis")
         self.window_box = QCheckBox("Window")
