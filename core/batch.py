@@ -417,7 +417,7 @@ class _Engine:
         """Cancel a chunk that has not started; True if it was cancelled."""
         return False
 
-    def close(self, pending: Iterable[Any]) -> None:
+    def close(self, pending: Iterable[Any], wait: bool = True) -> None:
         raise NotImplementedError
 
 
@@ -438,7 +438,7 @@ class _InlineEngine(_Engine):
     def wait_any(self, pending, timeout):
         return set(pending)
 
-    def close(self, pending):
+    def close(self, pending, wait=True):
         pass
 
 
@@ -478,9 +478,10 @@ class _LocalEngine(_Engine):
         done, _ = wait_futures(list(pending), timeout=timeout, return_when=FIRST_COMPLETED)
         return done
 
-    def close(self, pending):
+    def close(self, pending, wait=True):
         try:
-            self._pool.shutdown(wait=True, cancel_futures=True)
+            # after Ctrl-C, running chunks are abandoned: their workers leave on their own
+            self._pool.shutdown(wait=wait, cancel_futures=True)
         finally:
             for name in self._set_env:
                 os.environ.pop(name, None)
@@ -522,7 +523,7 @@ class _DaskEngine(_Engine):
                 return done
             time.sleep(0.02)
 
-    def close(self, pending):
+    def close(self, pending, wait=True):
         for future in pending:
             future.cancel()
         self._client.close()
@@ -658,7 +659,10 @@ def analyse_ledger(
                 stop,
             )
         finally:
-            engine.close(run.pending if "run" in locals() else ())
+            if "run" in locals():
+                engine.close(run.pending, wait=not run.interrupted)
+            else:
+                engine.close(())
     finally:
         ledger.close()
     return run.summary(str(ledger_path), settings.hash, engine, time.monotonic() - started)

@@ -62,7 +62,9 @@ def register(subparsers) -> None:
         default="unanalysed",
         help="stars without a result (default), those and stale ones, or all",
     )
-    parser.add_argument("--chunk-size", type=int, metavar="N", help="stars sent to a worker at once")
+    parser.add_argument(
+        "--chunk-size", type=int, metavar="N", help="stars sent to a worker at once"
+    )
     parser.add_argument("--quiet", action="store_true", help="no progress and no summary")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
     parser.set_defaults(func=run)
@@ -114,7 +116,9 @@ def _import(files: list[Path], ledger_path: Path, columns: str | None, *, quiet:
     try:
         for path, source in zip(files, sources, strict=True):
             checksum = file_checksum(path) if path.is_file() else None
-            added = ledger.add_stars(source.stars(), source_file=str(path), source_checksum=checksum)
+            added = ledger.add_stars(
+                source.stars(), source_file=str(path), source_checksum=checksum
+            )
             report = source.report
             if not quiet:
                 print(
@@ -143,9 +147,7 @@ def progress_text(p: Progress, width: int = 30) -> str:
     filled = int(round(width * p.fraction))
     bar = "#" * filled + "." * (width - filled)
     failed = f"  {p.failed} failed" if p.failed else ""
-    return (
-        f"[{bar}] {p.done}/{p.total} stars{failed}  {p.rate:.1f} stars/s  {_clock(p.eta)} left"
-    )
+    return f"[{bar}] {p.done}/{p.total} stars{failed}  {p.rate:.1f} stars/s  {_clock(p.eta)} left"
 
 
 class ProgressBar:

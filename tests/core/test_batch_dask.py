@@ -49,7 +49,9 @@ def test_local_pool_and_dask_cluster_agree(tmp_path):
         dashboard_address=None,
     ) as cluster:
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
-        remote = analyse_ledger(paths["dask"], FAST, scheduler=cluster.scheduler_address, chunk_size=2)
+        remote = analyse_ledger(
+            paths["dask"], FAST, scheduler=cluster.scheduler_address, chunk_size=2
+        )
     assert remote.engine == "dask" and remote.workers == 2
     assert local.analysed + local.failed == remote.analysed + remote.failed == 6
     assert local.analysed == remote.analysed >= 4
@@ -69,5 +71,7 @@ def test_unreachable_scheduler_is_a_clear_error(tmp_path):
     path = tmp_path / "x.ledger.sqlite"
     with Ledger.create(path) as ledger:
         ledger.add_stars(synthetic_field(2, n_epochs=30, seed=1).lightcurves())
-    with pytest.raises(PhasewiseError, match="cannot reach the Dask scheduler at tcp://127.0.0.1:9"):
+    with pytest.raises(
+        PhasewiseError, match="cannot reach the Dask scheduler at tcp://127.0.0.1:9"
+    ):
         analyse_ledger(path, FAST, scheduler="tcp://127.0.0.1:9")
