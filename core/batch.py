@@ -64,6 +64,9 @@ KEPT_FAILURES = 200
 #: Methods whose periodograms can be batched over shared epochs.
 BATCHED_METHODS = ("gls", "mhgls")
 
+#: Seconds to wait for a Dask scheduler to answer.
+SCHEDULER_TIMEOUT = 10.0
+
 #: Thread pools of the numerical libraries, one thread per worker process: a
 #: pool of processes each running a full BLAS/OpenMP pool oversubscribes the
 #: cores (measured here: five times slower per star).  Values the user set win.
@@ -502,7 +505,7 @@ class _DaskEngine(_Engine):
                 field="scheduler",
             ) from exc
         try:
-            self._client = Client(scheduler, timeout=10, set_as_default=False)
+            self._client = Client(scheduler, timeout=SCHEDULER_TIMEOUT, set_as_default=False)
         except (OSError, TimeoutError) as exc:
             raise PhasewiseError(
                 f"cannot reach the Dask scheduler at {scheduler}: {exc}", field="scheduler"

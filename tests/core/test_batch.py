@@ -133,11 +133,26 @@ def test_groups_leave_out_what_cannot_share():
 
 # ------------------------------------------------------------ the ledger run
 @pytest.mark.slow  # spawns worker processes
-def test_run_stores_every_star_then_resumes_with_nothing(quick_ledger):
+def test_run_stores_every_star_then_resumes_with_nothing(quick_ledger, monkeypatch):
     seen: list[Progress] = []
+    reads = []
+    read = Ledger.lightcurve
+
+    def counted(self, star_id):
+        reads.append(star_id)
+        return read(self, star_id)
+
+    def note(progress):
+        # memory stays bounded: at most 2 chunks per worker read and not yet written
+        assert len(reads) - progress.done <= 4 * 2 * 2
+        seen.append(progress)
+
+    monkeypatch.setattr(Ledger, "lightcurve", counted)
     summary = analyse_ledger(
-        quick_ledger, FAST, workers=2, analyse_fn=QUICK, chunk_size=4, progress=seen.append
+        quick_ledger, FAST, workers=2, analyse_fn=QUICK, chunk_size=4, progress=note
     )
+    assert sorted(reads) == sorted(set(reads))  # each star read once
+    monkeypatch.undo()
     assert isinstance(summary, BatchSummary)
     assert (summary.total, summary.analysed, summary.failed, summary.skipped) == (23, 23, 0, 0)
     assert summary.engine == "local" and summary.workers == 2 and summary.remaining == 0

@@ -32,7 +32,7 @@ def _results(path):
 def test_local_pool_and_dask_cluster_agree(tmp_path):
     from distributed import LocalCluster
 
-    lcs = synthetic_field(6, n_epochs=120, seed=21).lightcurves()
+    lcs = synthetic_field(4, n_epochs=100, seed=21).lightcurves()
     paths = {}
     for name in ("local", "dask"):
         paths[name] = tmp_path / f"{name}.ledger.sqlite"
@@ -53,8 +53,8 @@ def test_local_pool_and_dask_cluster_agree(tmp_path):
             paths["dask"], FAST, scheduler=cluster.scheduler_address, chunk_size=2
         )
     assert remote.engine == "dask" and remote.workers == 2
-    assert local.analysed + local.failed == remote.analysed + remote.failed == 6
-    assert local.analysed == remote.analysed >= 4
+    assert local.analysed + local.failed == remote.analysed + remote.failed == 4
+    assert local.analysed == remote.analysed >= 3
     assert local.failures == remote.failures  # a failed analysis fails the same way
     a, b = _results(paths["local"]), _results(paths["dask"])
     assert a.keys() == b.keys()
@@ -65,9 +65,11 @@ def test_local_pool_and_dask_cluster_agree(tmp_path):
         assert_same(a[star_id].result, b[star_id].result, path=star_id, rtol=1e-9)
 
 
-def test_unreachable_scheduler_is_a_clear_error(tmp_path):
+def test_unreachable_scheduler_is_a_clear_error(tmp_path, monkeypatch):
+    import core.batch
     from core.errors import PhasewiseError
 
+    monkeypatch.setattr(core.batch, "SCHEDULER_TIMEOUT", 1.0)
     path = tmp_path / "x.ledger.sqlite"
     with Ledger.create(path) as ledger:
         ledger.add_stars(synthetic_field(2, n_epochs=30, seed=1).lightcurves())
