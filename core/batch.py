@@ -540,9 +540,23 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _engine(workers: int | None, scheduler: str | None) -> _Engine:
-    if workers is not None and (not isinstance(workers, int) or workers < 0):
+def _check_workers(workers: Any) -> None:
+    if workers is not None and (
+        isinstance(workers, bool) or not isinstance(workers, int) or workers < 0
+    ):
         raise PhasewiseError(f"got {workers!r}; expected 0 or more workers", field="workers")
+
+
+class _IdleEngine(_InlineEngine):
+    """Stands for the engine asked for when there is nothing to do."""
+
+    def __init__(self, workers: int | None, scheduler: str | None) -> None:
+        self.name = "dask" if scheduler else ("inline" if workers == 0 else "local")
+        self.workers = 1 if workers == 0 else (workers or (0 if scheduler else default_workers()))
+
+
+def _engine(workers: int | None, scheduler: str | None) -> _Engine:
+    _check_workers(workers)
     if scheduler:
         return _DaskEngine(scheduler, workers or None)
     if workers == 0:
@@ -638,6 +652,7 @@ def analyse_ledger(
     if chunk_size is not None and (not isinstance(chunk_size, int) or chunk_size < 1):
         raise PhasewiseError(f"got {chunk_size!r}; expected 1 or more", field="chunk_size")
     fn_name = _analyse_name(analyse_fn)
+    _check_workers(workers)
     started = time.monotonic()
     ledger = Ledger.open(ledger_path)
     try:
@@ -648,11 +663,12 @@ def analyse_ledger(
                 if stored is None
                 else settings_from_dict(stored[0], source=str(ledger_path))
             )
-        ledger.set_analysis_settings(settings.to_dict(), settings.hash)
         todo = ledger.stars_needing_analysis(settings.hash, only=only)
         skipped = ledger.n_stars - len(todo)
-        engine = _engine(workers, scheduler) if todo else _InlineEngine()
+        # no pool for nothing to do; a scheduler that cannot be reached changes nothing
+        engine = _engine(workers, scheduler) if todo else _IdleEngine(workers, scheduler)
         try:
+            ledger.set_analysis_settings(settings.to_dict(), settings.hash)
             run = _Run(ledger, settings, engine, todo, skipped, started, progress)
             run.go(
                 chunk_size or _auto_chunk_size(len(todo), engine.workers),
@@ -706,9 +722,14 @@ class _Run:
                     if ids is None:
                         exhausted = True
                         break
-                    lightcurves = [self.ledger.lightcurve(s) for s in ids]
-                    future = self.engine.submit(lightcurves, self.settings, fn_name, shared_epochs)
-                    self.pending[future] = ids
+                    lightcurves, unreadable = self._read(ids)
+                    if unreadable:
+                        self._write(unreadable)
+                    if lightcurves:
+                        future = self.engine.submit(
+                            lightcurves, self.settings, fn_name, shared_epochs
+                        )
+                        self.pending[future] = [lc.star_id for lc in lightcurves]
                 if not self.pending:
                     return
                 for future in self.engine.wait_any(self.pending, timeout=0.25):
@@ -716,12 +737,24 @@ class _Run:
         except KeyboardInterrupt:
             self.interrupted = True
 
+    def _read(self, ids: list[str]) -> tuple[list, list[StarOutcome]]:
+        lightcurves, unreadable = [], []
+        for star_id in ids:
+            try:
+                lightcurves.append(self.ledger.lightcurve(star_id))
+            except PhasewiseError as exc:
+                unreadable.append(StarOutcome(star_id, error=f"cannot read the star: {exc}"))
+        return lightcurves, unreadable
+
     def _collect(self, future: Any, ids: list[str]) -> None:
         try:
             outcomes = future.result()
         except Exception as exc:  # noqa: BLE001 - a lost chunk (dead worker) is recorded, not fatal
             message = f"the worker running this star's chunk failed: {_error_text(exc)}"
             outcomes = [StarOutcome(s, error=message) for s in ids]
+        self._write(outcomes)
+
+    def _write(self, outcomes: list[StarOutcome]) -> None:
         results = [(o.star_id, self.settings.hash, o.result) for o in outcomes if not o.failed]
         failures = [(o.star_id, self.settings.hash, o.error) for o in outcomes if o.failed]
         if results:

@@ -77,3 +77,5 @@ def test_unreachable_scheduler_is_a_clear_error(tmp_path, monkeypatch):
         PhasewiseError, match="cannot reach the Dask scheduler at tcp://127.0.0.1:9"
     ):
         analyse_ledger(path, FAST, scheduler="tcp://127.0.0.1:9")
+    with Ledger.open(path, readonly=True) as ledger:
+        assert ledger.settings_hash is None  # a run that never started changed nothing
