@@ -4,12 +4,19 @@ from __future__ import annotations
 
 import io
 import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
 
 import pytest
 
 from app.cli import main
 from app.cli.analyse import ProgressBar, progress_text, summary_text
 from core.batch import BatchSummary, Progress
+from core.errors import PhasewiseError
 from core.io import write_stars
 from core.ledger import Ledger
 from core.synthetic import synthetic_field
@@ -139,3 +146,58 @@ def test_summary_lists_failures_and_what_is_left():
     assert "analysed 6, failed 1, skipped 4" in text and "3.5 stars/s, local, 2 workers" in text
     assert "interrupted: 3 stars left; run again" in text
     assert "failed CAL-V007: RuntimeError: boom" in text
+
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def _count_results(path):
+    if not path.exists():
+        return 0
+    try:
+        with Ledger.open(path, readonly=True) as book:
+            return sum(book.result(s) is not None for s in book.star_ids())
+    except PhasewiseError:
+        return 0
+
+
+@pytest.mark.slow
+def test_ctrl_c_keeps_results_and_a_rerun_finishes(tmp_path):
+    lcs = synthetic_field(30, n_epochs=80, seed=6).lightcurves()
+    ledger = tmp_path / "c.ledger.sqlite"
+    with Ledger.create(ledger) as book:
+        book.add_stars(lcs)
+    settings = tmp_path / "fast.toml"
+    settings.write_text(SETTINGS, encoding="utf-8")
+    command = [sys.executable, "-m", "app", "analyse", str(ledger), "--settings", str(settings)]
+    proc = subprocess.Popen(
+        [*command, "--workers", "1", "--chunk-size", "2"],
+        cwd=ROOT,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
+    deadline = time.monotonic() + 60
+    while _count_results(ledger) == 0 and proc.poll() is None and time.monotonic() < deadline:
+        time.sleep(0.1)
+    os.killpg(proc.pid, signal.SIGINT)  # what Ctrl-C sends: the whole process group
+    out, err = proc.communicate(timeout=60)
+    kept = _count_results(ledger)
+    if proc.returncode == 0:
+        pytest.skip("the run finished before Ctrl-C arrived")  # a very fast machine
+    assert proc.returncode == 130, err
+    assert f"interrupted: {30 - kept} stars left" in out
+    with Ledger.open(ledger, readonly=True, check="full") as book:
+        assert book.integrity_check()
+    done = subprocess.run(
+        [*command, "--workers", "0", "--json"],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert done.returncode == 0, done.stderr
+    summary = json.loads(done.stdout)
+    assert summary["skipped"] == kept and summary["analysed"] + summary["failed"] == 30 - kept
+    assert _count_results(ledger) == 30
