@@ -282,10 +282,7 @@ def analyse_chunk(
     lightcurves = list(lightcurves)
     periodograms: dict[int, Any] = {}
     if shared_epochs and len(lightcurves) > 1:
-        try:
-            periodograms = _shared_periodograms(lightcurves, settings)
-        except Exception:  # noqa: BLE001 - the batch is an optimisation; fall back star by star
-            periodograms = {}
+        periodograms = _shared_periodograms(lightcurves, settings)
     outcomes = []
     for index, lc in enumerate(lightcurves):
         pgram = periodograms.get(index)
@@ -303,12 +300,22 @@ def analyse_chunk(
 def _shared_periodograms(lightcurves: Sequence, settings) -> dict[int, Any]:
     from .periodogram import shared_epoch_periodograms
 
-    groups = shared_epoch_groups(lightcurves, settings)
+    try:
+        groups = shared_epoch_groups(lightcurves, settings)
+    except Exception:  # noqa: BLE001 - batching is an optimisation: then star by star
+        return {}
     out: dict[int, Any] = {}
     for group in groups:
-        pgrams = shared_epoch_periodograms(
-            group.time, group.mag, group.mag_err, settings.periodogram, frequency=group.frequency
-        )
+        try:
+            pgrams = shared_epoch_periodograms(
+                group.time,
+                group.mag,
+                group.mag_err,
+                settings.periodogram,
+                frequency=group.frequency,
+            )
+        except Exception:  # noqa: BLE001 - its stars compute their own (and report any error)
+            continue
         out.update(zip(group.members, pgrams, strict=True))
     return out
 
