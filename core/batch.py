@@ -4,7 +4,10 @@ The parent process is the only one that touches the ledger.  It reads the
 stars that need analysis in chunks, sends each chunk's light curves (arrays,
 never the ledger) to a worker, and writes each chunk's results as it comes
 back, one transaction per write.  A bounded number of chunks is in flight,
-so memory does not grow with the size of the ledger.  A run that is stopped,
+so memory does not grow with the size of the ledger.  A chunk whose worker is
+lost (killed, out of memory, a crash in compiled code) is retried star by
+star, each alone, so that only the star that takes its worker down again is
+recorded as failed.  A run that is stopped,
 interrupted or killed keeps every result already written; the next run asks
 the ledger what is still missing (or stale) and does only that.
 
@@ -705,7 +708,8 @@ class _Run:
     skipped: int
     started: float
     progress: Callable[[Progress], None] | None
-    pending: dict[Any, list[str]] = field(default_factory=dict)
+    pending: dict[Any, tuple[list[str], bool]] = field(default_factory=dict)
+    retry: list[list[str]] = field(default_factory=list)
     analysed: int = 0
     failed: int = 0
     shared: int = 0
@@ -724,10 +728,15 @@ class _Run:
                     for future in list(self.pending):
                         if self.engine.cancel_waiting(future):
                             del self.pending[future]
-                while not (exhausted or self.stopped) and len(self.pending) < max_in_flight:
-                    ids = next(chunks, None)
+                while not self.stopped and len(self.pending) < max_in_flight:
+                    if self.retry and self.pending:
+                        break  # a retried star runs alone: if its worker dies, it is the cause
+                    retried = bool(self.retry)
+                    ids = self.retry.pop(0) if retried else None
+                    if ids is None and not exhausted:
+                        ids = next(chunks, None)
+                        exhausted = ids is None
                     if ids is None:
-                        exhausted = True
                         break
                     lightcurves, unreadable = self._read(ids)
                     if unreadable:
@@ -736,11 +745,11 @@ class _Run:
                         future = self.engine.submit(
                             lightcurves, self.settings, fn_name, shared_epochs
                         )
-                        self.pending[future] = [lc.star_id for lc in lightcurves]
-                if not self.pending:
+                        self.pending[future] = ([lc.star_id for lc in lightcurves], retried)
+                if not self.pending and (self.stopped or (exhausted and not self.retry)):
                     return
                 for future in self.engine.wait_any(self.pending, timeout=0.25):
-                    self._collect(future, self.pending.pop(future))
+                    self._collect(future, *self.pending.pop(future))
         except KeyboardInterrupt:
             self.interrupted = True
 
@@ -753,12 +762,18 @@ class _Run:
                 unreadable.append(StarOutcome(star_id, error=f"cannot read the star: {exc}"))
         return lightcurves, unreadable
 
-    def _collect(self, future: Any, ids: list[str]) -> None:
+    def _collect(self, future: Any, ids: list[str], retried: bool = False) -> None:
         try:
             outcomes = future.result()
         except Exception as exc:  # noqa: BLE001 - a lost chunk (dead worker) is recorded, not fatal
-            message = f"the worker running this star's chunk failed: {_error_text(exc)}"
-            outcomes = [StarOutcome(s, error=message) for s in ids]
+            # analyse_chunk never raises for a star: the worker itself was lost (killed,
+            # out of memory, a crash in compiled code).  Retry the stars one by one, so
+            # that only a star that loses its worker again is recorded as failed.
+            if not retried:
+                self.retry.extend([star_id] for star_id in ids)
+                return
+            message = f"the worker analysing this star was lost: {_error_text(exc)}"
+            outcomes = [StarOutcome(ids[0], error=message)]
         self._write(outcomes)
 
     def _write(self, outcomes: list[StarOutcome]) -> None:

@@ -56,3 +56,10 @@ def failing_status_analyse(lc, settings, *, periodogram=None):
     if lc.star_id.endswith("5"):
         result.update(status="failed", reason="ValueError: the curve has no usable band")
     return result
+
+
+def dying_analyse(lc, settings, *, periodogram=None):
+    """The worker process dies (as on a crash in compiled code) for ids ending in 7."""
+    if lc.star_id.endswith("7"):
+        os._exit(3)
+    return quick_analyse(lc, settings, periodogram=periodogram)

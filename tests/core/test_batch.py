@@ -32,6 +32,7 @@ from core.synthetic import synthetic_field
 QUICK = "tests.core.batch_helpers:quick_analyse"
 RAISING = "tests.core.batch_helpers:raising_analyse"
 FAILING = "tests.core.batch_helpers:failing_status_analyse"
+DYING = "tests.core.batch_helpers:dying_analyse"
 
 #: A small grid keeps the real analysis quick in tests (about 13,000 frequencies).
 FAST = AnalysisSettings(periodogram=PeriodogramSettings(fmax=3.0, oversampling=3))
@@ -205,6 +206,19 @@ def test_star_that_raises_in_a_worker_is_recorded_and_the_run_goes_on(quick_ledg
             else:
                 assert not stored.failed and stored.result["status"] == "ok"
     assert dict(summary.failures).keys() == set(bad)
+
+
+@pytest.mark.slow  # restarts worker processes
+def test_star_that_kills_its_worker_is_isolated_and_recorded(quick_ledger):
+    summary = analyse_ledger(quick_ledger, FAST, workers=1, analyse_fn=DYING, chunk_size=4)
+    with Ledger.open(quick_ledger, readonly=True) as ledger:
+        bad = [s for s in ledger.star_ids() if s.endswith("7")]
+        assert bad and summary.failed == len(bad) and summary.analysed == 23 - len(bad)
+        for star_id in bad:
+            stored = ledger.result(star_id)
+            assert stored.failed and "the worker analysing this star was lost" in stored.error
+        good = [s for s in ledger.star_ids() if s not in bad]
+        assert all(not ledger.result(s).failed for s in good)  # chunk-mates are retried
 
 
 def test_result_with_failed_status_is_stored_as_a_failure(quick_ledger):
