@@ -21,6 +21,7 @@ zero weight there, so the result equals the star-by-star one.
 
 from __future__ import annotations
 
+import dataclasses
 import importlib
 import math
 import multiprocessing
@@ -129,7 +130,9 @@ class BatchSummary:
 
     ``analysed`` counts stars with a stored result, ``failed`` stars recorded
     as failed (``failures`` keeps the first messages), ``skipped`` stars left
-    alone, ``remaining`` stars not reached because the run was stopped.
+    alone, ``remaining`` stars not reached because the run was stopped;
+    ``stale_left`` stars whose results are stale but were not asked for
+    (``only="unanalysed"``).
     """
 
     ledger: str
@@ -146,6 +149,7 @@ class BatchSummary:
     interrupted: bool = False
     failures: tuple[tuple[str, str], ...] = ()
     shared_epoch_stars: int = 0
+    stale_left: int = 0
 
     @property
     def rate(self) -> float:
@@ -169,6 +173,7 @@ class BatchSummary:
             "interrupted": self.interrupted,
             "failures": [{"star_id": s, "message": m} for s, m in self.failures],
             "shared_epoch_stars": self.shared_epoch_stars,
+            "stale_left": self.stale_left,
         }
 
 
@@ -675,6 +680,9 @@ def analyse_ledger(
             )
         todo = ledger.stars_needing_analysis(settings.hash, only=only)
         skipped = ledger.n_stars - len(todo)
+        stale_left = 0
+        if only == "unanalysed":
+            stale_left = len(ledger.stars_needing_analysis(settings.hash, "stale")) - len(todo)
         # no pool for nothing to do; a scheduler that cannot be reached changes nothing
         engine = _engine(workers, scheduler) if todo else _IdleEngine(workers, scheduler)
         try:
@@ -694,7 +702,8 @@ def analyse_ledger(
                 engine.close(())
     finally:
         ledger.close()
-    return run.summary(str(ledger_path), settings.hash, engine, time.monotonic() - started)
+    summary = run.summary(str(ledger_path), settings.hash, engine, time.monotonic() - started)
+    return dataclasses.replace(summary, stale_left=stale_left)
 
 
 @dataclass

@@ -190,6 +190,11 @@ def summary_text(summary: BatchSummary) -> str:
     if summary.remaining:
         why = "interrupted" if summary.interrupted else "stopped"
         lines.append(f"{why}: {summary.remaining} stars left; run again to analyse them")
+    if summary.stale_left:
+        lines.append(
+            f"{summary.stale_left} stars have results of other settings (or points excluded "
+            "since); --only stale analyses them again"
+        )
     for star_id, message in summary.failures[:SHOWN_FAILURES]:
         lines.append(f"  failed {star_id}: {message}")
     if summary.failed > SHOWN_FAILURES:

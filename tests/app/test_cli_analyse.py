@@ -141,11 +141,13 @@ def test_summary_lists_failures_and_what_is_left():
         elapsed=2.0,
         interrupted=True,
         failures=(("CAL-V007", "RuntimeError: boom"),),
+        stale_left=2,
     )
     text = summary_text(summary)
     assert "analysed 6, failed 1, skipped 4" in text and "3.5 stars/s, local, 2 workers" in text
     assert "interrupted: 3 stars left; run again" in text
     assert "failed CAL-V007: RuntimeError: boom" in text
+    assert "2 stars have results of other settings" in text and "--only stale" in text
 
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -179,8 +179,9 @@ def test_new_settings_make_results_stale_and_stale_run_redoes_them(quick_ledger)
     assert other.hash != FAST.hash
     none_new = analyse_ledger(quick_ledger, other, workers=0, analyse_fn=QUICK)
     assert none_new.total == 0  # "unanalysed" takes only stars without any result
+    assert none_new.stale_left == 23
     stale = analyse_ledger(quick_ledger, other, workers=0, analyse_fn=QUICK, only="stale")
-    assert stale.analysed == 23
+    assert stale.analysed == 23 and stale.stale_left == 0
     with Ledger.open(quick_ledger, readonly=True) as ledger:
         assert {ledger.result(s).settings_hash for s in ledger.star_ids()} == {other.hash}
 
