@@ -12,7 +12,8 @@ tested period ``P`` the light curve then shows two minima per cycle:
 * the symmetry of the curve at ``P`` about its minimum light: eclipses are
   symmetric in time, the light curve of a fundamental-mode pulsator is not;
 * the depth of a second dip at ``P`` itself (an EA/EB tested at its orbital
-  period), ``None`` when the curve at ``P`` has a single minimum.
+  period), ``None`` when the curve at ``P`` has a single minimum (a dip
+  shallower than ``secondary_fraction`` of the amplitude does not count).
 
 The tests run on the band with most points.  Depths come from a Fourier fit
 at ``2P`` (order chosen by BIC within the sampling limits); their error from
@@ -54,18 +55,26 @@ class EclipseSettings:
     symmetry_limit : float
         Largest asymmetry (rms of the part of the curve at ``P`` that is odd
         about minimum light, over the rms of the curve) still called symmetric.
+    secondary_fraction : float
+        Smallest depth (below maximum light, as a fraction of the fitted
+        curve's peak-to-peak) of a second dip at ``P`` for it to count as a
+        secondary minimum.  Shallower wiggles are the ringing of a Fourier
+        series fitted to a narrow eclipse (common practice, no source; 0.1
+        our choice).
     """
 
     max_order: int = 16
     significance: float = 3.0
     min_depth_fraction: float = 0.1
     symmetry_limit: float = 0.1
+    secondary_fraction: float = 0.1
 
     def __post_init__(self) -> None:
         require_int("max_order", self.max_order, 2, 30)
         require_positive("significance", self.significance)
         require_range("min_depth_fraction", self.min_depth_fraction, 0.0, 1.0)
         require_range("symmetry_limit", self.symmetry_limit, 0.0, 1.0)
+        require_range("secondary_fraction", self.secondary_fraction, 0.0, 1.0)
 
 
 def _opt(x: float | None) -> float | None:
@@ -190,6 +199,8 @@ def eclipse_test(
     dips = _local_maxima(curve_p)
     dips = dips[_circular_distance(x[dips], x[deepest]) >= 0.25]
     second_at_p = float(curve_p[dips].max() - curve_p.min()) if dips.size else None
+    if second_at_p is not None and second_at_p < settings.secondary_fraction * np.ptp(curve_p):
+        second_at_p = None
 
     # --- at 2P: two minima per cycle
     f2 = 0.5 * f
