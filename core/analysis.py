@@ -328,7 +328,7 @@ def _analyse(
     if candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
         flags.append(
             f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
-            "the periodogram's peaks were weaker"
+            "the periodogram's peaks were weaker; no residual outliers set aside"
         )
     elif chosen != 0:
         flags.append(
@@ -341,7 +341,11 @@ def _analyse(
     frequency = refined.frequency if refined.converged else f0
     if not refined.converged:
         flags.append(f"period refinement did not converge: {refined.message}")
-    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, settings)
+    from_search = candidates[chosen].fap_method == ECLIPSE_FAP_METHOD
+    # a Fourier series cannot follow a narrow eclipse: its residuals would set
+    # the eclipse points aside as outliers
+    decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
+    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, decompose_settings)
     if not fits:
         raise PhasewiseError("no band supports even a first-order Fourier fit", field=lc.star_id)
     if outlier_times:
@@ -540,7 +544,25 @@ def _decompose_with_outliers(
     return (refit or fits), times, kept
 
 
+#: Points within this share of their range of maximum light count as the
+#: plateau (our choice: well above the noise of a clear detection, well below
+#: the depth of an eclipse).
+PLATEAU_LEVEL = 0.15
+
+
 def _extra_features(lc: LightCurve, primary: str) -> dict[str, Any]:
-    """Features not read off the result dict (see ``features_from_result``)."""
+    """Features not read off the result dict (see ``features_from_result``).
+
+    ``plateau_fraction`` comes from the points, not the Fourier model: a
+    Fourier series of a narrow eclipse rings across the flat maximum.  With
+    sampling that is random in phase, the share of points near maximum
+    light is the share of the cycle spent there.
+    """
     _, mag, _ = lc.arrays(primary)
-    return {"skewness": float(stats.skew(mag))} if mag.size > 2 else {}
+    if mag.size <= 2:
+        return {}
+    bright, faint = np.percentile(mag, [5.0, 99.0])
+    out: dict[str, Any] = {"skewness": float(stats.skew(mag))}
+    if faint > bright:
+        out["plateau_fraction"] = float(np.mean(mag <= bright + PLATEAU_LEVEL * (faint - bright)))
+    return out

@@ -75,6 +75,13 @@ FEATURES: dict[str, Feature] = _features(
         "skewness of the Fourier model magnitudes over one cycle (> 0: narrow minima); "
         "the model, not the points, so outliers do not drive it",
     ),
+    (
+        "plateau_fraction",
+        "",
+        "share of the primary band's points within 15% of their range of maximum light "
+        "(range from the 5th to the 99th percentile; near 1: constant light between short "
+        "eclipses, about 0.3 for a sinusoid); filled in by the analysis",
+    ),
     ("period_ratio", "", "shorter / longer of the two strongest independent periods"),
     ("secondary_period", "d", "second independent period from prewhitening"),
     ("depth_difference", "mag", "difference of alternate minima when folded at 2 * period"),
