@@ -419,7 +419,8 @@ def _with_eclipse_search(
       peak is taken when it is significant.
     * The magnitudes are strongly skewed to the faint side (most of the time
       at maximum light, short fadings): the search's best peak joins the
-      multi-harmonic competition of :func:`_choose_candidate`.
+      multi-harmonic competition of :func:`_choose_candidate`, unless it is
+      the chosen peak, its harmonic or its subharmonic.
 
     Two searches were made, so the search's false-alarm probability is
     doubled (Bonferroni) before it is compared or reported.
@@ -455,8 +456,23 @@ def _with_eclipse_search(
     joined = (*candidates, extra)
     if weak:
         return joined, len(joined) - 1, search
+    if _harmonically_related(f, candidates[chosen].frequency, lc.baseline, settings):
+        # at f/2 a curve fits as well with twice the parameters: the choice
+        # between P and 2P is the eclipse test's and the classifier's
+        return joined, chosen, search
     best = _best_by_bic(lc, joined, (chosen, len(joined) - 1), settings)
     return joined, best, search
+
+
+def _harmonically_related(f: float, other: float, baseline: float, settings) -> bool:
+    """Whether ``f`` is n or 1/n times ``other`` (n = 1 .. max_harmonic) within
+    the candidates' mark tolerance."""
+    pg = settings.periodogram
+    tol = pg.mark_tolerance / baseline if baseline > 0 else 0.0
+    for n in range(1, pg.max_harmonic + 1):
+        if abs(f - n * other) <= tol or abs(n * f - other) <= tol:
+            return True
+    return False
 
 
 def _significant(fap: float | None, threshold: float) -> bool:
