@@ -2,7 +2,8 @@
 
 Steps, each a pure function of its own module::
 
-    clean → periodogram → candidates → period choice → refinement
+    clean → periodogram → candidates → period choice (with the phase-binned
+          eclipse search where the periodogram is weak) → refinement
           → Fourier decomposition (per band, residual outliers set aside)
           → prewhitening → eclipse test → features → suggestions → physics
 
