@@ -21,7 +21,6 @@ astronomer decides.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 from typing import Any
@@ -57,7 +56,7 @@ from .periodogram import (
 from .physics import PhysicalValue, PhysicsSettings, derive
 from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten
 from .settings import settings_hash, settings_to_dict
-from .validation import require_int, require_positive, require_range
+from .validation import finite_or_none, require_int, require_positive, require_range
 
 __all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
 
@@ -132,15 +131,7 @@ class AnalysisSettings:
         return settings_hash(self)
 
 
-def _num(value: Any) -> float | None:
-    """A finite float or None (for JSON-able results)."""
-    if value is None:
-        return None
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return None
-    return number if math.isfinite(number) else None
+_num = finite_or_none  # a finite float or None, for JSON-able results
 
 
 @dataclass(frozen=True, eq=False)

@@ -31,7 +31,7 @@ from scipy import linalg
 
 from .errors import PhasewiseError
 from .fourier import FourierFit, FourierSettings, _basis, choose_order, fit_fourier
-from .validation import require_int, require_positive, require_range
+from .validation import finite_or_none, require_int, require_positive, require_range
 
 __all__ = ["EclipseSettings", "EclipseTest", "eclipse_test"]
 
@@ -78,8 +78,7 @@ class EclipseSettings:
         require_range("secondary_fraction", self.secondary_fraction, 0.0, 1.0)
 
 
-def _opt(x: float | None) -> float | None:
-    return None if x is None or not np.isfinite(x) else float(x)
+_opt = finite_or_none  # undefined values leave as None
 
 
 @dataclass(frozen=True)

@@ -31,6 +31,8 @@ from typing import Any
 
 import numpy as np
 
+from ..validation import finite_or_none
+
 __all__ = ["Feature", "FEATURES", "feature_info", "is_known_feature", "features_from_result"]
 
 
@@ -159,14 +161,7 @@ def is_known_feature(name: str) -> bool:
     return feature_info(name) is not None
 
 
-def _float(value: Any) -> float | None:
-    if value is None or isinstance(value, (str, bool)):
-        return None
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return None
-    return number if math.isfinite(number) else None
+_float = finite_or_none
 
 
 def _item(sequence: Any, index: int) -> float | None:
