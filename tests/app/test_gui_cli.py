@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import subprocess
 import sys
+import tempfile
 from pathlib import Path
 
 import pytest
@@ -12,8 +13,19 @@ from PySide6.QtGui import QImage
 ROOT = Path(__file__).resolve().parents[2]
 
 
+def _env() -> dict:
+    # a throw-away home: the window's QSettings (layout, recent files) land there
+    home = tempfile.mkdtemp(prefix="phasewise-home-")
+    return {
+        "QT_QPA_PLATFORM": "offscreen",
+        "PATH": "/usr/bin:/bin",
+        "HOME": home,
+        "XDG_CONFIG_HOME": str(Path(home) / ".config"),
+    }
+
+
 def _run(*args, timeout=120):
-    env = {"QT_QPA_PLATFORM": "offscreen", "PATH": "/usr/bin:/bin", "HOME": str(ROOT)}
+    env = _env()
     return subprocess.run(
         [sys.executable, "-m", "app", *args],
         cwd=ROOT,
@@ -116,7 +128,7 @@ def test_window_closed_by_the_user_exits_cleanly(subset_copy):
         "from app.cli import main\n"
         f"sys.exit(main(['open', {str(subset_copy)!r}]))\n"
     )
-    env = {"QT_QPA_PLATFORM": "offscreen", "PATH": "/usr/bin:/bin", "HOME": str(ROOT)}
+    env = _env()
     proc = subprocess.run(
         [sys.executable, "-c", script],
         cwd=ROOT,
