@@ -11,7 +11,7 @@ from app.desk.dialogs import ColumnMappingDialog
 from core.io import ColumnMapping, open_photometry, write_stars
 
 from .conftest import dispose
-from .fakes import make_star
+from .invented import make_star
 
 
 def _table(tmp_path: Path) -> Path:
