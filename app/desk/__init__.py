@@ -20,11 +20,9 @@ Other views dock into the window through these extension points:
   window commands when present.
 """
 
-from .blas import single_threaded_blas
 from .qt_guard import protect_singletons
 
 protect_singletons()
-single_threaded_blas()
 
 from .main_window import MainWindow  # noqa: E402
 
