@@ -20,10 +20,12 @@ import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
-
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+import numpy as np  # noqa: E402
+
+import core  # noqa: E402, F401  (first, as in the program: it sets one BLAS thread before numpy)
+
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 
