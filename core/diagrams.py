@@ -1,0 +1,625 @@
+"""Population diagrams: coordinates of every star in the field's diagnostic planes.
+
+A class is judged not only from one light curve but from where the star falls
+among the others.  This module turns per-star numbers (a :class:`StarPoint`
+per star, built from an analysis result and the verdict) into the coordinates
+of the usual diagrams, the guide lines drawn on them, and a rule that flags
+stars far from their class's locus.  Pure numpy; the population view in
+``app.population`` only draws what is computed here.
+
+Diagrams (keys of :data:`DIAGRAMS`):
+
+``period_amplitude``
+    log10 P [d] against peak-to-peak amplitude [mag] in one band.
+``phi31_logp`` / ``r21_logp``
+    Fourier planes: phi31 (sine series, rad) and R21 against log10 P.
+``period_ratio``
+    shorter/longer period against log10 of the longer period (double-mode
+    stars), with guide lines at published ratios.
+``period_luminosity``
+    log10 P against mean magnitude in one band (bright at the top), with a
+    period–luminosity relation drawn at a fitted distance modulus.
+``colour_magnitude``
+    V−I against V (bright at the top), with the instability strip.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .errors import PhasewiseError
+from .validation import require_int, require_positive
+
+__all__ = [
+    "DIAGRAMS",
+    "NO_LOCUS_CLASSES",
+    "INSTABILITY_STRIP_NOTE",
+    "RATIO_GUIDES",
+    "StarPoint",
+    "DiagramLine",
+    "Diagram",
+    "OutlierRule",
+    "OutlierFlag",
+    "class_used",
+    "available_bands",
+    "period_amplitude",
+    "phi31_logp",
+    "r21_logp",
+    "period_ratio",
+    "period_luminosity",
+    "colour_magnitude",
+    "relation_line",
+    "fit_distance_modulus",
+    "instability_strip",
+    "robust_distance",
+    "find_outliers",
+]
+
+#: Diagram keys and titles, in the order the population view shows them.
+DIAGRAMS: dict[str, str] = {
+    "period_amplitude": "Period–amplitude",
+    "phi31_logp": "Fourier plane φ31",
+    "r21_logp": "Fourier plane R21",
+    "period_ratio": "Period ratio",
+    "period_luminosity": "Period–luminosity",
+    "colour_magnitude": "Colour–magnitude",
+}
+
+#: Classes that have no locus to be far from: never used for the outlier rule.
+NO_LOCUS_CLASSES = frozenset({"UNKNOWN", "CONST", "REJECTED"})
+
+#: Verdict states whose class is the person's, not the machine's.
+_DECIDED = frozenset({"confirmed", "relabelled"})
+
+
+# --------------------------------------------------------------------------- stars
+@dataclass(frozen=True)
+class StarPoint:
+    """The numbers of one star that the population diagrams use.
+
+    Parameters
+    ----------
+    star_id : str
+    class_code : str
+        The class used: the verdict class when the person decided, else the
+        top suggestion, else ``"UNKNOWN"``; ``"REJECTED"`` for rejected stars.
+    class_source : {"verdict", "suggestion", "none"}
+    status : str
+        Verdict state (``unreviewed``, ``confirmed`` …).
+    period : float or None
+        Adopted period in days.
+    amplitude_by_band, mean_mag_by_band : mapping band -> mag
+        Peak-to-peak amplitude and mean magnitude per band.
+    R21, phi31 : float or None
+        Fourier parameters of the primary band; phi31 in the sine series (rad).
+    shorter_period, longer_period : float or None
+        The two periods of a double-mode star, in days.
+    primary_band : str or None
+    """
+
+    star_id: str
+    class_code: str = "UNKNOWN"
+    class_source: str = "none"
+    status: str = "unreviewed"
+    period: float | None = None
+    amplitude_by_band: Mapping[str, float] = field(default_factory=dict)
+    mean_mag_by_band: Mapping[str, float] = field(default_factory=dict)
+    R21: float | None = None
+    phi31: float | None = None
+    shorter_period: float | None = None
+    longer_period: float | None = None
+    primary_band: str | None = None
+
+    @property
+    def ratio(self) -> float | None:
+        """Shorter over longer period, or None for a single-period star."""
+        if self.shorter_period is None or self.longer_period is None:
+            return None
+        return self.shorter_period / self.longer_period
+
+    def colour(self, blue: str = "V", red: str = "I") -> float | None:
+        """Mean-magnitude colour ``blue − red``, or None when a band is missing."""
+        m1, m2 = self.mean_mag_by_band.get(blue), self.mean_mag_by_band.get(red)
+        if m1 is None or m2 is None:
+            return None
+        return float(m1) - float(m2)
+
+    @classmethod
+    def from_result(
+        cls,
+        star_id: str,
+        result: Mapping[str, Any] | None,
+        *,
+        verdict_class: str | None = None,
+        status: str = "unreviewed",
+    ) -> StarPoint:
+        """Build a point from an ``AnalysisResult.to_dict()`` and the verdict.
+
+        A missing or failed result gives a point with no coordinates (it is
+        counted in the summary but drawn in no diagram).
+        """
+        result = result or {}
+        code, source = class_used(status, verdict_class, result.get("suggestions"))
+        period = _finite(result.get("period"))
+        fourier = result.get("fourier") or {}
+        shorter, longer = _double_mode(period, result)
+        return cls(
+            star_id=str(star_id),
+            class_code=code,
+            class_source=source,
+            status=status,
+            period=period,
+            amplitude_by_band=_band_map(result.get("amplitude_by_band")),
+            mean_mag_by_band=_band_map(result.get("mean_mag_by_band")),
+            R21=_finite(fourier.get("R21")),
+            phi31=_sine_phi31(fourier),
+            shorter_period=shorter,
+            longer_period=longer,
+            primary_band=result.get("primary_band"),
+        )
+
+
+def class_used(
+    status: str, verdict_class: str | None, suggestions: Sequence[Mapping[str, Any]] | None
+) -> tuple[str, str]:
+    """The class a star is drawn as, and where it comes from.
+
+    The person's class wins (``confirmed``/``relabelled``); a rejected star is
+    ``"REJECTED"``; otherwise the top suggestion; otherwise ``"UNKNOWN"``.
+    """
+    if status == "rejected":
+        return "REJECTED", "verdict"
+    if status in _DECIDED and verdict_class:
+        return str(verdict_class), "verdict"
+    for suggestion in suggestions or ():
+        code = suggestion.get("class") or suggestion.get("class_code")
+        if code:
+            return str(code), "suggestion"
+    return "UNKNOWN", "none"
+
+
+def _finite(value: Any) -> float | None:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if math.isfinite(number) else None
+
+
+def _band_map(values: Mapping[str, Any] | None) -> dict[str, float]:
+    out = {}
+    for band, value in (values or {}).items():
+        number = _finite(value)
+        if number is not None:
+            out[str(band)] = number
+    return out
+
+
+def _sine_phi31(fourier: Mapping[str, Any]) -> float | None:
+    phi31 = _finite(fourier.get("phi31"))
+    if phi31 is None:
+        return None
+    if fourier.get("form", "sine") == "cosine":
+        # phi31(sin) = phi31(cos) - pi (mod 2 pi): cos x = sin(x + pi/2), see REFERENCES.md
+        phi31 = (phi31 - math.pi) % (2 * math.pi)
+    return phi31
+
+
+def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float | None, ...]:
+    """Shorter and longer of the primary and the secondary period the ratio refers to."""
+    if period is None or period <= 0:
+        return None, None
+    seconds = []
+    for entry in result.get("secondary_periods") or ():
+        value = entry.get("period") if isinstance(entry, Mapping) else entry
+        number = _finite(value)
+        if number is not None and number > 0 and not math.isclose(number, period):
+            seconds.append(number)
+    if not seconds:
+        return None, None
+    ratio = _finite(result.get("period_ratio"))
+    if ratio is not None and ratio > 0:
+        ratio = min(ratio, 1 / ratio)
+        # the secondary period whose ratio with the primary matches the stated one
+        second = min(seconds, key=lambda p: abs(min(p, period) / max(p, period) - ratio))
+    else:
+        second = seconds[0]
+    return min(second, period), max(second, period)
+
+
+def available_bands(points: Iterable[StarPoint]) -> list[str]:
+    """Bands with a mean magnitude, the most common first."""
+    counts: dict[str, int] = {}
+    for point in points:
+        for band in point.mean_mag_by_band:
+            counts[band] = counts.get(band, 0) + 1
+    return sorted(counts, key=lambda b: (-counts[b], b))
+
+
+# --------------------------------------------------------------------------- diagrams
+@dataclass(frozen=True)
+class DiagramLine:
+    """A guide drawn on a diagram: a relation, a strip edge, a reference ratio."""
+
+    label: str
+    x: np.ndarray
+    y: np.ndarray
+    kind: str = "relation"  # relation | strip | guide
+    citation: str = ""
+
+
+@dataclass(frozen=True)
+class Diagram:
+    """The coordinates of one diagnostic diagram.
+
+    ``x``, ``y``, ``star_ids`` and ``class_codes`` are parallel; only stars
+    with both coordinates finite appear.  ``scale_floor`` is the smallest
+    spread per axis the outlier rule accepts (a class whose members coincide
+    would otherwise make any neighbour an outlier).
+    """
+
+    key: str
+    title: str
+    x_label: str
+    y_label: str
+    star_ids: tuple[str, ...]
+    class_codes: tuple[str, ...]
+    x: np.ndarray
+    y: np.ndarray
+    invert_y: bool = False
+    lines: tuple[DiagramLine, ...] = ()
+    note: str = ""
+    scale_floor: tuple[float, float] = (1e-3, 1e-3)
+
+    def __len__(self) -> int:
+        return len(self.star_ids)
+
+    def counts(self) -> dict[str, int]:
+        """Number of points per class."""
+        out: dict[str, int] = {}
+        for code in self.class_codes:
+            out[code] = out.get(code, 0) + 1
+        return out
+
+    def inside(self, x_range: tuple[float, float], y_range: tuple[float, float]) -> list[str]:
+        """Star ids whose point lies in the rectangle (bounds in any order)."""
+        x0, x1 = sorted(x_range)
+        y0, y1 = sorted(y_range)
+        keep = (self.x >= x0) & (self.x <= x1) & (self.y >= y0) & (self.y <= y1)
+        return [self.star_ids[i] for i in np.flatnonzero(keep)]
+
+
+def _build(
+    key: str,
+    rows: list[tuple[str, str, float, float]],
+    **kwargs: Any,
+) -> Diagram:
+    ids = tuple(r[0] for r in rows)
+    codes = tuple(r[1] for r in rows)
+    x = np.array([r[2] for r in rows], dtype=float)
+    y = np.array([r[3] for r in rows], dtype=float)
+    x.flags.writeable = False
+    y.flags.writeable = False
+    return Diagram(
+        key=key, title=DIAGRAMS[key], star_ids=ids, class_codes=codes, x=x, y=y, **kwargs
+    )
+
+
+def _log_period(point: StarPoint) -> float | None:
+    if point.period is None or point.period <= 0:
+        return None
+    return math.log10(point.period)
+
+
+def _rows(points: Iterable[StarPoint], xy: Callable[[StarPoint], tuple[Any, Any]]) -> list:
+    rows = []
+    for point in points:
+        x, y = xy(point)
+        if x is not None and y is not None and math.isfinite(x) and math.isfinite(y):
+            rows.append((point.star_id, point.class_code, float(x), float(y)))
+    return rows
+
+
+def period_amplitude(points: Iterable[StarPoint], band: str) -> Diagram:
+    """log10 P against peak-to-peak amplitude in ``band``."""
+    rows = _rows(points, lambda p: (_log_period(p), p.amplitude_by_band.get(band)))
+    return _build(
+        "period_amplitude",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label=f"peak-to-peak amplitude {band} [mag]",
+        note=f"band {band}",
+        scale_floor=(0.005, 0.02),
+    )
+
+
+def phi31_logp(points: Iterable[StarPoint]) -> Diagram:
+    """phi31 (sine series) against log10 P, primary band."""
+    rows = _rows(points, lambda p: (_log_period(p), p.phi31))
+    return _build(
+        "phi31_logp",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label="φ31 (sine series) [rad]",
+        note="primary band of each star; cosine-series values converted (φ31 sin = φ31 cos − π)",
+        scale_floor=(0.005, 0.05),
+    )
+
+
+def r21_logp(points: Iterable[StarPoint]) -> Diagram:
+    """R21 against log10 P, primary band."""
+    rows = _rows(points, lambda p: (_log_period(p), p.R21))
+    return _build(
+        "r21_logp",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label="R21 = A2/A1",
+        note="primary band of each star",
+        scale_floor=(0.005, 0.01),
+    )
+
+
+#: Reference period ratios drawn on the period-ratio diagram: (label, low, high, citation).
+RATIO_GUIDES: tuple[tuple[str, float, float, str], ...] = (
+    ("RRd P1O/PF", 0.742, 0.748, "Soszyński et al. 2016, arXiv:1608.00576"),
+    ("Cepheid P1O/PF ≈ 0.72", 0.72, 0.72, "Alcock et al. 1995, AJ 109, 1653"),
+    ("Cepheid P2O/P1O ≈ 0.80", 0.80, 0.80, "Alcock et al. 1995, AJ 109, 1653"),
+)
+
+
+def period_ratio(points: Iterable[StarPoint]) -> Diagram:
+    """Shorter/longer period against log10 of the longer period (double-mode stars)."""
+    points = list(points)
+
+    def xy(p: StarPoint) -> tuple[Any, Any]:
+        if p.longer_period is None or p.ratio is None:
+            return None, None
+        return math.log10(p.longer_period), p.ratio
+
+    rows = _rows(points, xy)
+    xs = [r[2] for r in rows] or [-0.5, 0.5]
+    x_span = np.array([min(xs) - 0.1, max(xs) + 0.1])
+    lines = []
+    for label, low, high, citation in RATIO_GUIDES:
+        for value in sorted({low, high}):
+            lines.append(
+                DiagramLine(label, x_span, np.full(2, value), kind="guide", citation=citation)
+            )
+    return _build(
+        "period_ratio",
+        rows,
+        x_label="log₁₀ P_long [d]",
+        y_label="P_short / P_long",
+        lines=tuple(lines),
+        note="double-mode stars only; guide lines at published ratios",
+        scale_floor=(0.005, 0.002),
+    )
+
+
+def period_luminosity(
+    points: Iterable[StarPoint], band: str, lines: Sequence[DiagramLine] = ()
+) -> Diagram:
+    """log10 P against mean magnitude in ``band``; bright at the top."""
+    rows = _rows(points, lambda p: (_log_period(p), p.mean_mag_by_band.get(band)))
+    return _build(
+        "period_luminosity",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label=f"mean {band} [mag]",
+        invert_y=True,
+        lines=tuple(lines),
+        note=f"band {band}",
+        scale_floor=(0.005, 0.03),
+    )
+
+
+def colour_magnitude(
+    points: Iterable[StarPoint],
+    blue: str = "V",
+    red: str = "I",
+    lines: Sequence[DiagramLine] = (),
+) -> Diagram:
+    """Colour ``blue − red`` against ``blue`` magnitude; bright at the top."""
+    rows = _rows(points, lambda p: (p.colour(blue, red), p.mean_mag_by_band.get(blue)))
+    return _build(
+        "colour_magnitude",
+        rows,
+        x_label=f"{blue} − {red} [mag]",
+        y_label=f"mean {blue} [mag]",
+        invert_y=True,
+        lines=tuple(lines),
+        note=f"mean magnitudes; needs both {blue} and {red}",
+        scale_floor=(0.02, 0.03),
+    )
+
+
+# --------------------------------------------------------------------------- guide lines
+def relation_line(
+    absolute_mag: Callable[[np.ndarray], np.ndarray],
+    log_period: tuple[float, float],
+    distance_modulus: float,
+    extinction: float = 0.0,
+    *,
+    label: str = "",
+    citation: str = "",
+    n: int = 50,
+) -> DiagramLine:
+    """A period–luminosity relation drawn in apparent magnitude.
+
+    ``m(log P) = M(log P) + mu + A``, where ``M`` is the relation's absolute
+    magnitude, ``mu`` the (true) distance modulus and ``A`` the extinction in
+    the relation's band (definition of the distance modulus, REFERENCES.md).
+    """
+    lo, hi = sorted(log_period)
+    x = np.linspace(lo, hi, n)
+    y = np.asarray(absolute_mag(x), dtype=float) + distance_modulus + extinction
+    return DiagramLine(label, x, y, kind="relation", citation=citation)
+
+
+def fit_distance_modulus(
+    apparent_mag: Sequence[float],
+    absolute_mag: Sequence[float],
+    absolute_err: Sequence[float] | float,
+    extinction: float = 0.0,
+) -> tuple[float, float]:
+    """Inverse-variance weighted mean true distance modulus and its error.
+
+    ``mu_i = m_i − M_i − A``; weights ``1/sigma_i**2``; error
+    ``1/sqrt(sum w)`` (common practice, no source).  The population view uses
+    core.physics for the field summary; this places a relation on a diagram
+    when the summary has no value for that class.
+    """
+    m = np.asarray(apparent_mag, dtype=float)
+    big_m = np.asarray(absolute_mag, dtype=float)
+    err = np.broadcast_to(np.asarray(absolute_err, dtype=float), m.shape)
+    ok = np.isfinite(m) & np.isfinite(big_m) & np.isfinite(err) & (err > 0)
+    if not ok.any():
+        raise PhasewiseError("no star with a magnitude and a relation value", field="members")
+    w = 1.0 / err[ok] ** 2
+    mu = m[ok] - big_m[ok] - extinction
+    return float(np.sum(w * mu) / np.sum(w)), float(1.0 / np.sqrt(np.sum(w)))
+
+
+#: How the instability strip is drawn; shown in the UI and docs.
+INSTABILITY_STRIP_NOTE = (
+    "Instability strip edges: straight-line approximation FROM MEMORY, not a published "
+    "calibration: blue edge (V−I)0 = 0.35 − 0.05 (M_V − 0.5), red edge "
+    "(V−I)0 = 0.75 − 0.06 (M_V − 0.5), for M_V from −6 to +3. For orientation only."
+)
+
+# (V-I)0 at M_V = 0.5 and slope d(V-I)0/dM_V; from memory (see INSTABILITY_STRIP_NOTE)
+_STRIP_EDGES = {"blue edge": (0.35, -0.05), "red edge": (0.75, -0.06)}
+_STRIP_MV = (-6.0, 3.0)
+
+
+def instability_strip(
+    distance_modulus: float, a_v: float = 0.0, e_v_i: float = 0.0
+) -> tuple[DiagramLine, DiagramLine]:
+    """Blue and red edges of the instability strip in the (V−I, V) plane.
+
+    The absolute edges (see :data:`INSTABILITY_STRIP_NOTE`, from memory) are
+    moved to the field: ``V = M_V + mu + A_V`` and ``V−I = (V−I)0 + E(V−I)``.
+    """
+    mv = np.linspace(*_STRIP_MV, 10)
+    lines = []
+    for label, (colour_at_hb, slope) in _STRIP_EDGES.items():
+        colour0 = colour_at_hb + slope * (mv - 0.5)
+        lines.append(
+            DiagramLine(
+                f"instability strip {label} (from memory)",
+                colour0 + e_v_i,
+                mv + distance_modulus + a_v,
+                kind="strip",
+                citation="from memory",
+            )
+        )
+    return lines[0], lines[1]
+
+
+# --------------------------------------------------------------------------- outliers
+@dataclass(frozen=True)
+class OutlierRule:
+    """Flag stars far from their class's locus.
+
+    In each diagram, for each class with at least ``min_members`` points
+    (UNKNOWN, CONST and rejected stars excluded), the locus is the median of
+    x and of y and the spread is ``1.4826 × MAD`` per axis (at least the
+    diagram's ``scale_floor``).  A star's distance is
+    ``d = sqrt(((x − med_x)/s_x)² + ((y − med_y)/s_y)²)``, a Mahalanobis-like
+    distance with a robust diagonal scale; ``d > threshold`` flags it.
+    """
+
+    threshold: float = 4.0
+    min_members: int = 8
+
+    def __post_init__(self) -> None:
+        require_positive("outlier threshold", self.threshold)
+        require_int("outlier min_members", self.min_members, 3)
+
+    def describe(self) -> str:
+        """The rule in plain words, for the UI."""
+        return (
+            "Outlier rule: in each diagram, per class with ≥ "
+            f"{self.min_members} stars, distance d = √(Δx²/sₓ² + Δy²/s_y²) from the "
+            "class median, with s = 1.4826 × MAD per axis (robust, diagonal "
+            f"Mahalanobis-like); flagged when d > {self.threshold:g}. "
+            "UNKNOWN, CONST and rejected stars are not tested."
+        )
+
+
+@dataclass(frozen=True)
+class OutlierFlag:
+    """One star far from its class's locus in one diagram."""
+
+    star_id: str
+    class_code: str
+    diagram: str
+    distance: float
+    threshold: float
+
+    def reason(self) -> str:
+        title = DIAGRAMS.get(self.diagram, self.diagram)
+        return (
+            f"{self.distance:.1f} robust σ from the {self.class_code} locus in the "
+            f"{title} diagram (limit {self.threshold:g})"
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "star_id": self.star_id,
+            "class": self.class_code,
+            "diagram": self.diagram,
+            "distance": self.distance,
+            "threshold": self.threshold,
+            "reason": self.reason(),
+        }
+
+
+def robust_distance(
+    x: np.ndarray, y: np.ndarray, scale_floor: tuple[float, float] = (0.0, 0.0)
+) -> np.ndarray:
+    """Distance of each point from the median, in units of 1.4826 × MAD per axis."""
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    terms = []
+    for values, floor in ((x, scale_floor[0]), (y, scale_floor[1])):
+        centre = np.median(values)
+        # 1.4826 makes the MAD a consistent estimate of a normal sigma (common practice, no source)
+        spread = max(1.4826 * np.median(np.abs(values - centre)), floor, np.finfo(float).tiny)
+        terms.append(((values - centre) / spread) ** 2)
+    return np.sqrt(terms[0] + terms[1])
+
+
+def find_outliers(
+    diagrams: Iterable[Diagram], rule: OutlierRule = OutlierRule()
+) -> tuple[OutlierFlag, ...]:
+    """Stars beyond ``rule.threshold`` from their class's locus, per diagram.
+
+    Sorted by star id, then largest distance first.
+    """
+    flags = []
+    for diagram in diagrams:
+        codes = np.asarray(diagram.class_codes, dtype=object)
+        for code in sorted(set(diagram.class_codes) - NO_LOCUS_CLASSES):
+            members = np.flatnonzero(codes == code)
+            if len(members) < rule.min_members:
+                continue
+            d = robust_distance(diagram.x[members], diagram.y[members], diagram.scale_floor)
+            for index, distance in zip(members, d, strict=True):
+                if distance > rule.threshold:
+                    flags.append(
+                        OutlierFlag(
+                            diagram.star_ids[index],
+                            code,
+                            diagram.key,
+                            float(distance),
+                            rule.threshold,
+                        )
+                    )
+    flags.sort(key=lambda f: (f.star_id, -f.distance))
+    return tuple(flags)
