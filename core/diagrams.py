@@ -32,6 +32,7 @@ from typing import Any
 
 import numpy as np
 
+from . import physics
 from .errors import PhasewiseError
 from .validation import require_int, require_positive
 
@@ -46,6 +47,7 @@ __all__ = [
     "OutlierRule",
     "OutlierFlag",
     "class_used",
+    "star_points",
     "available_bands",
     "period_amplitude",
     "phi31_logp",
@@ -58,6 +60,14 @@ __all__ = [
     "instability_strip",
     "robust_distance",
     "find_outliers",
+    "STANDARD_CANDLES",
+    "FieldState",
+    "class_counts",
+    "summary_members",
+    "star_physics",
+    "pl_relations",
+    "band_extinction",
+    "field_state",
 ]
 
 #: Diagram keys and titles, in the order the population view shows them.
@@ -100,6 +110,9 @@ class StarPoint:
     shorter_period, longer_period : float or None
         The two periods of a double-mode star, in days.
     primary_band : str or None
+    features : mapping
+        The analysis features (names of ``core.classify.FEATURES``), with the
+        verdict's period; ``core.physics.derive`` reads them.
     """
 
     star_id: str
@@ -114,6 +127,7 @@ class StarPoint:
     shorter_period: float | None = None
     longer_period: float | None = None
     primary_band: str | None = None
+    features: Mapping[str, Any] = field(default_factory=dict)
 
     @property
     def ratio(self) -> float | None:
@@ -137,30 +151,36 @@ class StarPoint:
         *,
         verdict_class: str | None = None,
         status: str = "unreviewed",
+        verdict_period: float | None = None,
     ) -> StarPoint:
         """Build a point from an ``AnalysisResult.to_dict()`` and the verdict.
 
-        A missing or failed result gives a point with no coordinates (it is
-        counted in the summary but drawn in no diagram).
+        The verdict's period, when the person chose one, replaces the analysed
+        period.  A missing or failed result gives a point with no coordinates
+        (it is counted in the summary but drawn in no diagram).
         """
         result = result or {}
         code, source = class_used(status, verdict_class, result.get("suggestions"))
-        period = _finite(result.get("period"))
+        period = _finite(verdict_period) or _finite(result.get("period"))
         fourier = result.get("fourier") or {}
         shorter, longer = _double_mode(period, result)
+        amplitudes = _band_map(result.get("amplitude_by_band"))
+        means = _band_map(result.get("mean_mag_by_band"))
+        features = _features(result, period, amplitudes, means)
         return cls(
             star_id=str(star_id),
             class_code=code,
             class_source=source,
             status=status,
             period=period,
-            amplitude_by_band=_band_map(result.get("amplitude_by_band")),
-            mean_mag_by_band=_band_map(result.get("mean_mag_by_band")),
+            amplitude_by_band=amplitudes,
+            mean_mag_by_band=means,
             R21=_finite(fourier.get("R21")),
             phi31=_sine_phi31(fourier),
             shorter_period=shorter,
             longer_period=longer,
             primary_band=result.get("primary_band"),
+            features=features,
         )
 
 
@@ -179,7 +199,8 @@ def class_used(
     for suggestion in suggestions or ():
         code = suggestion.get("class") or suggestion.get("class_code")
         if code:
-            return str(code), "suggestion"
+            # a confirmation without a stored class confirms the top suggestion
+            return str(code), "verdict" if status == "confirmed" else "suggestion"
     return "UNKNOWN", "none"
 
 
@@ -198,6 +219,33 @@ def _band_map(values: Mapping[str, Any] | None) -> dict[str, float]:
         if number is not None:
             out[str(band)] = number
     return out
+
+
+def _features(
+    result: Mapping[str, Any],
+    period: float | None,
+    amplitudes: Mapping[str, float],
+    means: Mapping[str, float],
+) -> dict[str, Any]:
+    """The analysis features, filled from the result where the analysis left them out."""
+    fourier = result.get("fourier") or {}
+    features: dict[str, Any] = {"primary_band": result.get("primary_band")}
+    for band, value in amplitudes.items():
+        features[f"amplitude_{band}"] = value
+    for band, value in means.items():
+        features[f"mean_mag_{band}"] = value
+    amps = fourier.get("amplitudes") or ()
+    for k, value in enumerate(amps[:3], start=1):
+        features[f"A{k}"] = _finite(value)
+    features["R21"] = _finite(fourier.get("R21"))
+    features["phi31"] = _sine_phi31(fourier)
+    features["period_err"] = _finite(result.get("period_err"))
+    features.update({k: v for k, v in (result.get("features") or {}).items() if v is not None})
+    if period is not None:
+        # the verdict's period, when the person chose one, is the star's period
+        features["period"] = period
+        features["log_period"] = math.log10(period) if period > 0 else None
+    return features
 
 
 def _sine_phi31(fourier: Mapping[str, Any]) -> float | None:
@@ -230,6 +278,29 @@ def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float
     else:
         second = seconds[0]
     return min(second, period), max(second, period)
+
+
+def star_points(ledger: Any) -> list[StarPoint]:
+    """One :class:`StarPoint` per star of a ledger, in the ledger's order.
+
+    Uses ``ledger.verdicts()`` and ``ledger.result(star_id)`` (see
+    ``core.ledger``); a failed or missing analysis gives a point without
+    coordinates.
+    """
+    points = []
+    for verdict in ledger.verdicts():
+        stored = ledger.result(verdict.star_id)
+        result = None if stored is None or stored.failed else stored.result
+        points.append(
+            StarPoint.from_result(
+                verdict.star_id,
+                result,
+                verdict_class=verdict.class_code,
+                status=verdict.status,
+                verdict_period=verdict.period,
+            )
+        )
+    return points
 
 
 def available_bands(points: Iterable[StarPoint]) -> list[str]:
@@ -383,7 +454,8 @@ def period_ratio(points: Iterable[StarPoint]) -> Diagram:
 
     rows = _rows(points, xy)
     xs = [r[2] for r in rows] or [-0.5, 0.5]
-    x_span = np.array([min(xs) - 0.1, max(xs) + 0.1])
+    # guides span the stars drawn, so that they (and their labels) stay in view
+    x_span = np.array([min(xs), max(xs)]) + np.array([-0.02, 0.02])
     lines = []
     for label, low, high, citation in RATIO_GUIDES:
         for value in sorted({low, high}):
@@ -623,3 +695,223 @@ def find_outliers(
                     )
     flags.sort(key=lambda f: (f.star_id, -f.distance))
     return tuple(flags)
+
+
+# --------------------------------------------------------------------------- field state
+#: Classes whose members give a distance modulus in the field summary.
+STANDARD_CANDLES = ("RRab", "RRc", "RRd", "DCEP", "DCEP(1O)", "T2CEP", "DSCT", "SXPHE")
+
+#: Relations that can be drawn on the period–luminosity diagram.
+_PL_KERNELS = frozenset({"pl", "pl_fundamental", "pl_plain"})
+
+
+@dataclass(frozen=True)
+class FieldState:
+    """What the population view shows beside and over the diagrams.
+
+    ``summary`` is the :class:`core.physics.PopulationSummary` of the stars
+    (rejected, UNKNOWN and CONST stars left out); ``relations`` names, per
+    class, the relation behind the first distance modulus of its members.
+    ``pl_lines`` and ``strip_lines`` are the guide lines placed at the
+    field's distance modulus, with notes saying how.
+    """
+
+    ebv: float
+    a_v: float
+    e_v_i: float
+    counts: dict[str, int]
+    summary: Any
+    relations: dict[str, str]
+    strip_modulus: tuple[str, float] | None = None
+    pl_lines: tuple[DiagramLine, ...] = ()
+    pl_note: str = ""
+    strip_lines: tuple[DiagramLine, ...] = ()
+    strip_note: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "ebv": self.ebv,
+            "a_v": self.a_v,
+            "e_v_i": self.e_v_i,
+            "counts": dict(self.counts),
+            "summary": self.summary.to_dict(),
+            "relations": dict(self.relations),
+            "pl_note": self.pl_note,
+            "strip_note": self.strip_note,
+        }
+
+
+def class_counts(points: Iterable[StarPoint]) -> dict[str, int]:
+    """Number of stars per class used."""
+    counts: dict[str, int] = {}
+    for point in points:
+        counts[point.class_code] = counts.get(point.class_code, 0) + 1
+    return counts
+
+
+def summary_members(points: Iterable[StarPoint]) -> list[StarPoint]:
+    """The stars the field summary uses: all but rejected, UNKNOWN and CONST."""
+    return [p for p in points if p.class_code not in NO_LOCUS_CLASSES]
+
+
+def star_physics(points: Iterable[StarPoint], settings: Any = None) -> list[Any]:
+    """``core.physics.StarPhysics`` of each star, derived for its class used.
+
+    Values are derived again (``core.physics.derive``) rather than read from
+    the stored result, because the person's class, period or the assumed
+    extinction may differ from those of the analysis.
+    """
+    settings = settings or physics.PhysicsSettings()
+    out = []
+    for point in points:
+        values = ()
+        if point.class_code in STANDARD_CANDLES:
+            values = physics.derive(point.class_code, point.features, settings)
+        out.append(physics.StarPhysics(point.star_id, point.class_code, point.period, values))
+    return out
+
+
+def pl_relations(band: str, *, with_classes: bool = False) -> list[tuple]:
+    """``(name, label)`` of the period–luminosity relations calibrated in ``band``.
+
+    With ``with_classes``, ``(name, label, applies_to)``.
+    """
+    out = []
+    for relation in physics.RELATIONS.values():
+        if relation.kernel in _PL_KERNELS and relation.band == band:
+            classes = "/".join(relation.applies_to)
+            label = f"{classes}: {relation.citation.split(' (')[0]}"
+            out.append(
+                (relation.name, label, relation.applies_to)
+                if with_classes
+                else (relation.name, label)
+            )
+    return out
+
+
+def band_extinction(band: str, a_v: float, rv: float = 3.1) -> float | None:
+    """A_band from A_V with the CCM89 curve (V and I only; None for other bands)."""
+    if band == "V":
+        return a_v
+    if band == "I":
+        return a_v * physics.extinction_ratio_i(rv)
+    return None
+
+
+def field_state(
+    points: Sequence[StarPoint],
+    *,
+    ebv: float = 0.0,
+    pl_band: str = "V",
+    pl_relation: str | None = None,
+    blue: str = "V",
+    red: str = "I",
+) -> FieldState:
+    """Field summary and guide lines for the population view.
+
+    The summary is :func:`core.physics.population_summary` of
+    :func:`star_physics` of :func:`summary_members`, with the extinction
+    ``A_V = 3.1 E(B−V)`` (Cardelli, Clayton & Mathis 1989).  The
+    period–luminosity relation is drawn at the distance modulus fitted to the
+    members of its classes in the diagram (:func:`fit_distance_modulus`, the
+    relation's scatter as each star's error); the instability strip at the
+    summary's distance of the class with most members used (RRab first).
+    """
+    settings = physics.PhysicsSettings(ebv=ebv)
+    members = summary_members(points)
+    stars = star_physics(members, settings)
+    summary = physics.population_summary(stars)
+    relations: dict[str, str] = {}
+    for star in stars:
+        for value in star.values:
+            if value.quantity == "mu0" and value.value is not None:
+                relations.setdefault(star.class_code, value.relation)
+                break
+    a_v = float(physics.RELATIONS["ccm89_av"].evaluate({"ebv": ebv, "rv": settings.rv}))
+    e_v_i = a_v - a_v * physics.extinction_ratio_i(settings.rv)
+    pl_lines, pl_note = _pl_guides(members, pl_band, pl_relation, a_v, settings.rv)
+    strip_lines, strip_note, strip_modulus = _strip_guides(summary, blue, red, a_v, e_v_i)
+    return FieldState(
+        ebv=float(ebv),
+        a_v=a_v,
+        e_v_i=e_v_i,
+        counts=class_counts(points),
+        summary=summary,
+        relations=relations,
+        strip_modulus=strip_modulus,
+        pl_lines=pl_lines,
+        pl_note=pl_note,
+        strip_lines=strip_lines,
+        strip_note=strip_note,
+    )
+
+
+def _pl_guides(
+    members: Sequence[StarPoint], band: str, name: str | None, a_v: float, rv: float
+) -> tuple[tuple[DiagramLine, ...], str]:
+    if not name:
+        return (), ""
+    relation = physics.RELATIONS[name]
+    extinction = band_extinction(band, a_v, rv)
+    if extinction is None:
+        return (), f"P–L relation {name}: no extinction known for band {band}; not drawn"
+    low, high = next(iter(relation.valid.values()))
+
+    def absolute(period: float) -> float:
+        return relation.evaluate({"period": period, "period_fundamental": period})
+
+    used = [
+        p
+        for p in members
+        if p.class_code in relation.applies_to
+        and p.class_code != "DCEP(1O)"  # drawn as the fundamental-mode line
+        and p.period is not None
+        and low <= p.period <= high
+        and p.mean_mag_by_band.get(band) is not None
+    ]
+    if not used:
+        return (), (
+            f"P–L relation {name}: no {'/'.join(relation.applies_to)} star with a {band} mean "
+            f"magnitude inside its period range {low:g}–{high:g} d; not drawn"
+        )
+    scatter = relation.scatter or 0.1
+    mu, mu_err = fit_distance_modulus(
+        [p.mean_mag_by_band[band] for p in used],
+        [absolute(p.period) for p in used],
+        scatter,
+        extinction,
+    )
+    line = relation_line(
+        lambda log_p: np.array([absolute(10.0**x) for x in np.atleast_1d(log_p)]),
+        (math.log10(low), math.log10(high)),
+        mu,
+        extinction,
+        label=f"{relation.formula.split(',')[0]}, μ0 = {mu:.2f}",
+        citation=relation.citation,
+    )
+    note = (
+        f"P–L line: {relation.citation} ({relation.formula}), drawn at μ0 = {mu:.3f} ± "
+        f"{mu_err:.3f} fitted to {len(used)} {'/'.join(relation.applies_to)} stars with "
+        f"A_{band} = {extinction:.3f} mag (weighted mean, relation scatter "
+        f"{scatter:g} mag per star)."
+    )
+    return (line,), note
+
+
+def _strip_guides(
+    summary: Any, blue: str, red: str, a_v: float, e_v_i: float
+) -> tuple[tuple[DiagramLine, ...], str, tuple[str, float] | None]:
+    if (blue, red) != ("V", "I"):
+        return (), "Instability strip: drawn only in the V−I, V plane.", None
+    rows = sorted(
+        summary.distances, key=lambda d: (d.class_code != "RRab", -d.n_used, d.class_code)
+    )
+    if not rows:
+        return (), "Instability strip: no distance modulus in the field summary; not drawn.", None
+    chosen = rows[0]
+    lines = instability_strip(chosen.mu0, a_v, e_v_i)
+    note = (
+        f"{INSTABILITY_STRIP_NOTE} Placed at μ0 = {chosen.mu0:.3f} ({chosen.class_code}), "
+        f"A_V = {a_v:.3f}, E(V−I) = {e_v_i:.3f} mag."
+    )
+    return lines, note, (chosen.class_code, chosen.mu0)

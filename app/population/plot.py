@@ -1,0 +1,396 @@
+"""One diagnostic diagram as a pyqtgraph plot with click and rectangle brushing.
+
+The plot owns a fixed set of items made once (all stars, the selected stars,
+the outliers, the current star, guide lines and their labels) and refreshes
+them with ``setData``; nothing is rebuilt when the data, the filter or the
+selection change.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Collection, Iterable
+from pathlib import Path
+
+import numpy as np
+import pyqtgraph as pg
+from pyqtgraph.exporters import ImageExporter
+from PySide6 import QtCore, QtGui, QtSvg, QtWidgets
+
+from core.diagrams import Diagram
+from core.errors import PhasewiseError
+
+from .style import class_style
+
+__all__ = ["BrushViewBox", "DiagramPlot", "EXPORT_WIDTH_PX"]
+
+#: Width of an exported PNG: 2400 px is 8 inches at 300 dpi.
+EXPORT_WIDTH_PX = 2400
+
+_LINE_PENS = {
+    "relation": dict(color="#1A1A1A", width=2.0),
+    "strip": dict(color="#555555", width=1.5, style=QtCore.Qt.PenStyle.DashLine),
+    "guide": dict(color="#8A8A8A", width=1.2, style=QtCore.Qt.PenStyle.DotLine),
+}
+CURRENT_COLOUR = "#000000"
+SELECTED_COLOUR = "#202020"
+OUTLIER_COLOUR = "#E41A1C"
+
+
+class BrushViewBox(pg.ViewBox):
+    """A view box where a left drag with Shift (or in brush mode) draws a selection rectangle.
+
+    Emits ``brushed(QRectF)`` in data coordinates when the drag ends.  Without
+    Shift and outside brush mode, dragging pans as usual.
+    """
+
+    brushed = QtCore.Signal(object)
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.brush_mode = False
+        self._band = QtWidgets.QGraphicsRectItem()
+        self._band.setPen(pg.mkPen("#0072B2", width=1.5, style=QtCore.Qt.PenStyle.DashLine))
+        self._band.setBrush(pg.mkBrush(0, 114, 178, 40))
+        self._band.setZValue(1e9)
+        self._band.hide()
+        self.addItem(self._band, ignoreBounds=True)
+
+    def mouseDragEvent(self, ev, axis=None):  # noqa: N802 (Qt naming)
+        shift = bool(ev.modifiers() & QtCore.Qt.KeyboardModifier.ShiftModifier)
+        left = ev.button() == QtCore.Qt.MouseButton.LeftButton
+        if not (left and axis is None and (self.brush_mode or shift)):
+            super().mouseDragEvent(ev, axis)
+            return
+        ev.accept()
+        start = self.mapToView(ev.buttonDownPos())
+        end = self.mapToView(ev.pos())
+        rect = QtCore.QRectF(start, end).normalized()
+        if ev.isFinish():
+            self._band.hide()
+            self.brushed.emit(rect)
+        else:
+            self._band.setRect(rect)
+            self._band.show()
+
+
+class DiagramPlot(pg.PlotWidget):
+    """A population diagram: points coloured by class, current star and selection marked.
+
+    Signals
+    -------
+    star_clicked(str)
+        A point was clicked.
+    brushed(list)
+        A rectangle was drawn; the visible stars inside it (possibly empty).
+    """
+
+    star_clicked = QtCore.Signal(str)
+    brushed = QtCore.Signal(list)
+
+    def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
+        self._viewbox = BrushViewBox()
+        super().__init__(parent, background="w", viewBox=self._viewbox)
+        self.diagram: Diagram | None = None
+        self._visible: set[str] | None = None
+        self._selected: set[str] = set()
+        self._outliers: set[str] = set()
+        self._current: str | None = None
+        self._shown: np.ndarray = np.zeros(0, dtype=int)  # diagram indices drawn
+        self._brushes: dict[str, QtGui.QBrush] = {}
+        self._legend_classes: tuple[str, ...] = ()
+
+        item = self.getPlotItem()
+        item.showGrid(x=True, y=True, alpha=0.15)
+        item.hideButtons()
+        item.setMenuEnabled(False)
+        tick_font = QtGui.QFont()
+        tick_font.setPointSizeF(9.5)
+        for name in ("left", "bottom"):
+            axis = item.getAxis(name)
+            axis.setPen(pg.mkPen("#222222"))
+            axis.setTextPen(pg.mkPen("#222222"))
+            axis.setStyle(tickFont=tick_font)
+            axis.enableAutoSIPrefix(False)  # "(x0.001)" beside a magnitude axis misleads
+        for name in ("top", "right"):
+            item.showAxis(name)
+            item.getAxis(name).setStyle(showValues=False)
+            item.getAxis(name).setPen(pg.mkPen("#222222"))
+
+        self.scatter = pg.ScatterPlotItem(
+            pxMode=True, hoverable=True, tip=self._tip, pen=pg.mkPen(None)
+        )
+        self.scatter.sigClicked.connect(self._on_click)
+        self.selected_marks = pg.ScatterPlotItem(
+            pxMode=True, symbol="o", size=13, brush=None, pen=pg.mkPen(SELECTED_COLOUR, width=1.3)
+        )
+        self.outlier_marks = pg.ScatterPlotItem(
+            pxMode=True, symbol="o", size=15, brush=None, pen=pg.mkPen(OUTLIER_COLOUR, width=1.6)
+        )
+        self.current_mark = pg.ScatterPlotItem(
+            pxMode=True, symbol="o", size=21, brush=None, pen=pg.mkPen(CURRENT_COLOUR, width=2.6)
+        )
+        for z, overlay in enumerate(
+            (self.scatter, self.selected_marks, self.outlier_marks, self.current_mark)
+        ):
+            overlay.setZValue(10 + z)
+            item.addItem(overlay)
+        self.lines: list[pg.PlotDataItem] = []
+        self.line_labels: list[pg.TextItem] = []
+        self.export_legend = pg.LegendItem(offset=(-10, 10), labelTextSize="9pt")
+        self.export_legend.setParentItem(item.getViewBox())
+        self.export_legend.hide()
+        self._legend_samples: dict[str, pg.ScatterPlotItem] = {}
+        self._viewbox.brushed.connect(self._on_brush)
+
+    # ----------------------------------------------------------------- state
+    @property
+    def brush_mode(self) -> bool:
+        return self._viewbox.brush_mode
+
+    def set_brush_mode(self, on: bool) -> None:
+        """Left drag selects a rectangle (True) or pans (False; Shift-drag still selects)."""
+        self._viewbox.brush_mode = bool(on)
+
+    def set_diagram(self, diagram: Diagram, *, auto_range: bool = True) -> None:
+        """Show a diagram's points and guide lines."""
+        self.diagram = diagram
+        item = self.getPlotItem()
+        label_style = {"font-size": "11pt", "color": "#111111"}
+        item.setLabel("bottom", diagram.x_label, **label_style)
+        item.setLabel("left", diagram.y_label, **label_style)
+        self._viewbox.invertY(diagram.invert_y)
+        self._set_lines(diagram)
+        self._refresh_points()
+        if auto_range:
+            self.auto_range()
+
+    def set_visible(self, star_ids: Collection[str] | None) -> None:
+        """Draw only these stars (None: all)."""
+        self._visible = None if star_ids is None else set(star_ids)
+        self._refresh_points()
+
+    def set_selected(self, star_ids: Iterable[str]) -> None:
+        self._selected = set(star_ids)
+        self._refresh_marks()
+
+    def set_outliers(self, star_ids: Iterable[str]) -> None:
+        self._outliers = set(star_ids)
+        self._refresh_marks()
+
+    def set_current(self, star_id: str | None) -> None:
+        self._current = star_id
+        self._refresh_marks()
+
+    def shown_star_ids(self) -> list[str]:
+        """Ids of the points drawn now (after the filter)."""
+        if self.diagram is None:
+            return []
+        return [self.diagram.star_ids[i] for i in self._shown]
+
+    def shown_counts(self) -> dict[str, int]:
+        """Points drawn now, per class."""
+        out: dict[str, int] = {}
+        if self.diagram is not None:
+            for i in self._shown:
+                code = self.diagram.class_codes[i]
+                out[code] = out.get(code, 0) + 1
+        return out
+
+    def data_to_widget(self, x: float, y: float) -> QtCore.QPoint:
+        """Widget pixel position of a data point (for tests and tools)."""
+        scene = self._viewbox.mapViewToScene(QtCore.QPointF(x, y))
+        return self.mapFromScene(scene)
+
+    def auto_range(self) -> None:
+        """Fit the view to the points drawn (and to reference ratios, which frame them)."""
+        guides = [
+            line
+            for line, guide in zip(
+                self.lines, self.diagram.lines if self.diagram else (), strict=False
+            )
+            if guide.kind == "guide"
+        ]
+        if len(self._shown):
+            self._viewbox.autoRange(padding=0.08, items=[self.scatter, *guides])
+        else:
+            self._viewbox.setRange(xRange=(0, 1), yRange=(0, 1), padding=0)
+
+    # ---------------------------------------------------------------- export
+    def export(self, path: str | Path, width_px: int = EXPORT_WIDTH_PX) -> Path:
+        """Write the diagram as PNG or SVG (by the file's suffix), with a class legend."""
+        path = Path(path)
+        suffix = path.suffix.lower()
+        if suffix not in (".png", ".svg"):
+            raise PhasewiseError(
+                f"cannot export a diagram as {suffix or 'a file without suffix'}; use .png or .svg",
+                file=str(path),
+            )
+        item = self.getPlotItem()
+        self._update_export_legend()
+        self.export_legend.show()
+        try:
+            if suffix == ".png":
+                exporter = ImageExporter(item)
+                exporter.parameters()["width"] = int(width_px)
+                exporter.parameters()["antialias"] = True
+                exporter.export(str(path))
+            else:
+                self._export_svg(path)
+        finally:
+            self.export_legend.hide()
+        if not path.exists():
+            raise PhasewiseError("the diagram could not be written", file=str(path))
+        return path
+
+    def _export_svg(self, path: Path) -> None:
+        # pyqtgraph's SVGExporter cannot parse the path syntax Qt 6.12 writes; Qt's own
+        # SVG generator renders the same scene as vector graphics with real text.
+        item = self.getPlotItem()
+        source = item.sceneBoundingRect()
+        size = QtCore.QSize(int(source.width()), int(source.height()))
+        generator = QtSvg.QSvgGenerator()
+        generator.setFileName(str(path))
+        generator.setSize(size)
+        generator.setViewBox(QtCore.QRect(QtCore.QPoint(0, 0), size))
+        generator.setTitle(self.diagram.title if self.diagram else "diagram")
+        generator.setDescription("Phasewise population diagram")
+        painter = QtGui.QPainter(generator)
+        try:
+            painter.fillRect(
+                QtCore.QRectF(0, 0, size.width(), size.height()), QtGui.QColor("white")
+            )
+            item.scene().render(painter, QtCore.QRectF(0, 0, size.width(), size.height()), source)
+        finally:
+            painter.end()
+
+    # -------------------------------------------------------------- internal
+    def _brush(self, code: str) -> QtGui.QBrush:
+        if code not in self._brushes:
+            self._brushes[code] = pg.mkBrush(class_style(code).colour)
+        return self._brushes[code]
+
+    def _refresh_points(self) -> None:
+        diagram = self.diagram
+        if diagram is None:
+            return
+        if self._visible is None:
+            shown = np.arange(len(diagram))
+        else:
+            shown = np.array(
+                [i for i, sid in enumerate(diagram.star_ids) if sid in self._visible], dtype=int
+            )
+        self._shown = shown
+        codes = [diagram.class_codes[i] for i in shown]
+        styles = [class_style(c) for c in codes]
+        self.scatter.setData(
+            x=diagram.x[shown],
+            y=diagram.y[shown],
+            data=[diagram.star_ids[i] for i in shown],
+            brush=[self._brush(c) for c in codes],
+            symbol=[s.symbol for s in styles],
+            size=[s.size for s in styles],
+            pen=pg.mkPen(None),
+        )
+        title = f"{diagram.title}  (n = {len(shown)})"
+        if not len(shown):
+            title = f"{diagram.title}: no stars to draw" + (
+                f" ({diagram.note})" if diagram.note else ""
+            )
+        self.getPlotItem().setTitle(title, size="11pt", color="#111111")
+        self._refresh_marks()
+
+    def _marks(self, wanted: Collection[str]) -> tuple[np.ndarray, np.ndarray]:
+        diagram = self.diagram
+        if diagram is None or not wanted:
+            return np.zeros(0), np.zeros(0)
+        index = [i for i in self._shown if diagram.star_ids[i] in wanted]
+        return diagram.x[index], diagram.y[index]
+
+    def _refresh_marks(self) -> None:
+        self.selected_marks.setData(*self._marks(self._selected))
+        self.outlier_marks.setData(*self._marks(self._outliers))
+        self.current_mark.setData(*self._marks({self._current} if self._current else set()))
+
+    def _set_lines(self, diagram: Diagram) -> None:
+        item = self.getPlotItem()
+        while len(self.lines) < len(diagram.lines):
+            line = pg.PlotDataItem()
+            line.setZValue(5)
+            label = pg.TextItem(color="#333333", anchor=(0, 1))
+            label.setZValue(6)
+            item.addItem(line, ignoreBounds=True)
+            item.addItem(label, ignoreBounds=True)
+            self.lines.append(line)
+            self.line_labels.append(label)
+        previous = None
+        for k, (line, label) in enumerate(zip(self.lines, self.line_labels, strict=True)):
+            if k >= len(diagram.lines):
+                line.setData([], [])
+                line.hide()
+                label.hide()
+                continue
+            guide = diagram.lines[k]
+            line.setData(guide.x, guide.y, pen=pg.mkPen(**_LINE_PENS.get(guide.kind, {})))
+            line.opts["name"] = guide.label
+            line.show()
+            # only reference ratios are labelled in the plot; relations and the strip
+            # are named in the legend above the diagrams and in exported figures
+            if guide.kind == "guide" and guide.label != previous and len(guide.x):
+                label.setText(guide.label)
+                label.setPos(float(guide.x[0]), float(guide.y[0]))
+                label.show()
+            else:
+                label.hide()
+            previous = guide.label
+
+    def _update_export_legend(self) -> None:
+        diagram = self.diagram
+        counts = self.shown_counts()
+        classes = tuple(sorted(counts))
+        lines = tuple((line, line.opts.get("name")) for line in self.lines if line.isVisible())
+        key = classes + tuple(name for _, name in lines)
+        if key == self._legend_classes or diagram is None:
+            return
+        self._legend_classes = key
+        self.export_legend.clear()
+        for code in classes:
+            sample = self._legend_samples.get(code)
+            if sample is None:
+                style = class_style(code)
+                sample = pg.ScatterPlotItem(
+                    symbol=style.symbol, size=style.size + 2, brush=self._brush(code), pen=None
+                )
+                self._legend_samples[code] = sample
+            self.export_legend.addItem(sample, f"{code} ({counts[code]})")
+        seen = set()
+        for line, name in lines:
+            if name and name not in seen:
+                seen.add(name)
+                self.export_legend.addItem(line, name)
+
+    def _tip(self, x: float, y: float, data: object) -> str:
+        code = ""
+        if self.diagram is not None and data in self.diagram.star_ids:
+            code = self.diagram.class_codes[self.diagram.star_ids.index(data)]
+        return f"{data}  {code}\nx = {x:.4g}, y = {y:.4g}"
+
+    def _on_click(self, _item, points, event) -> None:
+        if not len(points):
+            return
+        # overlapping symbols: take the one whose centre is nearest the click
+        click = event.scenePos()
+
+        def pixels(point) -> float:
+            centre = self._viewbox.mapViewToScene(point.pos())
+            return (centre.x() - click.x()) ** 2 + (centre.y() - click.y()) ** 2
+
+        nearest = min(points, key=pixels)
+        self.star_clicked.emit(str(nearest.data()))
+
+    def _on_brush(self, rect: QtCore.QRectF) -> None:
+        if self.diagram is None:
+            return
+        inside = self.diagram.inside((rect.left(), rect.right()), (rect.top(), rect.bottom()))
+        if self._visible is not None:
+            inside = [sid for sid in inside if sid in self._visible]
+        self.brushed.emit(inside)
