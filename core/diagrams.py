@@ -579,11 +579,11 @@ def instability_strip(
     """
     mv = np.linspace(*_STRIP_MV, 10)
     lines = []
-    for label, (colour_at_hb, slope) in _STRIP_EDGES.items():
+    for colour_at_hb, slope in _STRIP_EDGES.values():
         colour0 = colour_at_hb + slope * (mv - 0.5)
         lines.append(
             DiagramLine(
-                f"instability strip {label} (from memory)",
+                "instability strip (from memory)",
                 colour0 + e_v_i,
                 mv + distance_modulus + a_v,
                 kind="strip",

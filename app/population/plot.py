@@ -21,10 +21,12 @@ from core.errors import PhasewiseError
 
 from .style import class_style
 
-__all__ = ["BrushViewBox", "DiagramPlot", "EXPORT_WIDTH_PX"]
+__all__ = ["BrushViewBox", "DiagramPlot", "EXPORT_WIDTH_PX", "FIGURE_SIZE", "clip_polyline"]
 
 #: Width of an exported PNG: 2400 px is 8 inches at 300 dpi.
 EXPORT_WIDTH_PX = 2400
+#: Size of an exported figure in screen pixels (about 7.5 × 6.25 inches at 96 dpi).
+FIGURE_SIZE = (720, 600)
 
 _LINE_PENS = {
     "relation": dict(color="#1A1A1A", width=2.0),
@@ -34,6 +36,37 @@ _LINE_PENS = {
 CURRENT_COLOUR = "#000000"
 SELECTED_COLOUR = "#202020"
 OUTLIER_COLOUR = "#E41A1C"
+
+
+def clip_polyline(
+    x: np.ndarray, y: np.ndarray, x_range: tuple[float, float], y_range: tuple[float, float]
+) -> tuple[np.ndarray, np.ndarray]:
+    """The parts of a polyline inside a rectangle (Liang–Barsky per segment).
+
+    Pieces are separated by NaN, to be drawn with ``connect="finite"``.
+    """
+    out_x: list[float] = []
+    out_y: list[float] = []
+    for k in range(len(x) - 1):
+        xa, ya, dx, dy = x[k], y[k], x[k + 1] - x[k], y[k + 1] - y[k]
+        t0, t1 = 0.0, 1.0
+        keep = True
+        for p, q in (
+            (-dx, xa - x_range[0]),
+            (dx, x_range[1] - xa),
+            (-dy, ya - y_range[0]),
+            (dy, y_range[1] - ya),
+        ):
+            if p == 0:
+                keep = keep and q >= 0
+            elif p < 0:
+                t0 = max(t0, q / p)
+            else:
+                t1 = min(t1, q / p)
+        if keep and t0 <= t1:
+            out_x += [xa + t0 * dx, xa + t1 * dx, np.nan]
+            out_y += [ya + t0 * dy, ya + t1 * dy, np.nan]
+    return np.array(out_x), np.array(out_y)
 
 
 class BrushViewBox(pg.ViewBox):
@@ -136,8 +169,19 @@ class DiagramPlot(pg.PlotWidget):
             item.addItem(overlay)
         self.lines: list[pg.PlotDataItem] = []
         self.line_labels: list[pg.TextItem] = []
-        self.export_legend = pg.LegendItem(offset=(-10, 10), labelTextSize="9pt")
+        self.export_legend = pg.LegendItem(
+            offset=(-10, 10),
+            labelTextSize="10pt",
+            labelTextColor="#111111",
+            verSpacing=-4,
+            pen=pg.mkPen("#999999"),
+            brush=pg.mkBrush(255, 255, 255, 230),
+        )
         self.export_legend.setParentItem(item.getViewBox())
+        # scale with the figure when a PNG is rendered larger than the screen
+        self.export_legend.setFlag(
+            QtWidgets.QGraphicsItem.GraphicsItemFlag.ItemIgnoresTransformations, False
+        )
         self.export_legend.hide()
         self._legend_samples: dict[str, pg.ScatterPlotItem] = {}
         self._viewbox.brushed.connect(self._on_brush)
@@ -217,7 +261,13 @@ class DiagramPlot(pg.PlotWidget):
 
     # ---------------------------------------------------------------- export
     def export(self, path: str | Path, width_px: int = EXPORT_WIDTH_PX) -> Path:
-        """Write the diagram as PNG or SVG (by the file's suffix), with a class legend."""
+        """Write the diagram as PNG or SVG (by the file's suffix), with a class legend.
+
+        The figure is drawn apart from the screen at :data:`FIGURE_SIZE` (so its
+        fonts and proportions do not depend on the window), with the stars now
+        shown, the outlier rings and the current view range, without the
+        current-star and selection rings.  A PNG is ``width_px`` pixels wide.
+        """
         path = Path(path)
         suffix = path.suffix.lower()
         if suffix not in (".png", ".svg"):
@@ -225,43 +275,104 @@ class DiagramPlot(pg.PlotWidget):
                 f"cannot export a diagram as {suffix or 'a file without suffix'}; use .png or .svg",
                 file=str(path),
             )
-        item = self.getPlotItem()
-        self._update_export_legend()
-        self.export_legend.show()
+        if self.diagram is None:
+            raise PhasewiseError("no diagram to export yet", file=str(path))
+        figure = DiagramPlot()
+        figure.setAttribute(QtCore.Qt.WidgetAttribute.WA_DontShowOnScreen, True)
+        figure.resize(*FIGURE_SIZE)
         try:
-            if suffix == ".png":
-                exporter = ImageExporter(item)
-                exporter.parameters()["width"] = int(width_px)
-                exporter.parameters()["antialias"] = True
-                exporter.export(str(path))
-            else:
-                self._export_svg(path)
+            figure.set_diagram(self.diagram, auto_range=False)
+            figure.set_visible(self._visible)
+            figure.set_outliers(self._outliers)
+            x_range, y_range = self._viewbox.viewRange()
+            figure._viewbox.setRange(xRange=x_range, yRange=y_range, padding=0)
+            figure.show()
+            QtWidgets.QApplication.processEvents()
+            figure._write(path, suffix, width_px)
         finally:
-            self.export_legend.hide()
+            figure.close()
+            figure.deleteLater()
         if not path.exists():
             raise PhasewiseError("the diagram could not be written", file=str(path))
         return path
 
+    def _write(self, path: Path, suffix: str, width_px: int) -> None:
+        self._update_export_legend()
+        self.export_legend.show()
+        self.export_legend.updateSize()
+        self._place_export_legend()
+        self._clip_lines_to_view()
+        if suffix == ".png":
+            exporter = ImageExporter(self.getPlotItem())
+            exporter.parameters()["width"] = int(width_px)
+            exporter.parameters()["antialias"] = True
+            exporter.export(str(path))
+        else:
+            self._export_svg(path)
+
+    def _place_export_legend(self) -> None:
+        """Put the legend in the corner of the view with the fewest points."""
+        (x0, x1), (y0, y1) = self._viewbox.viewRange()
+        x, y = self.scatter.getData()
+        xm, ym = (x0 + x1) / 2, (y0 + y1) / 2
+        top_is_high = not self.diagram.invert_y if self.diagram else True
+        corners = {}
+        for right in (True, False):
+            for top in (True, False):
+                in_x = x >= xm if right else x < xm
+                high = top == top_is_high
+                in_y = y >= ym if high else y < ym
+                corners[(right, top)] = int(np.count_nonzero(in_x & in_y))
+        right, top = min(corners, key=lambda c: (corners[c], not c[0], not c[1]))
+        self.export_legend.anchor(
+            itemPos=(1 if right else 0, 0 if top else 1),
+            parentPos=(1 if right else 0, 0 if top else 1),
+            offset=(-10 if right else 10, 10 if top else -10),
+        )
+
+    def _clip_lines_to_view(self) -> list:
+        """Cut guide lines to the view (SVG output does not keep the view's clipping)."""
+        (x0, x1), (y0, y1) = self._viewbox.viewRange()
+        saved = []
+        for line in self.lines:
+            if not line.isVisible():
+                continue
+            x, y = line.getData()
+            if x is None or not len(x):
+                continue
+            saved.append((line, (np.array(x), np.array(y))))
+            cx, cy = clip_polyline(np.asarray(x), np.asarray(y), (x0, x1), (y0, y1))
+            line.setData(cx, cy, connect="finite")
+        return saved
+
     def _export_svg(self, path: Path) -> None:
-        # pyqtgraph's SVGExporter cannot parse the path syntax Qt 6.12 writes; Qt's own
-        # SVG generator renders the same scene as vector graphics with real text.
+        # pyqtgraph's SVGExporter cannot parse the closing "Z" Qt 6.12 writes in paths;
+        # Qt's own SVG generator renders the same scene as vector graphics with real text.
         item = self.getPlotItem()
+        scene = item.scene()
         source = item.sceneBoundingRect()
         size = QtCore.QSize(int(source.width()), int(source.height()))
         generator = QtSvg.QSvgGenerator()
         generator.setFileName(str(path))
         generator.setSize(size)
         generator.setViewBox(QtCore.QRect(QtCore.QPoint(0, 0), size))
+        # the screen's resolution: axis pictures recorded on screen replay at their size
+        generator.setResolution(int(round(self.logicalDpiY())))
         generator.setTitle(self.diagram.title if self.diagram else "diagram")
         generator.setDescription("Phasewise population diagram")
+        items = [i for i in scene.items() if hasattr(i, "setExportMode")]
         painter = QtGui.QPainter(generator)
         try:
-            painter.fillRect(
-                QtCore.QRectF(0, 0, size.width(), size.height()), QtGui.QColor("white")
-            )
-            item.scene().render(painter, QtCore.QRectF(0, 0, size.width(), size.height()), source)
+            # export mode: symbols are drawn as vector paths, not copied from a pixmap atlas
+            for graphics_item in items:
+                graphics_item.setExportMode(True, {"antialias": True, "painter": painter})
+            target = QtCore.QRectF(0, 0, size.width(), size.height())
+            painter.fillRect(target, QtGui.QColor("white"))
+            scene.render(painter, target, source)
         finally:
             painter.end()
+            for graphics_item in items:
+                graphics_item.setExportMode(False)
 
     # -------------------------------------------------------------- internal
     def _brush(self, code: str) -> QtGui.QBrush:
@@ -348,7 +459,7 @@ class DiagramPlot(pg.PlotWidget):
         counts = self.shown_counts()
         classes = tuple(sorted(counts))
         lines = tuple((line, line.opts.get("name")) for line in self.lines if line.isVisible())
-        key = classes + tuple(name for _, name in lines)
+        key = classes + tuple(name for _, name in lines) + (len(self.outlier_marks.data) > 0,)
         if key == self._legend_classes or diagram is None:
             return
         self._legend_classes = key
@@ -367,6 +478,8 @@ class DiagramPlot(pg.PlotWidget):
             if name and name not in seen:
                 seen.add(name)
                 self.export_legend.addItem(line, name)
+        if len(self.outlier_marks.data):
+            self.export_legend.addItem(self.outlier_marks, "outlier (far from its class)")
 
     def _tip(self, x: float, y: float, data: object) -> str:
         code = ""

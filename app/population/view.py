@@ -240,14 +240,19 @@ class PopulationView(QtWidgets.QWidget):
         plot = self.plots[key]
         return plot.export(path) if width_px is None else plot.export(path, width_px)
 
-    def export_all(self, folder: str | Path, formats: Sequence[str] = ("png", "svg")) -> list[Path]:
+    def export_all(
+        self,
+        folder: str | Path,
+        formats: Sequence[str] = ("png", "svg"),
+        width_px: int | None = None,
+    ) -> list[Path]:
         """Write every diagram in each format to ``folder``; returns the files written."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
         written = []
         for key in self.plots:
             for fmt in formats:
-                written.append(self.export_diagram(key, folder / f"{key}.{fmt}"))
+                written.append(self.export_diagram(key, folder / f"{key}.{fmt}", width_px))
         return written
 
     def _export_dialog(self, key: str) -> None:

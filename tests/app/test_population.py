@@ -13,20 +13,35 @@ from core.errors import PhasewiseError  # noqa: E402
 from .population_fakes import FakeLedger, invented_field  # noqa: E402
 
 
-@pytest.fixture
+@pytest.fixture(scope="module")
 def ledger():
     return FakeLedger(invented_field())
 
 
-@pytest.fixture
-def view(qtbot, ledger):
+@pytest.fixture(scope="module")
+def shared_view(qapp, ledger):
+    """One window for the module (building one takes most of a test's time)."""
     widget = PopulationView(ledger)
-    qtbot.addWidget(widget)
     widget.resize(1500, 850)
     widget.show()
-    qtbot.waitExposed(widget)
+    qapp.processEvents()
     yield widget
     widget.close()
+    widget.deleteLater()
+    qapp.processEvents()
+
+
+@pytest.fixture
+def view(shared_view, qtbot):
+    """The shared window, reset to its state after loading."""
+    qtbot.waitExposed(shared_view)
+    shared_view.brush_button.setChecked(False)
+    shared_view.set_extinction(0.0)
+    shared_view.set_visible_stars(None)
+    shared_view.set_selected_stars([])
+    shared_view.set_current_star(None)
+    shared_view.refresh()
+    return shared_view
 
 
 def _expected_counts(ledger, coordinates):
@@ -184,7 +199,7 @@ def test_export_png_and_svg_with_labels(view, tmp_path):
     svg = view.export_diagram("period_luminosity", tmp_path / "pl.svg").read_text()
     assert "log₁₀ P [d]" in svg and "mean V [mag]" in svg
     assert "RRab" in svg  # the class legend is part of the exported figure
-    files = view.export_all(tmp_path / "all")
+    files = view.export_all(tmp_path / "all", width_px=600)
     assert len(files) == 12 and all(f.stat().st_size > 0 for f in files)
     with pytest.raises(PhasewiseError, match=r"pa\.pdf.*use \.png or \.svg"):
         view.export_diagram("period_amplitude", tmp_path / "pa.pdf")
