@@ -57,6 +57,10 @@ class SummaryPanel(QtWidgets.QWidget):
             "changing it recomputes the distances and the guide lines."
         )
         row.addWidget(self.ebv_box)
+        self.status = QtWidgets.QLabel("")
+        self.status.setObjectName("summary_status")
+        self.status.setStyleSheet("QLabel { color: #666666; }")
+        row.addWidget(self.status)
         row.addStretch(1)
         layout.addLayout(row)
 
@@ -86,7 +90,19 @@ class SummaryPanel(QtWidgets.QWidget):
         rule: dg.OutlierRule,
     ) -> None:
         """Render the summary, the outlier rule and the flagged stars."""
+        self.status.setText("")
         self.text.setHtml(_render(state, outliers, rule))
+
+    def show_pending(self) -> None:
+        """Say the summary is being computed (the previous one stays until then)."""
+        self.status.setText("computing…")
+
+    def show_error(self, message: str) -> None:
+        self.ebv_box.setSuffix(" mag")
+        self.setToolTip("")
+        self.text.setHtml(
+            f"<p><b>The field summary could not be computed</b></p><p>{html.escape(message)}</p>"
+        )
 
     def plain_text(self) -> str:
         return self.text.toPlainText()

@@ -14,6 +14,9 @@ stars_brushed(list)
 outliers_changed(dict)
     ``{star_id: reason}`` of the stars the outlier rule flags, after each
     recomputation, for the star list's flags column.
+summary_updated()
+    The field summary (computed in a worker thread: it derives every star's
+    physics) is shown; ``summary_ready`` is True.
 
 Slots the desk calls
 --------------------
@@ -25,12 +28,14 @@ Slots the desk calls
 from __future__ import annotations
 
 from collections.abc import Collection, Iterable, Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from core import diagrams as dg
+from core.errors import PhasewiseError
 
 from .plot import DiagramPlot
 from .style import class_style, symbol_glyph
@@ -53,6 +58,34 @@ _GRID = (
 )
 
 
+class _SummaryRelay(QtCore.QObject):
+    """Carries a finished summary from the worker thread to the GUI thread."""
+
+    done = QtCore.Signal(int, object)
+    failed = QtCore.Signal(int, str)
+
+
+class _SummaryJob(QtCore.QRunnable):
+    """``core.diagrams.field_state`` off the GUI thread (it derives every star's physics)."""
+
+    def __init__(self, generation: int, points: list, settings: dict, relay: _SummaryRelay):
+        super().__init__()
+        self.generation = generation
+        self.points = points
+        self.settings = settings
+        self.relay = relay
+
+    def run(self) -> None:
+        try:
+            state = dg.field_state(self.points, **self.settings)
+        except PhasewiseError as exc:
+            self.relay.failed.emit(self.generation, str(exc))
+        except Exception as exc:  # noqa: BLE001 - shown in the panel, never a silent worker death
+            self.relay.failed.emit(self.generation, f"{type(exc).__name__}: {exc}")
+        else:
+            self.relay.done.emit(self.generation, state)
+
+
 class PopulationView(QtWidgets.QWidget):
     """Diagrams of all stars, linked to the star list, with the field summary beside them.
 
@@ -67,6 +100,7 @@ class PopulationView(QtWidgets.QWidget):
     star_selected = QtCore.Signal(str)
     stars_brushed = QtCore.Signal(list)
     outliers_changed = QtCore.Signal(dict)
+    summary_updated = QtCore.Signal()
 
     def __init__(
         self,
@@ -88,6 +122,16 @@ class PopulationView(QtWidgets.QWidget):
         self._selected: set[str] = set()
         self._updating = False
         self._relation_chosen = False  # the person picked a P–L relation (or none)
+        self._field_points: list | None = None
+        self._field_settings: dict | None = None
+        self._job_points: dict[int, list] = {}
+        self._summary_generation = 0
+        self._summary_done = 0
+        self._pool = QtCore.QThreadPool(self)
+        self._pool.setMaxThreadCount(1)
+        self._relay = _SummaryRelay(self)
+        self._relay.done.connect(self._on_summary)
+        self._relay.failed.connect(self._on_summary_failed)
 
         self.plots: dict[str, DiagramPlot] = {}
         self._build()
@@ -268,8 +312,6 @@ class PopulationView(QtWidgets.QWidget):
             self._guarded(lambda: self.export_all(folder))
 
     def _guarded(self, action) -> None:
-        from core.errors import PhasewiseError
-
         try:
             action()
         except (PhasewiseError, OSError) as exc:
@@ -316,24 +358,27 @@ class PopulationView(QtWidgets.QWidget):
         self.relation_box.setCurrentIndex(index if index >= 0 else default)
 
     def _recompute(self, *, auto_range: bool = True) -> None:
+        """Redraw the diagrams now; compute the field summary in the background."""
         band = self.band_box.currentText()
         blue, red = self.blue_box.currentText(), self.red_box.currentText()
-        self.field = dg.field_state(
-            self.points,
-            ebv=self.summary_panel.extinction(),
-            pl_band=band,
-            pl_relation=self.relation_box.currentData(),
-            blue=blue,
-            red=red,
-        )
         points = self.points
+        settings = {
+            "ebv": self.summary_panel.extinction(),
+            "pl_band": band,
+            "pl_relation": self.relation_box.currentData(),
+            "blue": blue,
+            "red": red,
+        }
+        # keep the last guide lines on screen until the new summary arrives, when they fit
+        same = self._field_settings == settings and self._field_points is points
+        guides = self.field if self.field is not None and same else None
         self.diagrams = {
             "period_amplitude": dg.period_amplitude(points, band),
             "phi31_logp": dg.phi31_logp(points),
             "r21_logp": dg.r21_logp(points),
             "period_ratio": dg.period_ratio(points),
-            "period_luminosity": dg.period_luminosity(points, band, self.field.pl_lines),
-            "colour_magnitude": dg.colour_magnitude(points, blue, red, self.field.strip_lines),
+            "period_luminosity": dg.period_luminosity(points, band),
+            "colour_magnitude": dg.colour_magnitude(points, blue, red),
         }
         if not (blue and red and blue != red):
             self.diagrams["colour_magnitude"] = dg.colour_magnitude([], "V", "I")
@@ -341,6 +386,8 @@ class PopulationView(QtWidgets.QWidget):
             [d for k, d in self.diagrams.items() if k != "colour_magnitude" or blue != red],
             self.outlier_rule,
         )
+        if guides is not None:
+            self._with_guides(guides)
         flagged = {f.star_id for f in self.outliers}
         for key, plot in self.plots.items():
             plot.set_diagram(self.diagrams[key], auto_range=auto_range)
@@ -348,9 +395,64 @@ class PopulationView(QtWidgets.QWidget):
             plot.set_outliers(flagged)
             plot.set_selected(self._selected)
             plot.set_current(self._current)
-        self.summary_panel.show_field(self.field, self.outliers, self.outlier_rule)
         self._update_legend()
         self.outliers_changed.emit(self.outlier_reasons())
+        if not same or not self.summary_ready:
+            self._start_summary(points, **settings)
+
+    def _with_guides(self, state: dg.FieldState) -> None:
+        """Put the summary's guide lines on the P–L and colour–magnitude diagrams."""
+        for key, lines in (
+            ("period_luminosity", state.pl_lines),
+            ("colour_magnitude", state.strip_lines),
+        ):
+            self.diagrams[key] = replace(self.diagrams[key], lines=tuple(lines))
+
+    # ------------------------------------------------------------- summary work
+    @property
+    def summary_ready(self) -> bool:
+        """True when the summary shown belongs to the current stars and settings."""
+        return self._summary_done == self._summary_generation
+
+    def _start_summary(self, points: list[dg.StarPoint], **settings: Any) -> None:
+        self._summary_generation += 1
+        self.summary_panel.show_pending()
+        self._job_points = {self._summary_generation: (points, settings)}
+        job = _SummaryJob(self._summary_generation, points, settings, self._relay)
+        self._pool.start(job)
+
+    def _on_summary(self, generation: int, state: object) -> None:
+        if generation != self._summary_generation:
+            return  # a newer request is under way
+        self.field = state
+        self._field_points, self._field_settings = self._job_points.pop(generation)
+        self._with_guides(state)
+        for key in ("period_luminosity", "colour_magnitude"):
+            self.plots[key].set_diagram(self.diagrams[key], auto_range=False)
+        self.summary_panel.show_field(state, self.outliers, self.outlier_rule)
+        self._summary_done = generation
+        self.summary_updated.emit()
+
+    def _on_summary_failed(self, generation: int, message: str) -> None:
+        if generation == self._summary_generation:
+            self.summary_panel.show_error(message)
+            self._summary_done = generation
+            self.summary_updated.emit()
+
+    def wait_for_summary(self, timeout_ms: int = 30000) -> bool:
+        """Process events until the summary is ready (for scripts and screenshots)."""
+        timer = QtCore.QElapsedTimer()
+        timer.start()
+        while not self.summary_ready and timer.elapsed() < timeout_ms:
+            QtWidgets.QApplication.processEvents(QtCore.QEventLoop.ProcessEventsFlag.AllEvents, 50)
+            self._pool.waitForDone(20)
+        QtWidgets.QApplication.processEvents()
+        return self.summary_ready
+
+    def closeEvent(self, event: QtGui.QCloseEvent) -> None:  # noqa: N802 (Qt naming)
+        self._summary_generation += 1  # drop what is still being computed
+        self._pool.waitForDone()
+        super().closeEvent(event)
 
     def _update_legend(self) -> None:
         counts: dict[str, int] = {}

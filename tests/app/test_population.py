@@ -41,6 +41,7 @@ def view(shared_view, qtbot):
     shared_view.set_selected_stars([])
     shared_view.set_current_star(None)
     shared_view.refresh()
+    qtbot.waitUntil(lambda: shared_view.summary_ready, timeout=20000)
     return shared_view
 
 
@@ -232,7 +233,8 @@ def test_summary_distance_modulus_equals_core(view, ledger):
 def test_editing_the_extinction_recomputes_the_distances(view, ledger, qtbot):
     before = view.field.summary
     rrab_before = next(d for d in before.distances if d.class_code == "RRab").mu0
-    view.summary_panel.ebv_box.setValue(0.1)
+    with qtbot.waitSignal(view.summary_updated, timeout=20000):
+        view.summary_panel.ebv_box.setValue(0.1)
     assert view.extinction() == pytest.approx(0.1)
     after = view.field.summary
     rrab_after = next(d for d in after.distances if d.class_code == "RRab").mu0
