@@ -1,0 +1,260 @@
+"""Ledger commands: ``ledger new``/``ledger info``, ``verdict``, ``history``, ``undo``, ``redo``, ``export``.
+
+Every change is one committed transaction in the ledger; these commands only
+parse, call :mod:`core.ledger` / :mod:`core.export` and print.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+from pathlib import Path
+from typing import Any
+
+from core.errors import PhasewiseError
+from core.ledger import VERDICT_STATUSES, Ledger, file_checksum
+
+DECISIONS = tuple(s for s in VERDICT_STATUSES if s != "unreviewed")
+
+
+def _stars(n: int) -> str:
+    return f"{n} star" if n == 1 else f"{n} stars"
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    ledger = subparsers.add_parser("ledger", help="make or describe a ledger (a vetting job)")
+    actions = ledger.add_subparsers(dest="ledger_command", metavar="ACTION", required=True)
+    new = actions.add_parser("new", help="make a ledger and import stars from photometry files")
+    new.add_argument("ledger", type=Path, help="the new ledger, NAME.ledger.sqlite")
+    new.add_argument("files", type=Path, nargs="+", help="photometry files or folders")
+    new.add_argument(
+        "--columns",
+        help="choose columns, e.g. time=hjd,mag=V,err=eV,band=filter,star_id=name",
+    )
+    new.add_argument("--overwrite", action="store_true", help="replace an existing ledger")
+    new.set_defaults(func=run_new)
+    info = actions.add_parser("info", help="stars, verdict counts and analysis state")
+    info.add_argument("ledger", type=Path, metavar="LEDGER")
+    info.set_defaults(func=run_info)
+
+    verdict = subparsers.add_parser(
+        "verdict",
+        help="record a verdict on a star, or confirm every suggestion above a score",
+    )
+    verdict.add_argument("ledger", type=Path, metavar="LEDGER")
+    verdict.add_argument(
+        "star_id", nargs="?", metavar="STAR_ID", help="the star (omit with --confirm-above)"
+    )
+    verdict.add_argument("--status", choices=DECISIONS + ("unreviewed",))
+    verdict.add_argument(
+        "--class", dest="class_code", metavar="CLASS", help="class code, e.g. RRab (relabel)"
+    )
+    verdict.add_argument("--period", type=float, help="chosen period in days")
+    verdict.add_argument("--note", help="a note kept with the verdict")
+    verdict.add_argument(
+        "--confirm-above",
+        type=float,
+        metavar="SCORE",
+        help="confirm the top suggestion (class and period) of every unreviewed star "
+        "whose top score is at least SCORE (0 to 1)",
+    )
+    verdict.add_argument("--dry-run", action="store_true", help="list what would be confirmed")
+    verdict.set_defaults(func=run_verdict)
+
+    history = subparsers.add_parser("history", help="print the history of changes")
+    history.add_argument("ledger", type=Path, metavar="LEDGER")
+    history.add_argument("star_id", nargs="?", metavar="STAR_ID", help="only this star")
+    history.set_defaults(func=run_history)
+
+    for name, text in (("undo", "undo the latest change"), ("redo", "redo the last undone change")):
+        walk = subparsers.add_parser(name, help=text)
+        walk.add_argument("ledger", type=Path, metavar="LEDGER")
+        walk.set_defaults(func=run_walk, direction=name)
+
+    export = subparsers.add_parser("export", help="write the vetted catalogue")
+    export.add_argument("ledger", type=Path, metavar="LEDGER")
+    export.add_argument("-o", "--output", type=Path, required=True, help="catalogue file")
+    export.add_argument("--format", choices=("ecsv", "fits", "votable", "csv"))
+    export.add_argument(
+        "--status",
+        action="append",
+        help="verdict states to include (repeat or comma-separate; default: confirmed,relabelled)",
+    )
+    export.set_defaults(func=run_export)
+
+
+# ----------------------------------------------------------------- ledger new
+def run_new(args: argparse.Namespace) -> int:
+    from core.io import ColumnMapping, open_photometry
+
+    mapping = ColumnMapping.parse(args.columns) if args.columns else None
+    sources = [open_photometry(path, mapping) for path in args.files]  # all readable first
+    ledger = Ledger.create(args.ledger, overwrite=args.overwrite)
+    try:
+        for path, source in zip(args.files, sources, strict=True):
+            checksum = file_checksum(path) if path.is_file() else None
+            added = ledger.add_stars(
+                source.stars(), source_file=str(path), source_checksum=checksum
+            )
+            report = source.report
+            print(
+                f"{path}: {_stars(added)} imported; rows read {report.rows_read}, "
+                f"skipped {report.rows_skipped}"
+            )
+            for reason, count in report.skip_counts.items():
+                print(f"  {count} x {reason}")
+            for note in report.notes:
+                print(f"  note: {note}")
+    except BaseException:
+        ledger.close()
+        for suffix in ("", "-wal", "-shm"):
+            Path(f"{args.ledger}{suffix}").unlink(missing_ok=True)
+        raise
+    print(f"{args.ledger}: {_stars(ledger.n_stars)}")
+    ledger.close()
+    return 0
+
+
+def run_info(args: argparse.Namespace) -> int:
+    with Ledger.open(args.ledger, readonly=True) as ledger:
+        rows = ledger.star_rows()
+        counts = ledger.status_counts()
+        print(f"{args.ledger}: {_stars(ledger.n_stars)}")
+        print("  " + ", ".join(f"{status} {n}" for status, n in counts.items()))
+        analysed = sum(r.analysed for r in rows)
+        print(
+            f"  analysed {analysed}, failed {sum(r.failed for r in rows)}, "
+            f"stale {sum(r.stale for r in rows)}, settings {ledger.settings_hash or 'none'}"
+        )
+        holder = ledger.lock_holder()
+        if holder:
+            print(f"  open for writing by {holder.describe()}")
+    return 0
+
+
+# -------------------------------------------------------------------- verdict
+def run_verdict(args: argparse.Namespace) -> int:
+    if args.confirm_above is not None:
+        if args.star_id or args.status or args.class_code or args.period or args.note:
+            raise PhasewiseError(
+                "--confirm-above works on every unreviewed star; give no STAR_ID, "
+                "--status, --class, --period or --note with it",
+                field="confirm-above",
+            )
+        return _confirm_above(args)
+    if not args.star_id or not args.status:
+        raise PhasewiseError(
+            "give a STAR_ID and --status (or --confirm-above SCORE)", file=args.ledger
+        )
+    if args.dry_run:
+        raise PhasewiseError("--dry-run goes with --confirm-above", field="dry-run")
+    with Ledger.open(args.ledger) as ledger:
+        verdict = ledger.set_verdict(
+            args.star_id,
+            args.status,
+            class_code=args.class_code,
+            period=args.period,
+            note=args.note,
+        )
+    print(f"{args.ledger}: {verdict.star_id}: {_verdict_text(verdict.to_dict())}")
+    return 0
+
+
+def _confirm_above(args: argparse.Namespace) -> int:
+    score = args.confirm_above
+    if not (0.0 <= score <= 1.0):
+        raise PhasewiseError(f"scores lie between 0 and 1; got {score}", field="confirm-above")
+    with Ledger.open(args.ledger, readonly=args.dry_run) as ledger:
+        chosen, stale = [], 0
+        for row in ledger.star_rows():
+            if row.status != "unreviewed" or row.suggested_class is None:
+                continue
+            if row.suggested_score is None or row.suggested_score < score:
+                continue
+            if row.stale:
+                stale += 1  # the suggestion belongs to old settings or an old mask
+                continue
+            chosen.append(row)
+        verb = "would confirm" if args.dry_run else "confirmed"
+        for row in chosen:
+            period = "" if row.suggested_period is None else f" P={row.suggested_period:.7g} d"
+            print(
+                f"{verb} {row.star_id}: {row.suggested_class}{period} (score {row.suggested_score:.3f})"
+            )
+        if not args.dry_run and chosen:
+            ledger.set_verdicts(
+                [
+                    (r.star_id, "confirmed", r.suggested_class, r.suggested_period, None)
+                    for r in chosen
+                ],
+                label=f"confirm {len(chosen)} suggestions with score >= {score:g}",
+            )
+    print(f"{args.ledger}: {_stars(len(chosen))} {verb} with top score >= {score:g}")
+    if stale:
+        print(f"  skipped {_stars(stale)} whose analysis is stale; analyse them again first")
+    return 0
+
+
+# ------------------------------------------------------------ history and undo
+def _value_text(what: str, value: Any) -> str:
+    if value is None:
+        return "-"
+    if what == "verdict":
+        return _verdict_text(value)
+    if what == "excluded":
+        reason = f" ({value['reason']})" if value.get("reason") else ""
+        return f"{len(value['indices'])} points excluded{reason}"
+    if what == "import":
+        return f"{value['n_stars']} stars from {value.get('source_file') or 'memory'}"
+    if what == "analysis_settings":
+        return f"settings {value['settings_hash']}"
+    return str(value)
+
+
+def _verdict_text(value: dict[str, Any]) -> str:
+    parts = [value["status"]]
+    if value.get("class_code"):
+        parts.append(value["class_code"])
+    period = value.get("period")
+    if period is not None and math.isfinite(period):
+        parts.append(f"P={period:.7g} d")
+    if value.get("note"):
+        parts.append(f"note {value['note']!r}")
+    return " ".join(parts)
+
+
+def run_history(args: argparse.Namespace) -> int:
+    with Ledger.open(args.ledger, readonly=True) as ledger:
+        entries = ledger.history(args.star_id)
+    if not entries:
+        print(f"{args.ledger}: no history" + (f" for {args.star_id}" if args.star_id else ""))
+    for e in entries:
+        star = e.star_id or "-"
+        change = f"{_value_text(e.what, e.old)} -> {_value_text(e.what, e.new)}"
+        print(f"{e.id:6d}  {e.at}  {e.kind:8s} {star:16s} {e.what}: {change}")
+    return 0
+
+
+def run_walk(args: argparse.Namespace) -> int:
+    with Ledger.open(args.ledger) as ledger:
+        action = ledger.undo() if args.direction == "undo" else ledger.redo()
+    if action is None:
+        print(f"{args.ledger}: nothing to {args.direction}")
+        return 1
+    print(f"{args.ledger}: {action.label}")
+    for e in action.entries:
+        print(f"  {e.star_id}: {_value_text(e.what, e.old)} -> {_value_text(e.what, e.new)}")
+    return 0
+
+
+# --------------------------------------------------------------------- export
+def run_export(args: argparse.Namespace) -> int:
+    from core.export import write_catalogue
+
+    statuses = ("confirmed", "relabelled")
+    if args.status:
+        statuses = tuple(s.strip() for item in args.status for s in item.split(",") if s.strip())
+    with Ledger.open(args.ledger, readonly=True) as ledger:
+        n = write_catalogue(ledger, args.output, format=args.format, statuses=statuses)
+    print(f"{args.output}: {_stars(n)} ({', '.join(statuses)}) from {args.ledger}")
+    return 0
