@@ -1,9 +1,10 @@
-"""An invented field and a stand-in ledger for the population view tests.
+"""An invented field, written to a real ledger, for the population view tests.
 
 The field: 30 RRab, 15 RRc (one relabelled RRd, one rejected), 4 RRd and 10
 classical Cepheids, with V and I; one RRab ("NX-ODD") injected far from the
-RRab locus.  Only ``verdicts()`` and ``result(star_id)`` of the ledger are
-used by the view; they follow the names of ``core.ledger``.
+RRab locus, and one star without a period.  Each star gets a short stand-in
+light curve and a stored result dict with the keys of
+``AnalysisResult.to_dict()`` that the population view reads.
 """
 
 from __future__ import annotations
@@ -30,17 +31,38 @@ class FakeStored:
 
 
 class FakeLedger:
+    """Only ``verdicts()`` and ``result(star_id)``, for quick scripts."""
+
     def __init__(self, rows):
         self._rows = list(rows)
+        self._results = {verdict.star_id: result for verdict, result in self._rows}
 
     def verdicts(self):
         return [verdict for verdict, _ in self._rows]
 
     def result(self, star_id):
-        for verdict, result in self._rows:
-            if verdict.star_id == star_id:
-                return FakeStored(star_id, result)
-        return None
+        result = self._results.get(star_id)
+        return None if result is None else FakeStored(star_id, result)
+
+
+def build_ledger(path, rows=None):
+    """A real ``core.ledger.Ledger`` holding the invented field, its results and verdicts."""
+    from core.ledger import Ledger
+    from core.lightcurve import LightCurve
+
+    rows = invented_field() if rows is None else rows
+    ledger = Ledger.create(path)
+    time = np.linspace(0.0, 30.0, 12)
+    ledger.add_stars(
+        LightCurve(verdict.star_id, time, 17.0 + 0.1 * np.sin(time), np.full(12, 0.02))
+        for verdict, _ in rows
+    )
+    ledger.set_analysis_settings({"stand_in": True}, "stand-in")
+    ledger.store_results((verdict.star_id, "stand-in", result) for verdict, result in rows)
+    for verdict, _ in rows:
+        if verdict.status != "unreviewed":
+            ledger.set_verdict(verdict.star_id, verdict.status, class_code=verdict.class_code)
+    return ledger
 
 
 def _result(period, suggested, amp_v, v_mag, v_i, r21, phi31, secondary=None):

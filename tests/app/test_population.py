@@ -10,12 +10,14 @@ from app.population import PopulationView  # noqa: E402
 from core import diagrams as dg  # noqa: E402
 from core.errors import PhasewiseError  # noqa: E402
 
-from .population_fakes import FakeLedger, invented_field  # noqa: E402
+from .population_fakes import build_ledger  # noqa: E402
 
 
 @pytest.fixture(scope="module")
-def ledger():
-    return FakeLedger(invented_field())
+def ledger(tmp_path_factory):
+    ledger = build_ledger(tmp_path_factory.mktemp("population") / "nyx.ledger.sqlite")
+    yield ledger
+    ledger.close()
 
 
 @pytest.fixture(scope="module")
@@ -256,3 +258,20 @@ def test_caution_and_rules_are_stated(view):
     assert "from memory" in text.lower()
     assert "Outlier rule" in text
     assert "the astronomer decides" in view.summary_panel.caution.text()
+
+
+def test_a_new_verdict_moves_the_star_after_refresh(view, ledger, qtbot):
+    plot = view.plots["period_amplitude"]
+    before = plot.shown_counts()
+    ledger.set_verdict("NX-AB05", "relabelled", class_code="RRc")
+    try:
+        view.refresh()
+        after = plot.shown_counts()
+        assert after["RRab"] == before["RRab"] - 1
+        assert after["RRc"] == before["RRc"] + 1
+        diagram = plot.diagram
+        assert diagram.class_codes[diagram.star_ids.index("NX-AB05")] == "RRc"
+    finally:
+        ledger.undo()
+        view.refresh()
+    assert plot.shown_counts() == before
