@@ -48,6 +48,7 @@ __all__ = [
     "OutlierFlag",
     "class_used",
     "star_points",
+    "star_point",
     "available_bands",
     "period_amplitude",
     "phi31_logp",
@@ -287,20 +288,24 @@ def star_points(ledger: Any) -> list[StarPoint]:
     ``core.ledger``); a failed or missing analysis gives a point without
     coordinates.
     """
-    points = []
-    for verdict in ledger.verdicts():
-        stored = ledger.result(verdict.star_id)
-        result = None if stored is None or stored.failed else stored.result
-        points.append(
-            StarPoint.from_result(
-                verdict.star_id,
-                result,
-                verdict_class=verdict.class_code,
-                status=verdict.status,
-                verdict_period=verdict.period,
-            )
-        )
-    return points
+    return [_point(ledger, verdict) for verdict in ledger.verdicts()]
+
+
+def star_point(ledger: Any, star_id: str) -> StarPoint:
+    """The :class:`StarPoint` of one star of a ledger (after its verdict changed)."""
+    return _point(ledger, ledger.verdict(star_id))
+
+
+def _point(ledger: Any, verdict: Any) -> StarPoint:
+    stored = ledger.result(verdict.star_id)
+    result = None if stored is None or stored.failed else stored.result
+    return StarPoint.from_result(
+        verdict.star_id,
+        result,
+        verdict_class=verdict.class_code,
+        status=verdict.status,
+        verdict_period=verdict.period,
+    )
 
 
 def available_bands(points: Iterable[StarPoint]) -> list[str]:

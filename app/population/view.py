@@ -20,7 +20,7 @@ summary_updated()
 
 Slots the desk calls
 --------------------
-``set_ledger(ledger)`` / ``refresh()``, ``set_current_star(star_id)``,
+``set_ledger(ledger)`` / ``refresh()`` / ``update_stars(ids)``, ``set_current_star(star_id)``,
 ``set_visible_stars(ids or None)`` (the list's filters),
 ``set_selected_stars(ids)`` (the list's selection).
 """
@@ -234,6 +234,14 @@ class PopulationView(QtWidgets.QWidget):
         """Re-read the ledger (after verdicts or analyses changed) and redraw."""
         if self.ledger is not None:
             self.set_points(dg.star_points(self.ledger))
+
+    def update_stars(self, star_ids: Iterable[str]) -> None:
+        """Re-read these stars from the ledger (after their verdicts changed) and redraw."""
+        if self.ledger is None:
+            return
+        fresh = {str(s): dg.star_point(self.ledger, str(s)) for s in star_ids}
+        if fresh:
+            self.set_points([fresh.get(p.star_id, p) for p in self.points])
 
     def set_points(self, points: Sequence[dg.StarPoint]) -> None:
         """Show these stars (the ledger's, or any list of points)."""
