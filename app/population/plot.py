@@ -124,6 +124,7 @@ class DiagramPlot(pg.PlotWidget):
         self._viewbox = BrushViewBox()
         super().__init__(parent, background="w", viewBox=self._viewbox)
         self.diagram: Diagram | None = None
+        self._class_of: dict[str, str] = {}
         self._visible: set[str] | None = None
         self._selected: set[str] = set()
         self._outliers: set[str] = set()
@@ -198,6 +199,7 @@ class DiagramPlot(pg.PlotWidget):
     def set_diagram(self, diagram: Diagram, *, auto_range: bool = True) -> None:
         """Show a diagram's points and guide lines."""
         self.diagram = diagram
+        self._class_of = dict(zip(diagram.star_ids, diagram.class_codes, strict=True))
         item = self.getPlotItem()
         label_style = {"font-size": "11pt", "color": "#111111"}
         item.setLabel("bottom", diagram.x_label, **label_style)
@@ -482,10 +484,8 @@ class DiagramPlot(pg.PlotWidget):
             self.export_legend.addItem(self.outlier_marks, "outlier (far from its class)")
 
     def _tip(self, x: float, y: float, data: object) -> str:
-        code = ""
-        if self.diagram is not None and data in self.diagram.star_ids:
-            code = self.diagram.class_codes[self.diagram.star_ids.index(data)]
-        return f"{data}  {code}\nx = {x:.4g}, y = {y:.4g}"
+        code = self._class_of.get(data, "")
+        return f"{data}  {code}\nx = {x:.4g}, y = {y:.4g}\nclick: open · Shift+drag: select"
 
     def _on_click(self, _item, points, event) -> None:
         if not len(points):
