@@ -260,11 +260,16 @@ def _sine_phi31(fourier: Mapping[str, Any]) -> float | None:
 
 
 def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float | None, ...]:
-    """Shorter and longer of the primary and the secondary period the ratio refers to."""
+    """Shorter and longer of the primary and the secondary period the ratio refers to.
+
+    Only secondary periods of kind ``independent`` count (``core.prewhiten``).
+    """
     if period is None or period <= 0:
         return None, None
     seconds = []
     for entry in result.get("secondary_periods") or ():
+        if isinstance(entry, Mapping) and entry.get("kind", "independent") != "independent":
+            continue  # harmonics, combinations and side peaks are not a second mode
         value = entry.get("period") if isinstance(entry, Mapping) else entry
         number = _finite(value)
         if number is not None and number > 0 and not math.isclose(number, period):

@@ -132,6 +132,8 @@ def test_class_used_prefers_the_verdict_then_the_suggestion():
     assert dg.class_used("unreviewed", None, suggestions) == ("RRc", "suggestion")
     assert dg.class_used("relabelled", "RRd", suggestions) == ("RRd", "verdict")
     assert dg.class_used("confirmed", "RRc", suggestions) == ("RRc", "verdict")
+    # a confirmation stored without a class confirms the top suggestion
+    assert dg.class_used("confirmed", None, suggestions) == ("RRc", "verdict")
     assert dg.class_used("deferred", "RRd", suggestions) == ("RRc", "suggestion")
     assert dg.class_used("rejected", None, suggestions) == ("REJECTED", "verdict")
     assert dg.class_used("unreviewed", None, []) == ("UNKNOWN", "none")
@@ -144,7 +146,11 @@ def test_point_from_result_dict():
         "amplitude_by_band": {"V": 0.9, "I": float("nan")},
         "mean_mag_by_band": {"V": 16.0, "I": 15.4},
         "fourier": {"form": "cosine", "R21": 0.45, "phi31": 1.0},
-        "secondary_periods": [{"period": 0.2}, {"period": 0.3725}],
+        "secondary_periods": [
+            {"period": 0.25, "kind": "harmonic"},
+            {"period": 0.2},
+            {"period": 0.3725, "kind": "independent"},
+        ],
         "period_ratio": 0.745,
         "suggestions": [{"class": "RRd", "score": 0.7}],
     }
@@ -155,6 +161,8 @@ def test_point_from_result_dict():
     assert point.phi31 == pytest.approx(1.0 - math.pi + 2 * math.pi)
     assert (point.shorter_period, point.longer_period) == (0.3725, 0.5)
     assert point.colour() == pytest.approx(0.6)
+    harmonic_only = dict(result, secondary_periods=[{"period": 0.25, "kind": "harmonic"}])
+    assert dg.StarPoint.from_result("S3", harmonic_only).ratio is None
     empty = dg.StarPoint.from_result("S2", None, status="rejected")
     assert empty.class_code == "REJECTED" and empty.period is None
 
