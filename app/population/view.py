@@ -219,21 +219,25 @@ class PopulationView(QtWidgets.QWidget):
         self.red_box.currentTextChanged.connect(self._on_bands)
         self.relation_box.currentIndexChanged.connect(self._on_bands)
         self.brush_button.toggled.connect(self._on_brush_mode)
-        self.reset_button.clicked.connect(self._reset_zoom)
+        self.reset_button.clicked.connect(self.reset_zoom)
         clear = QtGui.QShortcut(QtGui.QKeySequence(QtCore.Qt.Key.Key_Escape), self)
         clear.setContext(QtCore.Qt.ShortcutContext.WidgetWithChildrenShortcut)
         clear.activated.connect(lambda: self._on_brushed([]))
 
     # ---------------------------------------------------------------- data in
     def set_ledger(self, ledger: Any) -> None:
-        """Show the stars of another ledger."""
+        """Show the stars of another ledger (the diagrams fit the new stars)."""
         self.ledger = ledger
+        self.points = []
         self.refresh()
 
     def refresh(self) -> None:
-        """Re-read the ledger (after verdicts or analyses changed) and redraw."""
+        """Re-read the ledger (after verdicts or analyses changed) and redraw.
+
+        The zoom is kept once stars are shown.
+        """
         if self.ledger is not None:
-            self.set_points(dg.star_points(self.ledger))
+            self.set_points(dg.star_points(self.ledger), auto_range=not self.points)
 
     def update_stars(self, star_ids: Iterable[str]) -> None:
         """Re-read these stars from the ledger (after their verdicts changed) and redraw."""
@@ -241,13 +245,13 @@ class PopulationView(QtWidgets.QWidget):
             return
         fresh = {str(s): dg.star_point(self.ledger, str(s)) for s in star_ids}
         if fresh:
-            self.set_points([fresh.get(p.star_id, p) for p in self.points])
+            self.set_points([fresh.get(p.star_id, p) for p in self.points], auto_range=False)
 
-    def set_points(self, points: Sequence[dg.StarPoint]) -> None:
+    def set_points(self, points: Sequence[dg.StarPoint], *, auto_range: bool = True) -> None:
         """Show these stars (the ledger's, or any list of points)."""
         self.points = list(points)
         self._fill_band_boxes()
-        self._recompute()
+        self._recompute(auto_range=auto_range)
 
     def set_current_star(self, star_id: str | None) -> None:
         """Ring the current star in every diagram."""
@@ -398,11 +402,14 @@ class PopulationView(QtWidgets.QWidget):
             self._with_guides(guides)
         flagged = {f.star_id for f in self.outliers}
         for key, plot in self.plots.items():
-            plot.set_diagram(self.diagrams[key], auto_range=auto_range)
-            plot.set_visible(self._visible)
-            plot.set_outliers(flagged)
-            plot.set_selected(self._selected)
-            plot.set_current(self._current)
+            plot.show_state(
+                self.diagrams[key],
+                visible=self._visible,
+                outliers=flagged,
+                selected=self._selected,
+                current=self._current,
+                auto_range=auto_range,
+            )
         self._update_legend()
         self.outliers_changed.emit(self.outlier_reasons())
         if not same or not self.summary_ready:
@@ -504,7 +511,8 @@ class PopulationView(QtWidgets.QWidget):
         for plot in self.plots.values():
             plot.set_brush_mode(on)
 
-    def _reset_zoom(self) -> None:
+    def reset_zoom(self) -> None:
+        """Fit every diagram to its stars."""
         for plot in self.plots.values():
             plot.auto_range()
 

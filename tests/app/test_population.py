@@ -43,6 +43,7 @@ def view(shared_view, qtbot):
     shared_view.set_selected_stars([])
     shared_view.set_current_star(None)
     shared_view.refresh()
+    shared_view.reset_zoom()
     qtbot.waitUntil(lambda: shared_view.summary_ready, timeout=20000)
     return shared_view
 

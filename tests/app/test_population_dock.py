@@ -78,13 +78,17 @@ def test_the_view_follows_the_desk(desk):
     assert sorted(view.plots["period_amplitude"].shown_star_ids()) == ["NX-C02", "NX-C03"]
 
 
-def test_verdicts_reach_the_diagrams(desk):
+def test_verdicts_reach_the_diagrams_and_keep_the_zoom(desk):
     window, view, ledger = desk
+    box = view.plots["period_amplitude"].getPlotItem().getViewBox()
+    box.setRange(xRange=(-0.4, -0.1), yRange=(0.5, 1.0), padding=0)
+    zoom = box.viewRange()
     ledger.set_verdict("NX-AB09", "relabelled", class_code="RRd")
     window.verdictChanged.emit("NX-AB09")
     view.link.flush()
     diagram = view.plots["period_amplitude"].diagram
     assert diagram.class_codes[diagram.star_ids.index("NX-AB09")] == "RRd"
+    assert box.viewRange() == zoom
 
 
 def test_clicks_and_rectangles_reach_the_star_list(desk, qtbot):
