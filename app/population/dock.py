@@ -16,13 +16,17 @@ from PySide6 import QtCore
 
 from .view import PopulationView
 
-__all__ = ["attach", "VIEW_NAME", "PopulationLink"]
+__all__ = ["attach", "VIEW_NAME", "OUTLIER_FLAG", "PopulationLink"]
 
 #: The name of the view in the desk (``--view population``).
 VIEW_NAME = "population"
 
 #: Verdicts arriving within this time are applied to the diagrams together.
 VERDICT_DELAY_MS = 250
+
+#: The flag the star list shows for stars far from their class's locus
+#: (type it in the list's filter to see them all).
+OUTLIER_FLAG = "diagram outlier"
 
 
 class PopulationLink(QtCore.QObject):
@@ -33,6 +37,7 @@ class PopulationLink(QtCore.QObject):
         self.window = window
         self.view = view
         self._pending: set[str] = set()
+        self._flagged: set[str] = set()
         self._timer = QtCore.QTimer(self, singleShot=True, interval=VERDICT_DELAY_MS)
         self._timer.timeout.connect(self._apply_verdicts)
         window.ledgerChanged.connect(self.ledger_changed)
@@ -41,9 +46,30 @@ class PopulationLink(QtCore.QObject):
         window.filterChanged.connect(self.filter_changed)
         view.star_selected.connect(window.select_star)
         view.stars_brushed.connect(window.select_stars)
+        view.outliers_changed.connect(self.mark_outliers)
+
+    def mark_outliers(self, reasons: dict) -> None:
+        """Show the outlier rule's verdict in the star list's flags column."""
+        model = getattr(getattr(self.window, "star_list", None), "model", None)
+        if model is None or not hasattr(model, "update_star") or not hasattr(model, "value"):
+            return
+        flagged = set(reasons)
+        for star_id in self._flagged | flagged:
+            current = model.value(star_id, "flags")
+            if current is None and model.row_of(star_id) is None:
+                continue
+            flags = [f.strip() for f in str(current or "").split(",") if f.strip()]
+            flags = [f for f in flags if f != OUTLIER_FLAG]
+            if star_id in flagged:
+                flags.append(OUTLIER_FLAG)
+            text = ",".join(flags)
+            if text != (current or ""):
+                model.update_star(star_id, flags=text)
+        self._flagged = flagged
 
     def ledger_changed(self) -> None:
         self._pending.clear()
+        self._flagged.clear()  # the desk re-read its rows from the ledger
         self.view.set_ledger(self.window.ledger)
         self.filter_changed()
         self.view.set_current_star(self.window.current_star)

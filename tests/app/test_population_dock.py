@@ -10,6 +10,22 @@ from app.population import VIEW_NAME, attach  # noqa: E402
 from .population_fakes import build_ledger  # noqa: E402
 
 
+class StandInRows:
+    """The star list model's ``row_of``, ``value`` and ``update_star``."""
+
+    def __init__(self):
+        self.flags = {}
+
+    def row_of(self, star_id):
+        return 0 if star_id in self.flags else None
+
+    def value(self, star_id, field):
+        return self.flags.get(star_id)
+
+    def update_star(self, star_id, **fields):
+        self.flags[star_id] = fields["flags"]
+
+
 class StandInDesk(QtWidgets.QMainWindow):
     """The extension points of ``app.desk.MainWindow`` that the population view uses."""
 
@@ -26,6 +42,7 @@ class StandInDesk(QtWidgets.QMainWindow):
         self.selected = []
         self.visible = None
         self.waited = 0
+        self.star_list = type("StarList", (), {"model": StandInRows()})()
 
     def add_view(self, name, widget, title=None, area=None, visible=False):
         dock = QtWidgets.QDockWidget(title or name, self)
@@ -58,6 +75,8 @@ def desk(qtbot, tmp_path):
     window.show()
     qtbot.waitExposed(window)
     ledger = build_ledger(tmp_path / "nyx.ledger.sqlite")
+    window.star_list.model.flags = dict.fromkeys(ledger.star_ids(), "")
+    window.star_list.model.flags["NX-ODD"] = "low snr"
     window.ledger = ledger
     window.ledgerChanged.emit()
     window.wait_idle()
@@ -97,3 +116,15 @@ def test_clicks_and_rectangles_reach_the_star_list(desk, qtbot):
     assert window.current_star == "NX-CEP3"
     view.plots["phi31_logp"].brushed.emit(["NX-C01", "NX-C04"])
     assert window.selected == ["NX-C01", "NX-C04"]
+
+
+def test_outliers_are_flagged_in_the_star_list(desk):
+    window, view, ledger = desk
+    flags = window.star_list.model.flags
+    assert flags["NX-ODD"] == "low snr,diagram outlier"
+    assert [s for s, f in flags.items() if "diagram outlier" in f] == ["NX-ODD"]
+    # relabelled out of the RRab class, it is no longer an RRab outlier
+    ledger.set_verdict("NX-ODD", "relabelled", class_code="EW")
+    window.verdictChanged.emit("NX-ODD")
+    view.link.flush()
+    assert flags["NX-ODD"] == "low snr"
