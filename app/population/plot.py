@@ -453,6 +453,8 @@ class DiagramPlot(pg.PlotWidget):
             self.lines.append(line)
             self.line_labels.append(label)
         previous = None
+        guide_levels = [float(g.y[0]) for g in diagram.lines if g.kind == "guide" and len(g.y)]
+        top_level = max(guide_levels) if guide_levels else None
         for k, (line, label) in enumerate(zip(self.lines, self.line_labels, strict=True)):
             if k >= len(diagram.lines):
                 line.setData([], [])
@@ -467,6 +469,9 @@ class DiagramPlot(pg.PlotWidget):
             # are named in the legend above the diagrams and in exported figures
             if guide.kind == "guide" and guide.label != previous and len(guide.x):
                 label.setText(guide.label)
+                # above its line, except the topmost one (below it, so it stays in view)
+                below = top_level is not None and float(guide.y[0]) >= top_level
+                label.setAnchor((0, 0) if below else (0, 1))
                 label.setPos(float(guide.x[0]), float(guide.y[0]))
                 label.show()
             else:
