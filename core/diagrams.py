@@ -28,6 +28,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
+from dataclasses import fields as dataclass_fields
 from typing import Any
 
 import numpy as np
@@ -69,6 +70,7 @@ __all__ = [
     "pl_relations",
     "band_extinction",
     "field_state",
+    "physics_settings_from",
 ]
 
 #: Diagram keys and titles, in the order the population view shows them.
@@ -816,8 +818,13 @@ def field_state(
     pl_relation: str | None = None,
     blue: str = "V",
     red: str = "I",
+    physics_settings: Mapping[str, Any] | None = None,
 ) -> FieldState:
     """Field summary and guide lines for the population view.
+
+    ``physics_settings`` are the ``PhysicsSettings`` fields the analysis used
+    (e.g. ``rv``, ``rr_mv_relation``; from the ledger's analysis settings);
+    ``ebv`` replaces theirs.
 
     The summary is :func:`core.physics.population_summary` of
     :func:`star_physics` of :func:`summary_members`, with the extinction
@@ -827,7 +834,7 @@ def field_state(
     relation's scatter as each star's error); the instability strip at the
     summary's distance of the class with most members used (RRab first).
     """
-    settings = physics.PhysicsSettings(ebv=ebv)
+    settings = physics_settings_from(physics_settings, ebv)
     members = summary_members(points)
     stars = star_physics(members, settings)
     summary = physics.population_summary(stars)
@@ -854,6 +861,13 @@ def field_state(
         strip_lines=strip_lines,
         strip_note=strip_note,
     )
+
+
+def physics_settings_from(values: Mapping[str, Any] | None, ebv: float) -> Any:
+    """``core.physics.PhysicsSettings`` from stored values (unknown keys ignored), at ``ebv``."""
+    known = {f.name for f in dataclass_fields(physics.PhysicsSettings)}
+    given = {k: v for k, v in (values or {}).items() if k in known and k != "ebv"}
+    return physics.PhysicsSettings(**given, ebv=float(ebv))
 
 
 def _pl_guides(

@@ -58,6 +58,19 @@ _GRID = (
 )
 
 
+def _stored_physics(ledger: Any) -> dict:
+    """The physics settings of the ledger's analysis settings, if it has any."""
+    stored = getattr(ledger, "analysis_settings", None)
+    try:
+        current = stored() if callable(stored) else None
+    except Exception:  # noqa: BLE001 - an unreadable setting must not stop the view
+        return {}
+    if not current:
+        return {}
+    physics = (current[0] or {}).get("physics")
+    return dict(physics) if isinstance(physics, dict) else {}
+
+
 class _SummaryRelay(QtCore.QObject):
     """Carries a finished summary from the worker thread to the GUI thread."""
 
@@ -124,6 +137,7 @@ class PopulationView(QtWidgets.QWidget):
         self._relation_chosen = False  # the person picked a P–L relation (or none)
         self._field_points: list | None = None
         self._field_settings: dict | None = None
+        self._physics_settings: dict = {}
         self._job_points: dict[int, list] = {}
         self._summary_generation = 0
         self._summary_done = 0
@@ -136,7 +150,7 @@ class PopulationView(QtWidgets.QWidget):
         self.plots: dict[str, DiagramPlot] = {}
         self._build()
         if ledger is not None:
-            self.refresh()
+            self.set_ledger(ledger)
 
     # ------------------------------------------------------------------ layout
     def _build(self) -> None:
@@ -226,9 +240,19 @@ class PopulationView(QtWidgets.QWidget):
 
     # ---------------------------------------------------------------- data in
     def set_ledger(self, ledger: Any) -> None:
-        """Show the stars of another ledger (the diagrams fit the new stars)."""
+        """Show the stars of another ledger (the diagrams fit the new stars).
+
+        The extinction and the other physics settings start from those the
+        ledger's analysis used.
+        """
         self.ledger = ledger
         self.points = []
+        self._physics_settings = _stored_physics(ledger)
+        ebv = self._physics_settings.get("ebv")
+        if isinstance(ebv, (int, float)):
+            blocker = QtCore.QSignalBlocker(self.summary_panel.ebv_box)
+            self.summary_panel.set_extinction(float(ebv))
+            del blocker
         self.refresh()
 
     def refresh(self) -> None:
@@ -375,6 +399,7 @@ class PopulationView(QtWidgets.QWidget):
         blue, red = self.blue_box.currentText(), self.red_box.currentText()
         points = self.points
         settings = {
+            "physics_settings": self._physics_settings,
             "ebv": self.summary_panel.extinction(),
             "pl_band": band,
             "pl_relation": self.relation_box.currentData(),

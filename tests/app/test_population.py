@@ -276,3 +276,18 @@ def test_a_new_verdict_moves_the_star_after_refresh(view, ledger, qtbot):
         ledger.undo()
         view.refresh()
     assert plot.shown_counts() == before
+
+
+def test_extinction_starts_from_the_ledgers_analysis_settings(qtbot, tmp_path):
+    ledger = build_ledger(tmp_path / "reddened.ledger.sqlite")
+    ledger.set_analysis_settings({"physics": {"ebv": 0.12, "rv": 3.1}}, "with-ebv")
+    try:
+        widget = PopulationView(ledger)
+        qtbot.addWidget(widget)
+        qtbot.waitUntil(lambda: widget.summary_ready, timeout=20000)
+        assert widget.extinction() == pytest.approx(0.12)
+        # A_V = 3.1 E(B-V) (Cardelli, Clayton & Mathis 1989)
+        assert widget.field.a_v == pytest.approx(0.372)
+    finally:
+        widget.close()
+        ledger.close()
