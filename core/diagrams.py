@@ -469,7 +469,7 @@ def period_ratio(points: Iterable[StarPoint]) -> Diagram:
     # guides span the stars drawn, so that they (and their labels) stay in view
     x_span = np.array([min(xs), max(xs)]) + np.array([-0.02, 0.02])
     lines = []
-    for label, low, high, citation in RATIO_GUIDES:
+    for label, low, high, citation in RATIO_GUIDES if rows else ():
         for value in sorted({low, high}):
             lines.append(
                 DiagramLine(label, x_span, np.full(2, value), kind="guide", citation=citation)
@@ -480,7 +480,7 @@ def period_ratio(points: Iterable[StarPoint]) -> Diagram:
         x_label="log₁₀ P_long [d]",
         y_label="P_short / P_long",
         lines=tuple(lines),
-        note="double-mode stars only; guide lines at published ratios",
+        note="double-mode stars only; guide lines at published ratios (drawn with the stars)",
         scale_floor=(0.005, 0.002),
     )
 

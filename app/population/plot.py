@@ -423,9 +423,8 @@ class DiagramPlot(pg.PlotWidget):
         )
         title = f"{diagram.title}  (n = {len(shown)})"
         if not len(shown):
-            title = f"{diagram.title}: no stars to draw" + (
-                f" ({diagram.note})" if diagram.note else ""
-            )
+            title = f"{diagram.title}: no stars to draw"
+        self.setToolTip(diagram.note)
         self.getPlotItem().setTitle(title, size="11pt", color="#111111")
         self._refresh_marks()
 

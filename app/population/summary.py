@@ -113,7 +113,8 @@ def _render(state: dg.FieldState, outliers: Sequence[dg.OutlierFlag], rule: dg.O
     summary = state.summary
     parts = ['<table cellspacing="0" cellpadding="1">']
     total = sum(state.counts.values())
-    parts.append(f"<tr><td colspan=2><b>{total} stars</b> by class used</td></tr>")
+    noun = "star" if total == 1 else "stars"
+    parts.append(f"<tr><td colspan=2><b>{total} {noun}</b> by class used</td></tr>")
     for code, n in sorted(state.counts.items(), key=lambda kv: (-kv[1], kv[0])):
         style = class_style(code)
         glyph = f'<span style="color:{style.colour}">{symbol_glyph(style.symbol)}</span>'

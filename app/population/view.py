@@ -162,7 +162,12 @@ class PopulationView(QtWidgets.QWidget):
         self.relation_box = QtWidgets.QComboBox(
             toolTip="Period–luminosity relation drawn at the fitted distance modulus"
         )
-        self.relation_box.setSizeAdjustPolicy(QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToContents)
+        # long citations must not widen the toolbar beyond a narrow dock
+        self.relation_box.setSizeAdjustPolicy(
+            QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
+        )
+        self.relation_box.setMinimumContentsLength(22)
+        self.relation_box.view().setMinimumWidth(420)
         self.brush_button = QtWidgets.QToolButton(
             text="Select region",
             checkable=True,
@@ -202,7 +207,7 @@ class PopulationView(QtWidgets.QWidget):
         for key, row, col in _GRID:
             plot = DiagramPlot()
             plot.setObjectName(f"diagram_{key}")
-            plot.setMinimumSize(260, 220)
+            plot.setMinimumSize(220, 200)
             plot.star_clicked.connect(self._on_star_clicked)
             plot.brushed.connect(self._on_brushed)
             self.plots[key] = plot
