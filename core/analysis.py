@@ -1,0 +1,452 @@
+"""The whole per-star analysis: one light curve in, one frozen result out.
+
+Steps, each a pure function of its own module::
+
+    clean → periodogram → candidates → period choice → refinement
+          → Fourier decomposition (per band, residual outliers set aside)
+          → prewhitening → eclipse test → features → suggestions → physics
+
+:func:`analyse` never raises on bad data.  Too few points, no variability
+or no significant period give a result whose ``status`` and ``reason`` say
+so; an input the methods cannot handle gives ``status = "failed"`` with the
+message.  ``AnalysisResult.to_dict()`` has stable keys (listed in
+DEVELOPERS.md); the ledger, the exports and ``phasewise inspect --json`` use
+it as it is.
+
+Class suggestions and physical values come from empirical relations with
+known scatter and calibration ranges; they are suggestions, and the
+astronomer decides.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from functools import cached_property
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+from . import __version__
+from .classify import features_from_result, load_rulebook, suggest
+from .clean import CleanReport, CleanSettings, clean
+from .eclipse import EclipseSettings, EclipseTest, eclipse_test
+from .errors import PhasewiseError
+from .fourier import (
+    FourierFit,
+    FourierSettings,
+    RefinedFrequency,
+    choose_order,
+    decompose,
+    fit_fourier,
+    refine_frequency,
+)
+from .lightcurve import MIN_GOOD_POINTS, LightCurve
+from .periodogram import (
+    Candidate,
+    Periodogram,
+    PeriodogramSettings,
+    compute_periodogram,
+    find_candidates,
+)
+from .physics import PhysicalValue, PhysicsSettings, derive
+from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten
+from .settings import settings_hash, settings_to_dict
+from .validation import require_int, require_positive, require_range
+
+__all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
+
+#: Result states. ``ok``: a significant period was found and measured.
+STATUSES = ("ok", "no_significant_period", "no_variability", "too_few_points", "failed")
+
+#: Median absolute deviation to Gaussian sigma (common practice, no source).
+MAD_TO_SIGMA = 1.4826
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Everything that decides an analysis result (its hash marks staleness).
+
+    Parameters
+    ----------
+    clean, periodogram, fourier, prewhiten, eclipse, physics
+        Settings of each step.
+    fap_threshold : float
+        A period whose false-alarm probability is above this is reported
+        with status ``no_significant_period``.
+    compare_candidates : int
+        How many of the highest periodogram peaks compete in a
+        multi-harmonic fit for the period (1: the highest peak wins).  A
+        single-harmonic periodogram can put a non-sinusoidal star's highest
+        peak at an alias; the Fourier fit at the right period has the lower
+        Bayesian information criterion.
+    outlier_sigma : float or None
+        Points whose residual from the Fourier model exceeds this many robust
+        sigmas are set aside for the Fourier fit (reported, never deleted).
+    rulebook : str or None
+        Path of a user rulebook; None uses the user copy if present, else the
+        shipped one.
+    """
+
+    clean: CleanSettings = field(default_factory=CleanSettings)
+    periodogram: PeriodogramSettings = field(default_factory=PeriodogramSettings)
+    fourier: FourierSettings = field(default_factory=FourierSettings)
+    prewhiten: PrewhitenSettings = field(default_factory=PrewhitenSettings)
+    eclipse: EclipseSettings = field(default_factory=EclipseSettings)
+    physics: PhysicsSettings = field(default_factory=PhysicsSettings)
+    fap_threshold: float = 1e-3
+    compare_candidates: int = 3
+    outlier_sigma: float | None = 5.0
+    rulebook: str | None = None
+
+    def __post_init__(self) -> None:
+        require_range("fap_threshold", self.fap_threshold, 0.0, 1.0)
+        require_int("compare_candidates", self.compare_candidates, 1, 20)
+        if self.outlier_sigma is not None:
+            require_positive("outlier_sigma", self.outlier_sigma)
+
+    def to_dict(self) -> dict[str, Any]:
+        return settings_to_dict(self)
+
+    @cached_property
+    def hash(self) -> str:
+        """Stable short hash; stored with every result to detect staleness."""
+        return settings_hash(self)
+
+
+def _num(value: Any) -> float | None:
+    """A finite float or None (for JSON-able results)."""
+    if value is None:
+        return None
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if math.isfinite(number) else None
+
+
+@dataclass(frozen=True, eq=False)
+class AnalysisResult:
+    """The result of :func:`analyse` for one star.  See :meth:`to_dict`."""
+
+    star_id: str
+    status: str
+    reason: str
+    settings_hash: str
+    n_points: int
+    n_good: int
+    time_scale: str
+    bands: tuple[str, ...] = ()
+    primary_band: str | None = None
+    method: str | None = None
+    frequency: float | None = None
+    frequency_err: float | None = None
+    period_err_analytic: float | None = None
+    fap: float | None = None
+    candidates: tuple[Candidate, ...] = ()
+    chosen_candidate: int | None = None
+    fits: dict[str, FourierFit] = field(default_factory=dict)
+    refined: RefinedFrequency | None = None
+    prewhitening: Prewhitening | None = None
+    eclipse: EclipseTest | None = None
+    features: dict[str, Any] = field(default_factory=dict)
+    suggestions: tuple[Any, ...] = ()
+    physics: tuple[PhysicalValue, ...] = ()
+    clean_report: CleanReport | None = None
+    outlier_times: tuple[float, ...] = ()
+    flags: tuple[str, ...] = ()
+
+    # ------------------------------------------------------------- numbers
+    @property
+    def period(self) -> float | None:
+        return None if not self.frequency else 1.0 / self.frequency
+
+    @property
+    def period_err(self) -> float | None:
+        if not self.frequency or self.frequency_err is None:
+            return None
+        return self.frequency_err / self.frequency**2
+
+    @property
+    def primary_fit(self) -> FourierFit | None:
+        return self.fits.get(self.primary_band) if self.primary_band else None
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain JSON-able dict with the stable keys of DEVELOPERS.md."""
+        fit = self.primary_fit
+        fits = {band: _fit_dict(f) for band, f in self.fits.items()}
+        pw = self.prewhitening
+        secondary = [] if pw is None else [f.to_dict() for f in pw.frequencies[1:]]
+        return {
+            "star_id": self.star_id,
+            "phasewise_version": __version__,
+            "n_points": self.n_points,
+            "n_good": self.n_good,
+            "status": self.status,
+            "reason": self.reason,
+            "settings_hash": self.settings_hash,
+            "time_scale": self.time_scale,
+            "bands": list(self.bands),
+            "primary_band": self.primary_band,
+            "method": self.method,
+            "period": _num(self.period),
+            "period_err": _num(self.period_err),
+            "period_err_analytic": _num(self.period_err_analytic),
+            "frequency": _num(self.frequency),
+            "frequency_err": _num(self.frequency_err),
+            "fap": _num(self.fap),
+            "candidates": [c.to_dict() for c in self.candidates],
+            "chosen_candidate": self.chosen_candidate,
+            "fourier": fits.get(self.primary_band) if fit is not None else None,
+            "fourier_by_band": fits,
+            "mean_mag": _num(fit.mean_mag) if fit else None,
+            "mean_mag_by_band": {b: _num(f.mean_mag) for b, f in self.fits.items()},
+            "intensity_mean_mag_by_band": {
+                b: _num(f.intensity_mean_mag) for b, f in self.fits.items()
+            },
+            "amplitude": _num(fit.peak_to_peak) if fit else None,
+            "amplitude_by_band": {b: _num(f.peak_to_peak) for b, f in self.fits.items()},
+            "epoch_max": _num(fit.epoch_max) if fit else None,
+            "rise_time": _num(fit.rise_time) if fit else None,
+            "residual_std": _num(fit.residual_std) if fit else None,
+            "secondary_periods": secondary,
+            "period_ratio": _num(pw.period_ratio) if pw else None,
+            "prewhitening": pw.to_dict() if pw else None,
+            "eclipse": self.eclipse.to_dict() if self.eclipse else None,
+            "features": {k: _feature_value(v) for k, v in self.features.items()},
+            "suggestions": [s.to_dict() for s in self.suggestions],
+            "physics": [p.to_dict() for p in self.physics],
+            "clean": self.clean_report.to_dict() if self.clean_report else None,
+            "outlier_times": [float(t) for t in self.outlier_times],
+            "flags": list(self.flags),
+        }
+
+
+def _fit_dict(fit: FourierFit) -> dict[str, Any]:
+    out = fit.to_dict()
+    return {k: (_num(v) if isinstance(v, float) else v) for k, v in out.items()}
+
+
+def _feature_value(value: Any) -> Any:
+    return value if isinstance(value, str) else _num(value)
+
+
+# ------------------------------------------------------------------ pipeline
+def analyse(
+    lc: LightCurve,
+    settings: AnalysisSettings | None = None,
+    *,
+    periodogram: Periodogram | None = None,
+) -> AnalysisResult:
+    """Analyse one star.
+
+    Parameters
+    ----------
+    lc : LightCurve
+    settings : AnalysisSettings, optional
+    periodogram : Periodogram, optional
+        A periodogram already computed for this star with
+        ``settings.periodogram`` (shared-epoch batches compute many at once).
+
+    Returns
+    -------
+    AnalysisResult
+        Never raises for bad data: see ``status`` and ``reason``.
+    """
+    settings = settings or AnalysisSettings()
+    base = {
+        "star_id": lc.star_id,
+        "settings_hash": settings.hash,
+        "n_points": lc.n_points,
+        "time_scale": lc.time_scale,
+    }
+    try:
+        return _analyse(lc, settings, base, periodogram)
+    except (PhasewiseError, ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+        return AnalysisResult(
+            status="failed",
+            reason=f"{type(exc).__name__}: {exc}",
+            n_good=lc.n_good,
+            bands=lc.bands,
+            **base,
+        )
+
+
+def _analyse(
+    lc: LightCurve, settings: AnalysisSettings, base: dict, pgram: Periodogram | None
+) -> AnalysisResult:
+    cleaned, report = clean(lc, settings.clean)
+    bands = cleaned.bands
+    flags: list[str] = []
+    common = {**base, "n_good": cleaned.n_good, "bands": bands, "clean_report": report}
+    if cleaned.n_good < MIN_GOOD_POINTS:
+        return AnalysisResult(
+            status="too_few_points",
+            reason=f"{cleaned.n_good} good points; at least {MIN_GOOD_POINTS} are needed",
+            flags=("too few points",),
+            **common,
+        )
+    if all(np.ptp(cleaned.arrays(b)[1]) == 0 for b in bands):
+        return AnalysisResult(
+            status="no_variability",
+            reason="every magnitude is the same",
+            suggestions=_suggest({"n_points": cleaned.n_good, "fap": 1.0}, settings),
+            **common,
+        )
+
+    if pgram is None:
+        pgram = compute_periodogram(cleaned, settings.periodogram)
+    candidates = find_candidates(pgram, cleaned, settings.periodogram)
+    if not candidates:
+        return AnalysisResult(
+            status="no_significant_period",
+            reason="the periodogram has no peak",
+            method=pgram.method,
+            **common,
+        )
+    chosen = _choose_candidate(cleaned, candidates, settings)
+    if chosen != 0:
+        flags.append(
+            f"period from candidate {chosen + 1} (multi-harmonic fit preferred it "
+            "over the highest peak)"
+        )
+    f0 = candidates[chosen].frequency
+
+    refined = refine_frequency(cleaned, f0, settings=settings.fourier)
+    frequency = refined.frequency if refined.converged else f0
+    if not refined.converged:
+        flags.append(f"period refinement did not converge: {refined.message}")
+    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, settings)
+    if not fits:
+        raise PhasewiseError("no band supports even a first-order Fourier fit", field=lc.star_id)
+    if outlier_times:
+        flags.append(f"{len(outlier_times)} outlier(s) set aside for the Fourier fit")
+    primary = "V" if "V" in fits else next(iter(fits))
+
+    # reuse the decomposition: its order for prewhitening, its fit for the eclipse test
+    pw_settings = settings.prewhiten
+    if pw_settings.main_order is None:
+        pw_settings = replace(pw_settings, main_order=fits[primary].order)
+    pw = prewhiten(analysed, frequency, pw_settings)
+    try:
+        ecl = eclipse_test(
+            analysed, frequency, settings.eclipse, fit_at_period=fits.get(analysed.bands[0])
+        )
+    except PhasewiseError as exc:
+        ecl = None
+        flags.append(f"eclipse test not possible: {exc.reason}")
+
+    fap = candidates[chosen].fap
+    status, reason = "ok", ""
+    if fap is None or not np.isfinite(fap) or fap > settings.fap_threshold:
+        status = "no_significant_period"
+        fap_text = "unknown" if fap is None else f"{fap:.2g}"
+        reason = f"false-alarm probability {fap_text} above {settings.fap_threshold:g}"
+    measured = AnalysisResult(
+        status=status,
+        reason=reason,
+        primary_band=primary,
+        method=pgram.method,
+        frequency=frequency,
+        frequency_err=refined.frequency_err if refined.converged else None,
+        period_err_analytic=refined.frequency_err_mo / frequency**2,
+        fap=fap,
+        candidates=candidates,
+        chosen_candidate=chosen,
+        fits=fits,
+        refined=refined,
+        prewhitening=pw,
+        eclipse=ecl,
+        features=_extra_features(analysed, primary),
+        outlier_times=outlier_times,
+        flags=tuple(flags),
+        **common,
+    )
+    # one place turns results into features: the same function reads stored results
+    features = features_from_result(measured.to_dict())
+    suggestions = _suggest(features, settings)
+    physics: tuple[PhysicalValue, ...] = ()
+    if suggestions:
+        physics = derive(suggestions[0].class_code, features, settings.physics)
+    return replace(measured, features=features, suggestions=suggestions, physics=physics)
+
+
+def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any, ...]:
+    rulebook = load_rulebook(settings.rulebook) if settings.rulebook else None
+    return suggest(features, rulebook)
+
+
+def _choose_candidate(
+    lc: LightCurve, candidates: tuple[Candidate, ...], settings: AnalysisSettings
+) -> int:
+    """Index of the candidate whose multi-harmonic fit has the lowest BIC.
+
+    Each band gets its own mean and harmonics (order chosen per band and
+    frequency); the information criterion adds them up over the bands.
+    Harmonic and subharmonic candidates of a stronger peak do not compete:
+    at f/2 a curve fits as well with twice the parameters, and the choice
+    between P and 2P for eclipsing binaries is the classifier's.
+    """
+    n = min(settings.compare_candidates, len(candidates))
+    if n == 1:
+        return 0
+    best, best_bic = 0, np.inf
+    for index in range(n):
+        cand = candidates[index]
+        if index > 0 and ({"harmonic", "subharmonic"} & set(cand.marks)):
+            continue
+        bic = 0.0
+        n_total = 0
+        for band in lc.bands:
+            t, m, e = lc.arrays(band)
+            try:
+                order = choose_order(t, m, e, cand.frequency, settings.fourier).order
+                fit = fit_fourier(t, m, e, cand.frequency, order, form=settings.fourier.form)
+            except PhasewiseError:
+                bic = np.inf
+                break
+            chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
+            bic += chi2 + (2 * order + 1) * np.log(t.size)
+            n_total += t.size
+        # the frequency itself is one more parameter, the same for every candidate
+        if bic < best_bic:
+            best, best_bic = index, bic
+    return best
+
+
+def _decompose_with_outliers(
+    lc: LightCurve, frequency: float, settings: AnalysisSettings
+) -> tuple[dict[str, FourierFit], tuple[float, ...], LightCurve]:
+    """Fourier fits per band, refitted once without residual outliers."""
+    fits = decompose(lc, frequency, settings.fourier)
+    if settings.outlier_sigma is None or not fits:
+        return fits, (), lc
+    good = lc.good
+    residual = np.full(lc.n_points, np.nan)
+    for band, fit in fits.items():
+        sel = lc.band_mask(band)
+        residual[sel] = lc.mag[sel] - fit.model(lc.time[sel])
+    outliers = np.zeros(lc.n_points, dtype=bool)
+    for band in fits:
+        sel = lc.band_mask(band)
+        r = residual[sel]
+        sigma = MAD_TO_SIGMA * np.median(np.abs(r - np.median(r)))
+        if sigma > 0:
+            outliers[
+                np.flatnonzero(sel)[np.abs(r - np.median(r)) > settings.outlier_sigma * sigma]
+            ] = True
+    if not outliers.any():
+        return fits, (), lc
+    kept = lc.with_excluded(lc.excluded | outliers)
+    if kept.n_good < MIN_GOOD_POINTS:
+        return fits, (), lc
+    refit = decompose(kept, frequency, settings.fourier)
+    times = tuple(float(t) for t in lc.time[outliers & good])
+    return (refit or fits), times, kept
+
+
+def _extra_features(lc: LightCurve, primary: str) -> dict[str, Any]:
+    """Features not read off the result dict (see ``features_from_result``)."""
+    _, mag, _ = lc.arrays(primary)
+    return {"skewness": float(stats.skew(mag))} if mag.size > 2 else {}

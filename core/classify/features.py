@@ -1,0 +1,307 @@
+"""The named features the rulebook may refer to.
+
+The analysis fills a flat mapping ``{name: value}`` from its result; a feature
+it could not measure is ``None`` (or absent).  Rules in the rulebook name these
+features; an unknown name is an error when the rulebook is loaded.
+
+Conventions (the analysis must follow them when it fills the mapping):
+
+* ``period`` is the period of the chosen periodogram peak.  For an eclipsing
+  binary this is usually *half* the orbital period; ``depth_difference`` and
+  ``second_harmonic_weight`` describe the fold at twice that period, and the
+  eclipsing classes are scored at ``2 * period`` when the fold at 2P shows two
+  minima (see :mod:`core.classify.scoring`).
+* Fourier parameters are of the primary band and in the **sine** form
+  ``m = A0 + sum A_i sin(2 pi i (t - t0) / P + phi_i)`` (Jurcsik & Kovács
+  1996), phases in radians in [0, 2 pi).
+* ``skewness`` is the skewness of the primary band's Fourier *model* in
+  magnitudes, sampled evenly in phase: positive means a tail toward faint
+  values (narrow minima, as in eclipses), negative a tail toward bright values
+  (a sharp maximum, as in RRab stars).  :func:`features_from_result` computes
+  it (and ``rise_time`` if absent) from the Fourier amplitudes and phases.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+__all__ = ["Feature", "FEATURES", "feature_info", "is_known_feature", "features_from_result"]
+
+
+@dataclass(frozen=True)
+class Feature:
+    """One named feature: its unit, what it means and whether it is a number."""
+
+    name: str
+    unit: str
+    meaning: str
+    numeric: bool = True
+
+
+def _features(*rows: tuple) -> dict[str, Feature]:
+    return {row[0]: Feature(*row) for row in rows}
+
+
+FEATURES: dict[str, Feature] = _features(
+    ("period", "d", "period of the chosen periodogram peak"),
+    ("period_err", "d", "1-sigma uncertainty of period"),
+    ("log_period", "dex", "log10 of period in days"),
+    ("amplitude", "mag", "peak-to-peak amplitude of the Fourier model, primary band"),
+    ("amplitude_V", "mag", "peak-to-peak amplitude in V (generally amplitude_<band>)"),
+    ("amplitude_I", "mag", "peak-to-peak amplitude in I"),
+    ("A1", "mag", "first Fourier amplitude, primary band, sine form"),
+    ("A2", "mag", "second Fourier amplitude, primary band, sine form"),
+    ("A3", "mag", "third Fourier amplitude, primary band, sine form"),
+    ("A1_err", "mag", "1-sigma uncertainty of A1"),
+    ("A3_err", "mag", "1-sigma uncertainty of A3"),
+    ("R21", "", "A2/A1, primary band"),
+    ("R31", "", "A3/A1, primary band"),
+    ("R21_err", "", "1-sigma uncertainty of R21"),
+    ("R31_err", "", "1-sigma uncertainty of R31"),
+    ("phi21", "rad", "phi2 - 2 phi1 mod 2 pi, SINE form, primary band"),
+    ("phi31", "rad", "phi3 - 3 phi1 mod 2 pi, SINE form, primary band"),
+    ("phi21_err", "rad", "1-sigma uncertainty of phi21"),
+    ("phi31_err", "rad", "1-sigma uncertainty of phi31"),
+    ("rise_time", "phase", "phase interval from minimum to maximum light (0.5 = symmetric)"),
+    (
+        "skewness",
+        "",
+        "skewness of the Fourier model magnitudes over one cycle (> 0: narrow minima); "
+        "the model, not the points, so outliers do not drive it",
+    ),
+    ("period_ratio", "", "shorter / longer of the two strongest independent periods"),
+    ("secondary_period", "d", "second independent period from prewhitening"),
+    ("depth_difference", "mag", "difference of alternate minima when folded at 2 * period"),
+    ("depth_difference_err", "mag", "1-sigma uncertainty of depth_difference"),
+    (
+        "depth_difference_fraction",
+        "",
+        "depth_difference / amplitude (filled in by suggest when both are known)",
+    ),
+    (
+        "second_harmonic_weight",
+        "",
+        "share of the variance of the fold at 2 * period in its even harmonics "
+        "(1 - odd_harmonic_fraction of the eclipse test; near 1: the 2P fold repeats "
+        "each half cycle, i.e. two minima per 2P cycle)",
+    ),
+    (
+        "two_minima_at_p",
+        "",
+        "1 when the curve folded at period itself shows a second dip (period already "
+        "orbital), 0 when it has a single minimum",
+    ),
+    ("depth_secondary_at_p", "mag", "depth of a second dip at period, when there is one"),
+    (
+        "asymmetry",
+        "",
+        "rms of the part of the curve at period that is odd about minimum light over the "
+        "rms of the curve (0: symmetric, as eclipses are)",
+    ),
+    ("colour_VI", "mag", "mean V - mean I"),
+    ("mean_mag_V", "mag", "mean V (intensity mean where the analysis gives it)"),
+    ("mean_mag_I", "mag", "mean I (intensity mean where the analysis gives it)"),
+    ("n_points", "", "number of good points, all bands"),
+    ("fap", "", "false-alarm probability of the chosen peak"),
+    ("snr", "", "signal-to-noise ratio of the chosen peak"),
+    ("residual_std", "mag", "standard deviation of the residuals from the Fourier model"),
+    (
+        "amplitude_to_noise",
+        "",
+        "amplitude / residual_std (filled in by suggest when both are known)",
+    ),
+    ("is_alias", "", "1 when the periodogram marks the chosen peak 'alias', else 0"),
+    ("alias_period", "d", "the other period the alias mark points to (d)"),
+    ("primary_band", "", "the band the Fourier parameters refer to", False),
+)
+
+# Per-band families: any band name may follow the prefix.
+_BAND_FAMILIES = {
+    "amplitude_": ("mag", "peak-to-peak amplitude in band {band}"),
+    "mean_mag_": ("mag", "mean magnitude in band {band}"),
+}
+_BAND_RE = re.compile(r"^(amplitude_|mean_mag_)([A-Za-z][A-Za-z0-9]*)$")
+
+
+def feature_info(name: str) -> Feature | None:
+    """The :class:`Feature` for ``name`` (including per-band names), or None."""
+    if name in FEATURES:
+        return FEATURES[name]
+    match = _BAND_RE.match(name)
+    if match:
+        unit, meaning = _BAND_FAMILIES[match.group(1)]
+        return Feature(name, unit, meaning.format(band=match.group(2)))
+    return None
+
+
+def is_known_feature(name: str) -> bool:
+    """True if ``name`` is a feature the analysis may fill."""
+    return feature_info(name) is not None
+
+
+def _float(value: Any) -> float | None:
+    if value is None or isinstance(value, (str, bool)):
+        return None
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if math.isfinite(number) else None
+
+
+def _item(sequence: Any, index: int) -> float | None:
+    if isinstance(sequence, (list, tuple)) and len(sequence) > index:
+        return _float(sequence[index])
+    return None
+
+
+def _alias_period(candidate: Mapping[str, Any]) -> float | None:
+    """The period the alias mark points to, if the mark details give it."""
+    details = candidate.get("mark_details")
+    entry = details.get("alias") if isinstance(details, Mapping) else None
+    if isinstance(entry, Mapping):
+        for key in ("parent_period", "of_period", "period"):
+            if _float(entry.get(key)):
+                return _float(entry.get(key))
+        for key in ("parent_frequency", "of_frequency", "of", "frequency"):
+            frequency = _float(entry.get(key))
+            if frequency:
+                return 1.0 / frequency
+    return None
+
+
+def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
+    """The feature mapping from an ``AnalysisResult.to_dict()``-shaped dict.
+
+    Uses the keys of the shared contract (DEVELOPERS.md): ``period``,
+    ``period_err``, ``fap``, ``fourier`` (converted to the sine form if it is
+    in cosine form), ``amplitude``, ``amplitude_by_band``, ``mean_mag_by_band``
+    (``intensity_mean_mag_by_band`` preferred), ``rise_time``,
+    ``residual_std``, ``period_ratio``, ``secondary_periods``, ``eclipse``
+    (``depth_difference``, ``depth_difference_err``, ``odd_harmonic_fraction``,
+    ``asymmetry``, ``depth_secondary_at_p``) and ``candidates`` (the chosen
+    peak's ``snr`` and ``alias`` mark).  A first-order fit gives R21 = R31 =
+    0 (no significant harmonic; an upper limit).  Entries already in
+    ``result["features"]`` win.  Anything absent is None.
+    """
+    out: dict[str, Any] = {name: None for name in FEATURES}
+    out["period"] = _float(result.get("period"))
+    out["period_err"] = _float(result.get("period_err"))
+    if out["period"] and out["period"] > 0:
+        out["log_period"] = math.log10(out["period"])
+    out["fap"] = _float(result.get("fap"))
+    out["n_points"] = _float(result.get("n_good", result.get("n_points")))
+    out["residual_std"] = _float(result.get("residual_std"))
+    out["rise_time"] = _float(result.get("rise_time"))
+    out["period_ratio"] = _float(result.get("period_ratio"))
+    band = result.get("primary_band")
+    out["primary_band"] = band if isinstance(band, str) else None
+    out["amplitude"] = _float(result.get("amplitude"))
+    for name, value in (result.get("amplitude_by_band") or {}).items():
+        out[f"amplitude_{name}"] = _float(value)
+    means = dict(result.get("mean_mag_by_band") or {})
+    means.update(
+        {k: v for k, v in (result.get("intensity_mean_mag_by_band") or {}).items() if v is not None}
+    )
+    for name, value in means.items():
+        out[f"mean_mag_{name}"] = _float(value)
+    if out.get("mean_mag_V") is not None and out.get("mean_mag_I") is not None:
+        out["colour_VI"] = out["mean_mag_V"] - out["mean_mag_I"]
+
+    fourier = result.get("fourier") or {}
+    shift = {"phi21": 0.0, "phi31": 0.0}
+    if fourier.get("form") == "cosine":  # phi_k1(sin) = phi_k1(cos) - (k - 1) pi / 2
+        shift = {"phi21": -math.pi / 2, "phi31": -math.pi}
+    for index, name in enumerate(("A1", "A2", "A3")):
+        out[name] = _item(fourier.get("amplitudes"), index)
+        out[f"{name}_err"] = _item(fourier.get("amplitudes_err"), index)
+    for name in ("R21", "R31", "phi21", "phi31"):
+        out[name] = _float(fourier.get(name))
+        out[f"{name}_err"] = _float(fourier.get(f"{name}_err"))
+        if name in shift and out[name] is not None:
+            out[name] = (out[name] + shift[name]) % (2 * math.pi)
+    if fourier.get("order") == 1:
+        # The order choice found no significant second or third harmonic:
+        # R21 and R31 are taken as 0 (an upper limit, not a measurement).
+        out["R21"] = 0.0 if out["R21"] is None else out["R21"]
+        out["R31"] = 0.0 if out["R31"] is None else out["R31"]
+
+    model = _model_shape(fourier)
+    if model is not None:
+        out["skewness"] = model[0]
+        if out["rise_time"] is None:
+            out["rise_time"] = model[1]
+
+    secondary = result.get("secondary_periods") or []
+    if secondary:
+        first = secondary[0]
+        out["secondary_period"] = _float(
+            first.get("period") if isinstance(first, Mapping) else first
+        )
+
+    eclipse = result.get("eclipse") or {}
+    out["depth_difference"] = _float(eclipse.get("depth_difference"))
+    out["depth_difference_err"] = _float(eclipse.get("depth_difference_err"))
+    out["asymmetry"] = _float(eclipse.get("asymmetry"))
+    odd = _float(eclipse.get("odd_harmonic_fraction"))
+    out["second_harmonic_weight"] = None if odd is None else 1.0 - odd
+    if eclipse:
+        out["depth_secondary_at_p"] = _float(eclipse.get("depth_secondary_at_p"))
+        out["two_minima_at_p"] = 0.0 if out["depth_secondary_at_p"] is None else 1.0
+
+    chosen = _chosen_candidate(result)
+    if chosen is not None:
+        out["snr"] = _float(chosen.get("snr"))
+        marks = chosen.get("marks") or ()
+        out["is_alias"] = 1.0 if "alias" in marks else 0.0
+        out["alias_period"] = _alias_period(chosen) if "alias" in marks else None
+
+    for name, value in (result.get("features") or {}).items():
+        if value is not None:
+            out[name] = value
+    return out
+
+
+def _chosen_candidate(result: Mapping[str, Any]) -> Mapping[str, Any] | None:
+    candidates = [c for c in result.get("candidates") or () if isinstance(c, Mapping)]
+    if not candidates:
+        return None
+    frequency = _float(result.get("frequency"))
+    if frequency:
+        best = min(candidates, key=lambda c: abs((_float(c.get("frequency")) or 0) - frequency))
+        if abs((_float(best.get("frequency")) or 0) - frequency) <= 1e-6 * frequency + 1e-9:
+            return best
+    return candidates[0]
+
+
+def _model_shape(fourier: Mapping[str, Any]) -> tuple[float, float] | None:
+    """(skewness, rise time) of the Fourier model over one cycle, or None."""
+    amplitudes = fourier.get("amplitudes")
+    phases = fourier.get("phases")
+    if not amplitudes or not phases or len(amplitudes) != len(phases):
+        return None
+    try:
+        amp = np.asarray(amplitudes, dtype=float)
+        pha = np.asarray(phases, dtype=float)
+    except (TypeError, ValueError):
+        return None
+    if not (np.all(np.isfinite(amp)) and np.all(np.isfinite(pha))) or amp.sum() <= 0:
+        return None
+    phase = np.arange(2000) / 2000.0
+    order = np.arange(1, len(amp) + 1)[:, None]
+    angle = 2 * np.pi * order * phase + pha[:, None]
+    terms = np.sin(angle) if fourier.get("form", "sine") == "sine" else np.cos(angle)
+    curve = (amp[:, None] * terms).sum(axis=0)
+    spread = curve.std()
+    if spread == 0:
+        return None
+    skewness = float(np.mean((curve - curve.mean()) ** 3) / spread**3)
+    # Maximum light is the smallest magnitude; rise = phase from minimum to maximum.
+    rise = float((phase[np.argmin(curve)] - phase[np.argmax(curve)]) % 1.0)
+    return skewness, rise

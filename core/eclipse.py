@@ -1,0 +1,263 @@
+"""Inputs for telling eclipsing binaries from pulsators.
+
+A W UMa-type or beta Lyrae-type binary shows two minima per orbit, so a
+periodogram usually peaks at half the orbital period.  Folded at twice the
+tested period ``P`` the light curve then shows two minima per cycle:
+
+* their depths (measured from maximum light) and the depth difference with
+  its error: a significant difference says the true period is ``2P``;
+* the weight of the second harmonic at ``2P`` (``A2/A1``) and the share of
+  the odd harmonics in the variance: a curve that truly repeats at ``P`` has
+  no odd harmonics at ``2P``;
+* the symmetry of the curve at ``P`` about its minimum light: eclipses are
+  symmetric in time, the light curve of a fundamental-mode pulsator is not;
+* the depth of a second dip at ``P`` itself (an EA/EB tested at its orbital
+  period), ``None`` when the curve at ``P`` has a single minimum.
+
+The tests run on the band with most points.  Depths come from a Fourier fit
+at ``2P`` (order chosen by BIC within the sampling limits); their error from
+the covariance of that fit.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy import linalg
+
+from .errors import PhasewiseError
+from .fourier import FourierFit, FourierSettings, _basis, choose_order, fit_fourier
+from .validation import require_int, require_positive, require_range
+
+__all__ = ["EclipseSettings", "EclipseTest", "eclipse_test"]
+
+TWO_PI = 2.0 * np.pi
+_GRID = 2048
+
+
+@dataclass(frozen=True)
+class EclipseSettings:
+    """Thresholds of the eclipse test.
+
+    Parameters
+    ----------
+    max_order : int
+        Highest Fourier order at twice the period (narrow eclipses need many).
+    significance : float
+        A depth difference this many sigma (and ``min_depth_fraction`` of the
+        deeper minimum) counts as unequal minima.
+    min_depth_fraction : float
+        Smallest depth difference, as a fraction of the deeper depth, that
+        counts as unequal.
+    symmetry_limit : float
+        Largest asymmetry (rms of the part of the curve at ``P`` that is odd
+        about minimum light, over the rms of the curve) still called symmetric.
+    """
+
+    max_order: int = 16
+    significance: float = 3.0
+    min_depth_fraction: float = 0.1
+    symmetry_limit: float = 0.1
+
+    def __post_init__(self) -> None:
+        require_int("max_order", self.max_order, 2, 30)
+        require_positive("significance", self.significance)
+        require_range("min_depth_fraction", self.min_depth_fraction, 0.0, 1.0)
+        require_range("symmetry_limit", self.symmetry_limit, 0.0, 1.0)
+
+
+def _opt(x: float | None) -> float | None:
+    return None if x is None or not np.isfinite(x) else float(x)
+
+
+@dataclass(frozen=True)
+class EclipseTest:
+    """Depths of alternate minima and harmonic weights; see module text.
+
+    Phases are in cycles of the doubled period (``phase_separation`` 0.5 for
+    evenly spaced minima).  Depths are magnitudes below maximum light.
+    """
+
+    band: str
+    n_points: int
+    period: float
+    doubled_period: float
+    order_doubled: int
+    depth_primary: float
+    depth_secondary: float
+    depth_difference: float
+    depth_difference_err: float
+    depth_difference_sigma: float
+    maxima_difference: float
+    phase_separation: float
+    second_harmonic_ratio: float | None
+    odd_harmonic_fraction: float
+    asymmetry: float
+    rise_time: float
+    depth_secondary_at_p: float | None
+    unequal_minima: bool
+    symmetric: bool
+
+    @property
+    def symmetric_equal_minima(self) -> bool:
+        """Symmetric at ``P`` and equal minima at ``2P``: eclipse-like at half period."""
+        return self.symmetric and not self.unequal_minima
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "band": self.band,
+            "n_points": int(self.n_points),
+            "period": float(self.period),
+            "doubled_period": float(self.doubled_period),
+            "order_doubled": int(self.order_doubled),
+            "depth_primary": float(self.depth_primary),
+            "depth_secondary": float(self.depth_secondary),
+            "depth_difference": float(self.depth_difference),
+            "depth_difference_err": _opt(self.depth_difference_err),
+            "depth_difference_sigma": _opt(self.depth_difference_sigma),
+            "maxima_difference": float(self.maxima_difference),
+            "phase_separation": float(self.phase_separation),
+            "second_harmonic_ratio": _opt(self.second_harmonic_ratio),
+            "odd_harmonic_fraction": float(self.odd_harmonic_fraction),
+            "asymmetry": float(self.asymmetry),
+            "rise_time": float(self.rise_time),
+            "depth_secondary_at_p": _opt(self.depth_secondary_at_p),
+            "unequal_minima": bool(self.unequal_minima),
+            "symmetric": bool(self.symmetric),
+            "symmetric_equal_minima": bool(self.symmetric_equal_minima),
+        }
+
+
+def _local_maxima(curve: np.ndarray) -> np.ndarray:
+    """Indices of local maxima on a periodic grid."""
+    return np.flatnonzero((curve >= np.roll(curve, 1)) & (curve > np.roll(curve, -1)))
+
+
+def _circular_distance(a: np.ndarray | float, b: float) -> np.ndarray:
+    d = np.mod(np.asarray(a) - b, 1.0)
+    return np.minimum(d, 1.0 - d)
+
+
+def eclipse_test(
+    lc: Any,
+    frequency: float,
+    settings: EclipseSettings | None = None,
+    fit_at_period: FourierFit | None = None,
+) -> EclipseTest:
+    """Compare alternate minima at twice the period and the curve's symmetry.
+
+    Parameters
+    ----------
+    lc : LightCurve
+    frequency : float
+        The tested frequency ``1/P`` in cycles per day.
+    settings : EclipseSettings, optional
+    fit_at_period : FourierFit, optional
+        A fit of the band with most points at ``frequency`` (e.g. from
+        :func:`core.fourier.decompose`) to reuse for the symmetry at ``P``.
+
+    Raises
+    ------
+    PhasewiseError
+        When the band with most points cannot support a Fourier fit at ``2P``.
+    """
+    settings = settings or EclipseSettings()
+    f = float(frequency)
+    if not np.isfinite(f) or f <= 0:
+        raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
+    if not lc.bands:
+        raise PhasewiseError("no good points to test", field="lightcurve")
+    band = lc.bands[0]
+    t, m, e = lc.arrays(band)
+
+    # --- at P: symmetry about minimum light
+    if fit_at_period is not None and np.isclose(fit_at_period.frequency, f, rtol=1e-12, atol=0):
+        fit_p = fit_at_period
+    else:
+        at_p = FourierSettings(max_order=max(2, settings.max_order // 2))
+        fit_p = fit_fourier(t, m, e, f, choose_order(t, m, e, f, at_p).order)
+    x = np.arange(512) / 512
+    faint = -fit_p.rise_time  # phase of minimum light (phase 0 = maximum light)
+    left, right = fit_p.model_phase(faint - x), fit_p.model_phase(faint + x)
+    curve_p = fit_p.model_phase(x)
+    spread = float(np.sqrt(np.mean((curve_p - curve_p.mean()) ** 2)))
+    odd = 0.5 * (right - left)
+    asymmetry = float(np.sqrt(np.mean(odd**2)) / spread) if spread > 0 else 0.0
+    # a second dip at P itself (an EA/EB tested at its orbital period)
+    deepest = int(np.argmax(curve_p))
+    dips = _local_maxima(curve_p)
+    dips = dips[_circular_distance(x[dips], x[deepest]) >= 0.25]
+    second_at_p = float(curve_p[dips].max() - curve_p.min()) if dips.size else None
+
+    # --- at 2P: two minima per cycle
+    f2 = 0.5 * f
+    at_2p = FourierSettings(max_order=settings.max_order)
+    order = max(choose_order(t, m, e, f2, at_2p).order, 2)
+    tc = 0.5 * (t.min() + t.max())
+    sw = 1.0 / e
+    design = _basis(TWO_PI * f2 * (t - tc), order)
+    if t.size <= design.shape[1]:
+        raise PhasewiseError(
+            f"{t.size} points cannot support a Fourier fit of order {order} at twice the period",
+            field="order",
+        )
+    q, r = np.linalg.qr(design * sw[:, None])
+    beta = linalg.solve_triangular(r, q.T @ (m * sw))
+    resid = (m - design @ beta) * sw
+    rinv = linalg.solve_triangular(r, np.eye(r.shape[0]))
+    cov = rinv @ rinv.T * float(resid @ resid) / (t.size - beta.size)
+
+    grid = np.arange(_GRID) / _GRID
+    g_basis = _basis(TWO_PI * grid, order)
+    curve = g_basis @ beta
+    i1 = int(np.argmax(curve))  # deepest minimum (faintest)
+    peaks = _local_maxima(curve)
+    far = peaks[_circular_distance(grid[peaks], grid[i1]) >= 0.25]
+    if far.size:
+        i2 = int(far[np.argmax(curve[far])])
+    else:  # no second dip: take the faintest point half a cycle away
+        window = _circular_distance(grid, grid[i1]) >= 0.25
+        i2 = int(np.flatnonzero(window)[np.argmax(curve[window])])
+    bright = float(curve.min())
+    depth1, depth2 = float(curve[i1] - bright), float(curve[i2] - bright)
+    grad = g_basis[i1] - g_basis[i2]
+    diff_err = float(np.sqrt(max(grad @ cov @ grad, 0.0)))
+    diff = depth1 - depth2
+    sigma = diff / diff_err if diff_err > 0 else np.inf
+
+    # maxima between the minima (O'Connell-like difference)
+    a, b = sorted((grid[i1], grid[i2]))
+    inner = (grid > a) & (grid < b)
+    outer = ~inner
+    max_in = float(curve[inner].min()) if inner.any() else bright
+    max_out = float(curve[outer].min()) if outer.any() else bright
+
+    amps = np.hypot(beta[1::2], beta[2::2])
+    power = amps**2
+    odd_fraction = float(power[0::2].sum() / power.sum()) if power.sum() > 0 else 0.0
+    ratio = float(amps[1] / amps[0]) if amps[0] > 0 else np.inf
+
+    unequal = bool(sigma > settings.significance and diff > settings.min_depth_fraction * depth1)
+    return EclipseTest(
+        band=str(band),
+        n_points=int(t.size),
+        period=1.0 / f,
+        doubled_period=2.0 / f,
+        order_doubled=int(order),
+        depth_primary=depth1,
+        depth_secondary=depth2,
+        depth_difference=diff,
+        depth_difference_err=diff_err,
+        depth_difference_sigma=float(sigma),
+        maxima_difference=abs(max_in - max_out),
+        phase_separation=float(_circular_distance(grid[i2], grid[i1])),
+        second_harmonic_ratio=ratio,
+        odd_harmonic_fraction=odd_fraction,
+        asymmetry=asymmetry,
+        rise_time=float(fit_p.rise_time),
+        depth_secondary_at_p=second_at_p,
+        unequal_minima=unequal,
+        symmetric=bool(asymmetry < settings.symmetry_limit),
+    )

@@ -1,0 +1,1027 @@
+"""Fourier decomposition of periodic light curves.
+
+One declared series form per fit.  The default is the sine series
+
+.. math::
+
+    m(t) = A_0 + \\sum_{i=1}^{n} A_i \\sin\\bigl(2\\pi i f (t - t_0) + \\phi_i\\bigr),
+    \\qquad A_i \\ge 0,\\ \\phi_i \\in [0, 2\\pi),
+
+and the cosine series replaces ``sin`` by ``cos``.  Amplitude ratios and phase
+differences follow Simon & Lee (1981): :math:`R_{i1} = A_i / A_1`,
+:math:`\\phi_{i1} = \\phi_i - i \\phi_1 \\pmod{2\\pi}`.  Since
+:math:`\\cos x = \\sin(x + \\pi/2)`, every term phase obeys
+:math:`\\phi_i^{\\cos} = \\phi_i^{\\sin} - \\pi/2`, hence
+:math:`\\phi_{k1}^{\\sin} = \\phi_{k1}^{\\cos} - (k - 1)\\pi/2`
+(:func:`convert_phase`).
+
+The fit itself is weighted linear least squares in
+:math:`c_i \\cos(i\\theta) + s_i \\sin(i\\theta)` with time centred on the middle
+of the data (for a well-conditioned design).  The phases in a
+:class:`FourierFit` are then referred to :math:`t_0` = ``epoch`` (by default
+``epoch_max``, the time of maximum light nearest the middle of the data), so
+they do not depend on the time origin of the file.
+
+Uncertainties come from the covariance of the linear coefficients (scaled by
+the reduced chi-square) propagated to amplitudes, phases, ratios and phase
+differences with their full correlations.  :func:`petersen_ratio_errors` gives
+the simpler uncorrelated propagation (Petersen 1986 style) for comparison.
+
+References
+----------
+Simon, N. R. & Lee, A. S. 1981, ApJ 248, 291.
+Petersen, J. O. 1986, A&A 170, 59.
+Montgomery, M. H. & O'Donoghue, D. 1999, Delta Scuti Star Newsletter 13, 28.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy import linalg, optimize, special
+
+from .errors import PhasewiseError
+from .validation import require_choice, require_int, require_positive, require_range
+
+__all__ = [
+    "FORMS",
+    "CRITERIA",
+    "FourierSettings",
+    "FourierFit",
+    "OrderChoice",
+    "RefinedFrequency",
+    "fit_fourier",
+    "choose_order",
+    "max_order_allowed",
+    "refine_frequency",
+    "decompose",
+    "convert_phase",
+    "convert_term_phase",
+    "petersen_ratio_errors",
+    "montgomery_odonoghue_sigma_f",
+    "multi_frequency_fit",
+]
+
+TWO_PI = 2.0 * np.pi
+FORMS = ("sine", "cosine")
+CRITERIA = ("bic", "ftest")
+_GRID = 1024  # phase grid for curve properties; refined by Newton steps at extrema
+
+
+# --------------------------------------------------------------------- settings
+@dataclass(frozen=True)
+class FourierSettings:
+    """How a Fourier decomposition is done.
+
+    Parameters
+    ----------
+    form : {"sine", "cosine"}
+        Series form of amplitudes and phases.
+    max_order : int
+        Highest order ever fitted.
+    criterion : {"bic", "ftest"}
+        Order choice: Bayesian information criterion with the noise scale
+        left free, or sequential F-test of each added harmonic.
+    ftest_alpha : float
+        Significance an added harmonic needs under the F-test.
+    min_points_per_parameter : float
+        Points needed per fitted parameter (guards sparse curves).
+    max_gap_cycles : float
+        The largest gap in phase may span at most this many cycles of the
+        highest harmonic (else the curve rings inside the gap).
+    max_overshoot : float
+        A fitted curve whose peak-to-peak exceeds the data's range by more
+        than this fraction is taken as ringing and its order refused.
+    """
+
+    form: str = "sine"
+    max_order: int = 8
+    criterion: str = "bic"
+    ftest_alpha: float = 0.01
+    min_points_per_parameter: float = 3.0
+    max_gap_cycles: float = 0.5
+    max_overshoot: float = 0.5
+
+    def __post_init__(self) -> None:
+        require_choice("form", self.form, FORMS)
+        require_int("max_order", self.max_order, 1, 30)
+        require_choice("criterion", self.criterion, CRITERIA)
+        require_range("ftest_alpha", self.ftest_alpha, 1e-12, 0.5)
+        require_range("min_points_per_parameter", self.min_points_per_parameter, 1.0, 100.0)
+        require_positive("max_gap_cycles", self.max_gap_cycles)
+        require_positive("max_overshoot", self.max_overshoot, allow_zero=True)
+
+
+# ------------------------------------------------------------- phase helpers
+def convert_term_phase(phase: float, source: str = "cosine", target: str = "sine") -> float:
+    """Convert one term's phase between series forms.
+
+    ``A cos(x + phi_c) = A sin(x + phi_c + pi/2)``, so
+    ``phi_sin = phi_cos + pi/2`` (mod 2 pi).
+    """
+    require_choice("source", source, FORMS)
+    require_choice("target", target, FORMS)
+    if source == target:
+        return float(np.mod(phase, TWO_PI))
+    shift = np.pi / 2 if source == "cosine" else -np.pi / 2
+    return float(np.mod(phase + shift, TWO_PI))
+
+
+def convert_phase(phi_k1: float, k: int, source: str = "cosine", target: str = "sine") -> float:
+    """Convert a phase difference ``phi_k1`` between series forms.
+
+    ``phi_k1(sin) = phi_k1(cos) - (k - 1) pi / 2`` (mod 2 pi); thus
+    ``phi21(sin) = phi21(cos) - pi/2`` and ``phi31(sin) = phi31(cos) - pi``.
+    """
+    require_choice("source", source, FORMS)
+    require_choice("target", target, FORMS)
+    require_int("k", k, 1, None)
+    if source == target:
+        return float(np.mod(phi_k1, TWO_PI))
+    shift = -(k - 1) * np.pi / 2 if source == "cosine" else (k - 1) * np.pi / 2
+    return float(np.mod(phi_k1 + shift, TWO_PI))
+
+
+def petersen_ratio_errors(
+    amplitudes: Any, amplitudes_err: Any, phases_err: Any, k: int
+) -> tuple[float, float]:
+    """Uncorrelated propagation of ``R_k1`` and ``phi_k1`` errors.
+
+    ``sigma(R_k1) = R_k1 sqrt((sA_k/A_k)^2 + (sA_1/A_1)^2)`` and
+    ``sigma(phi_k1) = sqrt(sphi_k^2 + k^2 sphi_1^2)``, the form used by
+    Petersen (1986), A&A 170, 59 (written here from memory).
+    """
+    a, sa, sp = (np.asarray(x, dtype=float) for x in (amplitudes, amplitudes_err, phases_err))
+    r = a[k - 1] / a[0]
+    sr = r * np.hypot(sa[k - 1] / a[k - 1], sa[0] / a[0])
+    sphi = np.sqrt(sp[k - 1] ** 2 + k**2 * sp[0] ** 2)
+    return float(sr), float(sphi)
+
+
+def montgomery_odonoghue_sigma_f(
+    sigma_noise: float, n_points: int, amplitude: float, baseline: float
+) -> float:
+    """Frequency error of a sinusoid, ``sqrt(6) sigma_N / (pi sqrt(N) A T)``.
+
+    Montgomery & O'Donoghue (1999), Delta Scuti Star Newsletter 13, 28.
+    """
+    return float(np.sqrt(6.0) * sigma_noise / (np.pi * np.sqrt(n_points) * amplitude * baseline))
+
+
+# ---------------------------------------------------------------- the basis
+def _basis(theta: np.ndarray, order: int) -> np.ndarray:
+    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...].
+
+    Harmonics by complex powers ``exp(ikθ)`` (a running product, error of
+    order ``k`` ulp), which is several times faster than ``k`` trig calls.
+    """
+    theta = np.asarray(theta, dtype=float)
+    out = np.empty((theta.size, 2 * order + 1))
+    out[:, 0] = 1.0
+    if order:
+        z = np.exp(1j * theta)
+        powers = np.cumprod(np.broadcast_to(z[:, None], (theta.size, order)), axis=1)
+        out[:, 1::2] = powers.real
+        out[:, 2::2] = powers.imag
+    return out
+
+
+def _dbasis(theta: np.ndarray, order: int, deriv: int) -> np.ndarray:
+    """d^deriv/dθ^deriv of the basis columns (deriv = 1 or 2)."""
+    k = np.arange(1, order + 1)
+    arg = np.multiply.outer(theta, k)
+    c, s = np.cos(arg), np.sin(arg)
+    out = np.zeros((theta.size, 2 * order + 1))
+    if deriv == 1:
+        out[:, 1::2] = -k * s
+        out[:, 2::2] = k * c
+    else:
+        out[:, 1::2] = -(k**2) * c
+        out[:, 2::2] = -(k**2) * s
+    return out
+
+
+def _extremum(beta: np.ndarray, order: int, theta0: float, brightest: bool) -> float:
+    """Newton-refine an extremum of the curve from a grid estimate."""
+    theta = theta0
+    step_limit = TWO_PI / _GRID
+    for _ in range(4):
+        t = np.array([theta])
+        d1 = float(_dbasis(t, order, 1)[0] @ beta)
+        d2 = float(_dbasis(t, order, 2)[0] @ beta)
+        # a minimum of magnitude (brightest) needs d2 > 0, a maximum d2 < 0
+        if d2 == 0 or (d2 > 0) != brightest:
+            break
+        step = -d1 / d2
+        if abs(step) > step_limit:
+            break
+        theta += step
+        if abs(step) < 1e-13:
+            break
+    return theta
+
+
+def _prepare(time: Any, mag: Any, err: Any, frequency: float):
+    t = np.asarray(time, dtype=float)
+    y = np.asarray(mag, dtype=float)
+    e = np.ones_like(t) if err is None else np.asarray(err, dtype=float)
+    if not (t.shape == y.shape == e.shape and t.ndim == 1):
+        raise PhasewiseError(
+            f"time, mag and err must be 1-d arrays of one length, got {t.shape}, {y.shape}, {e.shape}",
+            field="time",
+        )
+    ok = np.isfinite(t) & np.isfinite(y) & np.isfinite(e) & (e > 0)
+    t, y, e = t[ok], y[ok], e[ok]
+    f = float(frequency)
+    if not np.isfinite(f) or f <= 0:
+        raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
+    return t, y, e, f
+
+
+def _centre(t: np.ndarray) -> float:
+    return 0.5 * (float(t.min()) + float(t.max())) if t.size else 0.0
+
+
+# ------------------------------------------------------------------- results
+def _opt(x: float | None) -> float | None:
+    return None if x is None or not np.isfinite(x) else float(x)
+
+
+@dataclass(frozen=True)
+class FourierFit:
+    """A Fourier series fitted at a fixed frequency.
+
+    Attributes
+    ----------
+    epoch : float
+        ``t0`` the ``phases`` refer to: ``epoch_max`` unless one was given.
+    amplitudes, phases : tuple of float
+        ``A_i >= 0`` and ``phi_i`` in [0, 2 pi) of the declared ``form``;
+        phase errors are at fixed epoch.
+    R_k1, phi_k1 : tuple of float
+        ``A_k/A_1`` and ``phi_k - k phi_1`` (mod 2 pi) for k = 2..order;
+        ``R21``, ``R31``, ``phi21``, ``phi31`` (and ``_err``) are None when
+        the order is too low.
+    mean_mag : float
+        ``A0``, the magnitude mean of the fitted curve.
+    intensity_mean_mag : float
+        ``-2.5 log10`` of the phase mean of ``10**(-0.4 m)``.
+    peak_to_peak : float
+        Faintest minus brightest magnitude of the fitted curve.
+    epoch_max : float
+        Time of maximum light nearest the middle of the data; its error is
+        at fixed frequency.
+    rise_time : float
+        Phase from minimum light to the next maximum light, in [0, 1).
+    skewness : float
+        Skewness of the fitted curve's magnitudes over phase.
+    residual_std : float
+        rms of the residuals, with ``n_points - (2 order + 1)`` degrees of freedom.
+    bic : float
+        ``N ln(chi2/N) + p ln N`` (noise scale free).
+    """
+
+    frequency: float
+    form: str
+    order: int
+    epoch: float
+    A0: float
+    A0_err: float
+    amplitudes: tuple[float, ...]
+    amplitudes_err: tuple[float, ...]
+    phases: tuple[float, ...]
+    phases_err: tuple[float, ...]
+    R_k1: tuple[float, ...]
+    R_k1_err: tuple[float, ...]
+    phi_k1: tuple[float, ...]
+    phi_k1_err: tuple[float, ...]
+    mean_mag: float
+    intensity_mean_mag: float
+    peak_to_peak: float
+    peak_to_peak_err: float
+    epoch_max: float
+    epoch_max_err: float
+    rise_time: float
+    skewness: float
+    residual_std: float
+    chi2_reduced: float
+    n_points: int
+    bic: float
+
+    @property
+    def period(self) -> float:
+        return 1.0 / self.frequency
+
+    def _ratio(self, values: tuple[float, ...], k: int) -> float | None:
+        return values[k - 2] if self.order >= k else None
+
+    @property
+    def R21(self) -> float | None:
+        return self._ratio(self.R_k1, 2)
+
+    @property
+    def R31(self) -> float | None:
+        return self._ratio(self.R_k1, 3)
+
+    @property
+    def phi21(self) -> float | None:
+        return self._ratio(self.phi_k1, 2)
+
+    @property
+    def phi31(self) -> float | None:
+        return self._ratio(self.phi_k1, 3)
+
+    @property
+    def R21_err(self) -> float | None:
+        return self._ratio(self.R_k1_err, 2)
+
+    @property
+    def R31_err(self) -> float | None:
+        return self._ratio(self.R_k1_err, 3)
+
+    @property
+    def phi21_err(self) -> float | None:
+        return self._ratio(self.phi_k1_err, 2)
+
+    @property
+    def phi31_err(self) -> float | None:
+        return self._ratio(self.phi_k1_err, 3)
+
+    def model(self, time: Any) -> np.ndarray:
+        """The fitted magnitude at the given times."""
+        t = np.asarray(time, dtype=float)
+        theta = TWO_PI * self.frequency * (t - self.epoch)
+        k = np.arange(1, self.order + 1)
+        arg = np.multiply.outer(theta, k) + np.asarray(self.phases)
+        wave = np.sin(arg) if self.form == "sine" else np.cos(arg)
+        return self.A0 + wave @ np.asarray(self.amplitudes)
+
+    def model_phase(self, phase: Any) -> np.ndarray:
+        """The fitted magnitude at phases, phase 0 being ``epoch_max``."""
+        phase = np.asarray(phase, dtype=float)
+        return self.model(self.epoch_max + phase / self.frequency)
+
+    def to_dict(self) -> dict[str, Any]:
+        fl = lambda xs: [float(x) for x in xs]  # noqa: E731
+        return {
+            "frequency": float(self.frequency),
+            "period": float(self.period),
+            "form": self.form,
+            "order": int(self.order),
+            "epoch": float(self.epoch),
+            "A0": float(self.A0),
+            "A0_err": _opt(self.A0_err),
+            "amplitudes": fl(self.amplitudes),
+            "amplitudes_err": fl(self.amplitudes_err),
+            "phases": fl(self.phases),
+            "phases_err": fl(self.phases_err),
+            "R21": _opt(self.R21),
+            "R21_err": _opt(self.R21_err),
+            "R31": _opt(self.R31),
+            "R31_err": _opt(self.R31_err),
+            "phi21": _opt(self.phi21),
+            "phi21_err": _opt(self.phi21_err),
+            "phi31": _opt(self.phi31),
+            "phi31_err": _opt(self.phi31_err),
+            "R_k1": fl(self.R_k1),
+            "R_k1_err": fl(self.R_k1_err),
+            "phi_k1": fl(self.phi_k1),
+            "phi_k1_err": fl(self.phi_k1_err),
+            "mean_mag": float(self.mean_mag),
+            "intensity_mean_mag": float(self.intensity_mean_mag),
+            "peak_to_peak": float(self.peak_to_peak),
+            "peak_to_peak_err": _opt(self.peak_to_peak_err),
+            "epoch_max": float(self.epoch_max),
+            "epoch_max_err": _opt(self.epoch_max_err),
+            "rise_time": float(self.rise_time),
+            "skewness": _opt(self.skewness),
+            "residual_std": float(self.residual_std),
+            "chi2_reduced": _opt(self.chi2_reduced),
+            "n_points": int(self.n_points),
+            "bic": _opt(self.bic),
+        }
+
+
+@dataclass(frozen=True)
+class OrderChoice:
+    """The chosen Fourier order and why."""
+
+    order: int
+    criterion: str
+    max_allowed: int
+    limited_by: str  # "max_order", "points", "phase_gap", "overshoot"
+    scores: tuple[float, ...]  # BIC per order, or F-test p-value per added order (1st = nan)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "order": int(self.order),
+            "criterion": self.criterion,
+            "max_allowed": int(self.max_allowed),
+            "limited_by": self.limited_by,
+            "scores": [_opt(s) for s in self.scores],
+        }
+
+
+# ------------------------------------------------------------- linear fitting
+def _bic(chi2: float, n: int, p: int, scale: float) -> float:
+    # Gaussian likelihood with the noise scale free: the errors act as
+    # relative weights, so underestimated errors do not inflate the order.
+    return n * np.log(max(chi2, scale * 1e-24) / n) + p * np.log(n)
+
+
+def fit_fourier(
+    time: Any,
+    mag: Any,
+    err: Any,
+    frequency: float,
+    order: int,
+    form: str = "sine",
+    epoch: float | None = None,
+    *,
+    scale_errors: bool = True,
+) -> FourierFit:
+    """Fit a Fourier series of given order at a fixed frequency.
+
+    Parameters
+    ----------
+    time, mag, err : array of float
+        Times (days), magnitudes and one-sigma errors (``None``: equal weights).
+    frequency : float
+        Cycles per day.
+    order : int
+        Number of harmonics.
+    form : {"sine", "cosine"}
+    epoch : float, optional
+        ``t0`` the phases refer to; default ``epoch_max``.
+    scale_errors : bool
+        Scale the covariance by the reduced chi-square (common practice).
+
+    Returns
+    -------
+    FourierFit
+    """
+    require_choice("form", form, FORMS)
+    order = require_int("order", order, 1, None)
+    t, y, e, f = _prepare(time, mag, err, frequency)
+    n = t.size
+    p = 2 * order + 1
+    if n < p + 1:
+        raise PhasewiseError(
+            f"{n} points cannot support a Fourier fit of order {order} "
+            f"({p} parameters); need at least {p + 1}",
+            field="order",
+        )
+    tc = _centre(t)
+    sw = 1.0 / e
+    x = _basis(TWO_PI * f * (t - tc), order)
+    xw = x * sw[:, None]
+    yw = y * sw
+    q, r = np.linalg.qr(xw)
+    if np.min(np.abs(np.diag(r))) <= 1e-10 * np.max(np.abs(np.diag(r))):
+        raise PhasewiseError(
+            f"the phase coverage cannot constrain a Fourier fit of order {order}", field="order"
+        )
+    beta = linalg.solve_triangular(r, q.T @ yw)
+    resid = y - x @ beta
+    chi2 = float(np.sum((resid * sw) ** 2))
+    dof = n - p
+    rinv = linalg.solve_triangular(r, np.eye(p))
+    cov = rinv @ rinv.T
+    if scale_errors:
+        cov = cov * (chi2 / dof)
+    return _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
+
+
+def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw) -> FourierFit:
+    n = t.size
+    c, s = beta[1::2], beta[2::2]
+    amp = np.hypot(c, s)
+    phase_c = np.arctan2(c, s) if form == "sine" else np.arctan2(-s, c)
+
+    # curve on a phase grid (phase relative to tc), extrema refined
+    grid = TWO_PI * np.arange(_GRID) / _GRID
+    curve = _basis(grid, order) @ beta
+    th_bright = _extremum(beta, order, grid[int(np.argmin(curve))], brightest=True)
+    th_faint = _extremum(beta, order, grid[int(np.argmax(curve))], brightest=False)
+    m_bright = float(_basis(np.array([th_bright]), order)[0] @ beta)
+    m_faint = float(_basis(np.array([th_faint]), order)[0] @ beta)
+
+    # maximum light nearest the middle of the data (tc is that middle)
+    cycles = th_bright / TWO_PI
+    epoch_max = tc + (cycles - np.round(cycles)) / f
+    d2 = float(_dbasis(np.array([th_bright]), order, 2)[0] @ beta)
+    g_theta = -_dbasis(np.array([th_bright]), order, 1)[0] / d2 if d2 != 0 else None
+    epoch_max_err = (
+        float(np.sqrt(g_theta @ cov @ g_theta) / (TWO_PI * f)) if g_theta is not None else np.nan
+    )
+    g_ptp = _basis(np.array([th_faint]), order)[0] - _basis(np.array([th_bright]), order)[0]
+    ptp_err = float(np.sqrt(max(g_ptp @ cov @ g_ptp, 0.0)))
+
+    t0 = epoch_max if epoch is None else float(epoch)
+    delta = TWO_PI * f * (t0 - tc)
+    k = np.arange(1, order + 1)
+    phases = np.mod(phase_c + k * np.mod(delta, TWO_PI), TWO_PI)
+
+    # gradients in coefficient space (same for both forms, see module doc)
+    p = beta.size
+    g_amp = np.zeros((order, p))
+    g_phase = np.zeros((order, p))
+    safe = np.where(amp > 0, amp, np.inf)
+    g_amp[k - 1, 2 * k - 1] = c / safe
+    g_amp[k - 1, 2 * k] = s / safe
+    g_phase[k - 1, 2 * k - 1] = s / safe**2
+    g_phase[k - 1, 2 * k] = -c / safe**2
+    amp_err = np.sqrt(np.einsum("ij,jk,ik->i", g_amp, cov, g_amp))
+    phase_err = np.sqrt(np.einsum("ij,jk,ik->i", g_phase, cov, g_phase))
+
+    rk, rk_err, pk, pk_err = [], [], [], []
+    for kk in range(2, order + 1):
+        ratio = amp[kk - 1] / amp[0]
+        g_r = g_amp[kk - 1] / amp[0] - amp[kk - 1] / amp[0] ** 2 * g_amp[0]
+        g_p = g_phase[kk - 1] - kk * g_phase[0]
+        rk.append(float(ratio))
+        rk_err.append(float(np.sqrt(g_r @ cov @ g_r)))
+        pk.append(float(np.mod(phases[kk - 1] - kk * phases[0], TWO_PI)))
+        pk_err.append(float(np.sqrt(g_p @ cov @ g_p)))
+
+    flux_mean = np.mean(10.0 ** (-0.4 * curve))
+    centred = curve - curve.mean()
+    sd = float(np.sqrt(np.mean(centred**2)))
+    skew = float(np.mean(centred**3) / sd**3) if sd > 0 else np.nan
+    rise = float(np.mod((th_bright - th_faint) / TWO_PI, 1.0))
+    scale = float(np.sum(yw**2))
+    return FourierFit(
+        frequency=f,
+        form=form,
+        order=order,
+        epoch=t0,
+        A0=float(beta[0]),
+        A0_err=float(np.sqrt(cov[0, 0])),
+        amplitudes=tuple(float(a) for a in amp),
+        amplitudes_err=tuple(float(a) for a in amp_err),
+        phases=tuple(float(a) for a in phases),
+        phases_err=tuple(float(a) for a in phase_err),
+        R_k1=tuple(rk),
+        R_k1_err=tuple(rk_err),
+        phi_k1=tuple(pk),
+        phi_k1_err=tuple(pk_err),
+        mean_mag=float(beta[0]),
+        intensity_mean_mag=float(-2.5 * np.log10(flux_mean)),
+        peak_to_peak=m_faint - m_bright,
+        peak_to_peak_err=ptp_err,
+        epoch_max=float(epoch_max),
+        epoch_max_err=epoch_max_err,
+        rise_time=rise,
+        skewness=skew,
+        residual_std=float(np.sqrt(np.sum(resid**2) / dof)),
+        chi2_reduced=chi2 / dof,
+        n_points=int(n),
+        bic=float(_bic(chi2, n, p, scale)),
+    )
+
+
+# ------------------------------------------------------------- order choice
+def max_order_allowed(
+    time: Any, frequency: float, settings: FourierSettings | None = None
+) -> tuple[int, str]:
+    """Highest order the sampling supports, and what limits it.
+
+    Limits: ``settings.max_order``; ``min_points_per_parameter`` points per
+    parameter; the largest phase gap spanning at most ``max_gap_cycles``
+    cycles of the highest harmonic.
+    """
+    settings = settings or FourierSettings()
+    t = np.asarray(time, dtype=float)
+    n = t.size
+    by_points = int(np.floor((n / settings.min_points_per_parameter - 1.0) / 2.0))
+    if n >= 2:
+        phase = np.sort(np.mod(frequency * (t - t.min()), 1.0))
+        gaps = np.diff(phase, append=phase[0] + 1.0)
+        gap = float(gaps.max())
+        by_gap = int(np.floor(settings.max_gap_cycles / gap)) if gap > 0 else 0
+    else:
+        by_gap = 0
+    limits = {"max_order": settings.max_order, "points": by_points, "phase_gap": by_gap}
+    name = min(limits, key=lambda key: (limits[key], key != "max_order"))
+    return max(int(limits[name]), 0), name
+
+
+def choose_order(
+    time: Any, mag: Any, err: Any, frequency: float, settings: FourierSettings | None = None
+) -> OrderChoice:
+    """Choose the Fourier order by BIC or F-test within the sampling limits.
+
+    One QR factorisation of the highest-order design serves every lower
+    order, since the columns are nested.  Raises :class:`PhasewiseError` when
+    not even order 1 is supported.
+    """
+    settings = settings or FourierSettings()
+    t, y, e, f = _prepare(time, mag, err, frequency)
+    cap, limited_by = max_order_allowed(t, f, settings)
+    if cap < 1:
+        raise PhasewiseError(
+            f"{t.size} points with this phase coverage cannot support a Fourier fit "
+            f"(limited by {limited_by})",
+            field="order",
+        )
+    n = t.size
+    tc = _centre(t)
+    sw = 1.0 / e
+    x = _basis(TWO_PI * f * (t - tc), cap)
+    yw = y * sw
+    q, r = np.linalg.qr(x * sw[:, None])
+    qy = q.T @ yw
+    total = float(yw @ yw)
+    chi2 = total - np.cumsum(qy**2)  # chi2 of the first j+1 columns
+    diag = np.abs(np.diag(r))
+    grid_basis = _basis(TWO_PI * np.arange(256) / 256, cap)
+    data_range = float(np.ptp(y))
+    orders: list[int] = []
+    for order in range(1, cap + 1):
+        p = 2 * order + 1
+        if diag[:p].min() <= 1e-10 * diag.max():
+            limited_by = "phase_gap"
+            break
+        beta = linalg.solve_triangular(r[:p, :p], qy[:p])
+        curve = grid_basis[:, :p] @ beta
+        if order > 1 and np.ptp(curve) > (1.0 + settings.max_overshoot) * data_range:
+            limited_by = "overshoot"
+            break
+        orders.append(order)
+    if not orders:
+        raise PhasewiseError(
+            f"the phase coverage of {n} points cannot constrain a Fourier fit", field="order"
+        )
+    cap = len(orders)
+    chis = np.array([max(chi2[2 * o], total * 1e-24) for o in orders])
+    if settings.criterion == "bic":
+        scores = [float(_bic(c, n, 2 * o + 1, total)) for o, c in zip(orders, chis, strict=True)]
+        best = orders[int(np.argmin(scores))]
+    else:
+        scores = [np.nan]
+        best = 1
+        for o in orders[1:]:
+            dof = n - (2 * o + 1)
+            fstat = ((chis[o - 2] - chis[o - 1]) / 2.0) / (chis[o - 1] / dof)
+            pval = float(special.fdtrc(2, dof, fstat))  # F(2, dof) survival function
+            scores.append(pval)
+            if pval > settings.ftest_alpha:
+                break
+            best = o
+    return OrderChoice(
+        order=best,
+        criterion=settings.criterion,
+        max_allowed=cap,
+        limited_by=limited_by,
+        scores=tuple(float(s) for s in scores),
+    )
+
+
+# ------------------------------------------------------------ decomposition
+def decompose(lc: Any, frequency: float, settings: FourierSettings | None = None) -> dict:
+    """Fourier decomposition per band, each band with its own order.
+
+    Bands whose sampling cannot support even order 1 are left out.
+
+    Returns
+    -------
+    dict[str, FourierFit]
+        In ``lc.bands`` order (most points first).
+    """
+    settings = settings or FourierSettings()
+    out: dict[str, FourierFit] = {}
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            choice = choose_order(t, m, e, frequency, settings)
+            out[band] = fit_fourier(t, m, e, frequency, choice.order, form=settings.form)
+        except PhasewiseError:
+            continue
+    return out
+
+
+# ------------------------------------------------------ nonlinear refinement
+@dataclass(frozen=True)
+class _MultiFit:
+    """Internal: shared frequencies, per-band linear coefficients."""
+
+    frequencies: np.ndarray
+    frequencies_err: np.ndarray
+    coefficients: tuple[np.ndarray, ...]  # per band [A0, c, s for each term]
+    terms: tuple[tuple[int, int], ...]  # (frequency index, harmonic)
+    tc: float
+    residuals: np.ndarray  # y - model, all points
+    band_index: np.ndarray
+    success: bool
+    message: str
+    nfev: int
+
+    def term_amplitude(self, band: int, term: int) -> float:
+        coef = self.coefficients[band]
+        return float(np.hypot(coef[1 + 2 * term], coef[2 + 2 * term]))
+
+
+def _term_matrix(tau, freqs, terms):
+    """cos and sin of every term; harmonics by complex powers (see _basis)."""
+    harm = np.array([k for _, k in terms], dtype=float)
+    fidx = np.array([j for j, _ in terms], dtype=int)
+    blocks = []
+    for j in range(len(freqs)):
+        n_j = int(np.count_nonzero(fidx == j))
+        if n_j:
+            z = np.exp(1j * TWO_PI * freqs[j] * tau)
+            blocks.append(np.cumprod(np.broadcast_to(z[:, None], (tau.size, n_j)), axis=1))
+    wave = np.concatenate(blocks, axis=1)
+    return wave.real, wave.imag, harm, fidx
+
+
+def _linear_start(tau, y, sw, band_index, n_bands, freqs, terms):
+    cos_, sin_, _, _ = _term_matrix(tau, freqs, terms)
+    coefs = []
+    for b in range(n_bands):
+        sel = band_index == b
+        x = np.empty((int(sel.sum()), 1 + 2 * len(terms)))
+        x[:, 0] = 1.0
+        x[:, 1::2] = cos_[sel]
+        x[:, 2::2] = sin_[sel]
+        beta, *_ = np.linalg.lstsq(x * sw[sel, None], y[sel] * sw[sel], rcond=None)
+        coefs.append(beta)
+    return coefs
+
+
+def multi_frequency_fit(
+    time: np.ndarray,
+    mag: np.ndarray,
+    err: np.ndarray,
+    frequencies: Any,
+    orders: Any,
+    band_index: np.ndarray | None = None,
+    *,
+    refine: bool = True,
+    scale_errors: bool = True,
+) -> _MultiFit:
+    """Nonlinear least squares on shared frequencies plus per-band coefficients.
+
+    Model in band b: ``A0_b + sum_j sum_{k<=orders[j]} c cos(2 pi k f_j tau) +
+    s sin(...)``, ``tau = t - tc``.  Used by :func:`refine_frequency` and by
+    :mod:`core.prewhiten`.
+    """
+    t = np.asarray(time, dtype=float)
+    y = np.asarray(mag, dtype=float)
+    sw = 1.0 / np.asarray(err, dtype=float)
+    bidx = np.zeros(t.size, dtype=int) if band_index is None else np.asarray(band_index, int)
+    n_bands = int(bidx.max()) + 1 if t.size else 1
+    freqs0 = np.asarray(frequencies, dtype=float)
+    terms = tuple((j, k) for j, o in enumerate(orders) for k in range(1, int(o) + 1))
+    n_f, n_t = freqs0.size, len(terms)
+    per_band = 1 + 2 * n_t
+    tc = _centre(t)
+    tau = t - tc
+    coefs0 = _linear_start(tau, y, sw, bidx, n_bands, freqs0, terms)
+    x0 = np.concatenate([freqs0, *coefs0])
+    rows = np.arange(t.size)
+
+    def unpack(x):
+        freqs = x[:n_f]
+        coef = x[n_f:].reshape(n_bands, per_band)[bidx]  # per point
+        return freqs, coef
+
+    cache: dict[bytes, tuple] = {}
+
+    def model_and_parts(x):
+        key = x.tobytes()
+        if key not in cache:
+            cache.clear()  # least_squares asks for fun and jac at the same point
+            cache[key] = _model_and_parts(x)
+        return cache[key]
+
+    def _model_and_parts(x):
+        freqs, coef = unpack(x)
+        cos_, sin_, harm, fidx = _term_matrix(tau, freqs, terms)
+        c, s = coef[:, 1::2], coef[:, 2::2]
+        model = coef[:, 0] + np.sum(c * cos_ + s * sin_, axis=1)
+        return model, cos_, sin_, harm, fidx, c, s
+
+    def fun(x):
+        return (y - model_and_parts(x)[0]) * sw
+
+    def jac(x):
+        _, cos_, sin_, harm, fidx, c, s = model_and_parts(x)
+        out = np.zeros((t.size, x.size))
+        dterm = TWO_PI * harm * tau[:, None] * (-c * sin_ + s * cos_)
+        for j in range(n_f):
+            out[:, j] = dterm[:, fidx == j].sum(axis=1)
+        design = np.empty((t.size, per_band))
+        design[:, 0] = 1.0
+        design[:, 1::2] = cos_
+        design[:, 2::2] = sin_
+        # each point's coefficients sit in its own band's block
+        out[:, n_f:].reshape(t.size, n_bands, per_band)[rows, bidx] = design
+        return -out * sw[:, None]
+
+    if refine and n_f:
+        sol = optimize.least_squares(fun, x0, jac=jac, method="lm", x_scale="jac")
+        x, success, message, nfev = sol.x, bool(sol.success), str(sol.message), int(sol.nfev)
+    else:
+        x, success, message, nfev = x0, True, "linear fit at fixed frequencies", 0
+    jmat = jac(x)
+    resid_w = fun(x)
+    dof = max(t.size - x.size, 1)
+    norms = np.linalg.norm(jmat, axis=0)
+    norms[norms == 0] = 1.0
+    jn = jmat / norms
+    cov = np.linalg.pinv(jn.T @ jn) / np.outer(norms, norms)
+    if scale_errors:
+        cov = cov * float(resid_w @ resid_w) / dof
+    # at fixed frequencies this is still the frequency error at that point
+    ferr = np.sqrt(np.clip(np.diag(cov)[:n_f], 0, None))
+    coef_b = x[n_f:].reshape(n_bands, per_band)
+    return _MultiFit(
+        frequencies=x[:n_f].copy(),
+        frequencies_err=ferr,
+        coefficients=tuple(coef_b[b].copy() for b in range(n_bands)),
+        terms=terms,
+        tc=tc,
+        residuals=resid_w / sw,
+        band_index=bidx,
+        success=success,
+        message=message,
+        nfev=nfev,
+    )
+
+
+@dataclass(frozen=True)
+class RefinedFrequency:
+    """A frequency refined by nonlinear least squares.
+
+    ``frequency_err`` is from the covariance of the fit (scaled by the
+    reduced chi-square); ``frequency_err_mo`` is the analytic estimate of
+    Montgomery & O'Donoghue (1999) from the residual scatter, the first
+    harmonic's amplitude and the baseline (bands combined by inverse
+    variance).  ``sigma_P = sigma_f / f**2``.
+    """
+
+    frequency: float
+    frequency_err: float
+    frequency_err_mo: float
+    initial_frequency: float
+    order: int
+    n_points: int
+    baseline: float
+    amplitude: float
+    residual_std: float
+    bands: tuple[str, ...]
+    converged: bool
+    message: str
+
+    @property
+    def period(self) -> float:
+        return 1.0 / self.frequency
+
+    @property
+    def period_err(self) -> float:
+        return self.frequency_err / self.frequency**2
+
+    @property
+    def period_err_mo(self) -> float:
+        return self.frequency_err_mo / self.frequency**2
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "frequency": float(self.frequency),
+            "frequency_err": _opt(self.frequency_err),
+            "frequency_err_mo": _opt(self.frequency_err_mo),
+            "period": float(self.period),
+            "period_err": _opt(self.period_err),
+            "period_err_mo": _opt(self.period_err_mo),
+            "initial_frequency": float(self.initial_frequency),
+            "order": int(self.order),
+            "n_points": int(self.n_points),
+            "baseline": float(self.baseline),
+            "amplitude": float(self.amplitude),
+            "residual_std": float(self.residual_std),
+            "bands": list(self.bands),
+            "converged": bool(self.converged),
+            "message": self.message,
+        }
+
+
+def _unpack_input(data: Any):
+    """(t, m, e, band_labels) from a LightCurve or a (t, m, e[, band]) tuple."""
+    if hasattr(data, "arrays") and hasattr(data, "good"):
+        t, m, e = data.arrays()
+        bands = np.asarray(data.band[data.good]).astype(str)
+        return t, m, e, bands
+    try:
+        parts = list(data)
+    except TypeError:
+        raise PhasewiseError(
+            "expected a LightCurve or (time, mag, err[, band]) arrays", field="lightcurve"
+        ) from None
+    if len(parts) not in (3, 4):
+        raise PhasewiseError(
+            f"expected (time, mag, err[, band]), got {len(parts)} items", field="lightcurve"
+        )
+    t = np.asarray(parts[0], dtype=float)
+    m = np.asarray(parts[1], dtype=float)
+    e = np.ones_like(t) if parts[2] is None else np.asarray(parts[2], dtype=float)
+    band = np.full(t.size, "V") if len(parts) == 3 else np.asarray(parts[3]).astype(str)
+    ok = np.isfinite(t) & np.isfinite(m) & np.isfinite(e) & (e > 0)
+    return t[ok], m[ok], e[ok], band[ok]
+
+
+def refine_frequency(
+    lc: Any,
+    frequency: float,
+    order: int | None = None,
+    settings: FourierSettings | None = None,
+) -> RefinedFrequency:
+    """Refine a frequency with all bands sharing it.
+
+    Nonlinear least squares (``scipy.optimize.least_squares``, Levenberg–
+    Marquardt with an analytic Jacobian) on the frequency plus, per band, a
+    mean and ``order`` harmonics.  A band that cannot support ``order``
+    gets the order its sampling allows; bands allowing none are left out.
+
+    Parameters
+    ----------
+    lc : LightCurve or tuple
+        A light curve or ``(time, mag, err[, band])`` arrays.
+    frequency : float
+        Starting frequency (cycles/day), e.g. the periodogram peak.
+    order : int, optional
+        Harmonics per band; default chosen by :func:`choose_order` on the
+        largest band.
+    """
+    settings = settings or FourierSettings()
+    t, m, e, labels = _unpack_input(lc)
+    f0 = float(frequency)
+    if not np.isfinite(f0) or f0 <= 0:
+        raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
+    if t.size < 4:
+        raise PhasewiseError(
+            f"{t.size} good points cannot support refining a frequency", field="lightcurve"
+        )
+    names, counts = np.unique(labels, return_counts=True)
+    names = [str(n) for n in names[np.lexsort((names, -counts))]]
+    if order is None:
+        first = labels == names[0]
+        order = choose_order(t[first], m[first], e[first], f0, settings).order
+    order = require_int("order", order, 1, None)
+    # one order for every band: the smallest any kept band allows
+    kept, use_order = [], order
+    for name in names:
+        sel = labels == name
+        cap, _ = max_order_allowed(t[sel], f0, settings)
+        if cap >= 1:
+            kept.append(name)
+            use_order = min(use_order, cap)
+    if not kept:
+        raise PhasewiseError(
+            f"{t.size} points cannot support refining a frequency", field="lightcurve"
+        )
+    sel = np.isin(labels, kept)
+    t, m, e, labels = t[sel], m[sel], e[sel], labels[sel]
+    bidx = np.searchsorted(np.array(sorted(kept)), labels)
+    band_order = tuple(sorted(kept))
+    fit = multi_frequency_fit(t, m, e, [f0], [use_order], bidx)
+    baseline = float(t.max() - t.min())
+    f_new = float(fit.frequencies[0])
+    converged = fit.success and abs(f_new - f0) <= 1.0 / baseline
+    message = fit.message
+    if not converged:
+        # the fit wandered off the peak: keep the start, errors at fixed frequency
+        message = f"refinement moved {abs(f_new - f0):.3g} c/d (> 1/T); kept the start"
+        fit = multi_frequency_fit(t, m, e, [f0], [use_order], bidx, refine=False)
+        f_new = f0
+    ferr = float(fit.frequencies_err[0])
+    # Montgomery & O'Donoghue per band, combined by inverse variance
+    inv_var, amp_main = 0.0, 0.0
+    for b in range(len(band_order)):
+        sb = bidx == b
+        nb = int(sb.sum())
+        amp = fit.term_amplitude(b, 0)
+        noise = float(np.sqrt(np.mean(fit.residuals[sb] ** 2)))
+        tb = float(np.ptp(t[sb]))
+        if nb > 2 and amp > 0 and tb > 0 and noise > 0:
+            inv_var += 1.0 / montgomery_odonoghue_sigma_f(noise, nb, amp, tb) ** 2
+        if band_order[b] == names[0]:
+            amp_main = amp
+    sigma_mo = 1.0 / np.sqrt(inv_var) if inv_var > 0 else np.nan
+    n_params = 1 + len(band_order) * (1 + 2 * use_order)
+    return RefinedFrequency(
+        frequency=f_new,
+        frequency_err=ferr,
+        frequency_err_mo=float(sigma_mo),
+        initial_frequency=f0,
+        order=int(use_order),
+        n_points=int(t.size),
+        baseline=baseline,
+        amplitude=float(amp_main),
+        residual_std=float(np.sqrt(np.sum(fit.residuals**2) / max(t.size - n_params, 1))),
+        bands=tuple(n for n in names if n in kept),
+        converged=bool(converged),
+        message=message,
+    )

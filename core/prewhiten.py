@@ -1,0 +1,489 @@
+"""Prewhitening: further frequencies beyond the main one, and what they are.
+
+Each step subtracts the fit of every frequency found so far (the main
+frequency with its harmonics, each further frequency as one sinusoid; all
+frequencies refined together by nonlinear least squares, every band with its
+own mean and amplitudes), searches the residuals for the highest peak, and
+accepts it while its amplitude signal-to-noise ratio reaches
+``snr_threshold``.  The noise is the mean of the residual amplitude spectrum
+in a box around the frequency after it has been removed; the threshold 4 is
+the criterion of Breger et al. (1993), A&A 271, 482 (citation from memory).
+
+Each accepted frequency is then named, in this order of tests, with the
+frequency resolution ``1/T`` (times ``resolution_factor``) as tolerance:
+
+``harmonic``
+    ``n f_j`` of an earlier independent frequency (n >= 2);
+``side peak``
+    ``k f1 +- delta`` with ``delta`` resolved but below ``side_peak_fraction``
+    of ``f1``: a modulation (Blazhko-like) with period ``1/delta``;
+``combination``
+    ``n f_a + m f_b`` of two earlier independent frequencies;
+``independent``
+    anything else.
+
+The period ratio is shorter/longer of the two strongest independent modes
+(the main one included): near 0.745 for RRd stars, near 0.72 for double-mode
+Cepheids pulsating in the fundamental and first overtone.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .errors import PhasewiseError
+from .fourier import FourierSettings, _unpack_input, choose_order, multi_frequency_fit
+from .lightcurve import LightCurve
+from .validation import require_int, require_positive, require_range
+
+__all__ = ["KINDS", "PrewhitenSettings", "FoundFrequency", "Prewhitening", "prewhiten"]
+
+KINDS = ("main", "harmonic", "side peak", "combination", "independent")
+
+#: ``search(residual_lightcurve) -> (frequency, power)``, larger power = better.
+Search = Callable[[LightCurve], tuple[np.ndarray, np.ndarray]]
+
+
+@dataclass(frozen=True)
+class PrewhitenSettings:
+    """How prewhitening searches and when it stops.
+
+    Parameters
+    ----------
+    max_frequencies : int
+        Further frequencies to look for beyond the main one.
+    snr_threshold : float
+        Amplitude signal-to-noise a frequency needs (Breger et al. 1993).
+    noise_box : float
+        Half-width (cycles/day) of the box in which the noise is averaged.
+    noise_samples : int
+        Frequencies sampled in that box.
+    main_order : int or None
+        Harmonics of the main frequency in the model; None chooses them.
+    refine : bool
+        Refine all frequencies together at each step.
+    resolution_factor : float
+        Frequency tolerance in units of ``1/T``.
+    max_harmonic : int
+        Highest ``n`` tried for harmonics and side peaks.
+    max_combination : int
+        Highest ``|n|``, ``|m|`` tried for combinations.
+    side_peak_fraction : float
+        Offsets from ``k f1`` below this fraction of ``f1`` are side peaks.
+    alias_candidates, alias_power_fraction
+        Besides the highest residual peak, up to ``alias_candidates - 1``
+        rival peaks with at least this fraction of its power are reported as
+        ``alternatives`` (aliases of the sampling window have near-equal peaks).
+    search_oversampling : int
+        Oversampling of the default residual search grid; coarser than the
+        main search is enough, since the joint fit refines every peak.
+    fourier : FourierSettings
+        Settings for choosing the main order.
+    """
+
+    max_frequencies: int = 5
+    snr_threshold: float = 4.0
+    noise_box: float = 1.0
+    noise_samples: int = 100
+    main_order: int | None = None
+    refine: bool = True
+    resolution_factor: float = 1.0
+    max_harmonic: int = 10
+    max_combination: int = 2
+    side_peak_fraction: float = 0.1
+    search_oversampling: int = 3
+    alias_candidates: int = 3
+    alias_power_fraction: float = 0.8
+    fourier: FourierSettings = field(default_factory=FourierSettings)
+
+    def __post_init__(self) -> None:
+        require_int("max_frequencies", self.max_frequencies, 0, 50)
+        require_positive("snr_threshold", self.snr_threshold)
+        require_positive("noise_box", self.noise_box)
+        require_int("noise_samples", self.noise_samples, 10, 100_000)
+        if self.main_order is not None:
+            require_int("main_order", self.main_order, 1, 30)
+        require_range("resolution_factor", self.resolution_factor, 0.1, 10.0)
+        require_int("max_harmonic", self.max_harmonic, 2, 100)
+        require_int("max_combination", self.max_combination, 1, 10)
+        require_range("side_peak_fraction", self.side_peak_fraction, 0.0, 0.5)
+        require_int("search_oversampling", self.search_oversampling, 1, 100)
+        require_int("alias_candidates", self.alias_candidates, 1, 20)
+        require_range("alias_power_fraction", self.alias_power_fraction, 0.0, 1.0)
+
+
+def _opt(x: float | None) -> float | None:
+    return None if x is None or not np.isfinite(x) else float(x)
+
+
+@dataclass(frozen=True)
+class FoundFrequency:
+    """One frequency of the final multi-frequency fit.
+
+    ``amplitude`` is the semi-amplitude of its first term in the band with
+    most points; ``snr`` is measured on the final residuals; ``label`` names
+    it (``f1``, ``f2``, ``2f1``, ``f1+f2``, ``f1+0.0250``); ``step`` is the
+    step that found it (0 for the main frequency); ``alternatives`` are the
+    rival residual peaks of near-equal power at that step (often aliases).
+    """
+
+    frequency: float
+    frequency_err: float
+    amplitude: float
+    snr: float
+    kind: str
+    label: str
+    step: int
+    modulation_period: float | None = None
+    alternatives: tuple[float, ...] = ()
+
+    @property
+    def period(self) -> float:
+        return 1.0 / self.frequency
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "frequency": float(self.frequency),
+            "frequency_err": _opt(self.frequency_err),
+            "period": float(self.period),
+            "amplitude": float(self.amplitude),
+            "snr": _opt(self.snr),
+            "kind": self.kind,
+            "label": self.label,
+            "step": int(self.step),
+            "modulation_period": _opt(self.modulation_period),
+            "alternatives": [float(x) for x in self.alternatives],
+        }
+
+
+@dataclass(frozen=True)
+class Prewhitening:
+    """All frequencies found, how the search stopped, and derived periods."""
+
+    frequencies: tuple[FoundFrequency, ...]
+    main_order: int
+    resolution: float
+    stop_reason: str  # "snr", "limit", "no peak", "too few points", "search failed"
+    last_snr: float | None  # of the refused peak, when stopped by SNR
+    residual_std: float
+    n_points: int
+    note: str = ""  # why the search failed, if it did
+
+    @property
+    def independent(self) -> tuple[FoundFrequency, ...]:
+        """Main and independent frequencies, strongest first."""
+        modes = [f for f in self.frequencies if f.kind in ("main", "independent")]
+        return tuple(sorted(modes, key=lambda f: -f.amplitude))
+
+    @property
+    def secondary_periods(self) -> tuple[float, ...]:
+        """Periods of the independent frequencies other than the main one."""
+        return tuple(f.period for f in self.independent if f.kind == "independent")
+
+    @property
+    def secondary_period(self) -> float | None:
+        periods = self.secondary_periods
+        return periods[0] if periods else None
+
+    @property
+    def period_ratio(self) -> float | None:
+        """Shorter / longer period of the two strongest independent modes."""
+        modes = self.independent
+        if len(modes) < 2:
+            return None
+        p1, p2 = modes[0].period, modes[1].period
+        return min(p1, p2) / max(p1, p2)
+
+    @property
+    def modulation_period(self) -> float | None:
+        """Mean modulation period of the side peaks, if any."""
+        periods = [f.modulation_period for f in self.frequencies if f.kind == "side peak"]
+        return float(np.mean(periods)) if periods else None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "frequencies": [f.to_dict() for f in self.frequencies],
+            "main_order": int(self.main_order),
+            "resolution": float(self.resolution),
+            "stop_reason": self.stop_reason,
+            "note": self.note,
+            "last_snr": _opt(self.last_snr),
+            "residual_std": float(self.residual_std),
+            "n_points": int(self.n_points),
+            "secondary_periods": [float(p) for p in self.secondary_periods],
+            "secondary_period": _opt(self.secondary_period),
+            "period_ratio": _opt(self.period_ratio),
+            "modulation_period": _opt(self.modulation_period),
+        }
+
+
+# ------------------------------------------------------------------- search
+def _default_search(oversampling: int) -> Search:
+    def search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
+        from .periodogram import PeriodogramSettings, compute_periodogram
+
+        settings = PeriodogramSettings(method="gls", oversampling=oversampling)
+        pg = compute_periodogram(residual, settings)
+        return np.asarray(pg.frequency), np.asarray(pg.power)
+
+    return search
+
+
+def _noise(t, r, sw, centre, box, samples):
+    """Mean residual amplitude spectrum in a box around ``centre``.
+
+    Weighted amplitude spectrum normalised so that a sinusoid of amplitude
+    A, well sampled in phase, shows A: ``2 |sum w r exp(-2 pi i f t)| / sum w``.
+    The evenly spaced frequencies are reached by a running product of one
+    phase step (cheaper than an exponential per frequency).
+    """
+    low = max(centre - box, 0.5 * box / samples)
+    high = centre + box
+    step = (high - low) / (samples - 1)
+    w = sw**2
+    tau = t - t.mean()
+    start = (w * r) * np.exp(-2j * np.pi * low * tau)
+    advance = np.exp(-2j * np.pi * step * tau)
+    sums = np.empty(samples, dtype=complex)
+    current = start
+    for i in range(samples):
+        sums[i] = current.sum()
+        current = current * advance
+    return float(np.mean(2.0 * np.abs(sums) / w.sum()))
+
+
+def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
+    """The highest residual peak and rivals within ``alias_power_fraction`` of it."""
+    ok = allowed & np.isfinite(power)
+    inner = np.zeros(grid.size, bool)
+    inner[1:-1] = (power[1:-1] >= power[:-2]) & (power[1:-1] >= power[2:])
+    inner[0] = grid.size > 1 and power[0] >= power[1]
+    inner[-1] = grid.size > 1 and power[-1] >= power[-2]
+    idx = np.flatnonzero(ok & inner)
+    if idx.size == 0:
+        idx = np.flatnonzero(ok)[:1]
+    if idx.size > 64:  # only the strongest few matter
+        idx = idx[np.argpartition(-power[idx], 63)[:64]]
+    idx = idx[np.argsort(-power[idx], kind="stable")]
+    chosen: list[float] = []
+    for i in idx:
+        if len(chosen) >= settings.alias_candidates:
+            break
+        if chosen and power[i] < settings.alias_power_fraction * power[idx[0]]:
+            break
+        if all(abs(grid[i] - c) >= resolution for c in chosen):
+            chosen.append(float(grid[i]))
+    return chosen
+
+
+def _label_independent(index: int) -> str:
+    return f"f{index}"
+
+
+def _classify(freqs, resolution, main_frequency, settings):
+    """Kinds and labels, in order of discovery; see the module text."""
+    kinds, labels, mods = ["main"], ["f1"], [None]
+    independent = [(1, freqs[0])]  # (label index, frequency)
+    f1 = main_frequency
+    for f in freqs[1:]:
+        kind, label, mod = None, None, None
+        for idx, fj in independent:
+            n = int(round(f / fj))
+            if 2 <= n <= settings.max_harmonic and abs(f - n * fj) < resolution:
+                kind, label = "harmonic", f"{n}f{idx}"
+                break
+        if kind is None:
+            k = max(int(round(f / f1)), 1)
+            delta = f - k * f1
+            if k <= settings.max_harmonic and resolution <= abs(delta):
+                if abs(delta) < settings.side_peak_fraction * f1:
+                    sign = "+" if delta > 0 else "-"
+                    head = "f1" if k == 1 else f"{k}f1"
+                    kind, label, mod = "side peak", f"{head}{sign}{abs(delta):.4f}", 1 / abs(delta)
+        if kind is None and len(independent) >= 2:
+            best = None
+            span = range(-settings.max_combination, settings.max_combination + 1)
+            for ia, (la, fa) in enumerate(independent):
+                for lb, fb in independent[ia + 1 :]:
+                    for n in span:
+                        for m in span:
+                            if n == 0 or m == 0:
+                                continue
+                            if abs(f - (n * fa + m * fb)) < resolution:
+                                cost = abs(n) + abs(m)
+                                if best is None or cost < best[0]:
+                                    best = (cost, _combination_label(n, la, m, lb))
+            if best is not None:
+                kind, label = "combination", best[1]
+        if kind is None:
+            kind = "independent"
+            label = _label_independent(len(independent) + 1)
+            independent.append((len(independent) + 1, f))
+        kinds.append(kind)
+        labels.append(label)
+        mods.append(mod)
+    return kinds, labels, mods
+
+
+def _combination_label(n: int, la: int, m: int, lb: int) -> str:
+    def term(c: int, idx: int) -> str:
+        size = "" if abs(c) == 1 else str(abs(c))
+        return f"{size}f{idx}"
+
+    if n < 0 < m:
+        n, la, m, lb = m, lb, n, la
+    sign = "+" if m > 0 else "-"
+    head = term(n, la) if n > 0 else "-" + term(n, la)
+    return f"{head}{sign}{term(m, lb)}"
+
+
+# ------------------------------------------------------------------ driver
+def prewhiten(
+    lc: Any,
+    frequency: float,
+    settings: PrewhitenSettings | None = None,
+    search: Search | None = None,
+) -> Prewhitening:
+    """Find further significant frequencies after the main one.
+
+    Parameters
+    ----------
+    lc : LightCurve
+        All good points are used; every band has its own mean and amplitudes.
+    frequency : float
+        The main frequency (cycles/day), ideally already refined.
+    settings : PrewhitenSettings, optional
+    search : callable, optional
+        ``search(residual_lightcurve) -> (frequency, power)``; default the
+        generalized Lomb–Scargle of :func:`core.periodogram.compute_periodogram`
+        on its default range with ``search_oversampling``.
+
+    Returns
+    -------
+    Prewhitening
+    """
+    settings = settings or PrewhitenSettings()
+    search = search or _default_search(settings.search_oversampling)
+    f_main = float(frequency)
+    if not np.isfinite(f_main) or f_main <= 0:
+        raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
+    t, m, e, labels = _unpack_input(lc)
+    names, counts = np.unique(labels, return_counts=True)
+    band_names = [str(n) for n in names[np.lexsort((names, -counts))]]
+    bidx = np.array([band_names.index(b) for b in labels]) if t.size else np.zeros(0, int)
+    star_id = getattr(lc, "star_id", "residual")
+    time_scale = getattr(lc, "time_scale", "JD")
+    baseline = float(np.ptp(t)) if t.size > 1 else 0.0
+    if baseline <= 0:
+        raise PhasewiseError("prewhitening needs a time baseline > 0", field="time")
+    resolution = settings.resolution_factor / baseline
+    primary = bidx == 0
+    sw = 1.0 / e
+    box = settings.noise_box
+
+    order = settings.main_order
+    if order is None:
+        try:
+            order = choose_order(t[primary], m[primary], e[primary], f_main, settings.fourier).order
+        except PhasewiseError:
+            return Prewhitening((), 0, resolution, "too few points", None, float("nan"), t.size)
+    freqs, orders = [f_main], [order]
+    steps = [0]
+    alternatives: list[tuple[float, ...]] = [()]
+    fit = multi_frequency_fit(t, m, e, freqs, orders, bidx, refine=settings.refine)
+    fit = _keep_near(fit, t, m, e, freqs, orders, bidx, resolution, settings)
+    stop, last_snr, note = "limit", None, ""
+    for step in range(1, settings.max_frequencies + 1):
+        n_params = len(freqs) + len(band_names) * (1 + 2 * sum(orders))
+        if t.size - n_params - 3 < 2 * len(band_names) + 1:
+            stop = "too few points"
+            break
+        residual = LightCurve(star_id, t, fit.residuals, e, band=labels, time_scale=time_scale)
+        try:
+            grid, power = search(residual)
+        except PhasewiseError as exc:  # e.g. a grid too large to compute unasked
+            stop, note = "search failed", exc.reason
+            break
+        grid, power = np.asarray(grid, float), np.asarray(power, float)
+        masked = np.zeros(grid.size, bool)
+        known = [k * f_main for k in range(1, orders[0] + 1)] + list(fit.frequencies[1:])
+        for fk in known:
+            masked |= np.abs(grid - fk) < resolution
+        candidates = np.flatnonzero(~masked & np.isfinite(power))
+        if candidates.size == 0:
+            stop = "no peak"
+            break
+        peaks = _top_peaks(grid, power, ~masked, resolution, settings)
+        trial_freqs = [*fit.frequencies, peaks[0]]
+        trial_orders = [*orders, 1]
+        trial = multi_frequency_fit(
+            t, m, e, trial_freqs, trial_orders, bidx, refine=settings.refine
+        )
+        trial = _keep_near(trial, t, m, e, trial_freqs, trial_orders, bidx, resolution, settings)
+        # rival peaks of near-equal power, often aliases through the sampling
+        # window; a joint-fit chi-square does not tell them apart reliably, so
+        # they are reported for the classifier rather than chosen between here
+        others = tuple(peaks[1:])
+        amp = trial.term_amplitude(0, sum(orders))
+        f_found = float(trial.frequencies[-1])
+        noise = _noise(
+            t[primary], trial.residuals[primary], sw[primary], f_found, box, settings.noise_samples
+        )
+        snr = amp / noise if noise > 0 else np.inf
+        if snr < settings.snr_threshold:
+            stop, last_snr = "snr", float(snr)
+            break
+        fit, freqs, orders = trial, list(trial.frequencies), trial_orders
+        steps.append(step)
+        alternatives.append(others)
+
+    # final figures from the final joint fit
+    final = [float(x) for x in fit.frequencies]
+    kinds, names_, mods = _classify(final, resolution, final[0], settings)
+    found = []
+    term = 0
+    for j, fj in enumerate(final):
+        amp = fit.term_amplitude(0, term)
+        term += orders[j]
+        noise = _noise(
+            t[primary], fit.residuals[primary], sw[primary], fj, box, settings.noise_samples
+        )
+        found.append(
+            FoundFrequency(
+                frequency=fj,
+                frequency_err=float(fit.frequencies_err[j]),
+                amplitude=amp,
+                snr=amp / noise if noise > 0 else float("inf"),
+                kind=kinds[j],
+                label=names_[j],
+                step=steps[j],
+                modulation_period=mods[j],
+                alternatives=alternatives[j],
+            )
+        )
+    n_params = len(final) + len(band_names) * (1 + 2 * sum(orders))
+    resid_std = float(np.sqrt(np.sum(fit.residuals**2) / max(t.size - n_params, 1)))
+    return Prewhitening(
+        frequencies=tuple(found),
+        main_order=int(orders[0]),
+        resolution=resolution,
+        stop_reason=stop,
+        last_snr=last_snr,
+        residual_std=resid_std,
+        n_points=int(t.size),
+        note=note,
+    )
+
+
+def _keep_near(fit, t, m, e, start, orders, bidx, resolution, settings):
+    """Undo a refinement that moved any frequency by more than the resolution."""
+    if not settings.refine:
+        return fit
+    moved = np.abs(np.asarray(fit.frequencies) - np.asarray(start)) > resolution
+    if fit.success and not moved.any():
+        return fit
+    return multi_frequency_fit(t, m, e, start, orders, bidx, refine=False)

@@ -1,0 +1,152 @@
+"""Eclipse test inputs on invented binaries and pulsators (injected truth checked)."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from core.eclipse import EclipseSettings, eclipse_test
+from core.errors import PhasewiseError, SettingsError
+from core.lightcurve import LightCurve
+
+N = 700
+P_ORB = 0.37  # invented binary, days
+P_RR = 0.56  # invented RRab-like pulsator, days
+
+
+def _times(seed=0):
+    return np.sort(np.random.default_rng(seed).uniform(0, 200, N))
+
+
+def _dip(phase, centre, width):
+    d = np.mod(phase - centre + 0.5, 1.0) - 0.5
+    return np.exp(-0.5 * (d / width) ** 2)
+
+
+def _star(name, t, flux, noise=0.01, seed=1):
+    mag = 13.0 - 2.5 * np.log10(flux) + np.random.default_rng(seed).normal(0, noise, t.size)
+    return LightCurve(name, t, mag, np.full(t.size, noise))
+
+
+def ew_curve():
+    """Contact binary: continuous variation, two equal minima per orbit."""
+    t = _times()
+    ph = np.mod(t / P_ORB, 1)
+    flux = 1 - 0.1 * (1 - np.cos(4 * np.pi * ph)) - 0.05 * (_dip(ph, 0, 0.08) + _dip(ph, 0.5, 0.08))
+    return _star("demo-ew", t, flux)
+
+
+def eb_curve():
+    """Beta Lyrae-like: continuous variation, unequal minima."""
+    t = _times(2)
+    ph = np.mod(t / P_ORB, 1)
+    flux = 1 - 0.05 * (1 - np.cos(4 * np.pi * ph)) - 0.25 * _dip(ph, 0, 0.07)
+    return _star("demo-eb", t, flux - 0.12 * _dip(ph, 0.5, 0.07))
+
+
+def ea_curve():
+    """Detached binary: flat outside narrow, unequal eclipses."""
+    t = _times(3)
+    ph = np.mod(t / P_ORB, 1)
+    return _star("demo-ea", t, 1 - 0.5 * _dip(ph, 0, 0.025) - 0.2 * _dip(ph, 0.5, 0.025))
+
+
+def rrab_curve():
+    """Sawtooth pulsator: brightens in 0.15 of a cycle, fades slowly."""
+    t = _times(4)
+    x = np.mod(t / P_RR, 1)
+    mag = np.where(x < 0.15, 0.4 - x / 0.15 * 0.8, -0.4 + (x - 0.15) / 0.85 * 0.8)
+    return _star("demo-rrab", t, 10 ** (-0.4 * mag))
+
+
+def test_ew_at_half_its_period_has_equal_minima_and_a_strong_second_harmonic():
+    res = eclipse_test(ew_curve(), 2 / P_ORB)  # the half period a periodogram finds
+    assert res.doubled_period == pytest.approx(P_ORB)
+    assert res.depth_primary > 0.15 and res.depth_secondary > 0.15
+    assert abs(res.depth_difference) < 0.01
+    assert res.depth_difference_sigma < 3 and not res.unequal_minima
+    assert res.second_harmonic_ratio > 10
+    assert res.odd_harmonic_fraction < 0.01
+    assert res.phase_separation == pytest.approx(0.5, abs=0.01)
+    assert res.symmetric and res.asymmetry < 0.05
+    assert res.symmetric_equal_minima
+
+
+@pytest.mark.parametrize("make", [eb_curve, ea_curve], ids=["EB", "EA"])
+def test_unequal_minima_give_a_significant_depth_difference(make):
+    lc = make()
+    res = eclipse_test(lc, 2 / P_ORB)
+    assert res.unequal_minima
+    assert res.depth_difference_sigma > 10
+    assert res.depth_difference > 0.1
+    assert res.phase_separation == pytest.approx(0.5, abs=0.02)
+    assert res.odd_harmonic_fraction > 0.1
+    assert not res.symmetric_equal_minima
+    # tested at the orbital period itself: the second dip shows at P
+    at_p = eclipse_test(lc, 1 / P_ORB)
+    assert not at_p.unequal_minima  # both folds at 2P show the primary eclipse
+    assert at_p.depth_secondary_at_p is not None and at_p.depth_secondary_at_p > 0.05
+
+
+def test_ea_depths_come_back_near_the_injected_ones():
+    res = eclipse_test(ea_curve(), 2 / P_ORB)
+    # injected: fluxes 0.5 and 0.8 at mid-eclipse -> 0.753 and 0.242 mag;
+    # a finite Fourier series rounds narrow eclipses, so allow 10 %
+    assert res.depth_primary == pytest.approx(-2.5 * np.log10(0.5), rel=0.1)
+    assert res.depth_secondary == pytest.approx(-2.5 * np.log10(0.8), rel=0.1)
+
+
+def test_sawtooth_pulsator_is_told_from_a_contact_binary():
+    rr = eclipse_test(rrab_curve(), 1 / P_RR)
+    ew = eclipse_test(ew_curve(), 2 / P_ORB)
+    # both repeat exactly at P: no odd harmonics at 2P, equal alternate minima
+    assert not rr.unequal_minima and rr.odd_harmonic_fraction < 0.01
+    # but the pulsator is strongly asymmetric about minimum light
+    assert not rr.symmetric and rr.asymmetry > 0.3
+    assert rr.asymmetry > 5 * ew.asymmetry
+    # injected rise 0.15; a series of order <= 8 rounds the corners of the
+    # sawtooth and moves both extremes a little, lengthening the rise
+    assert 0.12 < rr.rise_time < 0.25
+    assert ew.rise_time == pytest.approx(0.5, abs=0.02)
+    assert not rr.symmetric_equal_minima
+    assert rr.depth_secondary_at_p is None or rr.depth_secondary_at_p < 0.02
+
+
+def test_a_given_fit_at_the_period_is_reused():
+    from core.fourier import decompose
+
+    lc = rrab_curve()
+    fit = decompose(lc, 1 / P_RR)["V"]
+    reused = eclipse_test(lc, 1 / P_RR, fit_at_period=fit)
+    assert reused.rise_time == fit.rise_time
+    assert reused.asymmetry == pytest.approx(eclipse_test(lc, 1 / P_RR).asymmetry, abs=0.05)
+
+
+def test_to_dict_is_plain_and_complete():
+    d = eclipse_test(ew_curve(), 2 / P_ORB).to_dict()
+    json.dumps(d)
+    for key in (
+        "depth_primary",
+        "depth_secondary",
+        "depth_difference",
+        "depth_difference_err",
+        "second_harmonic_ratio",
+        "odd_harmonic_fraction",
+        "asymmetry",
+        "unequal_minima",
+        "symmetric_equal_minima",
+    ):
+        assert key in d
+    assert isinstance(d["unequal_minima"], bool)
+
+
+def test_bad_input_is_refused_clearly():
+    with pytest.raises(PhasewiseError, match="field 'frequency'"):
+        eclipse_test(ew_curve(), 0.0)
+    t = np.linspace(0, 1, 5)
+    with pytest.raises(PhasewiseError, match="cannot support"):
+        eclipse_test(LightCurve("demo-few", t, np.ones(5)), 2.0)
+    with pytest.raises(SettingsError, match="field 'max_order'"):
+        EclipseSettings(max_order=1)
