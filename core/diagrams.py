@@ -42,6 +42,9 @@ __all__ = [
     "NO_LOCUS_CLASSES",
     "INSTABILITY_STRIP_NOTE",
     "RATIO_GUIDES",
+    "RATIO_WINDOW",
+    "DOUBLE_MODE_CLASSES",
+    "robust_correlation",
     "StarPoint",
     "DiagramLine",
     "Diagram",
@@ -53,6 +56,7 @@ __all__ = [
     "available_bands",
     "period_amplitude",
     "phi31_logp",
+    "phase_window_start",
     "r21_logp",
     "period_ratio",
     "period_luminosity",
@@ -343,7 +347,8 @@ class Diagram:
     ``x``, ``y``, ``star_ids`` and ``class_codes`` are parallel; only stars
     with both coordinates finite appear.  ``scale_floor`` is the smallest
     spread per axis the outlier rule accepts (a class whose members coincide
-    would otherwise make any neighbour an outlier).
+    would otherwise make any neighbour an outlier); ``locus_classes``, when
+    set, are the only classes that have a locus in this diagram.
     """
 
     key: str
@@ -358,6 +363,7 @@ class Diagram:
     lines: tuple[DiagramLine, ...] = ()
     note: str = ""
     scale_floor: tuple[float, float] = (1e-3, 1e-3)
+    locus_classes: frozenset[str] | None = None  # classes the outlier rule tests (None: all)
 
     def __len__(self) -> int:
         return len(self.star_ids)
@@ -421,15 +427,46 @@ def period_amplitude(points: Iterable[StarPoint], band: str) -> Diagram:
     )
 
 
+def phase_window_start(phases: Sequence[float]) -> float:
+    """Where to cut the phase circle so that no group of phases is split.
+
+    The cut is placed in the middle of the widest empty arc between the
+    phases (rounded to 0.1 rad); the phases are then shown in
+    ``[start, start + 2π)``.  Zero when there are fewer than two phases.
+    """
+    values = np.sort(np.mod(np.asarray(phases, dtype=float), 2 * math.pi))
+    if len(values) < 2:
+        return 0.0
+    gaps = np.diff(np.append(values, values[0] + 2 * math.pi))
+    k = int(np.argmax(gaps))
+    start = (values[k] + gaps[k] / 2) % (2 * math.pi)
+    return round(start, 1)
+
+
 def phi31_logp(points: Iterable[StarPoint]) -> Diagram:
-    """phi31 (sine series) against log10 P, primary band."""
-    rows = _rows(points, lambda p: (_log_period(p), p.phi31))
+    """phi31 (sine series) against log10 P, primary band.
+
+    phi31 is an angle: it is shown in a 2π window cut where no star lies
+    (:func:`phase_window_start`), so that a class near 0 ≡ 2π is not split.
+    """
+    points = list(points)
+    start = phase_window_start([p.phi31 for p in points if p.phi31 is not None])
+
+    def xy(p: StarPoint) -> tuple[Any, Any]:
+        if p.phi31 is None:
+            return _log_period(p), None
+        return _log_period(p), start + (p.phi31 - start) % (2 * math.pi)
+
+    rows = _rows(points, xy)
     return _build(
         "phi31_logp",
         rows,
         x_label="log₁₀ P [d]",
         y_label="φ31 (sine series) [rad]",
-        note="primary band of each star; cosine-series values converted (φ31 sin = φ31 cos − π)",
+        note=(
+            f"primary band of each star; shown in [{start:.1f}, {start + 2 * math.pi:.1f}) rad; "
+            "cosine-series values converted (φ31 sin = φ31 cos − π)"
+        ),
         scale_floor=(0.005, 0.05),
     )
 
@@ -455,12 +492,31 @@ RATIO_GUIDES: tuple[tuple[str, float, float, str], ...] = (
 )
 
 
+#: Period ratios drawn on the period-ratio diagram: double-mode pulsators lie
+#: between about 0.70 and 0.80 (RRd, Cepheids F/1O and 1O/2O; REFERENCES.md);
+#: the window is wider to show near misses (common practice, no source).
+RATIO_WINDOW = (0.60, 0.90)
+
+#: Classes with a locus in the period-ratio diagram (the outlier rule tests only these).
+DOUBLE_MODE_CLASSES = frozenset({"RRd"})
+
+_NOT_PULSATING = frozenset({"CONST", "REJECTED", "EA", "EB", "EW", "LPV"})
+
+
 def period_ratio(points: Iterable[StarPoint]) -> Diagram:
-    """Shorter/longer period against log10 of the longer period (double-mode stars)."""
+    """Shorter/longer period against log10 of the longer period (double-mode stars).
+
+    A star is drawn when it has an independent second period whose ratio to
+    the first lies in :data:`RATIO_WINDOW`, unless its class used is
+    constant, eclipsing, long-period or rejected.
+    """
     points = list(points)
+    low, high = RATIO_WINDOW
 
     def xy(p: StarPoint) -> tuple[Any, Any]:
-        if p.longer_period is None or p.ratio is None:
+        if p.longer_period is None or p.ratio is None or p.class_code in _NOT_PULSATING:
+            return None, None
+        if not low <= p.ratio <= high:
             return None, None
         return math.log10(p.longer_period), p.ratio
 
@@ -469,8 +525,8 @@ def period_ratio(points: Iterable[StarPoint]) -> Diagram:
     # guides span the stars drawn, so that they (and their labels) stay in view
     x_span = np.array([min(xs), max(xs)]) + np.array([-0.02, 0.02])
     lines = []
-    for label, low, high, citation in RATIO_GUIDES if rows else ():
-        for value in sorted({low, high}):
+    for label, g_low, g_high, citation in RATIO_GUIDES if rows else ():
+        for value in sorted({g_low, g_high}):
             lines.append(
                 DiagramLine(label, x_span, np.full(2, value), kind="guide", citation=citation)
             )
@@ -480,8 +536,12 @@ def period_ratio(points: Iterable[StarPoint]) -> Diagram:
         x_label="log₁₀ P_long [d]",
         y_label="P_short / P_long",
         lines=tuple(lines),
-        note="double-mode stars only; guide lines at published ratios (drawn with the stars)",
+        note=(
+            f"stars with an independent second period, ratio {low:g}–{high:g}; "
+            "guide lines at published ratios"
+        ),
         scale_floor=(0.005, 0.002),
+        locus_classes=DOUBLE_MODE_CLASSES,
     )
 
 
@@ -611,11 +671,14 @@ class OutlierRule:
     """Flag stars far from their class's locus.
 
     In each diagram, for each class with at least ``min_members`` points
-    (UNKNOWN, CONST and rejected stars excluded), the locus is the median of
-    x and of y and the spread is ``1.4826 × MAD`` per axis (at least the
-    diagram's ``scale_floor``).  A star's distance is
-    ``d = sqrt(((x − med_x)/s_x)² + ((y − med_y)/s_y)²)``, a Mahalanobis-like
-    distance with a robust diagonal scale; ``d > threshold`` flags it.
+    (UNKNOWN, CONST and rejected stars excluded; in the period-ratio diagram
+    only double-mode classes), each axis is standardised by the class median
+    and ``1.4826 × MAD`` (at least the diagram's ``scale_floor``), and the
+    distance is the robust Mahalanobis-like
+    ``d² = (zx² − 2 r zx zy + zy²) / (1 − r²)`` with the robust correlation
+    ``r`` of :func:`robust_correlation`; ``d > threshold`` flags the star.
+    For normal scatter, ``d > 4`` happens to one star in about 3000
+    (``exp(−d²/2)``, two degrees of freedom).
     """
 
     threshold: float = 4.0
@@ -628,11 +691,12 @@ class OutlierRule:
     def describe(self) -> str:
         """The rule in plain words, for the UI."""
         return (
-            "Outlier rule: in each diagram, per class with ≥ "
-            f"{self.min_members} stars, distance d = √(Δx²/sₓ² + Δy²/s_y²) from the "
-            "class median, with s = 1.4826 × MAD per axis (robust, diagonal "
-            f"Mahalanobis-like); flagged when d > {self.threshold:g}. "
-            "UNKNOWN, CONST and rejected stars are not tested."
+            f"Outlier rule: in each diagram, per class with ≥ {self.min_members} stars, "
+            "each axis is standardised by the class median and s = 1.4826 × MAD; the "
+            "distance is d² = (zx² − 2r·zx·zy + zy²)/(1 − r²), with r the robust "
+            "(Gnanadesikan–Kettenring) correlation of the class, so stars along a sloping "
+            f"sequence are not flagged; flagged when d > {self.threshold:g}. UNKNOWN, CONST "
+            "and rejected stars are not tested; in the period-ratio diagram only RRd."
         )
 
 
@@ -664,19 +728,50 @@ class OutlierFlag:
         }
 
 
+def _robust_scale(values: np.ndarray, floor: float) -> tuple[float, float]:
+    centre = float(np.median(values))
+    # 1.4826 makes the MAD a consistent estimate of a normal sigma (common practice, no source)
+    spread = max(1.4826 * float(np.median(np.abs(values - centre))), floor, 1e-300)
+    return centre, spread
+
+
+def robust_correlation(zx: np.ndarray, zy: np.ndarray) -> float:
+    """Correlation of standardised coordinates from robust spreads of their sum and difference.
+
+    ``r = (s_u² − s_v²) / (s_u² + s_v²)`` with ``u = zx + zy``, ``v = zx − zy``
+    and ``s`` = 1.4826 × MAD (Gnanadesikan & Kettenring 1972, Biometrics 28,
+    81; identity from memory).  Clipped to ±0.99 so that a perfectly thin
+    sequence does not make the distance across it infinite.
+    """
+    _, su = _robust_scale(zx + zy, 0.0)
+    _, sv = _robust_scale(zx - zy, 0.0)
+    r = (su**2 - sv**2) / (su**2 + sv**2)
+    return float(np.clip(r, -0.99, 0.99))
+
+
 def robust_distance(
-    x: np.ndarray, y: np.ndarray, scale_floor: tuple[float, float] = (0.0, 0.0)
+    x: np.ndarray,
+    y: np.ndarray,
+    scale_floor: tuple[float, float] = (0.0, 0.0),
+    *,
+    correlated: bool = True,
 ) -> np.ndarray:
-    """Distance of each point from the median, in units of 1.4826 × MAD per axis."""
+    """Robust Mahalanobis-like distance of each point from the median of the points.
+
+    Each axis is standardised by its median and 1.4826 × MAD (at least
+    ``scale_floor``): ``z = (v − median) / s``.  With ``correlated`` the
+    distance is ``d² = (zx² − 2 r zx zy + zy²) / (1 − r²)``, ``r`` from
+    :func:`robust_correlation`, so that stars along a class's sloping
+    sequence (φ31 rising with period, the Bailey diagram) are not flagged;
+    without it, ``d² = zx² + zy²``.
+    """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
-    terms = []
-    for values, floor in ((x, scale_floor[0]), (y, scale_floor[1])):
-        centre = np.median(values)
-        # 1.4826 makes the MAD a consistent estimate of a normal sigma (common practice, no source)
-        spread = max(1.4826 * np.median(np.abs(values - centre)), floor, np.finfo(float).tiny)
-        terms.append(((values - centre) / spread) ** 2)
-    return np.sqrt(terms[0] + terms[1])
+    cx, sx = _robust_scale(x, scale_floor[0])
+    cy, sy = _robust_scale(y, scale_floor[1])
+    zx, zy = (x - cx) / sx, (y - cy) / sy
+    r = robust_correlation(zx, zy) if correlated else 0.0
+    return np.sqrt((zx**2 - 2 * r * zx * zy + zy**2) / (1 - r**2))
 
 
 def find_outliers(
@@ -689,7 +784,10 @@ def find_outliers(
     flags = []
     for diagram in diagrams:
         codes = np.asarray(diagram.class_codes, dtype=object)
-        for code in sorted(set(diagram.class_codes) - NO_LOCUS_CLASSES):
+        tested = set(diagram.class_codes) - NO_LOCUS_CLASSES
+        if diagram.locus_classes is not None:
+            tested &= set(diagram.locus_classes)
+        for code in sorted(tested):
             members = np.flatnonzero(codes == code)
             if len(members) < rule.min_members:
                 continue

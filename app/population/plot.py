@@ -454,6 +454,7 @@ class DiagramPlot(pg.PlotWidget):
         previous = None
         guide_levels = [float(g.y[0]) for g in diagram.lines if g.kind == "guide" and len(g.y)]
         top_level = max(guide_levels) if guide_levels else None
+        n_labels = 0
         for k, (line, label) in enumerate(zip(self.lines, self.line_labels, strict=True)):
             if k >= len(diagram.lines):
                 line.setData([], [])
@@ -468,10 +469,14 @@ class DiagramPlot(pg.PlotWidget):
             # are named in the legend above the diagrams and in exported figures
             if guide.kind == "guide" and guide.label != previous and len(guide.x):
                 label.setText(guide.label)
-                # above its line, except the topmost one (below it, so it stays in view)
+                # above its line, except the topmost one (below it, so it stays in view);
+                # labels alternate left and right so that close ratios do not overlap
                 below = top_level is not None and float(guide.y[0]) >= top_level
-                label.setAnchor((0, 0) if below else (0, 1))
-                label.setPos(float(guide.x[0]), float(guide.y[0]))
+                right = n_labels % 2 == 1
+                n_labels += 1
+                label.setAnchor((1 if right else 0, 0 if below else 1))
+                end = -1 if right else 0
+                label.setPos(float(guide.x[end]), float(guide.y[end]))
                 label.show()
             else:
                 label.hide()

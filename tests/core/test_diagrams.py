@@ -99,7 +99,7 @@ def test_outlier_rule_flags_the_injected_star_only():
 def test_outlier_rule_skips_small_classes_and_unknown():
     points = _field()
     # 4 RRd stars with one far off: too few members to have a locus
-    points.append(dg.StarPoint("D9", "RRd", period=0.3, shorter_period=0.3, longer_period=0.6))
+    points.append(dg.StarPoint("D9", "RRd", period=0.39, shorter_period=0.39, longer_period=0.6))
     flags = dg.find_outliers([dg.period_ratio(points)], dg.OutlierRule(min_members=8))
     assert flags == ()
     flags = dg.find_outliers([dg.period_ratio(points)], dg.OutlierRule(min_members=5))
@@ -109,10 +109,44 @@ def test_outlier_rule_skips_small_classes_and_unknown():
     assert dg.find_outliers([dg.r21_logp(unknown)]) == ()
 
 
+def test_ratio_diagram_keeps_double_mode_candidates_only():
+    points = [
+        dg.StarPoint("RD", "RRd", period=0.37, shorter_period=0.37, longer_period=0.5),
+        dg.StarPoint("AB", "RRab", period=0.55, shorter_period=0.41, longer_period=0.55),
+        dg.StarPoint("TR", "RRab", period=0.55, shorter_period=0.05, longer_period=0.55),
+        dg.StarPoint("EW", "EW", period=0.3, shorter_period=0.222, longer_period=0.3),
+        dg.StarPoint("NV", "CONST", period=1.0, shorter_period=0.75, longer_period=1.0),
+    ]
+    diagram = dg.period_ratio(points)
+    # ratio 0.1 is outside the window; eclipsing and constant stars have no second mode
+    assert sorted(diagram.star_ids) == ["AB", "RD"]
+    assert diagram.locus_classes == frozenset({"RRd"})
+
+
+def test_correlated_distance_spares_stars_along_a_sequence():
+    rng = np.random.default_rng(4)
+    log_p = rng.uniform(-0.35, -0.1, 60)
+    phi31 = 6.0 + 4.0 * log_p + rng.normal(0, 0.03, 60)  # a steep, tight sequence
+    along = np.append(log_p, 0.05), np.append(phi31, 6.0 + 4.0 * 0.05)  # its extension
+    across = np.append(log_p, -0.225), np.append(phi31, 6.0 + 4.0 * -0.225 + 0.3)  # 10 sigma
+    floor = (0.0, 0.0)
+    assert (
+        dg.robust_distance(*along, floor)[-1]
+        < 4
+        < dg.robust_distance(*along, floor, correlated=False)[-1]
+    )
+    # and catches a star off the sequence that per-axis spreads miss
+    assert (
+        dg.robust_distance(*across, floor)[-1]
+        > 4
+        > dg.robust_distance(*across, floor, correlated=False)[-1]
+    )
+
+
 def test_robust_distance_matches_hand_computation():
     x = np.array([0.0, 1.0, 2.0, 3.0, 100.0])
     y = np.zeros(5)
-    d = dg.robust_distance(x, y, scale_floor=(0.0, 1.0))
+    d = dg.robust_distance(x, y, scale_floor=(0.0, 1.0), correlated=False)
     # median 2, MAD = median(|x-2|) = median(2,1,0,1,98) = 1 -> s = 1.4826
     assert d[4] == pytest.approx(98 / 1.4826)
     assert d[2] == 0.0
@@ -201,3 +235,17 @@ def test_period_ratio_guides_are_cited():
     diagram = dg.period_ratio(_field())
     assert diagram.lines and all(line.citation for line in diagram.lines)
     assert any(np.allclose(line.y, 0.742) for line in diagram.lines)
+
+
+def test_phi31_is_shown_in_a_window_that_keeps_groups_whole():
+    # RRc-like phases straddle 0 = 2 pi; RRab-like near 5: the cut goes in the gap between
+    phases = [6.1, 6.2, 0.1, 0.3, 4.9, 5.0, 5.1]
+    start = dg.phase_window_start(phases)
+    assert 0.3 < start < 4.9
+    points = [dg.StarPoint(f"S{i}", "RRc", period=0.3, phi31=v) for i, v in enumerate(phases)]
+    diagram = dg.phi31_logp(points)
+    shown = dict(zip(diagram.star_ids, diagram.y, strict=True))
+    assert shown["S2"] == pytest.approx(0.1 + 2 * math.pi)  # next to 6.1 and 6.2
+    assert shown["S4"] == pytest.approx(4.9)
+    assert np.ptp(diagram.y) < 2 * math.pi
+    assert dg.phase_window_start([1.0]) == 0.0
