@@ -45,6 +45,7 @@ __all__ = [
     "RATIO_WINDOW",
     "DOUBLE_MODE_CLASSES",
     "robust_correlation",
+    "MIN_CORRELATED",
     "StarPoint",
     "DiagramLine",
     "Diagram",
@@ -694,8 +695,9 @@ class OutlierRule:
             f"Outlier rule: in each diagram, per class with ≥ {self.min_members} stars, "
             "each axis is standardised by the class median and s = 1.4826 × MAD; the "
             "distance is d² = (zx² − 2r·zx·zy + zy²)/(1 − r²), with r the robust "
-            "(Gnanadesikan–Kettenring) correlation of the class, so stars along a sloping "
-            f"sequence are not flagged; flagged when d > {self.threshold:g}. UNKNOWN, CONST "
+            "(Gnanadesikan–Kettenring) correlation of the class (taken as 0 below "
+            f"{MIN_CORRELATED} stars or |r| < 2/√n), so stars along a sloping sequence are "
+            f"not flagged; flagged when d > {self.threshold:g}. UNKNOWN, CONST "
             "and rejected stars are not tested; in the period-ratio diagram only RRd."
         )
 
@@ -735,6 +737,10 @@ def _robust_scale(values: np.ndarray, floor: float) -> tuple[float, float]:
     return centre, spread
 
 
+#: Fewer members than this and the outlier distance ignores correlation.
+MIN_CORRELATED = 20
+
+
 def robust_correlation(zx: np.ndarray, zy: np.ndarray) -> float:
     """Correlation of standardised coordinates from robust spreads of their sum and difference.
 
@@ -762,15 +768,22 @@ def robust_distance(
     ``scale_floor``): ``z = (v − median) / s``.  With ``correlated`` the
     distance is ``d² = (zx² − 2 r zx zy + zy²) / (1 − r²)``, ``r`` from
     :func:`robust_correlation`, so that stars along a class's sloping
-    sequence (φ31 rising with period, the Bailey diagram) are not flagged;
-    without it, ``d² = zx² + zy²``.
+    sequence (φ31 rising with period, the Bailey diagram) are not flagged.
+    ``r`` is taken as 0 for fewer than :data:`MIN_CORRELATED` points or when
+    ``|r| < 2/√n``; without ``correlated``, ``d² = zx² + zy²``.
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     cx, sx = _robust_scale(x, scale_floor[0])
     cy, sy = _robust_scale(y, scale_floor[1])
     zx, zy = (x - cx) / sx, (y - cy) / sy
-    r = robust_correlation(zx, zy) if correlated else 0.0
+    r = 0.0
+    if correlated and len(x) >= MIN_CORRELATED:
+        r = robust_correlation(zx, zy)
+        # a correlation under two standard errors (1/sqrt(n)) is taken as none
+        # (common practice, no source): small classes would get spurious ones
+        if abs(r) < 2 / math.sqrt(len(x)):
+            r = 0.0
     return np.sqrt((zx**2 - 2 * r * zx * zy + zy**2) / (1 - r**2))
 
 
