@@ -66,4 +66,14 @@ def test_points_per_class_on_the_demo_ledger(qtbot, demo_ledger):
     assert view.plots["period_amplitude"].shown_counts() == expected_pa
     assert view.plots["period_luminosity"].shown_counts() == expected_pl
     assert sum(view.field.counts.values()) == N_STARS
+
+    # recovery of the injected distance: the demo cluster has mu0 = 15.30 and
+    # E(B-V) = 0.10 (demo_data/README.md); with that extinction the RRab
+    # members give mu0 back within 0.15 mag (a handful of stars; photometric
+    # [Fe/H] and the M_V relation each carry a few hundredths of scatter)
+    with qtbot.waitSignal(view.summary_updated, timeout=60000):
+        view.set_extinction(0.10)
+    rrab = next(d for d in view.field.summary.distances if d.class_code == "RRab")
+    assert rrab.n_used >= 3
+    assert abs(rrab.mu0 - 15.30) < 0.15
     view.close()
