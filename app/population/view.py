@@ -143,7 +143,8 @@ class PopulationView(QtWidgets.QWidget):
         self._summary_done = 0
         self._pool = QtCore.QThreadPool(self)
         self._pool.setMaxThreadCount(1)
-        self._relay = _SummaryRelay(self)
+        # no Qt parent: a job still running when the view goes keeps its relay alive
+        self._relay = _SummaryRelay()
         self._relay.done.connect(self._on_summary)
         self._relay.failed.connect(self._on_summary_failed)
 
