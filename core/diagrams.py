@@ -751,8 +751,10 @@ def robust_correlation(zx: np.ndarray, zy: np.ndarray) -> float:
     """
     _, su = _robust_scale(zx + zy, 0.0)
     _, sv = _robust_scale(zx - zy, 0.0)
-    r = (su**2 - sv**2) / (su**2 + sv**2)
-    return float(np.clip(r, -0.99, 0.99))
+    total = su**2 + sv**2
+    if not (math.isfinite(total) and total > 0):
+        return 0.0  # coinciding points: no correlation to speak of
+    return float(np.clip((su**2 - sv**2) / total, -0.99, 0.99))
 
 
 def robust_distance(

@@ -249,3 +249,11 @@ def test_phi31_is_shown_in_a_window_that_keeps_groups_whole():
     assert shown["S4"] == pytest.approx(4.9)
     assert np.ptp(diagram.y) < 2 * math.pi
     assert dg.phase_window_start([1.0]) == 0.0
+
+
+def test_outlier_rule_survives_coinciding_members():
+    # thirty copies of one star (a duplicated import): no spread, no correlation
+    twins = [dg.StarPoint(f"T{i}", "RRab", period=0.55, R21=0.45) for i in range(30)]
+    twins.append(dg.StarPoint("FAR", "RRab", period=0.55, R21=0.9))
+    flags = dg.find_outliers([dg.r21_logp(twins)])
+    assert [f.star_id for f in flags] == ["FAR"]  # judged against the floor spread
