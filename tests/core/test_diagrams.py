@@ -4,6 +4,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from core import diagrams as dg
 from core.errors import SettingsError
@@ -257,3 +259,21 @@ def test_outlier_rule_survives_coinciding_members():
     twins.append(dg.StarPoint("FAR", "RRab", period=0.55, R21=0.9))
     flags = dg.find_outliers([dg.r21_logp(twins)])
     assert [f.star_id for f in flags] == ["FAR"]  # judged against the floor spread
+
+
+@given(
+    st.lists(
+        st.tuples(
+            st.floats(-3, 3, allow_nan=False, allow_subnormal=False),
+            st.floats(-50, 50, allow_nan=False, allow_subnormal=False),
+        ),
+        min_size=1,
+        max_size=60,
+    )
+)
+@settings(max_examples=60, deadline=None)
+def test_robust_distance_is_finite_and_non_negative(pairs):
+    x, y = np.array(pairs).T
+    d = dg.robust_distance(x, y, (1e-3, 1e-3))
+    assert d.shape == x.shape
+    assert np.all(np.isfinite(d)) and np.all(d >= 0)
