@@ -105,8 +105,9 @@ class PopulationView(QtWidgets.QWidget):
     Parameters
     ----------
     ledger : core.ledger.Ledger, optional
-        Read with :func:`core.diagrams.star_points`; call :meth:`refresh`
-        after verdicts change.
+        Read with :func:`core.diagrams.star_points` when the view is shown
+        (at once if it is visible); call :meth:`update_stars` or
+        :meth:`refresh` after verdicts change.
     outlier_rule : core.diagrams.OutlierRule, optional
     """
 
@@ -138,6 +139,7 @@ class PopulationView(QtWidgets.QWidget):
         self._field_points: list | None = None
         self._field_settings: dict | None = None
         self._physics_settings: dict = {}
+        self._stale = False  # the ledger changed while the view was hidden
         self._job_points: dict[int, list] = {}
         self._summary_generation = 0
         self._summary_done = 0
@@ -259,7 +261,16 @@ class PopulationView(QtWidgets.QWidget):
             blocker = QtCore.QSignalBlocker(self.summary_panel.ebv_box)
             self.summary_panel.set_extinction(float(ebv))
             del blocker
-        self.refresh()
+        # reading every star's result takes seconds on a large ledger: a hidden
+        # view (a closed dock) reads it when it is first shown
+        self._stale = True
+        if self.isVisible():
+            self.refresh()
+
+    def showEvent(self, event: QtGui.QShowEvent) -> None:  # noqa: N802 (Qt naming)
+        super().showEvent(event)
+        if self._stale and self.ledger is not None:
+            self.refresh()
 
     def refresh(self) -> None:
         """Re-read the ledger (after verdicts or analyses changed) and redraw.
@@ -267,12 +278,13 @@ class PopulationView(QtWidgets.QWidget):
         The zoom is kept once stars are shown.
         """
         if self.ledger is not None:
+            self._stale = False
             self.set_points(dg.star_points(self.ledger), auto_range=not self.points)
 
     def update_stars(self, star_ids: Iterable[str]) -> None:
         """Re-read these stars from the ledger (after their verdicts changed) and redraw."""
-        if self.ledger is None:
-            return
+        if self.ledger is None or self._stale:
+            return  # all stars are read when the view is next shown
         fresh = {str(s): dg.star_point(self.ledger, str(s)) for s in star_ids}
         if fresh:
             self.set_points([fresh.get(p.star_id, p) for p in self.points], auto_range=False)

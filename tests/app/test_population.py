@@ -284,6 +284,8 @@ def test_extinction_starts_from_the_ledgers_analysis_settings(qtbot, tmp_path):
     try:
         widget = PopulationView(ledger)
         qtbot.addWidget(widget)
+        assert widget.points == []  # a hidden view reads the ledger when first shown
+        widget.show()
         qtbot.waitUntil(lambda: widget.summary_ready, timeout=20000)
         assert widget.extinction() == pytest.approx(0.12)
         # A_V = 3.1 E(B-V) (Cardelli, Clayton & Mathis 1989)

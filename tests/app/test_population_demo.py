@@ -61,6 +61,7 @@ def test_points_per_class_on_the_demo_ledger(qtbot, demo_ledger):
 
     view = PopulationView(demo_ledger)
     qtbot.addWidget(view)
+    view.show()
     qtbot.waitUntil(lambda: view.summary_ready, timeout=60000)
     assert view.band_box.currentText() == "V"
     assert view.plots["period_amplitude"].shown_counts() == expected_pa

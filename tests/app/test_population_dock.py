@@ -128,3 +128,20 @@ def test_outliers_are_flagged_in_the_star_list(desk):
     window.verdictChanged.emit("NX-ODD")
     view.link.flush()
     assert flags["NX-ODD"] == "low snr"
+
+
+def test_a_closed_dock_reads_the_ledger_only_when_opened(qtbot, tmp_path):
+    window = StandInDesk()
+    qtbot.addWidget(window)
+    view = attach(window)  # docked closed, as the desk starts
+    window.show()
+    ledger = build_ledger(tmp_path / "nyx.ledger.sqlite")
+    try:
+        window.ledger = ledger
+        window.ledgerChanged.emit()
+        assert view.points == []  # opening a big ledger is not slowed by a closed view
+        window.views[VIEW_NAME].show()
+        qtbot.waitUntil(lambda: len(view.points) == len(ledger.star_ids()), timeout=5000)
+    finally:
+        window.close()
+        ledger.close()
