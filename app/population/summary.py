@@ -25,7 +25,7 @@ def _pm(value: float | None, err: float | None, fmt: str = ".3f") -> str:
         return "—"
     if err is None:
         return f"{value:{fmt}}"
-    return f"{value:{fmt}} ± {err:{fmt}}"
+    return f"{value:{fmt}}\u00a0±\u00a0{err:{fmt}}"  # no break inside a value
 
 
 class SummaryPanel(QtWidgets.QWidget):
@@ -105,7 +105,8 @@ class SummaryPanel(QtWidgets.QWidget):
         )
 
     def plain_text(self) -> str:
-        return self.text.toPlainText()
+        """The summary as text (non-breaking spaces as plain ones)."""
+        return self.text.toPlainText().replace("\u00a0", " ")
 
 
 def _render(state: dg.FieldState, outliers: Sequence[dg.OutlierFlag], rule: dg.OutlierRule) -> str:
@@ -145,14 +146,16 @@ def _render(state: dg.FieldState, outliers: Sequence[dg.OutlierFlag], rule: dg.O
     )
     if summary.distances:
         parts.append(
-            '<table cellspacing="0" cellpadding="2"><tr><th align=left>class</th>'
-            "<th>N used</th><th>μ₀ [mag]</th><th>d [kpc]</th></tr>"
+            '<table cellspacing="0" cellpadding="1"><tr><th align=left>class</th>'
+            "<th>N</th><th>μ₀ [mag]</th><th>d [kpc]</th></tr>"
         )
         for row in summary.distances:
+            used = f"{row.n_used}" if row.n_used == row.n_stars else f"{row.n_used}/{row.n_stars}"
             parts.append(
-                f"<tr><td>{esc(row.class_code)}</td><td align=center>{row.n_used}/{row.n_stars}"
+                f"<tr><td>{esc(row.class_code)}</td><td align=center>{used}"
                 f"</td><td>{_pm(row.mu0, row.mu0_err)}</td>"
-                f"<td>{_pm(row.distance_pc / 1000, row.distance_err_pc / 1000, '.2f')}</td></tr>"
+                f"<td>{_pm(row.distance_pc / 1000, row.distance_err_pc / 1000, '.2f')}"
+                "</td></tr>"
             )
             details = [f"scatter {row.scatter:.3f} mag"]
             if state.relations.get(row.class_code):
@@ -164,7 +167,8 @@ def _render(state: dg.FieldState, outliers: Sequence[dg.OutlierFlag], rule: dg.O
             )
         parts.append("</table>")
         parts.append(
-            "<small>Inverse-variance weighted mean of the members' μ₀ and its error; "
+            "<small>N: stars used (of the class's stars with a μ₀). "
+            "Inverse-variance weighted mean of the members' μ₀ and its error; "
             f"stars left out: {esc(summary.distances[0].outlier_rule)}.</small>"
         )
     else:

@@ -231,7 +231,7 @@ class PopulationView(QtWidgets.QWidget):
         self.splitter.addWidget(self.summary_panel)
         self.splitter.setStretchFactor(0, 4)
         self.splitter.setStretchFactor(1, 1)
-        self.splitter.setSizes([1200, 380])
+        self.splitter.setSizes([1180, 420])
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.addWidget(self.splitter)
