@@ -47,6 +47,16 @@ class PopulationLink(QtCore.QObject):
         view.star_selected.connect(window.select_star)
         view.stars_brushed.connect(window.select_stars)
         view.outliers_changed.connect(self.mark_outliers)
+        # the list's selection, marked in the diagrams (the desk has no signal for it:
+        # listen to its table's selection model when there is one)
+        star_list = getattr(window, "star_list", None)
+        table = getattr(star_list, "view", None)
+        selection = table.selectionModel() if hasattr(table, "selectionModel") else None
+        if selection is not None and hasattr(star_list, "selected_star_ids"):
+            selection.selectionChanged.connect(self.selection_changed)
+
+    def selection_changed(self, *_: Any) -> None:
+        self.view.set_selected_stars(self.window.star_list.selected_star_ids())
 
     def mark_outliers(self, reasons: dict) -> None:
         """Show the outlier rule's verdict in the star list's flags column."""
