@@ -127,7 +127,10 @@ def _duplicate_groups(time, band, usable, tolerance) -> list[np.ndarray]:
         idx = idx[np.argsort(time[idx], kind="stable")]
         if idx.size < 2:
             continue
-        breaks = np.flatnonzero(np.diff(time[idx]) > tolerance) + 1
+        close = np.diff(time[idx]) <= tolerance
+        if not close.any():  # the usual case: no duplicates, nothing to split
+            continue
+        breaks = np.flatnonzero(~close) + 1
         groups.extend(g for g in np.split(idx, breaks) if g.size > 1)
     return groups
 

@@ -110,7 +110,9 @@ class LightCurve:
                 raise PhasewiseError(
                     f"expected {n} band labels, got shape {band.shape}", file=where, field="band"
                 )
-            band = np.array([str(b).strip() for b in band], dtype=object)
+            # strip each distinct label once (a curve has a few bands, many points)
+            labels, inverse = np.unique(band.astype(str), return_inverse=True)
+            band = np.array([label.strip() for label in labels], dtype=object)[inverse]
         if self.excluded is None:
             excluded = np.zeros(n, dtype=bool)
         else:

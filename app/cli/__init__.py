@@ -17,7 +17,7 @@ from core import __version__
 from core.errors import PhasewiseError
 
 #: Modules of this package that add commands, in help order.
-COMMAND_MODULES: tuple[str, ...] = ("read", "inspect", "ledger")
+COMMAND_MODULES: tuple[str, ...] = ("read", "inspect", "ledger", "analyse")
 
 
 def build_parser() -> argparse.ArgumentParser:
