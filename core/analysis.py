@@ -2,7 +2,8 @@
 
 Steps, each a pure function of its own module::
 
-    clean → periodogram → candidates → period choice → refinement
+    clean → periodogram → candidates → period choice (with the phase-binned
+          eclipse search where the periodogram is weak) → refinement
           → Fourier decomposition (per band, residual outliers set aside)
           → prewhitening → eclipse test → features → suggestions → physics
 
@@ -20,7 +21,6 @@ astronomer decides.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 from typing import Any
@@ -45,15 +45,18 @@ from .fourier import (
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
 from .periodogram import (
     Candidate,
+    EclipseSearch,
+    EclipseSearchSettings,
     Periodogram,
     PeriodogramSettings,
     compute_periodogram,
+    eclipse_search,
     find_candidates,
 )
 from .physics import PhysicalValue, PhysicsSettings, derive
 from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten
 from .settings import settings_hash, settings_to_dict
-from .validation import require_int, require_positive, require_range
+from .validation import finite_or_none, require_int, require_positive, require_range
 
 __all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
 
@@ -87,6 +90,17 @@ class AnalysisSettings:
     rulebook : str or None
         Path of a user rulebook; None uses the user copy if present, else the
         shipped one.
+    eclipse_search : EclipseSearchSettings or None
+        The phase-binned search for narrow eclipses
+        (:func:`core.periodogram.eclipse_search`), run only where a
+        sinusoid-based periodogram is weak: when its chosen peak is not
+        significant, or when the magnitudes have the long faint tail of a
+        star that is constant but for short fadings (skewness at least
+        ``eclipse_skewness``).  None switches it off.
+    eclipse_skewness : float
+        Skewness of the primary band's magnitudes above which the eclipse
+        search also runs for a significant periodogram peak (its best
+        period then competes with the periodogram's candidates).
     """
 
     clean: CleanSettings = field(default_factory=CleanSettings)
@@ -99,6 +113,8 @@ class AnalysisSettings:
     compare_candidates: int = 3
     outlier_sigma: float | None = 5.0
     rulebook: str | None = None
+    eclipse_search: EclipseSearchSettings | None = field(default_factory=EclipseSearchSettings)
+    eclipse_skewness: float = 1.0
 
     def __post_init__(self) -> None:
         require_range("fap_threshold", self.fap_threshold, 0.0, 1.0)
@@ -115,15 +131,7 @@ class AnalysisSettings:
         return settings_hash(self)
 
 
-def _num(value: Any) -> float | None:
-    """A finite float or None (for JSON-able results)."""
-    if value is None:
-        return None
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return None
-    return number if math.isfinite(number) else None
+_num = finite_or_none  # a finite float or None, for JSON-able results
 
 
 @dataclass(frozen=True, eq=False)
@@ -146,6 +154,7 @@ class AnalysisResult:
     fap: float | None = None
     candidates: tuple[Candidate, ...] = ()
     chosen_candidate: int | None = None
+    eclipse_search: EclipseSearch | None = None
     fits: dict[str, FourierFit] = field(default_factory=dict)
     refined: RefinedFrequency | None = None
     prewhitening: Prewhitening | None = None
@@ -198,6 +207,7 @@ class AnalysisResult:
             "fap": _num(self.fap),
             "candidates": [c.to_dict() for c in self.candidates],
             "chosen_candidate": self.chosen_candidate,
+            "eclipse_search": self.eclipse_search.to_dict() if self.eclipse_search else None,
             "fourier": fits.get(self.primary_band) if fit is not None else None,
             "fourier_by_band": fits,
             "mean_mag": _num(fit.mean_mag) if fit else None,
@@ -306,7 +316,13 @@ def _analyse(
             **common,
         )
     chosen = _choose_candidate(cleaned, candidates, settings)
-    if chosen != 0:
+    candidates, chosen, search = _with_eclipse_search(cleaned, candidates, chosen, settings)
+    if candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
+        flags.append(
+            f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
+            "the periodogram's peaks were weaker; no residual outliers set aside"
+        )
+    elif chosen != 0:
         flags.append(
             f"period from candidate {chosen + 1} (multi-harmonic fit preferred it "
             "over the highest peak)"
@@ -317,7 +333,11 @@ def _analyse(
     frequency = refined.frequency if refined.converged else f0
     if not refined.converged:
         flags.append(f"period refinement did not converge: {refined.message}")
-    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, settings)
+    from_search = candidates[chosen].fap_method == ECLIPSE_FAP_METHOD
+    # a Fourier series cannot follow a narrow eclipse: its residuals would set
+    # the eclipse points aside as outliers
+    decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
+    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, decompose_settings)
     if not fits:
         raise PhasewiseError("no band supports even a first-order Fourier fit", field=lc.star_id)
     if outlier_times:
@@ -354,6 +374,7 @@ def _analyse(
         fap=fap,
         candidates=candidates,
         chosen_candidate=chosen,
+        eclipse_search=search,
         fits=fits,
         refined=refined,
         prewhitening=pw,
@@ -377,6 +398,79 @@ def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any,
     return suggest(features, rulebook)
 
 
+#: ``fap_method`` of a candidate that comes from the eclipse search.
+ECLIPSE_FAP_METHOD = "aov_binned"
+
+
+def _with_eclipse_search(
+    lc: LightCurve, candidates: tuple[Candidate, ...], chosen: int, settings: AnalysisSettings
+) -> tuple[tuple[Candidate, ...], int, EclipseSearch | None]:
+    """Run the eclipse search where it matters; its best period may take over.
+
+    * The periodogram's chosen peak is not significant: the search's best
+      peak is taken when it is significant.
+    * The magnitudes are strongly skewed to the faint side (most of the time
+      at maximum light, short fadings): the search's best peak joins the
+      multi-harmonic competition of :func:`_choose_candidate`, unless it is
+      the chosen peak, its harmonic or its subharmonic.
+
+    Two searches were made, so the search's false-alarm probability is
+    doubled (Bonferroni) before it is compared or reported.
+    """
+    if settings.eclipse_search is None:
+        return candidates, chosen, None
+    weak = not _significant(candidates[chosen].fap, settings.fap_threshold)
+    _, mag, _ = lc.arrays(lc.bands[0])
+    skewed = mag.size > 2 and float(stats.skew(mag)) >= settings.eclipse_skewness
+    if not (weak or skewed):
+        return candidates, chosen, None
+    search = eclipse_search(lc, settings.eclipse_search)
+    if search is None or not search.frequencies:
+        return candidates, chosen, search
+    fap = min(1.0, 2.0 * search.faps[0])
+    if not _significant(fap, settings.fap_threshold):
+        return candidates, chosen, search
+    f = search.frequencies[0]
+    extra = Candidate(
+        frequency=f,
+        period=1.0 / f,
+        power=search.f_values[0],
+        fap=fap,
+        snr=search.snrs[0],
+        marks=(),
+        mark_details=(
+            f"phase-binned eclipse search: F = {search.f_values[0]:.3g} with "
+            f"{search.n_bins} bins; FAP doubled for the two searches",
+        ),
+        rank=len(candidates) + 1,
+        fap_method=ECLIPSE_FAP_METHOD,
+    )
+    joined = (*candidates, extra)
+    if weak:
+        return joined, len(joined) - 1, search
+    if _harmonically_related(f, candidates[chosen].frequency, lc.baseline, settings):
+        # at f/2 a curve fits as well with twice the parameters: the choice
+        # between P and 2P is the eclipse test's and the classifier's
+        return joined, chosen, search
+    best = _best_by_bic(lc, joined, (chosen, len(joined) - 1), settings)
+    return joined, best, search
+
+
+def _harmonically_related(f: float, other: float, baseline: float, settings) -> bool:
+    """Whether ``f`` is n or 1/n times ``other`` (n = 1 .. max_harmonic) within
+    the candidates' mark tolerance."""
+    pg = settings.periodogram
+    tol = pg.mark_tolerance / baseline if baseline > 0 else 0.0
+    for n in range(1, pg.max_harmonic + 1):
+        if abs(f - n * other) <= tol or abs(n * f - other) <= tol:
+            return True
+    return False
+
+
+def _significant(fap: float | None, threshold: float) -> bool:
+    return fap is not None and bool(np.isfinite(fap)) and fap <= threshold
+
+
 def _choose_candidate(
     lc: LightCurve, candidates: tuple[Candidate, ...], settings: AnalysisSettings
 ) -> int:
@@ -391,13 +485,26 @@ def _choose_candidate(
     n = min(settings.compare_candidates, len(candidates))
     if n == 1:
         return 0
-    best, best_bic = 0, np.inf
-    for index in range(n):
+    competing = [
+        i
+        for i in range(n)
+        if i == 0 or not ({"harmonic", "subharmonic"} & set(candidates[i].marks))
+    ]
+    return _best_by_bic(lc, candidates, competing, settings)
+
+
+def _best_by_bic(
+    lc: LightCurve,
+    candidates: tuple[Candidate, ...],
+    competing: Any,
+    settings: AnalysisSettings,
+) -> int:
+    """The competing candidate whose multi-harmonic fit has the lowest BIC."""
+    competing = list(competing)
+    best, best_bic = competing[0], np.inf
+    for index in competing:
         cand = candidates[index]
-        if index > 0 and ({"harmonic", "subharmonic"} & set(cand.marks)):
-            continue
         bic = 0.0
-        n_total = 0
         for band in lc.bands:
             t, m, e = lc.arrays(band)
             try:
@@ -408,7 +515,6 @@ def _choose_candidate(
                 break
             chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
             bic += chi2 + (2 * order + 1) * np.log(t.size)
-            n_total += t.size
         # the frequency itself is one more parameter, the same for every candidate
         if bic < best_bic:
             best, best_bic = index, bic
@@ -446,7 +552,25 @@ def _decompose_with_outliers(
     return (refit or fits), times, kept
 
 
+#: Points within this share of their range of maximum light count as the
+#: plateau (our choice: well above the noise of a clear detection, well below
+#: the depth of an eclipse).
+PLATEAU_LEVEL = 0.15
+
+
 def _extra_features(lc: LightCurve, primary: str) -> dict[str, Any]:
-    """Features not read off the result dict (see ``features_from_result``)."""
+    """Features not read off the result dict (see ``features_from_result``).
+
+    ``plateau_fraction`` comes from the points, not the Fourier model: a
+    Fourier series of a narrow eclipse rings across the flat maximum.  With
+    sampling that is random in phase, the share of points near maximum
+    light is the share of the cycle spent there.
+    """
     _, mag, _ = lc.arrays(primary)
-    return {"skewness": float(stats.skew(mag))} if mag.size > 2 else {}
+    if mag.size <= 2:
+        return {}
+    bright, faint = np.percentile(mag, [5.0, 99.0])
+    out: dict[str, Any] = {"skewness": float(stats.skew(mag))}
+    if faint > bright:
+        out["plateau_fraction"] = float(np.mean(mag <= bright + PLATEAU_LEVEL * (faint - bright)))
+    return out

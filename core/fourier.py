@@ -43,7 +43,7 @@ import numpy as np
 from scipy import linalg, optimize, special
 
 from .errors import PhasewiseError
-from .validation import require_choice, require_int, require_positive, require_range
+from .validation import finite_or_none, require_choice, require_int, require_positive, require_range
 
 __all__ = [
     "FORMS",
@@ -245,8 +245,7 @@ def _centre(t: np.ndarray) -> float:
 
 
 # ------------------------------------------------------------------- results
-def _opt(x: float | None) -> float | None:
-    return None if x is None or not np.isfinite(x) else float(x)
+_opt = finite_or_none  # undefined values leave as None
 
 
 @dataclass(frozen=True)

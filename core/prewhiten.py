@@ -38,7 +38,7 @@ import numpy as np
 from .errors import PhasewiseError
 from .fourier import FourierSettings, _unpack_input, choose_order, multi_frequency_fit
 from .lightcurve import LightCurve
-from .validation import require_int, require_positive, require_range
+from .validation import finite_or_none, require_int, require_positive, require_range
 
 __all__ = ["KINDS", "PrewhitenSettings", "FoundFrequency", "Prewhitening", "prewhiten"]
 
@@ -116,8 +116,7 @@ class PrewhitenSettings:
         require_range("alias_power_fraction", self.alias_power_fraction, 0.0, 1.0)
 
 
-def _opt(x: float | None) -> float | None:
-    return None if x is None or not np.isfinite(x) else float(x)
+_opt = finite_or_none  # undefined values leave as None
 
 
 @dataclass(frozen=True)

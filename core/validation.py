@@ -21,6 +21,7 @@ __all__ = [
     "require_range",
     "require_int",
     "as_float_array",
+    "finite_or_none",
 ]
 
 
@@ -91,3 +92,18 @@ def as_float_array(
     if length is not None and array.size != length:
         raise error(f"expected {length} values, got {array.size}", field=name)
     return array
+
+
+def finite_or_none(value: Any) -> float | None:
+    """``value`` as a finite float, or None (missing, non-numeric, NaN or inf).
+
+    Results and features use None for "not measured", so JSON stays strict.
+    Strings and booleans are not numbers here.
+    """
+    if value is None or isinstance(value, (str, bool)):
+        return None
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if np.isfinite(number) else None

@@ -95,11 +95,16 @@ def print_summary(r: dict) -> None:
         f"period: {_fmt(r['period'], 7, r['period_err'])} d   "
         f"FAP {r['fap']:.2g}   method {r['method']}"
     )
-    print("candidates:")
-    for c in r["candidates"][:SHOWN]:
+    print("candidates (* = chosen):")
+    chosen = r.get("chosen_candidate")
+    for i, c in enumerate(r["candidates"]):
+        if i >= SHOWN and i != chosen:
+            continue
         marks = f"  [{'; '.join(c['mark_details'] or c['marks'])}]" if c["marks"] else ""
         fap = "—" if c["fap"] is None else f"{c['fap']:.2g}"
-        print(f"  P = {c['period']:.6f} d  power {c['power']:.3f}  FAP {fap}{marks}")
+        star = "*" if i == chosen else " "
+        method = f"  ({c['fap_method']})" if c.get("fap_method") else ""
+        print(f" {star}P = {c['period']:.6f} d  power {c['power']:.3f}  FAP {fap}{method}{marks}")
     for band, f in r["fourier_by_band"].items():
         print(
             f"{band}: mean {_fmt(f['mean_mag'], 3)}  amplitude {_fmt(f['peak_to_peak'], 3)}  "

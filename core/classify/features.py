@@ -31,6 +31,8 @@ from typing import Any
 
 import numpy as np
 
+from ..validation import finite_or_none
+
 __all__ = ["Feature", "FEATURES", "feature_info", "is_known_feature", "features_from_result"]
 
 
@@ -75,6 +77,13 @@ FEATURES: dict[str, Feature] = _features(
         "skewness of the Fourier model magnitudes over one cycle (> 0: narrow minima); "
         "the model, not the points, so outliers do not drive it",
     ),
+    (
+        "plateau_fraction",
+        "",
+        "share of the primary band's points within 15% of their range of maximum light "
+        "(range from the 5th to the 99th percentile; near 1: constant light between short "
+        "eclipses, about 0.3 for a sinusoid); filled in by the analysis",
+    ),
     ("period_ratio", "", "shorter / longer of the two strongest independent periods"),
     ("secondary_period", "d", "second independent period from prewhitening"),
     ("depth_difference", "mag", "difference of alternate minima when folded at 2 * period"),
@@ -82,7 +91,8 @@ FEATURES: dict[str, Feature] = _features(
     (
         "depth_difference_fraction",
         "",
-        "depth_difference / amplitude (filled in by suggest when both are known)",
+        "depth_difference / amplitude (filled in by suggest when both are known); when the "
+        "fold at period already shows two dips, (amplitude - depth_secondary_at_p) / amplitude",
     ),
     (
         "second_harmonic_weight",
@@ -98,6 +108,12 @@ FEATURES: dict[str, Feature] = _features(
         "orbital), 0 when it has a single minimum",
     ),
     ("depth_secondary_at_p", "mag", "depth of a second dip at period, when there is one"),
+    (
+        "unequal_minima",
+        "",
+        "1 when the alternate minima at 2P differ significantly (the curve does not repeat "
+        "at period: the true period is 2P), else 0",
+    ),
     (
         "asymmetry",
         "",
@@ -145,14 +161,7 @@ def is_known_feature(name: str) -> bool:
     return feature_info(name) is not None
 
 
-def _float(value: Any) -> float | None:
-    if value is None or isinstance(value, (str, bool)):
-        return None
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return None
-    return number if math.isfinite(number) else None
+_float = finite_or_none
 
 
 def _item(sequence: Any, index: int) -> float | None:
@@ -249,11 +258,23 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
     out["depth_difference"] = _float(eclipse.get("depth_difference"))
     out["depth_difference_err"] = _float(eclipse.get("depth_difference_err"))
     out["asymmetry"] = _float(eclipse.get("asymmetry"))
+    if fourier.get("order") == 1:
+        # a single sinusoid is symmetric by construction: asymmetry not measured
+        out["asymmetry"] = None
     odd = _float(eclipse.get("odd_harmonic_fraction"))
     out["second_harmonic_weight"] = None if odd is None else 1.0 - odd
     if eclipse:
+        unequal = eclipse.get("unequal_minima")
+        out["unequal_minima"] = None if unequal is None else float(bool(unequal))
         out["depth_secondary_at_p"] = _float(eclipse.get("depth_secondary_at_p"))
         out["two_minima_at_p"] = 0.0 if out["depth_secondary_at_p"] is None else 1.0
+        amplitude = out.get("amplitude")
+        if out["depth_secondary_at_p"] is not None and amplitude:
+            # already orbital at P: the minima to compare are the two dips at P
+            # (the deeper one is the peak-to-peak amplitude below maximum light)
+            out["depth_difference_fraction"] = max(
+                0.0, (amplitude - out["depth_secondary_at_p"]) / amplitude
+            )
 
     chosen = _chosen_candidate(result)
     if chosen is not None:

@@ -15,7 +15,9 @@ Periods tried per class:
 * eclipsing classes: ``2 P`` instead, when the fold at 2P shows two minima
   (``second_harmonic_weight >= two_minima_weight``) and the fold at P does not
   already show two dips (``two_minima_at_p`` is not 1) — the usual case where
-  the periodogram finds half the orbital period;
+  the periodogram finds half the orbital period; significantly unequal
+  alternate minima at 2P (``unequal_minima`` = 1: the curve does not repeat
+  at P) also call for 2P when the fold at P shows a single dip;
 * when the analysis marks the chosen peak as an alias (``is_alias = 1``) and
   gives the other period (``alias_period``), that period too; the better one
   is kept and the suggestion says which.
@@ -211,7 +213,10 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
     if entry.eclipsing and period is not None and period > 0:
         weight = values.get("second_harmonic_weight")
         already_orbital = values.get("two_minima_at_p") == 1.0
-        if weight is not None and weight >= book.two_minima_weight and not already_orbital:
+        # significantly unequal alternate minima: the curve does not repeat at P
+        unequal = values.get("unequal_minima") == 1.0
+        two_minima = weight is not None and weight >= book.two_minima_weight
+        if (unequal or two_minima) and not already_orbital:
             used = 2.0 * period
             trial_values = _with_period(values, used)
             depth = values.get("depth_difference")
@@ -223,7 +228,9 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
             notes.append(
                 f"the periodogram's period {period:.6g} d is likely half the true one: folded at "
                 f"2P = {used:.6g} d the curve shows two minima (second-harmonic weight "
-                f"{weight:.2f}{depth_text}); period 2P proposed"
+                f"{'unknown' if weight is None else _fmt(weight)}{depth_text}"
+                + (", significantly unequal" if unequal else "")
+                + "); period 2P proposed"
             )
     best = _score_class(entry, trial_values, book.missing_penalty)
     alias = values.get("alias_period")

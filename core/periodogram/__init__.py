@@ -10,6 +10,7 @@ from __future__ import annotations
 from ..errors import GridTooLargeError
 from .candidates import Candidate, candidate_marks, find_candidates
 from .compute import MIN_POINTS, compute_periodogram, search_bands
+from .eclipse_search import EclipseSearch, EclipseSearchSettings, eclipse_search
 from .fap import baluev_fap, f_test_fap
 from .grid import RegularGrid, frequency_grid, grid_parameters, grid_size, regular_grid_of
 from .kernels import KERNELS, METHOD_KERNELS, REFERENCE_KERNELS, Kernel
@@ -39,6 +40,9 @@ __all__ = [
     "candidate_marks",
     "Candidate",
     "baluev_fap",
+    "eclipse_search",
+    "EclipseSearch",
+    "EclipseSearchSettings",
     "f_test_fap",
     "shared_epoch_periodograms",
     "Kernel",

@@ -20,7 +20,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from ..validation import require_choice, require_range
+from ..validation import finite_or_none, require_choice, require_range
 from .distance import distance_modulus, modulus_to_distance
 from .relations import (
     I_BAND_WAVELENGTH_UM,
@@ -96,14 +96,7 @@ class PhysicalValue:
 
 
 def _num(features: Mapping[str, Any], name: str) -> float | None:
-    value = features.get(name)
-    if value is None or isinstance(value, (str, bool)):
-        return None
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return None
-    return number if math.isfinite(number) else None
+    return finite_or_none(features.get(name))
 
 
 def _err(features: Mapping[str, Any], name: str) -> float:

@@ -255,3 +255,35 @@ def test_model_skewness_and_rise_time_from_fourier_terms():
     assert single["skewness"] == pytest.approx(0.0, abs=1e-9)
     assert single["rise_time"] == pytest.approx(0.5, abs=1e-3)
     assert single["R21"] == 0.0  # order 1: no significant harmonic, taken as an upper limit
+
+
+def test_unequal_minima_call_for_2p_even_with_a_weak_second_harmonic():
+    # A fold at 2P whose alternate minima differ significantly does not repeat
+    # at P; the eclipsing classes are then scored at 2P (and say so).
+    features = {**EB_HALF, "second_harmonic_weight": 0.3, "unequal_minima": 1.0}
+    eb = _get(suggest(features), "EB")
+    assert eb.period == pytest.approx(2 * EB_HALF["period"])
+    assert "significantly unequal" in eb.note
+    plain = _get(suggest({**features, "unequal_minima": 0.0}), "EB")
+    assert plain.period == pytest.approx(EB_HALF["period"])
+    # ... but not when the fold at P already shows its own second dip
+    orbital = _get(suggest({**features, "two_minima_at_p": 1.0}), "EB")
+    assert orbital.period == pytest.approx(EB_HALF["period"])
+
+
+def test_symmetric_curve_argues_against_pulsators():
+    # eclipses are symmetric in time, pulsators rise faster than they decline
+    symmetric = suggest({**RRC, "asymmetry": 0.01})
+    asymmetric = suggest({**RRC, "asymmetry": 0.4})
+    assert _get(symmetric, "RRc").score < _get(asymmetric, "RRc").score
+    assert any("asymmetry" in a for a in _get(symmetric, "RRc").against)
+
+
+def test_plateau_of_constant_light_tells_ea_from_eb():
+    orbital = {**SIGNIFICANT, "period": 2.4, "amplitude": 0.5, "R21": 1.2, "skewness": 2.0,
+               "asymmetry": 0.02, "two_minima_at_p": 1.0, "depth_secondary_at_p": 0.15,
+               "depth_difference_fraction": 0.7}  # fmt: skip
+    flat = suggest({**orbital, "plateau_fraction": 0.9})
+    rolling = suggest({**orbital, "plateau_fraction": 0.2})
+    assert _get(flat, "EA").score > _get(rolling, "EA").score
+    assert _get(rolling, "EB").score > _get(flat, "EB").score

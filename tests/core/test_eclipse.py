@@ -150,3 +150,18 @@ def test_bad_input_is_refused_clearly():
         eclipse_test(LightCurve("demo-few", t, np.ones(5)), 2.0)
     with pytest.raises(SettingsError, match="field 'max_order'"):
         EclipseSettings(max_order=1)
+
+
+def test_fourier_ringing_is_not_a_secondary_minimum():
+    """A narrow single eclipse at its own period: the Fourier series rings, but
+    no second dip is reported; a real 40% secondary is."""
+    t = _times(5)
+    ph = np.mod(t / P_ORB, 1)
+    single = _star("demo-ea-single", t, 1 - 0.5 * _dip(ph, 0, 0.02))
+    double = _star("demo-ea-double", t, 1 - 0.5 * _dip(ph, 0, 0.02) - 0.2 * _dip(ph, 0.5, 0.02))
+    assert eclipse_test(single, 1 / P_ORB).depth_secondary_at_p is None
+    second = eclipse_test(double, 1 / P_ORB).depth_secondary_at_p
+    injected = 2.5 * np.log10(1 / (1 - 0.2))  # 0.24 mag
+    assert second == pytest.approx(injected, rel=0.3)
+    with pytest.raises(SettingsError, match="secondary_fraction"):
+        EclipseSettings(secondary_fraction=1.5)
