@@ -20,10 +20,8 @@ Other views dock into the window through these extension points:
   window commands when present.
 """
 
-from .qt_guard import protect_singletons
-
-protect_singletons()
-
-from .main_window import MainWindow  # noqa: E402
+# app/__init__.py has already run app.refguard.guard_none() (PySide6 6.12 on
+# Python 3.11 drops references to None/True/False; see that module).
+from .main_window import MainWindow
 
 __all__ = ["MainWindow"]

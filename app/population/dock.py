@@ -1,0 +1,139 @@
+"""Dock the population view into the vetting desk and link it to the star list.
+
+:func:`attach` is what ``phasewise demo`` / ``phasewise open`` call (through
+``app.cli.gui``) after making the desk window.  It uses only the desk's
+extension points: ``add_view``, ``select_star``, ``select_stars``,
+``visible_star_ids``, ``current_star``, ``ledger`` and the signals
+``starChanged(str)``, ``ledgerChanged()``, ``verdictChanged(str)``,
+``filterChanged()``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from PySide6 import QtCore
+
+from .view import PopulationView
+
+__all__ = ["attach", "VIEW_NAME", "OUTLIER_FLAG", "PopulationLink"]
+
+#: The name of the view in the desk (``--view population``).
+VIEW_NAME = "population"
+
+#: Verdicts arriving within this time are applied to the diagrams together.
+VERDICT_DELAY_MS = 250
+
+#: The flag the star list shows for stars far from their class's locus
+#: (type it in the list's filter to see them all).
+OUTLIER_FLAG = "diagram outlier"
+
+
+class PopulationLink(QtCore.QObject):
+    """Keeps a :class:`PopulationView` and the desk window in step."""
+
+    def __init__(self, window: Any, view: PopulationView) -> None:
+        super().__init__(view)
+        self.window = window
+        self.view = view
+        self._pending: set[str] = set()
+        self._flagged: set[str] = set()
+        self._timer = QtCore.QTimer(self, singleShot=True, interval=VERDICT_DELAY_MS)
+        self._timer.timeout.connect(self._apply_verdicts)
+        window.ledgerChanged.connect(self.ledger_changed)
+        window.starChanged.connect(view.set_current_star)
+        window.verdictChanged.connect(self.verdict_changed)
+        window.filterChanged.connect(self.filter_changed)
+        view.star_selected.connect(window.select_star)
+        view.stars_brushed.connect(window.select_stars)
+        view.outliers_changed.connect(self.mark_outliers)
+        # the list's selection, marked in the diagrams (the desk has no signal for it:
+        # listen to its table's selection model when there is one)
+        star_list = getattr(window, "star_list", None)
+        table = getattr(star_list, "view", None)
+        selection = table.selectionModel() if hasattr(table, "selectionModel") else None
+        if selection is not None and hasattr(star_list, "selected_star_ids"):
+            selection.selectionChanged.connect(self.selection_changed)
+
+    def selection_changed(self, *_: Any) -> None:
+        self.view.set_selected_stars(self.window.star_list.selected_star_ids())
+
+    def mark_outliers(self, reasons: dict) -> None:
+        """Show the outlier rule's verdict in the star list's flags column."""
+        model = getattr(getattr(self.window, "star_list", None), "model", None)
+        if model is None or not hasattr(model, "update_star") or not hasattr(model, "value"):
+            return
+        flagged = set(reasons)
+        for star_id in self._flagged | flagged:
+            current = model.value(star_id, "flags")
+            if current is None and model.row_of(star_id) is None:
+                continue
+            flags = [f.strip() for f in str(current or "").split(",") if f.strip()]
+            flags = [f for f in flags if f != OUTLIER_FLAG]
+            if star_id in flagged:
+                flags.append(OUTLIER_FLAG)
+            text = ",".join(flags)
+            if text != (current or ""):
+                model.update_star(star_id, flags=text)
+        self._flagged = flagged
+
+    def ledger_changed(self) -> None:
+        self._pending.clear()
+        self._flagged.clear()  # the desk re-read its rows from the ledger
+        self.view.set_ledger(self.window.ledger)
+        self.filter_changed()
+        self.view.set_current_star(self.window.current_star)
+
+    def verdict_changed(self, star_id: str) -> None:
+        self._pending.add(str(star_id))
+        self._timer.start()
+
+    def _apply_verdicts(self) -> None:
+        ids, self._pending = self._pending, set()
+        if self.window.ledger is not None and ids:
+            self.view.update_stars(ids)
+
+    def flush(self) -> None:
+        """Apply waiting verdicts now (for tests and screenshots)."""
+        self._timer.stop()
+        self._apply_verdicts()
+
+    def filter_changed(self) -> None:
+        ids = self.window.visible_star_ids() if self.window.ledger is not None else None
+        self.view.set_visible_stars(ids)
+
+
+def attach(window: Any, *, visible: bool = False) -> PopulationView:
+    """Add the population view to the desk ``window`` as a dock named ``population``."""
+    view = PopulationView()
+    link = PopulationLink(window, view)
+    view.link = link
+    dock = window.add_view(
+        VIEW_NAME,
+        view,
+        "Population diagrams",
+        area=QtCore.Qt.DockWidgetArea.BottomDockWidgetArea,
+        visible=visible,
+    )
+
+    def give_room(shown: bool) -> None:
+        # the diagrams need most of the window's height when the dock opens
+        if shown:
+            height = int(window.height() * 0.62)
+            window.resizeDocks([dock], [height], QtCore.Qt.Orientation.Vertical)
+
+    dock.visibilityChanged.connect(give_room)
+    if getattr(window, "ledger", None) is not None:
+        link.ledger_changed()
+
+    # screenshots wait for the window's workers; let them wait for the summary too
+    wait_idle = getattr(window, "wait_idle", None)
+    if wait_idle is not None:
+
+        def wait_idle_and_summary(timeout_s: float = 30.0) -> None:
+            wait_idle(timeout_s)
+            link.flush()
+            view.wait_for_summary(int(timeout_s * 1000))
+
+        window.wait_idle = wait_idle_and_summary
+    return view

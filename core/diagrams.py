@@ -1,0 +1,1054 @@
+"""Population diagrams: coordinates of every star in the field's diagnostic planes.
+
+A class is judged not only from one light curve but from where the star falls
+among the others.  This module turns per-star numbers (a :class:`StarPoint`
+per star, built from an analysis result and the verdict) into the coordinates
+of the usual diagrams, the guide lines drawn on them, and a rule that flags
+stars far from their class's locus.  Pure numpy; the population view in
+``app.population`` only draws what is computed here.
+
+Diagrams (keys of :data:`DIAGRAMS`):
+
+``period_amplitude``
+    log10 P [d] against peak-to-peak amplitude [mag] in one band.
+``phi31_logp`` / ``r21_logp``
+    Fourier planes: phi31 (sine series, rad) and R21 against log10 P.
+``period_ratio``
+    shorter/longer period against log10 of the longer period (double-mode
+    stars), with guide lines at published ratios.
+``period_luminosity``
+    log10 P against mean magnitude in one band (bright at the top), with a
+    period–luminosity relation drawn at a fitted distance modulus.
+``colour_magnitude``
+    V−I against V (bright at the top), with the instability strip.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from dataclasses import fields as dataclass_fields
+from typing import Any
+
+import numpy as np
+
+from . import physics
+from .errors import PhasewiseError
+from .validation import require_int, require_positive
+
+__all__ = [
+    "DIAGRAMS",
+    "NO_LOCUS_CLASSES",
+    "INSTABILITY_STRIP_NOTE",
+    "RATIO_GUIDES",
+    "RATIO_WINDOW",
+    "DOUBLE_MODE_CLASSES",
+    "robust_correlation",
+    "MIN_CORRELATED",
+    "StarPoint",
+    "DiagramLine",
+    "Diagram",
+    "OutlierRule",
+    "OutlierFlag",
+    "class_used",
+    "star_points",
+    "star_point",
+    "available_bands",
+    "period_amplitude",
+    "phi31_logp",
+    "phase_window_start",
+    "r21_logp",
+    "period_ratio",
+    "period_luminosity",
+    "colour_magnitude",
+    "relation_line",
+    "fit_distance_modulus",
+    "instability_strip",
+    "robust_distance",
+    "find_outliers",
+    "STANDARD_CANDLES",
+    "FieldState",
+    "class_counts",
+    "summary_members",
+    "star_physics",
+    "pl_relations",
+    "band_extinction",
+    "field_state",
+    "physics_settings_from",
+]
+
+#: Diagram keys and titles, in the order the population view shows them.
+DIAGRAMS: dict[str, str] = {
+    "period_amplitude": "Period–amplitude",
+    "phi31_logp": "Fourier plane φ31",
+    "r21_logp": "Fourier plane R21",
+    "period_ratio": "Period ratio",
+    "period_luminosity": "Period–luminosity",
+    "colour_magnitude": "Colour–magnitude",
+}
+
+#: Classes that have no locus to be far from: never used for the outlier rule.
+NO_LOCUS_CLASSES = frozenset({"UNKNOWN", "CONST", "REJECTED"})
+
+#: Verdict states whose class is the person's, not the machine's.
+_DECIDED = frozenset({"confirmed", "relabelled"})
+
+
+# --------------------------------------------------------------------------- stars
+@dataclass(frozen=True)
+class StarPoint:
+    """The numbers of one star that the population diagrams use.
+
+    Parameters
+    ----------
+    star_id : str
+    class_code : str
+        The class used: the verdict class when the person decided, else the
+        top suggestion, else ``"UNKNOWN"``; ``"REJECTED"`` for rejected stars.
+    class_source : {"verdict", "suggestion", "none"}
+    status : str
+        Verdict state (``unreviewed``, ``confirmed`` …).
+    period : float or None
+        Adopted period in days.
+    amplitude_by_band, mean_mag_by_band : mapping band -> mag
+        Peak-to-peak amplitude and mean magnitude per band.
+    R21, phi31 : float or None
+        Fourier parameters of the primary band; phi31 in the sine series (rad).
+    shorter_period, longer_period : float or None
+        The two periods of a double-mode star, in days.
+    primary_band : str or None
+    features : mapping
+        The analysis features (names of ``core.classify.FEATURES``), with the
+        verdict's period; ``core.physics.derive`` reads them.
+    """
+
+    star_id: str
+    class_code: str = "UNKNOWN"
+    class_source: str = "none"
+    status: str = "unreviewed"
+    period: float | None = None
+    amplitude_by_band: Mapping[str, float] = field(default_factory=dict)
+    mean_mag_by_band: Mapping[str, float] = field(default_factory=dict)
+    R21: float | None = None
+    phi31: float | None = None
+    shorter_period: float | None = None
+    longer_period: float | None = None
+    primary_band: str | None = None
+    features: Mapping[str, Any] = field(default_factory=dict)
+
+    @property
+    def ratio(self) -> float | None:
+        """Shorter over longer period, or None for a single-period star."""
+        if self.shorter_period is None or self.longer_period is None:
+            return None
+        return self.shorter_period / self.longer_period
+
+    def colour(self, blue: str = "V", red: str = "I") -> float | None:
+        """Mean-magnitude colour ``blue − red``, or None when a band is missing."""
+        m1, m2 = self.mean_mag_by_band.get(blue), self.mean_mag_by_band.get(red)
+        if m1 is None or m2 is None:
+            return None
+        return float(m1) - float(m2)
+
+    @classmethod
+    def from_result(
+        cls,
+        star_id: str,
+        result: Mapping[str, Any] | None,
+        *,
+        verdict_class: str | None = None,
+        status: str = "unreviewed",
+        verdict_period: float | None = None,
+    ) -> StarPoint:
+        """Build a point from an ``AnalysisResult.to_dict()`` and the verdict.
+
+        The verdict's period, when the person chose one, replaces the analysed
+        period.  A missing or failed result gives a point with no coordinates
+        (it is counted in the summary but drawn in no diagram).
+        """
+        result = result or {}
+        code, source = class_used(status, verdict_class, result.get("suggestions"))
+        period = _finite(verdict_period) or _finite(result.get("period"))
+        fourier = result.get("fourier") or {}
+        shorter, longer = _double_mode(period, result)
+        amplitudes = _band_map(result.get("amplitude_by_band"))
+        means = _band_map(result.get("mean_mag_by_band"))
+        features = _features(result, period, amplitudes, means)
+        return cls(
+            star_id=str(star_id),
+            class_code=code,
+            class_source=source,
+            status=status,
+            period=period,
+            amplitude_by_band=amplitudes,
+            mean_mag_by_band=means,
+            R21=_finite(fourier.get("R21")),
+            phi31=_sine_phi31(fourier),
+            shorter_period=shorter,
+            longer_period=longer,
+            primary_band=result.get("primary_band"),
+            features=features,
+        )
+
+
+def class_used(
+    status: str, verdict_class: str | None, suggestions: Sequence[Mapping[str, Any]] | None
+) -> tuple[str, str]:
+    """The class a star is drawn as, and where it comes from.
+
+    The person's class wins (``confirmed``/``relabelled``); a rejected star is
+    ``"REJECTED"``; otherwise the top suggestion; otherwise ``"UNKNOWN"``.
+    """
+    if status == "rejected":
+        return "REJECTED", "verdict"
+    if status in _DECIDED and verdict_class:
+        return str(verdict_class), "verdict"
+    for suggestion in suggestions or ():
+        code = suggestion.get("class") or suggestion.get("class_code")
+        if code:
+            # a confirmation without a stored class confirms the top suggestion
+            return str(code), "verdict" if status == "confirmed" else "suggestion"
+    return "UNKNOWN", "none"
+
+
+def _finite(value: Any) -> float | None:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if math.isfinite(number) else None
+
+
+def _band_map(values: Mapping[str, Any] | None) -> dict[str, float]:
+    out = {}
+    for band, value in (values or {}).items():
+        number = _finite(value)
+        if number is not None:
+            out[str(band)] = number
+    return out
+
+
+def _features(
+    result: Mapping[str, Any],
+    period: float | None,
+    amplitudes: Mapping[str, float],
+    means: Mapping[str, float],
+) -> dict[str, Any]:
+    """The analysis features, filled from the result where the analysis left them out."""
+    fourier = result.get("fourier") or {}
+    features: dict[str, Any] = {"primary_band": result.get("primary_band")}
+    for band, value in amplitudes.items():
+        features[f"amplitude_{band}"] = value
+    for band, value in means.items():
+        features[f"mean_mag_{band}"] = value
+    amps = fourier.get("amplitudes") or ()
+    for k, value in enumerate(amps[:3], start=1):
+        features[f"A{k}"] = _finite(value)
+    features["R21"] = _finite(fourier.get("R21"))
+    features["phi31"] = _sine_phi31(fourier)
+    features["period_err"] = _finite(result.get("period_err"))
+    features.update({k: v for k, v in (result.get("features") or {}).items() if v is not None})
+    if period is not None:
+        # the verdict's period, when the person chose one, is the star's period
+        features["period"] = period
+        features["log_period"] = math.log10(period) if period > 0 else None
+    return features
+
+
+def _sine_phi31(fourier: Mapping[str, Any]) -> float | None:
+    phi31 = _finite(fourier.get("phi31"))
+    if phi31 is None:
+        return None
+    if fourier.get("form", "sine") == "cosine":
+        # phi31(sin) = phi31(cos) - pi (mod 2 pi): cos x = sin(x + pi/2), see REFERENCES.md
+        phi31 = (phi31 - math.pi) % (2 * math.pi)
+    return phi31
+
+
+def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float | None, ...]:
+    """Shorter and longer of the primary and the secondary period the ratio refers to.
+
+    Only secondary periods of kind ``independent`` count (``core.prewhiten``).
+    """
+    if period is None or period <= 0:
+        return None, None
+    seconds = []
+    for entry in result.get("secondary_periods") or ():
+        if isinstance(entry, Mapping) and entry.get("kind", "independent") != "independent":
+            continue  # harmonics, combinations and side peaks are not a second mode
+        value = entry.get("period") if isinstance(entry, Mapping) else entry
+        number = _finite(value)
+        if number is not None and number > 0 and not math.isclose(number, period):
+            seconds.append(number)
+    if not seconds:
+        return None, None
+    ratio = _finite(result.get("period_ratio"))
+    if ratio is not None and ratio > 0:
+        ratio = min(ratio, 1 / ratio)
+        # the secondary period whose ratio with the primary matches the stated one
+        second = min(seconds, key=lambda p: abs(min(p, period) / max(p, period) - ratio))
+    else:
+        second = seconds[0]
+    return min(second, period), max(second, period)
+
+
+def star_points(ledger: Any) -> list[StarPoint]:
+    """One :class:`StarPoint` per star of a ledger, in the ledger's order.
+
+    Uses ``ledger.verdicts()`` and ``ledger.result(star_id)`` (see
+    ``core.ledger``); a failed or missing analysis gives a point without
+    coordinates.
+    """
+    return [_point(ledger, verdict) for verdict in ledger.verdicts()]
+
+
+def star_point(ledger: Any, star_id: str) -> StarPoint:
+    """The :class:`StarPoint` of one star of a ledger (after its verdict changed)."""
+    return _point(ledger, ledger.verdict(star_id))
+
+
+def _point(ledger: Any, verdict: Any) -> StarPoint:
+    stored = ledger.result(verdict.star_id)
+    result = None if stored is None or stored.failed else stored.result
+    return StarPoint.from_result(
+        verdict.star_id,
+        result,
+        verdict_class=verdict.class_code,
+        status=verdict.status,
+        verdict_period=verdict.period,
+    )
+
+
+def available_bands(points: Iterable[StarPoint]) -> list[str]:
+    """Bands with a mean magnitude, the most common first."""
+    counts: dict[str, int] = {}
+    for point in points:
+        for band in point.mean_mag_by_band:
+            counts[band] = counts.get(band, 0) + 1
+    return sorted(counts, key=lambda b: (-counts[b], b))
+
+
+# --------------------------------------------------------------------------- diagrams
+@dataclass(frozen=True)
+class DiagramLine:
+    """A guide drawn on a diagram: a relation, a strip edge, a reference ratio."""
+
+    label: str
+    x: np.ndarray
+    y: np.ndarray
+    kind: str = "relation"  # relation | strip | guide
+    citation: str = ""
+
+
+@dataclass(frozen=True)
+class Diagram:
+    """The coordinates of one diagnostic diagram.
+
+    ``x``, ``y``, ``star_ids`` and ``class_codes`` are parallel; only stars
+    with both coordinates finite appear.  ``scale_floor`` is the smallest
+    spread per axis the outlier rule accepts (a class whose members coincide
+    would otherwise make any neighbour an outlier); ``locus_classes``, when
+    set, are the only classes that have a locus in this diagram.
+    """
+
+    key: str
+    title: str
+    x_label: str
+    y_label: str
+    star_ids: tuple[str, ...]
+    class_codes: tuple[str, ...]
+    x: np.ndarray
+    y: np.ndarray
+    invert_y: bool = False
+    lines: tuple[DiagramLine, ...] = ()
+    note: str = ""
+    scale_floor: tuple[float, float] = (1e-3, 1e-3)
+    locus_classes: frozenset[str] | None = None  # classes the outlier rule tests (None: all)
+
+    def __len__(self) -> int:
+        return len(self.star_ids)
+
+    def counts(self) -> dict[str, int]:
+        """Number of points per class."""
+        out: dict[str, int] = {}
+        for code in self.class_codes:
+            out[code] = out.get(code, 0) + 1
+        return out
+
+    def inside(self, x_range: tuple[float, float], y_range: tuple[float, float]) -> list[str]:
+        """Star ids whose point lies in the rectangle (bounds in any order)."""
+        x0, x1 = sorted(x_range)
+        y0, y1 = sorted(y_range)
+        keep = (self.x >= x0) & (self.x <= x1) & (self.y >= y0) & (self.y <= y1)
+        return [self.star_ids[i] for i in np.flatnonzero(keep)]
+
+
+def _build(
+    key: str,
+    rows: list[tuple[str, str, float, float]],
+    **kwargs: Any,
+) -> Diagram:
+    ids = tuple(r[0] for r in rows)
+    codes = tuple(r[1] for r in rows)
+    x = np.array([r[2] for r in rows], dtype=float)
+    y = np.array([r[3] for r in rows], dtype=float)
+    x.flags.writeable = False
+    y.flags.writeable = False
+    return Diagram(
+        key=key, title=DIAGRAMS[key], star_ids=ids, class_codes=codes, x=x, y=y, **kwargs
+    )
+
+
+def _log_period(point: StarPoint) -> float | None:
+    if point.period is None or point.period <= 0:
+        return None
+    return math.log10(point.period)
+
+
+def _rows(points: Iterable[StarPoint], xy: Callable[[StarPoint], tuple[Any, Any]]) -> list:
+    rows = []
+    for point in points:
+        x, y = xy(point)
+        if x is not None and y is not None and math.isfinite(x) and math.isfinite(y):
+            rows.append((point.star_id, point.class_code, float(x), float(y)))
+    return rows
+
+
+def period_amplitude(points: Iterable[StarPoint], band: str) -> Diagram:
+    """log10 P against peak-to-peak amplitude in ``band``."""
+    rows = _rows(points, lambda p: (_log_period(p), p.amplitude_by_band.get(band)))
+    return _build(
+        "period_amplitude",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label=f"peak-to-peak amplitude {band} [mag]",
+        note=f"band {band}",
+        scale_floor=(0.005, 0.02),
+    )
+
+
+def phase_window_start(phases: Sequence[float]) -> float:
+    """Where to cut the phase circle so that no group of phases is split.
+
+    The cut is placed in the middle of the widest empty arc between the
+    phases (rounded to 0.1 rad); the phases are then shown in
+    ``[start, start + 2π)``.  Zero when there are fewer than two phases.
+    """
+    values = np.sort(np.mod(np.asarray(phases, dtype=float), 2 * math.pi))
+    if len(values) < 2:
+        return 0.0
+    gaps = np.diff(np.append(values, values[0] + 2 * math.pi))
+    k = int(np.argmax(gaps))
+    start = (values[k] + gaps[k] / 2) % (2 * math.pi)
+    return round(start, 1)
+
+
+def phi31_logp(points: Iterable[StarPoint]) -> Diagram:
+    """phi31 (sine series) against log10 P, primary band.
+
+    phi31 is an angle: it is shown in a 2π window cut where no star lies
+    (:func:`phase_window_start`), so that a class near 0 ≡ 2π is not split.
+    """
+    points = list(points)
+    start = phase_window_start([p.phi31 for p in points if p.phi31 is not None])
+
+    def xy(p: StarPoint) -> tuple[Any, Any]:
+        if p.phi31 is None:
+            return _log_period(p), None
+        return _log_period(p), start + (p.phi31 - start) % (2 * math.pi)
+
+    rows = _rows(points, xy)
+    return _build(
+        "phi31_logp",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label="φ31 (sine series) [rad]",
+        note=(
+            f"primary band of each star; shown in [{start:.1f}, {start + 2 * math.pi:.1f}) rad; "
+            "cosine-series values converted (φ31 sin = φ31 cos − π)"
+        ),
+        scale_floor=(0.005, 0.05),
+    )
+
+
+def r21_logp(points: Iterable[StarPoint]) -> Diagram:
+    """R21 against log10 P, primary band."""
+    rows = _rows(points, lambda p: (_log_period(p), p.R21))
+    return _build(
+        "r21_logp",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label="R21 = A2/A1",
+        note="primary band of each star",
+        scale_floor=(0.005, 0.01),
+    )
+
+
+#: Reference period ratios drawn on the period-ratio diagram: (label, low, high, citation).
+RATIO_GUIDES: tuple[tuple[str, float, float, str], ...] = (
+    ("RRd P1O/PF", 0.742, 0.748, "Soszyński et al. 2016, arXiv:1608.00576"),
+    ("Cepheid P1O/PF ≈ 0.72", 0.72, 0.72, "Alcock et al. 1995, AJ 109, 1653"),
+    ("Cepheid P2O/P1O ≈ 0.80", 0.80, 0.80, "Alcock et al. 1995, AJ 109, 1653"),
+)
+
+
+#: Period ratios drawn on the period-ratio diagram: double-mode pulsators lie
+#: between about 0.70 and 0.80 (RRd, Cepheids F/1O and 1O/2O; REFERENCES.md);
+#: the window is wider to show near misses (common practice, no source).
+RATIO_WINDOW = (0.60, 0.90)
+
+#: Classes with a locus in the period-ratio diagram (the outlier rule tests only these).
+DOUBLE_MODE_CLASSES = frozenset({"RRd"})
+
+_NOT_PULSATING = frozenset({"CONST", "REJECTED", "EA", "EB", "EW", "LPV"})
+
+
+def period_ratio(points: Iterable[StarPoint]) -> Diagram:
+    """Shorter/longer period against log10 of the longer period (double-mode stars).
+
+    A star is drawn when it has an independent second period whose ratio to
+    the first lies in :data:`RATIO_WINDOW`, unless its class used is
+    constant, eclipsing, long-period or rejected.
+    """
+    points = list(points)
+    low, high = RATIO_WINDOW
+
+    def xy(p: StarPoint) -> tuple[Any, Any]:
+        if p.longer_period is None or p.ratio is None or p.class_code in _NOT_PULSATING:
+            return None, None
+        if not low <= p.ratio <= high:
+            return None, None
+        return math.log10(p.longer_period), p.ratio
+
+    rows = _rows(points, xy)
+    xs = [r[2] for r in rows] or [-0.5, 0.5]
+    # guides span the stars drawn, so that they (and their labels) stay in view
+    x_span = np.array([min(xs), max(xs)]) + np.array([-0.02, 0.02])
+    lines = []
+    for label, g_low, g_high, citation in RATIO_GUIDES if rows else ():
+        for value in sorted({g_low, g_high}):
+            lines.append(
+                DiagramLine(label, x_span, np.full(2, value), kind="guide", citation=citation)
+            )
+    return _build(
+        "period_ratio",
+        rows,
+        x_label="log₁₀ P_long [d]",
+        y_label="P_short / P_long",
+        lines=tuple(lines),
+        note=(
+            f"stars with an independent second period, ratio {low:g}–{high:g}; "
+            "guide lines at published ratios"
+        ),
+        scale_floor=(0.005, 0.002),
+        locus_classes=DOUBLE_MODE_CLASSES,
+    )
+
+
+def period_luminosity(
+    points: Iterable[StarPoint], band: str, lines: Sequence[DiagramLine] = ()
+) -> Diagram:
+    """log10 P against mean magnitude in ``band``; bright at the top."""
+    rows = _rows(points, lambda p: (_log_period(p), p.mean_mag_by_band.get(band)))
+    return _build(
+        "period_luminosity",
+        rows,
+        x_label="log₁₀ P [d]",
+        y_label=f"mean {band} [mag]",
+        invert_y=True,
+        lines=tuple(lines),
+        note=f"band {band}",
+        scale_floor=(0.005, 0.03),
+    )
+
+
+def colour_magnitude(
+    points: Iterable[StarPoint],
+    blue: str = "V",
+    red: str = "I",
+    lines: Sequence[DiagramLine] = (),
+) -> Diagram:
+    """Colour ``blue − red`` against ``blue`` magnitude; bright at the top."""
+    rows = _rows(points, lambda p: (p.colour(blue, red), p.mean_mag_by_band.get(blue)))
+    return _build(
+        "colour_magnitude",
+        rows,
+        x_label=f"{blue} − {red} [mag]",
+        y_label=f"mean {blue} [mag]",
+        invert_y=True,
+        lines=tuple(lines),
+        note=f"mean magnitudes; needs both {blue} and {red}",
+        scale_floor=(0.02, 0.03),
+    )
+
+
+# --------------------------------------------------------------------------- guide lines
+def relation_line(
+    absolute_mag: Callable[[np.ndarray], np.ndarray],
+    log_period: tuple[float, float],
+    distance_modulus: float,
+    extinction: float = 0.0,
+    *,
+    label: str = "",
+    citation: str = "",
+    n: int = 50,
+) -> DiagramLine:
+    """A period–luminosity relation drawn in apparent magnitude.
+
+    ``m(log P) = M(log P) + mu + A``, where ``M`` is the relation's absolute
+    magnitude, ``mu`` the (true) distance modulus and ``A`` the extinction in
+    the relation's band (definition of the distance modulus, REFERENCES.md).
+    """
+    lo, hi = sorted(log_period)
+    x = np.linspace(lo, hi, n)
+    y = np.asarray(absolute_mag(x), dtype=float) + distance_modulus + extinction
+    return DiagramLine(label, x, y, kind="relation", citation=citation)
+
+
+def fit_distance_modulus(
+    apparent_mag: Sequence[float],
+    absolute_mag: Sequence[float],
+    absolute_err: Sequence[float] | float,
+    extinction: float = 0.0,
+) -> tuple[float, float]:
+    """Inverse-variance weighted mean true distance modulus and its error.
+
+    ``mu_i = m_i − M_i − A``; weights ``1/sigma_i**2``; error
+    ``1/sqrt(sum w)`` (common practice, no source).  The population view uses
+    core.physics for the field summary; this places a relation on a diagram
+    when the summary has no value for that class.
+    """
+    m = np.asarray(apparent_mag, dtype=float)
+    big_m = np.asarray(absolute_mag, dtype=float)
+    err = np.broadcast_to(np.asarray(absolute_err, dtype=float), m.shape)
+    ok = np.isfinite(m) & np.isfinite(big_m) & np.isfinite(err) & (err > 0)
+    if not ok.any():
+        raise PhasewiseError("no star with a magnitude and a relation value", field="members")
+    w = 1.0 / err[ok] ** 2
+    mu = m[ok] - big_m[ok] - extinction
+    return float(np.sum(w * mu) / np.sum(w)), float(1.0 / np.sqrt(np.sum(w)))
+
+
+#: How the instability strip is drawn; shown in the UI and docs.
+INSTABILITY_STRIP_NOTE = (
+    "Instability strip edges: straight-line approximation FROM MEMORY, not a published "
+    "calibration: blue edge (V−I)0 = 0.35 − 0.05 (M_V − 0.5), red edge "
+    "(V−I)0 = 0.75 − 0.06 (M_V − 0.5), for M_V from −6 to +3. For orientation only."
+)
+
+# (V-I)0 at M_V = 0.5 and slope d(V-I)0/dM_V; from memory (see INSTABILITY_STRIP_NOTE)
+_STRIP_EDGES = {"blue edge": (0.35, -0.05), "red edge": (0.75, -0.06)}
+_STRIP_MV = (-6.0, 3.0)
+
+
+def instability_strip(
+    distance_modulus: float, a_v: float = 0.0, e_v_i: float = 0.0
+) -> tuple[DiagramLine, DiagramLine]:
+    """Blue and red edges of the instability strip in the (V−I, V) plane.
+
+    The absolute edges (see :data:`INSTABILITY_STRIP_NOTE`, from memory) are
+    moved to the field: ``V = M_V + mu + A_V`` and ``V−I = (V−I)0 + E(V−I)``.
+    """
+    mv = np.linspace(*_STRIP_MV, 10)
+    lines = []
+    for colour_at_hb, slope in _STRIP_EDGES.values():
+        colour0 = colour_at_hb + slope * (mv - 0.5)
+        lines.append(
+            DiagramLine(
+                "instability strip (from memory)",
+                colour0 + e_v_i,
+                mv + distance_modulus + a_v,
+                kind="strip",
+                citation="from memory",
+            )
+        )
+    return lines[0], lines[1]
+
+
+# --------------------------------------------------------------------------- outliers
+@dataclass(frozen=True)
+class OutlierRule:
+    """Flag stars far from their class's locus.
+
+    In each diagram, for each class with at least ``min_members`` points
+    (UNKNOWN, CONST and rejected stars excluded; in the period-ratio diagram
+    only double-mode classes), each axis is standardised by the class median
+    and ``1.4826 × MAD`` (at least the diagram's ``scale_floor``), and the
+    distance is the robust Mahalanobis-like
+    ``d² = (zx² − 2 r zx zy + zy²) / (1 − r²)`` with the robust correlation
+    ``r`` of :func:`robust_correlation`; ``d > threshold`` flags the star.
+    For normal scatter, ``d > 4`` happens to one star in about 3000
+    (``exp(−d²/2)``, two degrees of freedom).
+    """
+
+    threshold: float = 4.0
+    min_members: int = 8
+
+    def __post_init__(self) -> None:
+        require_positive("outlier threshold", self.threshold)
+        require_int("outlier min_members", self.min_members, 3)
+
+    def describe(self) -> str:
+        """The rule in plain words, for the UI."""
+        return (
+            f"Outlier rule: in each diagram, per class with ≥ {self.min_members} stars, "
+            "each axis is standardised by the class median and s = 1.4826 × MAD; the "
+            "distance is d² = (zx² − 2r·zx·zy + zy²)/(1 − r²), with r the robust "
+            "(Gnanadesikan–Kettenring) correlation of the class (taken as 0 below "
+            f"{MIN_CORRELATED} stars or |r| < 2/√n), so stars along a sloping sequence are "
+            f"not flagged; flagged when d > {self.threshold:g}. UNKNOWN, CONST "
+            "and rejected stars are not tested; in the period-ratio diagram only RRd."
+        )
+
+
+@dataclass(frozen=True)
+class OutlierFlag:
+    """One star far from its class's locus in one diagram."""
+
+    star_id: str
+    class_code: str
+    diagram: str
+    distance: float
+    threshold: float
+
+    def reason(self) -> str:
+        title = DIAGRAMS.get(self.diagram, self.diagram)
+        return (
+            f"{self.distance:.1f} robust σ from the {self.class_code} locus in the "
+            f"{title} diagram (limit {self.threshold:g})"
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "star_id": self.star_id,
+            "class": self.class_code,
+            "diagram": self.diagram,
+            "distance": self.distance,
+            "threshold": self.threshold,
+            "reason": self.reason(),
+        }
+
+
+def _robust_scale(values: np.ndarray, floor: float) -> tuple[float, float]:
+    centre = float(np.median(values))
+    # 1.4826 makes the MAD a consistent estimate of a normal sigma (common practice, no source)
+    spread = max(1.4826 * float(np.median(np.abs(values - centre))), floor, 1e-300)
+    return centre, spread
+
+
+#: Fewer members than this and the outlier distance ignores correlation.
+MIN_CORRELATED = 20
+
+
+def robust_correlation(zx: np.ndarray, zy: np.ndarray) -> float:
+    """Correlation of standardised coordinates from robust spreads of their sum and difference.
+
+    ``r = (s_u² − s_v²) / (s_u² + s_v²)`` with ``u = zx + zy``, ``v = zx − zy``
+    and ``s`` = 1.4826 × MAD (Gnanadesikan & Kettenring 1972, Biometrics 28,
+    81; identity from memory).  Clipped to ±0.99 so that a perfectly thin
+    sequence does not make the distance across it infinite.
+    """
+    _, su = _robust_scale(zx + zy, 0.0)
+    _, sv = _robust_scale(zx - zy, 0.0)
+    total = su**2 + sv**2
+    if not (math.isfinite(total) and total > 0):
+        return 0.0  # coinciding points: no correlation to speak of
+    return float(np.clip((su**2 - sv**2) / total, -0.99, 0.99))
+
+
+def robust_distance(
+    x: np.ndarray,
+    y: np.ndarray,
+    scale_floor: tuple[float, float] = (0.0, 0.0),
+    *,
+    correlated: bool = True,
+) -> np.ndarray:
+    """Robust Mahalanobis-like distance of each point from the median of the points.
+
+    Each axis is standardised by its median and 1.4826 × MAD (at least
+    ``scale_floor``): ``z = (v − median) / s``.  With ``correlated`` the
+    distance is ``d² = (zx² − 2 r zx zy + zy²) / (1 − r²)``, ``r`` from
+    :func:`robust_correlation`, so that stars along a class's sloping
+    sequence (φ31 rising with period, the Bailey diagram) are not flagged.
+    ``r`` is taken as 0 for fewer than :data:`MIN_CORRELATED` points or when
+    ``|r| < 2/√n``; without ``correlated``, ``d² = zx² + zy²``.
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    cx, sx = _robust_scale(x, scale_floor[0])
+    cy, sy = _robust_scale(y, scale_floor[1])
+    zx, zy = (x - cx) / sx, (y - cy) / sy
+    r = 0.0
+    if correlated and len(x) >= MIN_CORRELATED:
+        r = robust_correlation(zx, zy)
+        # a correlation under two standard errors (1/sqrt(n)) is taken as none
+        # (common practice, no source): small classes would get spurious ones
+        if abs(r) < 2 / math.sqrt(len(x)):
+            r = 0.0
+    return np.sqrt((zx**2 - 2 * r * zx * zy + zy**2) / (1 - r**2))
+
+
+def find_outliers(
+    diagrams: Iterable[Diagram], rule: OutlierRule = OutlierRule()
+) -> tuple[OutlierFlag, ...]:
+    """Stars beyond ``rule.threshold`` from their class's locus, per diagram.
+
+    Sorted by star id, then largest distance first.
+    """
+    flags = []
+    for diagram in diagrams:
+        codes = np.asarray(diagram.class_codes, dtype=object)
+        tested = set(diagram.class_codes) - NO_LOCUS_CLASSES
+        if diagram.locus_classes is not None:
+            tested &= set(diagram.locus_classes)
+        for code in sorted(tested):
+            members = np.flatnonzero(codes == code)
+            if len(members) < rule.min_members:
+                continue
+            d = robust_distance(diagram.x[members], diagram.y[members], diagram.scale_floor)
+            for index, distance in zip(members, d, strict=True):
+                if distance > rule.threshold:
+                    flags.append(
+                        OutlierFlag(
+                            diagram.star_ids[index],
+                            code,
+                            diagram.key,
+                            float(distance),
+                            rule.threshold,
+                        )
+                    )
+    flags.sort(key=lambda f: (f.star_id, -f.distance))
+    return tuple(flags)
+
+
+# --------------------------------------------------------------------------- field state
+#: Classes whose members give a distance modulus in the field summary.
+STANDARD_CANDLES = ("RRab", "RRc", "RRd", "DCEP", "DCEP(1O)", "T2CEP", "DSCT", "SXPHE")
+
+#: Relations that can be drawn on the period–luminosity diagram.
+_PL_KERNELS = frozenset({"pl", "pl_fundamental", "pl_plain"})
+
+
+@dataclass(frozen=True)
+class FieldState:
+    """What the population view shows beside and over the diagrams.
+
+    ``summary`` is the :class:`core.physics.PopulationSummary` of the stars
+    (rejected, UNKNOWN and CONST stars left out); ``relations`` names, per
+    class, the relation behind the first distance modulus of its members.
+    ``pl_lines`` and ``strip_lines`` are the guide lines placed at the
+    field's distance modulus, with notes saying how.
+    """
+
+    ebv: float
+    a_v: float
+    e_v_i: float
+    counts: dict[str, int]
+    summary: Any
+    relations: dict[str, str]
+    strip_modulus: tuple[str, float] | None = None
+    pl_lines: tuple[DiagramLine, ...] = ()
+    pl_note: str = ""
+    strip_lines: tuple[DiagramLine, ...] = ()
+    strip_note: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "ebv": self.ebv,
+            "a_v": self.a_v,
+            "e_v_i": self.e_v_i,
+            "counts": dict(self.counts),
+            "summary": self.summary.to_dict(),
+            "relations": dict(self.relations),
+            "pl_note": self.pl_note,
+            "strip_note": self.strip_note,
+        }
+
+
+def class_counts(points: Iterable[StarPoint]) -> dict[str, int]:
+    """Number of stars per class used."""
+    counts: dict[str, int] = {}
+    for point in points:
+        counts[point.class_code] = counts.get(point.class_code, 0) + 1
+    return counts
+
+
+def summary_members(points: Iterable[StarPoint]) -> list[StarPoint]:
+    """The stars the field summary uses: all but rejected, UNKNOWN and CONST."""
+    return [p for p in points if p.class_code not in NO_LOCUS_CLASSES]
+
+
+def star_physics(points: Iterable[StarPoint], settings: Any = None) -> list[Any]:
+    """``core.physics.StarPhysics`` of each star, derived for its class used.
+
+    Values are derived again (``core.physics.derive``) rather than read from
+    the stored result, because the person's class, period or the assumed
+    extinction may differ from those of the analysis.
+    """
+    settings = settings or physics.PhysicsSettings()
+    out = []
+    for point in points:
+        values = ()
+        if point.class_code in STANDARD_CANDLES:
+            values = physics.derive(point.class_code, point.features, settings)
+        out.append(physics.StarPhysics(point.star_id, point.class_code, point.period, values))
+    return out
+
+
+def pl_relations(band: str, *, with_classes: bool = False) -> list[tuple]:
+    """``(name, label)`` of the period–luminosity relations calibrated in ``band``.
+
+    With ``with_classes``, ``(name, label, applies_to)``.
+    """
+    out = []
+    for relation in physics.RELATIONS.values():
+        if relation.kernel in _PL_KERNELS and relation.band == band:
+            classes = "/".join(relation.applies_to)
+            label = f"{classes}: {relation.citation.split(' (')[0]}"
+            out.append(
+                (relation.name, label, relation.applies_to)
+                if with_classes
+                else (relation.name, label)
+            )
+    return out
+
+
+def band_extinction(band: str, a_v: float, rv: float = 3.1) -> float | None:
+    """A_band from A_V with the CCM89 curve (V and I only; None for other bands)."""
+    if band == "V":
+        return a_v
+    if band == "I":
+        return a_v * physics.extinction_ratio_i(rv)
+    return None
+
+
+def field_state(
+    points: Sequence[StarPoint],
+    *,
+    ebv: float = 0.0,
+    pl_band: str = "V",
+    pl_relation: str | None = None,
+    blue: str = "V",
+    red: str = "I",
+    physics_settings: Mapping[str, Any] | None = None,
+) -> FieldState:
+    """Field summary and guide lines for the population view.
+
+    ``physics_settings`` are the ``PhysicsSettings`` fields the analysis used
+    (e.g. ``rv``, ``rr_mv_relation``; from the ledger's analysis settings);
+    ``ebv`` replaces theirs.
+
+    The summary is :func:`core.physics.population_summary` of
+    :func:`star_physics` of :func:`summary_members`, with the extinction
+    ``A_V = 3.1 E(B−V)`` (Cardelli, Clayton & Mathis 1989).  The
+    period–luminosity relation is drawn at the distance modulus fitted to the
+    members of its classes in the diagram (:func:`fit_distance_modulus`, the
+    relation's scatter as each star's error); the instability strip at the
+    summary's distance of the class with most members used (RRab first).
+    """
+    settings = physics_settings_from(physics_settings, ebv)
+    members = summary_members(points)
+    stars = star_physics(members, settings)
+    summary = physics.population_summary(stars)
+    relations: dict[str, str] = {}
+    for star in stars:
+        for value in star.values:
+            if value.quantity == "mu0" and value.value is not None:
+                relations.setdefault(star.class_code, value.relation)
+                break
+    a_v = float(physics.RELATIONS["ccm89_av"].evaluate({"ebv": ebv, "rv": settings.rv}))
+    e_v_i = a_v - a_v * physics.extinction_ratio_i(settings.rv)
+    pl_lines, pl_note = _pl_guides(members, pl_band, pl_relation, a_v, settings.rv)
+    strip_lines, strip_note, strip_modulus = _strip_guides(summary, blue, red, a_v, e_v_i)
+    return FieldState(
+        ebv=float(ebv),
+        a_v=a_v,
+        e_v_i=e_v_i,
+        counts=class_counts(points),
+        summary=summary,
+        relations=relations,
+        strip_modulus=strip_modulus,
+        pl_lines=pl_lines,
+        pl_note=pl_note,
+        strip_lines=strip_lines,
+        strip_note=strip_note,
+    )
+
+
+def physics_settings_from(values: Mapping[str, Any] | None, ebv: float) -> Any:
+    """``core.physics.PhysicsSettings`` from stored values (unknown keys ignored), at ``ebv``."""
+    known = {f.name for f in dataclass_fields(physics.PhysicsSettings)}
+    given = {k: v for k, v in (values or {}).items() if k in known and k != "ebv"}
+    return physics.PhysicsSettings(**given, ebv=float(ebv))
+
+
+def _pl_guides(
+    members: Sequence[StarPoint], band: str, name: str | None, a_v: float, rv: float
+) -> tuple[tuple[DiagramLine, ...], str]:
+    if not name:
+        return (), ""
+    relation = physics.RELATIONS[name]
+    extinction = band_extinction(band, a_v, rv)
+    if extinction is None:
+        return (), f"P–L relation {name}: no extinction known for band {band}; not drawn"
+    low, high = next(iter(relation.valid.values()))
+
+    def absolute(period: float) -> float:
+        return relation.evaluate({"period": period, "period_fundamental": period})
+
+    used = [
+        p
+        for p in members
+        if p.class_code in relation.applies_to
+        and p.class_code != "DCEP(1O)"  # drawn as the fundamental-mode line
+        and p.period is not None
+        and low <= p.period <= high
+        and p.mean_mag_by_band.get(band) is not None
+    ]
+    if not used:
+        return (), (
+            f"P–L relation {name}: no {'/'.join(relation.applies_to)} star with a {band} mean "
+            f"magnitude inside its period range {low:g}–{high:g} d; not drawn"
+        )
+    scatter = relation.scatter or 0.1
+    mu, mu_err = fit_distance_modulus(
+        [p.mean_mag_by_band[band] for p in used],
+        [absolute(p.period) for p in used],
+        scatter,
+        extinction,
+    )
+    line = relation_line(
+        lambda log_p: np.array([absolute(10.0**x) for x in np.atleast_1d(log_p)]),
+        (math.log10(low), math.log10(high)),
+        mu,
+        extinction,
+        label=f"{relation.formula.split(',')[0]}, μ0 = {mu:.2f}",
+        citation=relation.citation,
+    )
+    note = (
+        f"P–L line: {relation.citation} ({relation.formula}), drawn at μ0 = {mu:.3f} ± "
+        f"{mu_err:.3f} fitted to {len(used)} {'/'.join(relation.applies_to)} stars with "
+        f"A_{band} = {extinction:.3f} mag (weighted mean, relation scatter "
+        f"{scatter:g} mag per star)."
+    )
+    return (line,), note
+
+
+def _strip_guides(
+    summary: Any, blue: str, red: str, a_v: float, e_v_i: float
+) -> tuple[tuple[DiagramLine, ...], str, tuple[str, float] | None]:
+    if (blue, red) != ("V", "I"):
+        return (), "Instability strip: drawn only in the V−I, V plane.", None
+    rows = sorted(
+        summary.distances, key=lambda d: (d.class_code != "RRab", -d.n_used, d.class_code)
+    )
+    if not rows:
+        return (), "Instability strip: no distance modulus in the field summary; not drawn.", None
+    chosen = rows[0]
+    lines = instability_strip(chosen.mu0, a_v, e_v_i)
+    note = (
+        f"{INSTABILITY_STRIP_NOTE} Placed at μ0 = {chosen.mu0:.3f} ({chosen.class_code}), "
+        f"A_V = {a_v:.3f}, E(V−I) = {e_v_i:.3f} mag."
+    )
+    return lines, note, (chosen.class_code, chosen.mu0)
