@@ -188,6 +188,8 @@ def _nightly_note(period: float | None) -> str:
     if period is None or period <= 0:
         return ""
     frequency = 1.0 / period
+    if not math.isfinite(frequency):  # a denormal period: nothing near 1 c/d
+        return ""
     nearest = round(frequency)
     if 1 <= nearest <= 4 and abs(frequency - nearest) < 0.02:
         return (
