@@ -25,27 +25,9 @@ __all__ = ["StarSheet", "CLASS_CODES", "CAUTION"]
 
 def _class_codes() -> tuple[str, ...]:
     """The rulebook's class codes (core.classify), in its order."""
-    try:
-        from core.classify import CLASS_CODES as codes
-    except ImportError:  # core.classify not installed: the field's usual designations
-        codes = (
-            "RRab",
-            "RRc",
-            "RRd",
-            "DCEP",
-            "DCEP(1O)",
-            "T2CEP",
-            "ACEP",
-            "DSCT",
-            "SXPHE",
-            "EA",
-            "EB",
-            "EW",
-            "LPV",
-            "CONST",
-            "UNKNOWN",
-        )
-    return tuple(codes)
+    from core.classify import CLASS_CODES
+
+    return tuple(CLASS_CODES)
 
 
 #: The classes offered in the picker; the first ten have digit keys 1…9, 0.
