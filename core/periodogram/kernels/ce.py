@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .binning import phase_bin_index
+
 __all__ = ["conditional_entropy", "magnitude_entropy", "ce"]
 
 _CHUNK = 1_500_000
@@ -39,14 +41,10 @@ def conditional_entropy(t, y, frequency, n_phase, n_mag):
     for start in range(0, frequency.size, step):
         f = frequency[start : start + step]
         m = f.size
-        phase = np.multiply.outer(f, t)
-        phase -= np.floor(phase)
-        phase *= n_phase
-        index = phase.astype(np.intp)
-        np.minimum(index, n_phase - 1, out=index)
+        # joint (phase, magnitude) cell: offsets m*n_phase become m*cells once scaled
+        index = phase_bin_index(f, t, n_phase)
         index *= n_mag
         index += mag_bin
-        index += (np.arange(m) * cells)[:, None]
         p_joint = np.bincount(index.ravel(), minlength=m * cells).reshape(m, n_phase, n_mag) / n
         p_phase = p_joint.sum(axis=2, keepdims=True)
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .binning import phase_bin_index
 from .gls import _weights
 
 __all__ = ["pdm_theta", "pdm"]
@@ -40,13 +41,7 @@ def pdm_theta(t, y, w, frequency, n_bins):
     for start in range(0, frequency.size, step):
         f = frequency[start : start + step]
         m = f.size
-        phase = np.multiply.outer(f, t)
-        phase -= np.floor(phase)
-        phase *= n_bins
-        index = phase.astype(np.intp)
-        np.minimum(index, n_bins - 1, out=index)
-        index += (np.arange(m) * n_bins)[:, None]
-        index = index.ravel()
+        index = phase_bin_index(f, t, n_bins).ravel()
         bin_w = np.bincount(index, weights=np.tile(w, m), minlength=m * n_bins)
         bin_wy = np.bincount(index, weights=np.tile(wy, m), minlength=m * n_bins)
         filled = bin_w > 0
