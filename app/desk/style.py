@@ -57,16 +57,24 @@ def time_colours(n: int = TIME_BINS) -> list:
     return [cmap.map(x, mode="qcolor") for x in np.linspace(0.0, 0.92, n)]
 
 
-def fmt(value, digits: int = 4) -> str:
-    """A number for display, or an en dash when missing."""
+def _as_number(value) -> float | str | None:
+    """A finite float, the value's own text when it is not a number, or None."""
     if value is None:
-        return "–"
+        return None
     try:
         v = float(value)
     except (TypeError, ValueError):
         return str(value)
-    if not math.isfinite(v):
+    return v if math.isfinite(v) else None
+
+
+def fmt(value, digits: int = 4) -> str:
+    """A number for display, or an en dash when missing."""
+    v = _as_number(value)
+    if v is None:
         return "–"
+    if isinstance(v, str):
+        return v
     if v != 0 and (abs(v) < 1e-3 or abs(v) >= 1e6):
         return f"{v:.{max(digits - 1, 1)}e}"
     return f"{v:.{digits}g}" if abs(v) >= 1 else f"{v:.{digits}f}"
@@ -74,19 +82,11 @@ def fmt(value, digits: int = 4) -> str:
 
 def fmt_pm(value, error=None, digits: int = 4) -> str:
     """``value ± error`` with the value rounded to the error's first two digits."""
-    if value is None:
-        return "–"
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        return str(value)
-    if not math.isfinite(v):
-        return "–"
-    try:
-        e = float(error) if error is not None else float("nan")
-    except (TypeError, ValueError):
-        e = float("nan")
-    if not math.isfinite(e) or e <= 0:
+    v = _as_number(value)
+    if v is None or isinstance(v, str):
+        return fmt(value, digits)
+    e = _as_number(error)
+    if not isinstance(e, float) or e <= 0:
         return fmt(v, digits)
     decimals = max(0, 1 - int(math.floor(math.log10(e))))
     decimals = min(decimals, 10)
