@@ -54,7 +54,7 @@ from .periodogram import (
     find_candidates,
 )
 from .physics import PhysicalValue, PhysicsSettings, derive
-from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten
+from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten, residual_search
 from .settings import settings_hash, settings_to_dict
 from .validation import finite_or_none, require_int, require_positive, require_range
 
@@ -348,7 +348,9 @@ def _analyse(
     pw_settings = settings.prewhiten
     if pw_settings.main_order is None:
         pw_settings = replace(pw_settings, main_order=fits[primary].order)
-    pw = prewhiten(analysed, frequency, pw_settings)
+    # the residuals are searched on the main search's range
+    residuals = residual_search(pw_settings.search_oversampling, settings.periodogram)
+    pw = prewhiten(analysed, frequency, pw_settings, search=residuals)
     try:
         ecl = eclipse_test(
             analysed, frequency, settings.eclipse, fit_at_period=fits.get(analysed.bands[0])

@@ -30,7 +30,7 @@ Cepheids pulsating in the fundamental and first overtone.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -40,7 +40,14 @@ from .fourier import FourierSettings, _unpack_input, choose_order, multi_frequen
 from .lightcurve import LightCurve
 from .validation import finite_or_none, require_int, require_positive, require_range
 
-__all__ = ["KINDS", "PrewhitenSettings", "FoundFrequency", "Prewhitening", "prewhiten"]
+__all__ = [
+    "KINDS",
+    "PrewhitenSettings",
+    "FoundFrequency",
+    "Prewhitening",
+    "prewhiten",
+    "residual_search",
+]
 
 KINDS = ("main", "harmonic", "side peak", "combination", "independent")
 
@@ -221,11 +228,21 @@ class Prewhitening:
 
 
 # ------------------------------------------------------------------- search
-def _default_search(oversampling: int) -> Search:
-    def search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
-        from .periodogram import PeriodogramSettings, compute_periodogram
+def residual_search(oversampling: float = 3, periodogram=None) -> Search:
+    """The default residual search: a generalized Lomb–Scargle periodogram.
 
-        settings = PeriodogramSettings(method="gls", oversampling=oversampling)
+    On the frequency range (and band combination) of ``periodogram``, a
+    :class:`~core.periodogram.PeriodogramSettings` (the defaults if None),
+    with ``oversampling`` points per peak width.  The residuals keep the
+    points of the light curve, so every step after the first reuses the
+    weight terms of the transform (:func:`core.periodogram.kernels.gls.weight_terms`).
+    """
+    from .periodogram import PeriodogramSettings, compute_periodogram
+
+    base = PeriodogramSettings() if periodogram is None else periodogram
+    settings = replace(base, method="gls", oversampling=oversampling)
+
+    def search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
         pg = compute_periodogram(residual, settings)
         return np.asarray(pg.frequency), np.asarray(pg.power)
 
@@ -366,7 +383,7 @@ def prewhiten(
     Prewhitening
     """
     settings = settings or PrewhitenSettings()
-    search = search or _default_search(settings.search_oversampling)
+    search = search or residual_search(settings.search_oversampling)
     f_main = float(frequency)
     if not np.isfinite(f_main) or f_main <= 0:
         raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")

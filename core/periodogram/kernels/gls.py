@@ -17,9 +17,15 @@ Zechmeister, M. & Kürster, M. 2009, A&A 496, 577.
 
 from __future__ import annotations
 
+import threading
+from collections import OrderedDict
+from typing import NamedTuple
+
 import numpy as np
 
-__all__ = ["gls_exact", "gls_nufft", "CHUNK_ELEMENTS"]
+from .nufft import trig_sums
+
+__all__ = ["gls_exact", "gls_nufft", "weight_terms", "WeightTerms", "CHUNK_ELEMENTS"]
 
 #: Frequencies x points handled at once by the numpy kernels (bounds memory).
 CHUNK_ELEMENTS = 2_000_000
@@ -67,16 +73,104 @@ def gls_exact(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
 
 
 def gls_nufft(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
-    """Fast GLS on a uniform grid through nifty-ls (finufft backend, float64).
+    """Fast GLS on a uniform grid from non-uniform FFTs (FINUFFT, float64).
 
-    ``y`` may be 2-D (one row per star, same times): one batched transform.
-    A non-uniform ``frequency`` falls back to :func:`gls_exact`.
+    ``y`` may be 2-D (one row per star, same times).  A non-uniform
+    ``frequency`` falls back to :func:`gls_exact`.
+
+    The power is the floating-mean formula of Zechmeister & Kürster (2009)
+    written with the trigonometric sums of three transforms: ``w y`` at f,
+    and ``w`` at f and 2f.  The last two depend on the times and weights
+    only; they are kept for the last few (times, weights, grid) seen in this
+    thread (:func:`weight_terms`), so the residual searches of
+    prewhitening, which keep the points and change only the magnitudes,
+    pay one transform each.
     """
     if grid is None:
         return gls_exact(t, y, dy, frequency)
-    from nifty_ls import finufft as backend
+    t = np.ascontiguousarray(t, dtype=float)
+    y = np.asarray(y, dtype=float)
+    w = np.ascontiguousarray(_weights(y, dy), dtype=float)
+    if y.ndim == 1:
+        return _gls_fast_one(t, y, w, grid, n_threads), None
+    rows = [_gls_fast_one(t, yi, wi, grid, n_threads) for yi, wi in zip(y, w, strict=True)]
+    return np.stack(rows), None
 
-    power = backend.lombscargle(
-        t, y, grid.fmin, grid.df, grid.n, dy=dy, nthreads=n_threads, normalization="standard"
-    )
-    return power, None
+
+def _gls_fast_one(t, y, w, grid, n_threads):
+    terms = weight_terms(t, w, grid, n_threads=n_threads)
+    w = w / w.sum()
+    y = y - np.dot(w, y)
+    norm = np.dot(w, y * y)
+    f1 = trig_sums(t, w * y, grid.fmin, grid.df, grid.n, n_threads=n_threads)
+    yc, ys = f1.real, f1.imag  # y is centred, so these are YC and YS of the paper
+    power = terms.a * yc * yc
+    power += terms.b * ys * ys
+    power += terms.c * yc * ys
+    power /= norm
+    return power
+
+
+class WeightTerms(NamedTuple):
+    """What the GLS power needs of the times and weights alone, per frequency.
+
+    With the weighted (co)variances CC, SS, CS of cos and sin about their
+    means and D = CC SS - CS^2 (Zechmeister & Kürster 2009, eqs. 5-13), the
+    power of centred data is ``(a YC^2 + b YS^2 + c YC YS) / YY`` with
+    ``a = SS/D``, ``b = CC/D``, ``c = -2 CS/D``.
+    """
+
+    a: np.ndarray
+    b: np.ndarray
+    c: np.ndarray
+
+    @property
+    def nbytes(self) -> int:
+        return sum(x.nbytes for x in self)
+
+
+#: Bytes of weight terms kept per thread (four float64 arrays per grid).
+WEIGHT_CACHE_BYTES = 64 * 2**20
+
+_local = threading.local()
+
+
+def weight_terms(t, w, grid, *, n_threads: int = 1) -> WeightTerms:
+    """The :class:`WeightTerms` of times ``t`` and weights ``w`` on ``grid``.
+
+    Kept for the last few exact (times, weights, grid) of this thread, up
+    to :data:`WEIGHT_CACHE_BYTES`.
+    """
+    t = np.ascontiguousarray(t, dtype=float)
+    w = np.ascontiguousarray(w, dtype=float)
+    key = (t.tobytes(), w.tobytes(), float(grid.fmin), float(grid.df), int(grid.n))
+    cache: OrderedDict = getattr(_local, "weights", None)
+    if cache is None:
+        cache = _local.weights = OrderedDict()
+    terms = cache.get(key)
+    if terms is not None:
+        cache.move_to_end(key)
+        return terms
+    wn = w / w.sum()
+    fw = trig_sums(t, wn, grid.fmin, grid.df, grid.n, n_threads=n_threads)
+    f2 = trig_sums(2.0 * t, wn, grid.fmin, grid.df, grid.n, n_threads=n_threads)
+    # C, S: weighted sums of cos and sin at f; cos^2 = (1 + cos 2x) / 2 etc.
+    # turn the sums at 2f into those of the squares and the product
+    c, s = fw.real, fw.imag
+    cc = 0.5 * (1.0 + f2.real) - c * c
+    ss = 0.5 * (1.0 - f2.real) - s * s
+    cs = 0.5 * f2.imag - c * s
+    d = cc * ss
+    d -= cs * cs
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv = 1.0 / d
+    ss *= inv
+    cc *= inv
+    cs *= -2.0 * inv
+    terms = WeightTerms(ss, cc, cs)
+    cache[key] = terms
+    total = sum(v.nbytes for v in cache.values())
+    while len(cache) > 1 and total > WEIGHT_CACHE_BYTES:
+        _, dropped = cache.popitem(last=False)
+        total -= dropped.nbytes
+    return terms

@@ -1,0 +1,134 @@
+"""The transform layer under the fast GLS: trigonometric sums, reused plans and weight terms."""
+
+from __future__ import annotations
+
+import threading
+
+import numpy as np
+import pytest
+from astropy.timeseries import LombScargle
+
+from core.periodogram.grid import RegularGrid
+from core.periodogram.kernels import gls as gls_module
+from core.periodogram.kernels.gls import gls_nufft, weight_terms
+from core.periodogram.kernels.nufft import clear_plans, trig_sums
+
+
+def _direct(t, c, frequency):
+    return np.exp(2j * np.pi * np.multiply.outer(frequency, t)) @ c
+
+
+@pytest.mark.parametrize(
+    ("fmin", "df", "n"),
+    [
+        (0.001, 0.0002, 5000),  # a long baseline from 1/T
+        (40.0, 0.003, 2001),  # a grid far from zero (fast pulsators)
+        (0.5, 0.4, 301),  # a step coarse enough that 2 pi df t leaves [-3 pi, 3 pi]
+    ],
+)
+def test_trig_sums_equal_direct_sums(fmin, df, n):
+    # Reference: the sums written out, sum_i c_i exp(2 pi i f t_i) (definition).
+    rng = np.random.default_rng(11)
+    t = np.sort(rng.uniform(-400.0, 400.0, 300))
+    c = rng.normal(size=300) + 1j * rng.normal(size=300)
+    frequency = fmin + df * np.arange(n)
+    got = trig_sums(t, c, fmin, df, n)
+    want = _direct(t, c, frequency)
+    assert np.max(np.abs(got - want)) < 1e-7 * np.sum(np.abs(c))
+
+
+def test_plans_are_reused_and_can_be_dropped():
+    rng = np.random.default_rng(2)
+    t1, t2 = rng.uniform(-10, 10, 50), rng.uniform(-10, 10, 80)
+    c1, c2 = rng.normal(size=50), rng.normal(size=80)
+    clear_plans()
+    first = trig_sums(t1, c1, 0.1, 0.01, 1000)
+    # other points on the same grid size reuse the plan; results stay exact
+    other = trig_sums(t2, c2, 0.1, 0.01, 1000)
+    again = trig_sums(t1, c1, 0.1, 0.01, 1000)
+    assert np.array_equal(first, again)
+    frequency = 0.1 + 0.01 * np.arange(1000)
+    assert np.max(np.abs(other - _direct(t2, c2, frequency))) < 1e-7 * np.abs(c2).sum()
+
+
+def test_fast_gls_equals_astropy_and_nifty_ls():
+    # References: astropy LombScargle(method="slow"), standard normalisation, and
+    # the nifty-ls finufft backend (Garrison et al. 2024), both outside this project.
+    from nifty_ls import finufft as nifty
+
+    rng = np.random.default_rng(5)
+    t = np.sort(rng.uniform(0, 300, 400))
+    t -= 0.5 * (t[0] + t[-1])
+    y = 0.3 * np.sin(2 * np.pi * t / 0.613) + rng.normal(0, 0.1, t.size)
+    dy = rng.uniform(0.05, 0.2, t.size)
+    grid = RegularGrid(1.0 / 300, 1.0 / 1500, 20_000)
+    power, _ = gls_nufft(t, y, dy, grid.frequencies(), grid=grid)
+    slow = LombScargle(t, y, dy).power(grid.frequencies()[::40], method="slow")
+    assert np.max(np.abs(power[::40] - slow)) < 1e-8
+    other = nifty.lombscargle(t, y, grid.fmin, grid.df, grid.n, dy=dy, nthreads=1)
+    assert np.max(np.abs(power - other)) < 1e-10
+
+
+def test_weight_terms_are_kept_for_the_same_points_and_not_for_others():
+    rng = np.random.default_rng(8)
+    t = rng.uniform(-50, 50, 200)
+    w = rng.uniform(1, 4, 200)
+    grid = RegularGrid(0.01, 0.002, 3000)
+    first = weight_terms(t, w, grid)
+    assert weight_terms(t.copy(), w.copy(), grid) is first  # equal content: kept
+    w2 = w.copy()
+    w2[7] = 0.0  # one point without weight is another star
+    assert weight_terms(t, w2, grid) is not first
+    assert weight_terms(t, w, RegularGrid(0.01, 0.002, 3001)) is not first
+
+
+def test_weight_cache_is_bounded(monkeypatch):
+    monkeypatch.setattr(gls_module, "WEIGHT_CACHE_BYTES", 1)
+    rng = np.random.default_rng(9)
+    grid = RegularGrid(0.01, 0.002, 1000)
+    t = rng.uniform(-50, 50, 100)
+    first = weight_terms(t, np.ones(100), grid)
+    weight_terms(t, np.full(100, 2.0), grid)
+    # over the byte budget only the newest entry stays: the first is computed anew
+    assert weight_terms(t, np.ones(100), grid) is not first
+
+
+def test_the_residual_searches_of_one_star_match_fresh_computations():
+    # A cached weight-term set must give the same power as computing from scratch.
+    rng = np.random.default_rng(4)
+    t = np.sort(rng.uniform(-100, 100, 300))
+    dy = rng.uniform(0.01, 0.05, 300)
+    grid = RegularGrid(0.005, 0.001, 8000)
+    powers = []
+    for k in range(3):
+        y = np.sin(2 * np.pi * (k + 1) * 0.37 * t) + rng.normal(0, 0.02, t.size)
+        powers.append((y, gls_nufft(t, y, dy, None, grid=grid)[0]))
+    gls_module._local.weights.clear()
+    for y, cached in powers:
+        fresh, _ = gls_nufft(t, y, dy, None, grid=grid)
+        assert np.array_equal(fresh, cached)
+
+
+def test_threads_compute_independently():
+    # Plans are per thread: concurrent searches give what one thread gives.
+    rng = np.random.default_rng(12)
+    grid = RegularGrid(0.01, 0.001, 20_000)
+    data = []
+    for _ in range(4):
+        t = np.sort(rng.uniform(-200, 200, 250))
+        y = np.sin(2 * np.pi * rng.uniform(0.5, 3) * t) + rng.normal(0, 0.3, t.size)
+        data.append((t, y))
+    expected = [gls_nufft(t, y, None, None, grid=grid)[0] for t, y in data]
+    results: dict[int, list] = {}
+
+    def work(index: int) -> None:
+        results[index] = [gls_nufft(t, y, None, None, grid=grid)[0] for t, y in data * 3]
+
+    threads = [threading.Thread(target=work, args=(i,)) for i in range(3)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    for got in results.values():
+        for power, want in zip(got, expected * 3, strict=True):
+            assert np.max(np.abs(power - want)) < 1e-12
