@@ -656,9 +656,8 @@ def analyse_ledger(
         The ledger cannot be opened for writing, ``only`` or ``workers`` is
         invalid, or the Dask scheduler cannot be reached.
     """
-    from .analysis import AnalysisSettings
     from .ledger import Ledger
-    from .settings_file import settings_from_dict
+    from .settings_file import ledger_settings
 
     if only not in ONLY_CHOICES:
         raise PhasewiseError(
@@ -672,12 +671,7 @@ def analyse_ledger(
     ledger = Ledger.open(ledger_path)
     try:
         if settings is None:
-            stored = ledger.analysis_settings()
-            settings = (
-                AnalysisSettings()
-                if stored is None
-                else settings_from_dict(stored[0], source=str(ledger_path))
-            )
+            settings = ledger_settings(ledger, source=str(ledger_path))
         todo = ledger.stars_needing_analysis(settings.hash, only=only)
         skipped = ledger.n_stars - len(todo)
         stale_left = 0

@@ -25,7 +25,7 @@ from typing import Any
 
 from .errors import PhasewiseError
 
-__all__ = ["load_settings", "settings_from_dict"]
+__all__ = ["load_settings", "settings_from_dict", "ledger_settings"]
 
 
 def load_settings(path: str | Path):
@@ -58,6 +58,21 @@ def settings_from_dict(data: Mapping[str, Any], *, source: str | None = None):
     from .analysis import AnalysisSettings
 
     return _build(AnalysisSettings, data, prefix="", source=source)
+
+
+def ledger_settings(ledger, *, source: str | None = None):
+    """The analysis settings a ledger's results were last computed with.
+
+    The defaults when the ledger records none.  Raises
+    :class:`~core.errors.SettingsError` (naming the field) when the stored
+    settings no longer fit this version's settings.
+    """
+    from .analysis import AnalysisSettings
+
+    stored = ledger.analysis_settings()
+    if stored is None:
+        return AnalysisSettings()
+    return settings_from_dict(stored[0], source=source)
 
 
 def _build(cls: type, data: Any, *, prefix: str, source: str | None):

@@ -434,6 +434,7 @@ class MainWindow(QMainWindow):
         self._stars.clear()
         self._periodograms.clear()
         self.ledger = ledger
+        self.analysis_settings = None  # each ledger brings its own
         self.ledger_path = Path(path) if path else None
         self.refresh_rows()
         name = self.ledger_path.name if self.ledger_path else "ledger"
@@ -450,16 +451,31 @@ class MainWindow(QMainWindow):
             self.select_star(target)
         if self.analysis_settings is None:
             # core.analysis (and scipy.stats) load after the first star is on screen
-            self.workers.start(self.services.default_settings, on_result=self._settings_ready)
+            self.workers.start(
+                lambda: self._settings_of(ledger),
+                on_result=lambda settings: self._settings_ready(ledger, settings),
+            )
 
-    def _settings_ready(self, settings) -> None:
-        if self.analysis_settings is None:
+    def _settings_of(self, ledger):
+        """The ledger's own settings; the defaults (and a message) if they no longer fit."""
+        try:
+            return self.services.ledger_settings(ledger), ""
+        except PhasewiseError as exc:
+            return self.services.default_settings(), (
+                f"The ledger's analysis settings could not be used ({exc}); defaults are in use."
+            )
+
+    def _settings_ready(self, ledger, outcome) -> None:
+        settings, message = outcome
+        if self.analysis_settings is None and ledger is self.ledger:
             self.analysis_settings = settings
+            if message:
+                self.statusBar().showMessage(message)
 
     def settings(self):
-        """The analysis settings in use (the defaults until changed)."""
+        """The analysis settings in use: the ledger's own until changed here."""
         if self.analysis_settings is None:
-            self.analysis_settings = self.services.default_settings()
+            self._settings_ready(self.ledger, self._settings_of(self.ledger))
         return self.analysis_settings
 
     def refresh_rows(self) -> None:

@@ -38,6 +38,14 @@ class CoreServices:
 
         return AnalysisSettings()
 
+    def ledger_settings(self, ledger):
+        """The settings the ledger's results were computed with (defaults if none)."""
+        from core.settings_file import ledger_settings
+
+        if ledger is None or not hasattr(ledger, "analysis_settings"):
+            return self.default_settings()
+        return ledger_settings(ledger)
+
     def periodogram_settings(self, settings):
         pg = getattr(settings, "periodogram", None)
         if pg is None:

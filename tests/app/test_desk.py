@@ -216,6 +216,27 @@ def test_analysis_settings_change_the_periodogram(desk, qtbot, monkeypatch):
     assert "re-analyse" in desk.statusBar().currentMessage()
 
 
+def test_desk_uses_the_settings_stored_in_the_ledger(qtbot, qsettings, subset_copy):
+    from dataclasses import replace
+
+    from core.analysis import AnalysisSettings
+    from core.ledger import Ledger
+
+    stored = AnalysisSettings()
+    stored = replace(stored, periodogram=replace(stored.periodogram, fmax=12.0, oversampling=3))
+    with Ledger.open(subset_copy) as ledger:
+        ledger.set_analysis_settings(stored.to_dict(), stored.hash)
+    window = MainWindow(settings=qsettings)
+    try:
+        window.open_ledger(subset_copy)
+        window.show()
+        qtbot.waitUntil(lambda: window.analysis_settings is not None, timeout=10000)
+        assert window.settings().hash == stored.hash
+        assert window.settings().periodogram.fmax == 12.0
+    finally:
+        dispose(window)
+
+
 def test_star_model_scales_to_ten_thousand_rows(qtbot):
     model = StarTableModel()
     rows = [
