@@ -20,6 +20,10 @@ band has its own weighted mean removed (the bands share the phase
 bins; eclipse depths in V and I are alike).  ``F`` does not depend on a
 common scale of the errors.
 
+The loop over trial frequencies and points is compiled with numba
+(``_aov_loop.py``); it bins the phases with the same floating-point
+operations as a plain numpy version would.
+
 Significance: for Gaussian noise F follows the F distribution with
 (r - 1, N - r) degrees of freedom at one frequency (Schwarzenberg-Czerny
 1989).  Over the grid the false-alarm probability is bounded by
@@ -41,11 +45,10 @@ from typing import Any
 
 import numpy as np
 
+from ..errors import SettingsError
 from ..validation import require_int, require_positive, require_range
 
 __all__ = ["EclipseSearchSettings", "EclipseSearch", "eclipse_search"]
-
-_CHUNK = 150_000
 
 #: Median absolute deviation to Gaussian sigma (common practice, no source).
 MAD_TO_SIGMA = 1.4826
@@ -139,48 +142,53 @@ def _prepare(lc, clip: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def aov_binned(t, y, w, frequency, n_bins, shifts=(0.0, 0.5)):
-    """Largest F over the bin offsets, and its filled-bin count, per frequency."""
-    t = np.asarray(t, dtype=float) - np.min(t)
+    """Largest F over the bin offsets, and its filled-bin count, per frequency.
+
+    Parameters
+    ----------
+    t, y, w : array_like
+        Times (days), magnitudes of zero weighted mean and weights.
+    frequency : array_like
+        Trial frequencies (cycles/day).
+    n_bins : int
+        Phase bins.
+    shifts : sequence of float
+        Offsets of the bin edges, each in [0, 1) of a bin width.
+
+    Returns
+    -------
+    f_value : ndarray
+        The largest F over ``shifts`` (0 where fewer than two bins hold points).
+    filled : ndarray of int
+        Bins holding points at that offset (2 where ``f_value`` is 0).
+    """
+    from ._aov_loop import aov_binned_loop  # imported here: numba is slow to import
+
+    t = np.asarray(t, dtype=float)
+    y = np.asarray(y, dtype=float)
+    w = np.asarray(w, dtype=float)
+    frequency = np.ascontiguousarray(frequency, dtype=float)
+    shifts = np.asarray(shifts, dtype=float)
+    # the compiled loop does not check bounds: bad input must not get there
+    if t.ndim != 1 or y.shape != t.shape or w.shape != t.shape:
+        raise SettingsError(f"expected 1-d t, y, w of one length, got {y.shape}", field="t")
+    if frequency.ndim != 1 or not np.all(np.isfinite(frequency)):
+        raise SettingsError("expected a 1-d array of finite numbers", field="frequency")
+    if not np.all(np.isfinite(t)):
+        raise SettingsError("expected finite times", field="t")
+    n_bins = require_int("n_bins", n_bins, 1, None)
+    if shifts.ndim != 1 or not np.all((shifts >= 0.0) & (shifts < 1.0)):
+        raise SettingsError(f"got {shifts}; expected numbers in [0, 1)", field="shifts")
     wy = w * y
-    total = float(np.dot(wy, y))
-    n = t.size
-    best_f = np.zeros(frequency.size)
-    best_r = np.full(frequency.size, 2)
-    # small chunks stay in cache: the work is a few passes over (chunk x n)
-    step = max(1, _CHUNK // n)
-    tiled_w = np.tile(w, step)
-    tiled_wy = np.tile(wy, step)
-    offsets = (np.arange(step) * n_bins)[:, None]
-    for start in range(0, frequency.size, step):
-        f = frequency[start : start + step]
-        m = f.size
-        phase = np.multiply.outer(f, t)
-        phase -= np.floor(phase)
-        phase *= n_bins
-        index = np.empty(phase.shape, dtype=np.intp)
-        for shift in shifts:
-            if shift:
-                phase += shift
-            np.copyto(index, phase, casting="unsafe")
-            if shift:
-                index[index == n_bins] = 0
-            index += offsets[:m]
-            flat = index.ravel()
-            bin_w = np.bincount(flat, weights=tiled_w[: m * n], minlength=m * n_bins)
-            bin_wy = np.bincount(flat, weights=tiled_wy[: m * n], minlength=m * n_bins)
-            filled = bin_w > 0
-            np.divide(bin_wy**2, bin_w, out=bin_wy, where=filled)
-            bin_wy[~filled] = 0.0
-            between = bin_wy.reshape(m, n_bins).sum(axis=1)
-            r = filled.reshape(m, n_bins).sum(axis=1)
-            within = np.maximum(total - between, 1e-300)
-            fv = (between / np.maximum(r - 1, 1)) / (within / np.maximum(n - r, 1))
-            fv[r <= 1] = 0.0
-            chunk_f = best_f[start : start + step]
-            better = fv > chunk_f
-            chunk_f[better] = fv[better]
-            best_r[start : start + step][better] = r[better]
-    return best_f, best_r
+    return aov_binned_loop(
+        np.ascontiguousarray(t - np.min(t)),
+        np.ascontiguousarray(w),
+        np.ascontiguousarray(wy),
+        float(np.dot(wy, y)),
+        frequency,
+        n_bins,
+        shifts,
+    )
 
 
 def _distinct_peaks(frequency, value, k, separation) -> list[int]:
