@@ -98,16 +98,16 @@ def gls_nufft(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
 
 
 def _gls_fast_one(t, y, w, grid, n_threads):
+    from ._gls_loop import power_loop  # imported here: numba is slow to import
+
     terms = weight_terms(t, w, grid, n_threads=n_threads)
     w = w / w.sum()
     y = y - np.dot(w, y)
     norm = np.dot(w, y * y)
     f1 = trig_sums(t, w * y, grid.fmin, grid.df, grid.n, n_threads=n_threads)
-    yc, ys = f1.real, f1.imag  # y is centred, so these are YC and YS of the paper
-    power = terms.a * yc * yc
-    power += terms.b * ys * ys
-    power += terms.c * yc * ys
-    power /= norm
+    power = np.empty(grid.n)
+    # y is centred, so the real and imaginary parts of f1 are YC and YS of the paper
+    power_loop(f1, terms.a, terms.b, terms.c, float(norm), power)
     return power
 
 
@@ -129,7 +129,7 @@ class WeightTerms(NamedTuple):
         return sum(x.nbytes for x in self)
 
 
-#: Bytes of weight terms kept per thread (four float64 arrays per grid).
+#: Bytes of weight terms kept per thread (three float64 arrays per grid).
 WEIGHT_CACHE_BYTES = 64 * 2**20
 
 _local = threading.local()
@@ -151,23 +151,13 @@ def weight_terms(t, w, grid, *, n_threads: int = 1) -> WeightTerms:
     if terms is not None:
         cache.move_to_end(key)
         return terms
+    from ._gls_loop import weight_terms_loop  # imported here: numba is slow to import
+
     wn = w / w.sum()
     fw = trig_sums(t, wn, grid.fmin, grid.df, grid.n, n_threads=n_threads)
     f2 = trig_sums(2.0 * t, wn, grid.fmin, grid.df, grid.n, n_threads=n_threads)
-    # C, S: weighted sums of cos and sin at f; cos^2 = (1 + cos 2x) / 2 etc.
-    # turn the sums at 2f into those of the squares and the product
-    c, s = fw.real, fw.imag
-    cc = 0.5 * (1.0 + f2.real) - c * c
-    ss = 0.5 * (1.0 - f2.real) - s * s
-    cs = 0.5 * f2.imag - c * s
-    d = cc * ss
-    d -= cs * cs
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = 1.0 / d
-    ss *= inv
-    cc *= inv
-    cs *= -2.0 * inv
-    terms = WeightTerms(ss, cc, cs)
+    terms = WeightTerms(np.empty(grid.n), np.empty(grid.n), np.empty(grid.n))
+    weight_terms_loop(fw, f2, *terms)
     cache[key] = terms
     total = sum(v.nbytes for v in cache.values())
     while len(cache) > 1 and total > WEIGHT_CACHE_BYTES:
