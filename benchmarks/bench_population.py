@@ -5,9 +5,17 @@ stars): the time to compute the six diagrams and the outlier rule
 (core.diagrams), the field summary (core.diagrams.field_state, which calls
 core.physics.derive per star and core.physics.population_summary), and, with
 ``--gui``, the population view's redraw of all six diagrams (offscreen).  The
-ratio large/small shows how each part scales (10 = linear).  Usage::
+ratio large/small shows how each part scales (10 = linear).  The large field
+is ten copies of the small one, so each outlier comes ten times over, and the
+rejection takes ten rounds for it.  Each time is the best of ``--repeat`` runs.
 
-    python benchmarks/bench_population.py [--stars 1000] [--gui]
+It then times the field summary, and core.physics.population_summary alone,
+at 2,000 stars with the outlier rejection replaced by the former quadratic
+rule (the reference kept in tests/core/test_physics_population.py), against
+the current one, in the same run, and checks that both give the same summary.
+Usage::
+
+    python benchmarks/bench_population.py [--stars 1000] [--repeat 3] [--gui]
 """
 
 from __future__ import annotations
@@ -25,6 +33,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from core import diagrams as dg  # noqa: E402
+from core.physics import population  # noqa: E402
 
 
 def invented_points(n_stars: int, seed: int = 5) -> list[dg.StarPoint]:
@@ -64,7 +73,16 @@ def invented_points(n_stars: int, seed: int = 5) -> list[dg.StarPoint]:
     return points
 
 
-def time_core(points: list[dg.StarPoint]) -> tuple[float, float]:
+def time_summary(points: list[dg.StarPoint], repeat: int) -> tuple[float, dg.FieldState]:
+    best, state = float("inf"), None
+    for _ in range(repeat):
+        start = time.perf_counter()
+        state = dg.field_state(points, pl_relation="benedict07_pl_v")
+        best = min(best, time.perf_counter() - start)
+    return best, state
+
+
+def time_core(points: list[dg.StarPoint], repeat: int = 1) -> tuple[float, float]:
     start = time.perf_counter()
     planes = [
         dg.period_amplitude(points, "V"),
@@ -76,10 +94,41 @@ def time_core(points: list[dg.StarPoint]) -> tuple[float, float]:
     ]
     dg.find_outliers(planes)
     diagrams = time.perf_counter() - start
-    start = time.perf_counter()
-    dg.field_state(points, pl_relation="benedict07_pl_v")
-    summary = time.perf_counter() - start
+    summary, _ = time_summary(points, repeat)
     return diagrams, summary
+
+
+def old_vs_new(points: list[dg.StarPoint], repeat: int) -> None:
+    """Field summary, and population_summary alone, with the former rejection and the current."""
+    from tests.core.test_physics_population import reference_class_distance
+
+    stars = dg.star_physics(dg.summary_members(points), dg.physics_settings_from(None, 0.0))
+
+    def time_physics() -> float:
+        best = float("inf")
+        for _ in range(repeat):
+            start = time.perf_counter()
+            population.population_summary(stars)
+            best = min(best, time.perf_counter() - start)
+        return best
+
+    new, new_state = time_summary(points, repeat)
+    new_physics = time_physics()
+    current = population.class_distance
+    population.class_distance = reference_class_distance
+    try:
+        old, old_state = time_summary(points, repeat)
+        old_physics = time_physics()
+    finally:
+        population.class_distance = current
+    same = new_state.summary.to_dict() == old_state.summary.to_dict()
+    rejected = sum(len(d.outliers) for d in new_state.summary.distances)
+    print(
+        f"{len(points)} stars, former rule vs current: field summary {old * 1e3:7.1f} ms vs "
+        f"{new * 1e3:6.1f} ms ({old / new:.0f}x), population_summary alone "
+        f"{old_physics * 1e3:7.1f} ms vs {new_physics * 1e3:5.1f} ms "
+        f"({old_physics / new_physics:.0f}x); same summary: {same} ({rejected} rejected)"
+    )
 
 
 def time_gui(points: list[dg.StarPoint]) -> float:
@@ -106,6 +155,7 @@ def time_gui(points: list[dg.StarPoint]) -> float:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--stars", type=int, default=1000)
+    parser.add_argument("--repeat", type=int, default=3, help="best of this many runs")
     parser.add_argument("--gui", action="store_true", help="also time the view's redraw")
     args = parser.parse_args()
     small = invented_points(args.stars)
@@ -115,7 +165,7 @@ def main() -> None:
         time_gui(small[:50])
     rows = []
     for label, points in ((f"{len(small)} stars", small), (f"{len(large)} stars", large)):
-        diagrams, summary = time_core(points)
+        diagrams, summary = time_core(points, args.repeat)
         gui = time_gui(points) if args.gui else float("nan")
         rows.append((label, diagrams, summary, gui))
         print(
@@ -129,6 +179,7 @@ def main() -> None:
         + (f", redraw {g2 / g1:.1f}x" if args.gui else "")
         + "  (10x = linear)"
     )
+    old_vs_new(invented_points(2000), args.repeat)
 
 
 if __name__ == "__main__":

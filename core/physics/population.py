@@ -25,6 +25,8 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from .derive import PhysicalValue
 from .distance import modulus_to_distance
 
@@ -117,8 +119,12 @@ class PopulationSummary:
         }
 
 
+def _weight(err: float) -> float:
+    return 1.0 / err**2
+
+
 def _weighted(mus: list[float], errs: list[float]) -> tuple[float, float, float]:
-    weights = [1.0 / e**2 for e in errs]
+    weights = [_weight(e) for e in errs]
     total = sum(weights)
     mean = sum(w * m for w, m in zip(weights, mus, strict=True)) / total
     if len(mus) > 1:
@@ -130,27 +136,117 @@ def _weighted(mus: list[float], errs: list[float]) -> tuple[float, float, float]
     return mean, 1.0 / math.sqrt(total), scatter
 
 
+def _loo_z(kept: list[tuple[str, float, float]], star: tuple[str, float, float]) -> float:
+    """The outlier rule for one star: its distance from the weighted mean of the others."""
+    others = [s for s in kept if s is not star]
+    mean, _, scatter = _weighted([s[1] for s in others], [s[2] for s in others])
+    sigma = max(scatter, star[2])
+    return abs(star[1] - mean) / sigma if sigma > 0 else 0.0
+
+
+# Ranges inside which the screen below can bound its rounding errors; members
+# outside them (zero or infinite weights, absurd moduli) get the rule applied
+# to every star, as before.
+_WEIGHT_RANGE = (1e-100, 1e100)
+_MU_LIMIT = 1e50
+_UNIT_ROUNDOFF = 2.0**-53
+
+
+def _leave_one_out_sums(x: np.ndarray) -> np.ndarray:
+    """``sum(x) - x[i]`` for every i, as prefix + suffix sums (no cancellation)."""
+    before = np.concatenate(([0.0], np.cumsum(x)[:-1]))
+    after = np.concatenate((np.cumsum(x[::-1])[::-1][1:], [0.0]))
+    return before + after
+
+
+def _leave_one_out_max(x: np.ndarray) -> np.ndarray:
+    """``max(x without x[i])`` for every i (x >= 0)."""
+    before = np.concatenate(([0.0], np.maximum.accumulate(x)[:-1]))
+    after = np.concatenate((np.maximum.accumulate(x[::-1])[::-1][1:], [0.0]))
+    return np.maximum(before, after)
+
+
+def _candidates(mus: np.ndarray, errs: np.ndarray, weights: np.ndarray) -> np.ndarray:
+    """Indices of the stars that can be the worst outlier of this round.
+
+    All leave-one-out weighted means and scatters come from running sums, in
+    linear time, each with a bound on its rounding error that also covers the
+    rounding of :func:`_loo_z`.  A star is kept if its z can exceed 3 and can
+    reach the largest z; only those get :func:`_loo_z` itself, so the choice
+    (ties included) is the rule's own.  A non-finite modulus or a NaN weight
+    makes every mean it enters NaN, and so that star's z is 0; such a star is
+    then the only candidate (or there is none, if there are two of them).
+    """
+    n = len(mus)
+    everyone = np.arange(n)
+    in_range = (weights >= _WEIGHT_RANGE[0]) & (weights <= _WEIGHT_RANGE[1])
+    finite = np.isfinite(mus) & (np.abs(mus) <= _MU_LIMIT) & in_range
+    poisoned = (~np.isfinite(mus) | np.isnan(weights)) & (in_range | np.isnan(weights))
+    if not np.all(finite | poisoned):
+        return everyone
+    if np.any(poisoned):
+        return np.flatnonzero(poisoned) if np.count_nonzero(poisoned) == 1 else everyone[:0]
+    centre = float(np.sum(weights * mus) / np.sum(weights))
+    offsets = mus - centre
+    total = _leave_one_out_sums(weights)
+    shift = _leave_one_out_sums(weights * offsets) / total
+    var = _leave_one_out_sums(weights * offsets * offsets) / total - shift * shift
+    numerator = np.abs(offsets - shift)
+    # Rounding bounds (recursive sums: n u times the sum of magnitudes), for
+    # this screen and for _loo_z alike.
+    spread = _leave_one_out_max(np.abs(offsets))
+    biggest = float(np.max(np.abs(mus)))
+    tol = 8.0 * (n + 8) * _UNIT_ROUNDOFF
+    var_err = tol * spread**2 + (tol * biggest) ** 2 + n * 1e-280
+    num_err = tol * (spread + 2.0 * biggest + np.abs(mus))
+    scatter_lo = np.sqrt(np.maximum(var - var_err, 0.0)) * (1.0 - 4.0 * _UNIT_ROUNDOFF)
+    scatter_hi = np.sqrt(var + var_err) * (1.0 + 4.0 * _UNIT_ROUNDOFF)
+    sigma_lo = np.where(errs > scatter_lo, errs, scatter_lo)  # max() as _loo_z takes it
+    sigma_hi = np.where(errs > scatter_hi, errs, scatter_hi)
+    num_lo = np.maximum(numerator - num_err, 0.0)
+    num_hi = numerator + num_err
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # z is 0 where sigma can be 0 (a negative err and no scatter)
+        z_lo = np.where(sigma_lo > 0, num_lo / sigma_hi * (1.0 - 4.0 * _UNIT_ROUNDOFF), 0.0)
+        z_hi = np.where(sigma_lo > 0, num_hi / sigma_lo * (1.0 + 4.0 * _UNIT_ROUNDOFF), np.inf)
+    z_hi = np.where(sigma_hi > 0, z_hi, 0.0)
+    return np.flatnonzero((z_hi > 3.0) & (z_hi >= np.max(z_lo)))
+
+
 def class_distance(code: str, members: list[tuple[str, float, float]]) -> ClassDistance | None:
-    """Weighted mean mu0 of ``members`` (star_id, mu0, err), outliers rejected."""
+    """Weighted mean mu0 of ``members`` (star_id, mu0, err), outliers rejected.
+
+    Each round removes the star with the largest z above 3 (the first such in
+    order on a tie), z being :func:`_loo_z`; :func:`_candidates` narrows a
+    round to the few stars that can win it, so a round takes linear time.
+    """
     if not members:
         return None
     kept = list(members)
     outliers: list[str] = []
-    changed = True
-    while changed and len(kept) > 3:
-        changed = False
+    screen = len(kept) > 3 and len({id(s) for s in kept}) == len(kept)  # _loo_z drops copies
+    if screen:
+        try:
+            weight_arr = np.array([_weight(s[2]) for s in kept], dtype=float)
+        except Exception:  # the rule itself, star by star, raises as it always did
+            screen = False
+        else:
+            mus = np.array([s[1] for s in kept], dtype=float)
+            errs = np.array([s[2] for s in kept], dtype=float)
+    while len(kept) > 3:
+        candidates = _candidates(mus, errs, weight_arr) if screen else range(len(kept))
         worst, worst_z = None, 3.0
-        for star in kept:
-            others = [s for s in kept if s is not star]
-            mean, _, scatter = _weighted([s[1] for s in others], [s[2] for s in others])
-            sigma = max(scatter, star[2])
-            z = abs(star[1] - mean) / sigma if sigma > 0 else 0.0
+        for index in candidates:
+            z = _loo_z(kept, kept[index])
             if z > worst_z:
-                worst, worst_z = star, z
-        if worst is not None:
-            kept.remove(worst)
-            outliers.append(worst[0])
-            changed = True
+                worst, worst_z = kept[index], z
+        if worst is None:
+            break
+        index = kept.index(worst)  # the element list.remove takes
+        del kept[index]
+        if screen:
+            mus, errs, weight_arr = (np.delete(a, index) for a in (mus, errs, weight_arr))
+        outliers.append(worst[0])
     mean, err, scatter = _weighted([s[1] for s in kept], [s[2] for s in kept])
     distance, distance_err = modulus_to_distance(mean, err)
     return ClassDistance(
