@@ -36,11 +36,13 @@ Montgomery, M. H. & O'Donoghue, D. 1999, Delta Scuti Star Newsletter 13, 28.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 from scipy import linalg, optimize, special
+from scipy.linalg import lapack
 
 from .errors import PhasewiseError
 from .validation import finite_or_none, require_choice, require_int, require_positive, require_range
@@ -171,46 +173,80 @@ def montgomery_odonoghue_sigma_f(
 
 
 # ---------------------------------------------------------------- the basis
-def _basis(theta: np.ndarray, order: int) -> np.ndarray:
-    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...].
+def _basis_rows(theta: np.ndarray, order: int) -> np.ndarray:
+    """Rows [1, cos θ, sin θ, cos 2θ, sin 2θ, ...], shape ``(2 order + 1, n)``.
 
-    Harmonics by complex powers ``exp(ikθ)`` (a running product, error of
-    order ``k`` ulp), which is several times faster than ``k`` trig calls.
+    Row-major, so that ``rows.T`` is the Fortran-ordered design LAPACK
+    wants, without a copy.  Harmonics as in :func:`_add_harmonics`.
     """
     theta = np.asarray(theta, dtype=float)
-    out = np.empty((theta.size, 2 * order + 1))
-    out[:, 0] = 1.0
+    out = np.empty((2 * order + 1, theta.size))
+    out[0] = 1.0
     if order:
-        z = np.exp(1j * theta)
-        powers = np.cumprod(np.broadcast_to(z[:, None], (theta.size, order)), axis=1)
-        out[:, 1::2] = powers.real
-        out[:, 2::2] = powers.imag
+        np.cos(theta, out=out[1])
+        np.sin(theta, out=out[2])
+        _add_harmonics(out[1:])
     return out
 
 
-def _dbasis(theta: np.ndarray, order: int, deriv: int) -> np.ndarray:
-    """d^deriv/dθ^deriv of the basis columns (deriv = 1 or 2)."""
+def _add_harmonics(rows: np.ndarray) -> None:
+    """Fill rows [cos θ, sin θ, cos 2θ, sin 2θ, ...] in place from the first two.
+
+    Angle addition, ``cos kθ = cos(k-1)θ cos θ - sin(k-1)θ sin θ`` and
+    ``sin kθ = sin(k-1)θ cos θ + cos(k-1)θ sin θ``: two trig calls instead
+    of ``2k``, and more accurate at large ``θ`` than ``cos(kθ)``, whose
+    argument loses ``ulp(kθ)`` when it is formed (the recurrence errs by
+    about ``k`` ulp).
+    """
+    c1, s1 = rows[0], rows[1]
+    scratch = np.empty(c1.size)
+    for k in range(2, rows.shape[0] // 2 + 1):
+        c, s = rows[2 * k - 4], rows[2 * k - 3]
+        ck, sk = rows[2 * k - 2], rows[2 * k - 1]
+        np.multiply(c, c1, out=ck)
+        ck -= np.multiply(s, s1, out=scratch)
+        np.multiply(s, c1, out=sk)
+        sk += np.multiply(c, s1, out=scratch)
+
+
+def _basis(theta: np.ndarray, order: int) -> np.ndarray:
+    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...] (see :func:`_basis_rows`)."""
+    return _basis_rows(theta, order).T
+
+
+@functools.cache
+def _grid_rows(size: int, order: int) -> np.ndarray:
+    """Basis rows on ``size`` evenly spaced phases; cached, read-only."""
+    rows = _basis_rows(TWO_PI * np.arange(size) / size, order)
+    rows.flags.writeable = False
+    return rows
+
+
+def _point_rows(theta: float, order: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Basis row at one phase and its first and second derivatives in θ."""
     k = np.arange(1, order + 1)
-    arg = np.multiply.outer(theta, k)
-    c, s = np.cos(arg), np.sin(arg)
-    out = np.zeros((theta.size, 2 * order + 1))
-    if deriv == 1:
-        out[:, 1::2] = -k * s
-        out[:, 2::2] = k * c
-    else:
-        out[:, 1::2] = -(k**2) * c
-        out[:, 2::2] = -(k**2) * s
-    return out
+    c, s = np.cos(k * theta), np.sin(k * theta)
+    value = np.empty(2 * order + 1)
+    d1 = np.zeros(2 * order + 1)
+    d2 = np.zeros(2 * order + 1)
+    value[0] = 1.0
+    value[1::2], value[2::2] = c, s
+    d1[1::2], d1[2::2] = -k * s, k * c
+    d2[1::2], d2[2::2] = -(k**2) * c, -(k**2) * s
+    return value, d1, d2
 
 
 def _extremum(beta: np.ndarray, order: int, theta0: float, brightest: bool) -> float:
     """Newton-refine an extremum of the curve from a grid estimate."""
     theta = theta0
     step_limit = TWO_PI / _GRID
+    k = np.arange(1, order + 1)
+    c, s = beta[1::2], beta[2::2]
+    kc, ks = k * c, k * s
     for _ in range(4):
-        t = np.array([theta])
-        d1 = float(_dbasis(t, order, 1)[0] @ beta)
-        d2 = float(_dbasis(t, order, 2)[0] @ beta)
+        cos_k, sin_k = np.cos(k * theta), np.sin(k * theta)
+        d1 = float(ks @ cos_k - kc @ sin_k)
+        d2 = -float(k * kc @ cos_k + k * ks @ sin_k)
         # a minimum of magnitude (brightest) needs d2 > 0, a maximum d2 < 0
         if d2 == 0 or (d2 > 0) != brightest:
             break
@@ -221,6 +257,33 @@ def _extremum(beta: np.ndarray, order: int, theta0: float, brightest: bool) -> f
         if abs(step) < 1e-13:
             break
     return theta
+
+
+def _weighted_factor(rows: np.ndarray, y: np.ndarray, sw: np.ndarray):
+    """Householder QR of the weighted design with the data as an extra column.
+
+    Returns ``(r, qy, chi2, total)``: the triangular factor of the design,
+    ``Q^T y``, the chi-square of the first ``j + 1`` columns for every ``j``
+    and ``y^T y`` (all weighted).  Appending the data column gives ``Q^T y``
+    in the factor's last column and the rms of the full fit in its corner, so
+    ``Q`` is never formed.  The columns are nested: ``r[:p, :p]`` and
+    ``qy[:p]`` factorise the first ``p`` columns, and their chi-square is the
+    corner squared plus ``sum(qy[p:] ** 2)``, a sum of positive terms (no
+    cancellation, unlike ``total - sum(qy[:p] ** 2)``).
+    """
+    p = rows.shape[0]
+    aug = np.empty((p + 1, rows.shape[1]))
+    np.multiply(rows, sw, out=aug[:p])
+    np.multiply(y, sw, out=aug[p])
+    total = float(aug[p] @ aug[p])
+    qr, _, _, info = lapack.dgeqrf(aug.T, overwrite_a=True)
+    if info != 0:  # pragma: no cover - LAPACK argument error
+        raise PhasewiseError(f"QR factorisation failed (LAPACK info {info})", field="order")
+    r = np.triu(qr[:p, :p])
+    qy = qr[:p, p].copy()
+    tail = np.append(np.cumsum((qy**2)[::-1])[::-1], 0.0)  # tail[j] = sum(qy[j:] ** 2)
+    chi2 = qr[p, p] ** 2 + tail[1:]
+    return r, qy, chi2, total
 
 
 def _prepare(time: Any, mag: Any, err: Any, frequency: float):
@@ -474,48 +537,49 @@ def fit_fourier(
         )
     tc = _centre(t)
     sw = 1.0 / e
-    x = _basis(TWO_PI * f * (t - tc), order)
-    xw = x * sw[:, None]
-    yw = y * sw
-    q, r = np.linalg.qr(xw)
-    if np.min(np.abs(np.diag(r))) <= 1e-10 * np.max(np.abs(np.diag(r))):
+    rows = _basis_rows(TWO_PI * f * (t - tc), order)
+    r, qy, _, total = _weighted_factor(rows, y, sw)
+    diag = np.abs(np.diag(r))
+    if diag.min() <= 1e-10 * diag.max():
         raise PhasewiseError(
             f"the phase coverage cannot constrain a Fourier fit of order {order}", field="order"
         )
-    beta = linalg.solve_triangular(r, q.T @ yw)
-    resid = y - x @ beta
+    beta = linalg.solve_triangular(r, qy, check_finite=False)
+    resid = y - beta @ rows
     chi2 = float(np.sum((resid * sw) ** 2))
     dof = n - p
-    rinv = linalg.solve_triangular(r, np.eye(p))
+    rinv = linalg.solve_triangular(r, np.eye(p), check_finite=False)
     cov = rinv @ rinv.T
     if scale_errors:
         cov = cov * (chi2 / dof)
-    return _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
+    return _build_fit(t, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, total)
 
 
-def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw) -> FourierFit:
+def _build_fit(t, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, total) -> FourierFit:
     n = t.size
     c, s = beta[1::2], beta[2::2]
     amp = np.hypot(c, s)
     phase_c = np.arctan2(c, s) if form == "sine" else np.arctan2(-s, c)
 
     # curve on a phase grid (phase relative to tc), extrema refined
-    grid = TWO_PI * np.arange(_GRID) / _GRID
-    curve = _basis(grid, order) @ beta
-    th_bright = _extremum(beta, order, grid[int(np.argmin(curve))], brightest=True)
-    th_faint = _extremum(beta, order, grid[int(np.argmax(curve))], brightest=False)
-    m_bright = float(_basis(np.array([th_bright]), order)[0] @ beta)
-    m_faint = float(_basis(np.array([th_faint]), order)[0] @ beta)
+    curve = beta @ _grid_rows(_GRID, order)
+    grid_step = TWO_PI / _GRID
+    th_bright = _extremum(beta, order, grid_step * int(np.argmin(curve)), brightest=True)
+    th_faint = _extremum(beta, order, grid_step * int(np.argmax(curve)), brightest=False)
+    row_bright, d1_bright, d2_bright = _point_rows(th_bright, order)
+    row_faint = _point_rows(th_faint, order)[0]
+    m_bright = float(row_bright @ beta)
+    m_faint = float(row_faint @ beta)
 
     # maximum light nearest the middle of the data (tc is that middle)
     cycles = th_bright / TWO_PI
     epoch_max = tc + (cycles - np.round(cycles)) / f
-    d2 = float(_dbasis(np.array([th_bright]), order, 2)[0] @ beta)
-    g_theta = -_dbasis(np.array([th_bright]), order, 1)[0] / d2 if d2 != 0 else None
+    d2 = float(d2_bright @ beta)
+    g_theta = -d1_bright / d2 if d2 != 0 else None
     epoch_max_err = (
         float(np.sqrt(g_theta @ cov @ g_theta) / (TWO_PI * f)) if g_theta is not None else np.nan
     )
-    g_ptp = _basis(np.array([th_faint]), order)[0] - _basis(np.array([th_bright]), order)[0]
+    g_ptp = row_faint - row_bright
     ptp_err = float(np.sqrt(max(g_ptp @ cov @ g_ptp, 0.0)))
 
     t0 = epoch_max if epoch is None else float(epoch)
@@ -535,22 +599,20 @@ def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
     amp_err = np.sqrt(np.einsum("ij,jk,ik->i", g_amp, cov, g_amp))
     phase_err = np.sqrt(np.einsum("ij,jk,ik->i", g_phase, cov, g_phase))
 
-    rk, rk_err, pk, pk_err = [], [], [], []
-    for kk in range(2, order + 1):
-        ratio = amp[kk - 1] / amp[0]
-        g_r = g_amp[kk - 1] / amp[0] - amp[kk - 1] / amp[0] ** 2 * g_amp[0]
-        g_p = g_phase[kk - 1] - kk * g_phase[0]
-        rk.append(float(ratio))
-        rk_err.append(float(np.sqrt(g_r @ cov @ g_r)))
-        pk.append(float(np.mod(phases[kk - 1] - kk * phases[0], TWO_PI)))
-        pk_err.append(float(np.sqrt(g_p @ cov @ g_p)))
+    # ratios and differences to the first term, k = 2..order, all at once
+    higher = k[1:]
+    ratio = amp[1:] / amp[0]
+    g_r = g_amp[1:] / amp[0] - (amp[1:] / amp[0] ** 2)[:, None] * g_amp[0]
+    g_p = g_phase[1:] - higher[:, None] * g_phase[0]
+    rk_err = np.sqrt(np.einsum("ij,jk,ik->i", g_r, cov, g_r))
+    pk = np.mod(phases[1:] - higher * phases[0], TWO_PI)
+    pk_err = np.sqrt(np.einsum("ij,jk,ik->i", g_p, cov, g_p))
 
     flux_mean = np.mean(10.0 ** (-0.4 * curve))
     centred = curve - curve.mean()
     sd = float(np.sqrt(np.mean(centred**2)))
-    skew = float(np.mean(centred**3) / sd**3) if sd > 0 else np.nan
+    skew = float(np.mean(centred * centred * centred) / sd**3) if sd > 0 else np.nan
     rise = float(np.mod((th_bright - th_faint) / TWO_PI, 1.0))
-    scale = float(np.sum(yw**2))
     return FourierFit(
         frequency=f,
         form=form,
@@ -562,10 +624,10 @@ def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
         amplitudes_err=tuple(float(a) for a in amp_err),
         phases=tuple(float(a) for a in phases),
         phases_err=tuple(float(a) for a in phase_err),
-        R_k1=tuple(rk),
-        R_k1_err=tuple(rk_err),
-        phi_k1=tuple(pk),
-        phi_k1_err=tuple(pk_err),
+        R_k1=tuple(float(x) for x in ratio),
+        R_k1_err=tuple(float(x) for x in rk_err),
+        phi_k1=tuple(float(x) for x in pk),
+        phi_k1_err=tuple(float(x) for x in pk_err),
         mean_mag=float(beta[0]),
         intensity_mean_mag=float(-2.5 * np.log10(flux_mean)),
         peak_to_peak=m_faint - m_bright,
@@ -577,7 +639,7 @@ def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
         residual_std=float(np.sqrt(np.sum(resid**2) / dof)),
         chi2_reduced=chi2 / dof,
         n_points=int(n),
-        bic=float(_bic(chi2, n, p, scale)),
+        bic=float(_bic(chi2, n, p, total)),
     )
 
 
@@ -627,32 +689,30 @@ def choose_order(
         )
     n = t.size
     tc = _centre(t)
-    sw = 1.0 / e
-    x = _basis(TWO_PI * f * (t - tc), cap)
-    yw = y * sw
-    q, r = np.linalg.qr(x * sw[:, None])
-    qy = q.T @ yw
-    total = float(yw @ yw)
-    chi2 = total - np.cumsum(qy**2)  # chi2 of the first j+1 columns
+    rows = _basis_rows(TWO_PI * f * (t - tc), cap)
+    r, qy, chi2, total = _weighted_factor(rows, y, 1.0 / e)
     diag = np.abs(np.diag(r))
-    grid_basis = _basis(TWO_PI * np.arange(256) / 256, cap)
-    data_range = float(np.ptp(y))
-    orders: list[int] = []
-    for order in range(1, cap + 1):
-        p = 2 * order + 1
-        if diag[:p].min() <= 1e-10 * diag.max():
-            limited_by = "phase_gap"
-            break
-        beta = linalg.solve_triangular(r[:p, :p], qy[:p])
-        curve = grid_basis[:, :p] @ beta
-        if order > 1 and np.ptp(curve) > (1.0 + settings.max_overshoot) * data_range:
+    # the smallest pivot only falls as columns are added: the first order
+    # whose columns are (nearly) dependent ends the list
+    bad = np.flatnonzero(np.minimum.accumulate(diag)[2::2] <= 1e-10 * diag.max())
+    good = int(bad[0]) if bad.size else cap
+    if good < cap:
+        limited_by = "phase_gap"
+    orders = list(range(1, good + 1))
+    if good > 1:
+        # every order's coefficients at once: the inverse of a leading block
+        # of a triangular matrix is the leading block of its inverse, so
+        # beta_p = rinv[:p, :p] @ qy[:p] = running sums of rinv * qy
+        p_max = 2 * good + 1
+        rinv = linalg.solve_triangular(r[:p_max, :p_max], np.eye(p_max), check_finite=False)
+        running = np.cumsum(rinv * qy[:p_max], axis=1)[:, 2::2]  # column o-1: order o
+        coefs = np.where(np.arange(p_max)[:, None] <= 2 * np.arange(1, good + 1), running, 0.0)
+        curves = _grid_rows(256, good).T @ coefs
+        over = np.ptp(curves, axis=0) > (1.0 + settings.max_overshoot) * float(np.ptp(y))
+        over[0] = False  # order 1 is never refused for ringing
+        if over.any():
             limited_by = "overshoot"
-            break
-        orders.append(order)
-    if not orders:
-        raise PhasewiseError(
-            f"the phase coverage of {n} points cannot constrain a Fourier fit", field="order"
-        )
+            orders = orders[: int(np.argmax(over))]
     cap = len(orders)
     chis = np.array([max(chi2[2 * o], total * 1e-24) for o in orders])
     if settings.criterion == "bic":

@@ -421,3 +421,114 @@ def test_errors_are_honest_on_the_synthetic_survey():
     assert len(z) >= 25
     assert np.all(np.mean(np.abs(z) < 3, axis=0) >= 0.9)
     assert np.all((0.6 < z.std(axis=0)) & (z.std(axis=0) < 1.6))
+
+
+# ------------------------------------------------- fast paths vs plain ones
+def test_harmonic_recurrence_matches_direct_trig():
+    # angle addition (cos kθ, sin kθ from cos θ, sin θ) against plain
+    # np.cos/np.sin of k θ, where forming k θ costs little precision
+    from core.fourier import _basis, _basis_rows
+
+    theta = np.random.default_rng(70).uniform(-40.0, 40.0, 500)
+    rows = _basis_rows(theta, 30)
+    k = np.arange(1, 31)[:, None]
+    np.testing.assert_array_equal(rows[0], 1.0)
+    np.testing.assert_allclose(rows[1::2], np.cos(k * theta), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(rows[2::2], np.sin(k * theta), rtol=0, atol=1e-12)
+    np.testing.assert_array_equal(_basis(theta, 3), rows[:7].T)
+
+
+@pytest.mark.skipif(np.finfo(np.longdouble).eps > 1e-18, reason="no extended precision")
+def test_harmonic_recurrence_keeps_its_precision_at_large_phase():
+    # at θ ~ 1e4 rad (20 c/d over 150 d) np.cos(k θ) loses ulp(k θ) ~ 1e-11
+    # when forming k θ; the recurrence stays near 1e-14.  Reference: cos and
+    # sin of k θ in x87 extended precision (64-bit mantissa).
+    from core.fourier import _basis_rows
+
+    theta = np.random.default_rng(71).uniform(-2e4, 2e4, 500)
+    rows = _basis_rows(theta, 30)
+    k_theta = np.arange(1, 31, dtype=np.longdouble)[:, None] * theta.astype(np.longdouble)
+    assert np.max(np.abs(rows[1::2] - np.cos(k_theta))) < 1e-13
+    assert np.max(np.abs(rows[2::2] - np.sin(k_theta))) < 1e-13
+
+
+def _design(t, frequency, order, tc=None):
+    tc = 0.5 * (t.min() + t.max()) if tc is None else tc
+    x = TWO_PI * frequency * (t - tc)
+    cols = [np.ones_like(t)]
+    for k in range(1, order + 1):
+        cols += [np.cos(k * x), np.sin(k * x)]
+    return np.column_stack(cols)
+
+
+def test_nested_chi_square_matches_separate_least_squares_fits():
+    # one QR of the highest order gives every lower order's chi-square; the
+    # reference is np.linalg.lstsq per order.  A bright, precise star (mean
+    # 15 mag, errors 2 mmag) has sum(y^2/err^2) some 1e7 times chi-square,
+    # where "total minus explained" would lose about seven digits.
+    from core.fourier import _basis_rows, _weighted_factor
+
+    t = sampling(n=500, seed=72)
+    err = np.full(t.size, 0.002)
+    mag = series(t, t[0]) + np.random.default_rng(72).normal(0, 0.002, t.size)
+    tc = 0.5 * (t.min() + t.max())
+    _, _, chi2, total = _weighted_factor(_basis_rows(TWO_PI * FREQ * (t - tc), 8), mag, 1 / err)
+    assert total / chi2[-1] > 1e6
+    for order in range(1, 9):
+        x = _design(t, FREQ, order) / err[:, None]
+        beta, *_ = np.linalg.lstsq(x, mag / err, rcond=None)
+        reference = float(np.sum((mag / err - x @ beta) ** 2))
+        assert chi2[2 * order] == pytest.approx(reference, rel=1e-10)
+
+
+def _reference_choice(t, mag, frequency, settings):
+    """choose_order the plain way: a separate least-squares fit per order."""
+    cap, limited_by = max_order_allowed(t, frequency, settings)
+    n = t.size
+    diag = np.abs(np.diag(np.linalg.qr(_design(t, frequency, cap))[1]))
+    tc = 0.5 * (t.min() + t.max())
+    grid = tc + np.arange(256) / 256 / frequency
+    orders, chis = [], []
+    for order in range(1, cap + 1):
+        if diag[: 2 * order + 1].min() <= 1e-10 * diag.max():
+            limited_by = "phase_gap"
+            break
+        beta, *_ = np.linalg.lstsq(_design(t, frequency, order), mag, rcond=None)
+        curve = _design(grid, frequency, order, tc) @ beta
+        if order > 1 and np.ptp(curve) > (1 + settings.max_overshoot) * np.ptp(mag):
+            limited_by = "overshoot"
+            break
+        orders.append(order)
+        chis.append(float(np.sum((mag - _design(t, frequency, order) @ beta) ** 2)))
+    bic = [n * np.log(c / n) + (2 * o + 1) * np.log(n) for o, c in zip(orders, chis, strict=True)]
+    return orders[int(np.argmin(bic))], len(orders), limited_by, bic
+
+
+def test_order_choice_matches_separate_fits_on_random_samplings():
+    # seeded random samplings and settings that reach every limit: the
+    # maximum order, points per parameter, the phase gap and the overshoot
+    seen = set()
+    for seed in range(300):
+        rng = np.random.default_rng(seed)
+        n = int(rng.integers(20, 200))
+        t = np.sort(rng.uniform(0, 50, n))
+        f = rng.uniform(0.3, 3)
+        mag = 15 + 0.3 * np.sin(TWO_PI * f * t) + 0.1 * np.sin(2 * TWO_PI * f * t + 1)
+        mag = mag + rng.normal(0, rng.uniform(0.01, 0.2), n)
+        chosen = FourierSettings(
+            max_order=int(rng.integers(3, 12)),
+            max_gap_cycles=float(rng.uniform(0.5, 3)),
+            max_overshoot=float(rng.uniform(0, 0.5)),
+        )
+        if max_order_allowed(t, f, chosen)[0] < 1:
+            continue
+        choice = choose_order(t, mag, None, f, chosen)
+        order, max_allowed, limited_by, bic = _reference_choice(t, mag, f, chosen)
+        assert (choice.order, choice.max_allowed, choice.limited_by) == (
+            order,
+            max_allowed,
+            limited_by,
+        ), seed
+        np.testing.assert_allclose(choice.scores, bic, rtol=0, atol=1e-8)
+        seen.add(limited_by)
+    assert seen == {"max_order", "points", "phase_gap", "overshoot"}
