@@ -782,32 +782,93 @@ class _MultiFit:
         return float(np.hypot(coef[1 + 2 * term], coef[2 + 2 * term]))
 
 
-def _term_matrix(tau, freqs, terms):
-    """cos and sin of every term; harmonics by complex powers (see _basis)."""
-    harm = np.array([k for _, k in terms], dtype=float)
-    fidx = np.array([j for j, _ in terms], dtype=int)
-    blocks = []
-    for j in range(len(freqs)):
-        n_j = int(np.count_nonzero(fidx == j))
-        if n_j:
-            z = np.exp(1j * TWO_PI * freqs[j] * tau)
-            blocks.append(np.cumprod(np.broadcast_to(z[:, None], (tau.size, n_j)), axis=1))
-    wave = np.concatenate(blocks, axis=1)
-    return wave.real, wave.imag, harm, fidx
+def _term_rows(tau: np.ndarray, freqs: np.ndarray, orders: tuple[int, ...]) -> np.ndarray:
+    """Rows [cos, sin] of every term, frequency by frequency (see _add_harmonics).
+
+    One cos and one sin call serve all the frequencies.
+    """
+    theta = np.multiply.outer(TWO_PI * np.asarray(freqs, dtype=float), tau)
+    starts = 2 * np.concatenate([[0], np.cumsum(orders)[:-1]]).astype(int)
+    out = np.empty((2 * sum(orders), tau.size))
+    out[starts] = np.cos(theta)
+    out[starts + 1] = np.sin(theta)
+    for start, order in zip(starts, orders, strict=True):
+        if order > 1:
+            _add_harmonics(out[start : start + 2 * order])
+    return out
 
 
-def _linear_start(tau, y, sw, band_index, n_bands, freqs, terms):
-    cos_, sin_, _, _ = _term_matrix(tau, freqs, terms)
+class _JointModel:
+    """Shared frequencies, per-band mean and harmonics: residuals and derivatives.
+
+    Parameters ``x = [f_1..f_F, band 0: A0, c, s per term, band 1: ...]``;
+    weighted residuals ``r = (y - m) / err``.  Matrices have one row per
+    parameter (``jac`` is the transposed Jacobian of ``r``), the layout the
+    products below read fastest.
+    """
+
+    def __init__(self, tau, y, sw, band_index, n_bands, orders):
+        self.tau, self.y, self.sw = tau, y, sw
+        self.orders = tuple(int(o) for o in orders)
+        self.n_f, n_t = len(self.orders), sum(self.orders)
+        self.per_band = 1 + 2 * n_t
+        self.n_par = self.n_f + n_bands * self.per_band
+        # a slice keeps the one-band case free of copies
+        self.bands = [slice(None)] if n_bands == 1 else [band_index == b for b in range(n_bands)]
+        self.term_freq = np.repeat(np.arange(self.n_f), self.orders)
+        self.term_k = np.concatenate([np.arange(1.0, o + 1) for o in self.orders] + [[]])
+        self.cos_cols = 2 * np.arange(n_t)  # term rows in _term_rows
+        self.tau_w = TWO_PI * tau  # d(k theta_j) / d(f_j) = k tau_w
+        self._last: tuple[bytes, np.ndarray] = (b"", np.empty(0))
+
+    def trig(self, freqs: np.ndarray) -> np.ndarray:
+        """Term rows at ``freqs``; the last ones are kept (the start is used twice)."""
+        key = np.asarray(freqs, dtype=float).tobytes()
+        if key != self._last[0]:
+            self._last = (key, _term_rows(self.tau, freqs, self.orders))
+        return self._last[1]
+
+    def _by_term(self, cos_part, sin_part):
+        """(F, 2 T) matrix putting per-term weights in their frequency's row."""
+        out = np.zeros((self.n_f, 2 * self.term_k.size))
+        out[self.term_freq, self.cos_cols] = cos_part
+        out[self.term_freq, self.cos_cols + 1] = sin_part
+        return out
+
+    def evaluate(self, x: np.ndarray):
+        """``(r, jac)``: weighted residuals and Jacobian rows at ``x``."""
+        n_f, per_band, k = self.n_f, self.per_band, self.term_k
+        trig = self.trig(x[:n_f])
+        n = self.tau.size
+        jac = np.zeros((self.n_par, n))
+        model = np.empty(n)
+        slope = np.empty((n_f, n))  # d m / d f_j over tau_w
+        for b, sel in enumerate(self.bands):
+            base = n_f + b * per_band
+            coef = x[base : base + per_band]
+            c, s = coef[1::2], coef[2::2]
+            rows = trig[:, sel]
+            jac[base, sel] = 1.0
+            jac[base + 1 : base + per_band, sel] = rows
+            model[sel] = coef[0] + coef[1:] @ rows
+            # d/dθ of c cos kθ + s sin kθ is k (s cos kθ - c sin kθ)
+            slope[:, sel] = self._by_term(k * s, -k * c) @ rows
+        jac[:n_f] = slope * self.tau_w
+        r = (self.y - model) * self.sw
+        jac *= -self.sw
+        return r, jac
+
+
+def _linear_start(model: _JointModel, freqs: np.ndarray) -> np.ndarray:
+    """Parameters with every band's coefficients fitted at fixed frequencies."""
+    trig = model.trig(freqs)
     coefs = []
-    for b in range(n_bands):
-        sel = band_index == b
-        x = np.empty((int(sel.sum()), 1 + 2 * len(terms)))
-        x[:, 0] = 1.0
-        x[:, 1::2] = cos_[sel]
-        x[:, 2::2] = sin_[sel]
-        beta, *_ = np.linalg.lstsq(x * sw[sel, None], y[sel] * sw[sel], rcond=None)
+    for sel in model.bands:
+        design = np.vstack([np.ones((1, model.tau[sel].size)), trig[:, sel]]).T
+        sw = model.sw[sel]
+        beta, *_ = np.linalg.lstsq(design * sw[:, None], model.y[sel] * sw, rcond=None)
         coefs.append(beta)
-    return coefs
+    return np.concatenate([freqs, *coefs])
 
 
 def multi_frequency_fit(
@@ -833,70 +894,43 @@ def multi_frequency_fit(
     bidx = np.zeros(t.size, dtype=int) if band_index is None else np.asarray(band_index, int)
     n_bands = int(bidx.max()) + 1 if t.size else 1
     freqs0 = np.asarray(frequencies, dtype=float)
-    terms = tuple((j, k) for j, o in enumerate(orders) for k in range(1, int(o) + 1))
-    n_f, n_t = freqs0.size, len(terms)
-    per_band = 1 + 2 * n_t
+    orders = tuple(int(o) for o in orders)
+    terms = tuple((j, k) for j, o in enumerate(orders) for k in range(1, o + 1))
+    n_f = freqs0.size
     tc = _centre(t)
-    tau = t - tc
-    coefs0 = _linear_start(tau, y, sw, bidx, n_bands, freqs0, terms)
-    x0 = np.concatenate([freqs0, *coefs0])
-    rows = np.arange(t.size)
-
-    def unpack(x):
-        freqs = x[:n_f]
-        coef = x[n_f:].reshape(n_bands, per_band)[bidx]  # per point
-        return freqs, coef
-
+    model = _JointModel(t - tc, y, sw, bidx, n_bands, orders)
+    x0 = _linear_start(model, freqs0)
     cache: dict[bytes, tuple] = {}
 
-    def model_and_parts(x):
+    def evaluate(x):
         key = x.tobytes()
         if key not in cache:
             cache.clear()  # least_squares asks for fun and jac at the same point
-            cache[key] = _model_and_parts(x)
+            cache[key] = model.evaluate(x)
         return cache[key]
 
-    def _model_and_parts(x):
-        freqs, coef = unpack(x)
-        cos_, sin_, harm, fidx = _term_matrix(tau, freqs, terms)
-        c, s = coef[:, 1::2], coef[:, 2::2]
-        model = coef[:, 0] + np.sum(c * cos_ + s * sin_, axis=1)
-        return model, cos_, sin_, harm, fidx, c, s
-
     def fun(x):
-        return (y - model_and_parts(x)[0]) * sw
+        return evaluate(x)[0]
 
     def jac(x):
-        _, cos_, sin_, harm, fidx, c, s = model_and_parts(x)
-        out = np.zeros((t.size, x.size))
-        dterm = TWO_PI * harm * tau[:, None] * (-c * sin_ + s * cos_)
-        for j in range(n_f):
-            out[:, j] = dterm[:, fidx == j].sum(axis=1)
-        design = np.empty((t.size, per_band))
-        design[:, 0] = 1.0
-        design[:, 1::2] = cos_
-        design[:, 2::2] = sin_
-        # each point's coefficients sit in its own band's block
-        out[:, n_f:].reshape(t.size, n_bands, per_band)[rows, bidx] = design
-        return -out * sw[:, None]
+        return evaluate(x)[1].T
 
     if refine and n_f:
         sol = optimize.least_squares(fun, x0, jac=jac, method="lm", x_scale="jac")
         x, success, message, nfev = sol.x, bool(sol.success), str(sol.message), int(sol.nfev)
     else:
         x, success, message, nfev = x0, True, "linear fit at fixed frequencies", 0
-    jmat = jac(x)
-    resid_w = fun(x)
+    resid_w, jac_rows = evaluate(x)
     dof = max(t.size - x.size, 1)
-    norms = np.linalg.norm(jmat, axis=0)
+    norms = np.linalg.norm(jac_rows, axis=1)
     norms[norms == 0] = 1.0
-    jn = jmat / norms
-    cov = np.linalg.pinv(jn.T @ jn) / np.outer(norms, norms)
+    jn = jac_rows / norms[:, None]
+    cov = np.linalg.pinv(jn @ jn.T) / np.outer(norms, norms)
     if scale_errors:
         cov = cov * float(resid_w @ resid_w) / dof
     # at fixed frequencies this is still the frequency error at that point
     ferr = np.sqrt(np.clip(np.diag(cov)[:n_f], 0, None))
-    coef_b = x[n_f:].reshape(n_bands, per_band)
+    coef_b = x[n_f:].reshape(n_bands, model.per_band)
     return _MultiFit(
         frequencies=x[:n_f].copy(),
         frequencies_err=ferr,
