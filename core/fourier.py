@@ -41,7 +41,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import linalg, optimize, special
+from scipy import linalg, special
 from scipy.linalg import lapack
 
 from .errors import PhasewiseError
@@ -835,14 +835,22 @@ class _JointModel:
         out[self.term_freq, self.cos_cols + 1] = sin_part
         return out
 
-    def evaluate(self, x: np.ndarray):
-        """``(r, jac)``: weighted residuals and Jacobian rows at ``x``."""
+    def evaluate(self, x: np.ndarray, second: bool = True):
+        """``(r, jac, s)``: residuals, Jacobian rows, second-order Hessian part.
+
+        ``s`` is what the Gauss–Newton ``jac @ jac.T`` leaves out of the
+        Hessian of ``r.r / 2``, namely ``-sum_i r_i w_i d2 m_i``.  It is zero
+        but in the frequency rows and columns (the model is linear in the
+        coefficients): ``d2 m / d f_j^2`` and ``d2 m / (d f_j d c, s)`` of
+        that frequency's own terms.
+        """
         n_f, per_band, k = self.n_f, self.per_band, self.term_k
         trig = self.trig(x[:n_f])
         n = self.tau.size
         jac = np.zeros((self.n_par, n))
         model = np.empty(n)
         slope = np.empty((n_f, n))  # d m / d f_j over tau_w
+        curve = np.empty((n_f, n)) if second else None  # d2 m / d f_j^2 over tau_w^2
         for b, sel in enumerate(self.bands):
             base = n_f + b * per_band
             coef = x[base : base + per_band]
@@ -853,10 +861,100 @@ class _JointModel:
             model[sel] = coef[0] + coef[1:] @ rows
             # d/dθ of c cos kθ + s sin kθ is k (s cos kθ - c sin kθ)
             slope[:, sel] = self._by_term(k * s, -k * c) @ rows
+            if second:
+                curve[:, sel] = self._by_term(-(k**2) * c, -(k**2) * s) @ rows
         jac[:n_f] = slope * self.tau_w
         r = (self.y - model) * self.sw
         jac *= -self.sw
-        return r, jac
+        if not second:
+            return r, jac, None
+        rw = r * self.sw
+        hess = np.zeros((self.n_par, self.n_par))
+        hess[np.arange(n_f), np.arange(n_f)] = -(curve @ (rw * self.tau_w**2))
+        rwt = rw * self.tau_w
+        for b, sel in enumerate(self.bands):
+            # d2 m / (d f_j d c) = -k tau_w sin kθ, d2 m / (d f_j d s) = k tau_w cos kθ
+            sums = trig[:, sel] @ rwt[sel]
+            cols = n_f + b * per_band + 1 + self.cos_cols
+            hess[self.term_freq, cols] = k * sums[1::2]
+            hess[self.term_freq, cols + 1] = -k * sums[0::2]
+        hess[n_f:, :n_f] = hess[:n_f, n_f:].T
+        return r, jac, hess
+
+
+#: A joint fit has converged when the Newton step from its last point is
+#: below this many standard errors in every direction.  That point is
+#: returned (its residuals and Jacobian are at hand); it lies about one such
+#: step from the minimum.
+_STEP_TOL = 1e-6
+#: Steps below this many standard errors are taken without a chi-square test.
+_SURE_STEP = 1e-3
+#: Damping always added to the unit-diagonal Gauss-Newton part.
+_DAMPING_FLOOR = 1e-12
+
+
+def _cholesky_solve(matrix: np.ndarray, rhs: np.ndarray) -> np.ndarray | None:
+    """``matrix^-1 rhs`` for a positive definite matrix, else None."""
+    try:
+        factor = linalg.cho_factor(matrix, check_finite=False)
+    except np.linalg.LinAlgError:
+        return None
+    return linalg.cho_solve(factor, rhs, check_finite=False)
+
+
+def _newton(model: _JointModel, x0: np.ndarray, max_nfev: int):
+    """Damped Newton iterations on ``r.r`` from ``x0``.
+
+    Full Newton steps (the exact Hessian, see :meth:`_JointModel.evaluate`)
+    in the parameter scaling of the Jacobian's column norms, so convergence
+    is quadratic near the minimum.  A step that does not lower chi-square, or
+    a Hessian that is not positive definite, raises a Levenberg–Marquardt
+    damping term until it does.  Stops when the Newton step (damped by no
+    more than ``_DAMPING_FLOOR``) is below ``_STEP_TOL`` standard errors: its
+    Newton decrement ``-g.step`` is below ``_STEP_TOL**2`` times the reduced
+    chi-square.
+
+    Returns ``(x, r, jac, converged, message, nfev)``.
+    """
+    x = x0
+    r, jac, hess = model.evaluate(x)
+    chi2, nfev, damping = float(r @ r), 1, 0.0
+    dof = max(r.size - x.size, 1)
+    eye = np.eye(x.size)
+    rounding = np.finfo(float).eps * r.size * chi2
+    while nfev < max_nfev:
+        gauss = jac @ jac.T
+        norms = np.sqrt(np.diag(gauss))
+        norms[norms == 0] = 1.0
+        scaled = (gauss + hess) / np.outer(norms, norms)
+        grad = (jac @ r) / norms
+        # a floor far below any determined direction's curvature: it leaves
+        # the fixed point alone but lets undetermined coefficients (a band
+        # with fewer points than terms) through the factorisation
+        newton = _cholesky_solve(scaled + _DAMPING_FLOOR * eye, -grad)
+        if newton is not None and -(grad @ newton) <= _STEP_TOL**2 * chi2 / dof:
+            message = f"converged (next step below {_STEP_TOL:g} standard errors)"
+            return x, r, jac, True, message, nfev
+        step = newton if damping == 0.0 else None
+        while step is None and damping < 1e10:
+            damping = max(10.0 * damping, 1e4 * _DAMPING_FLOOR)
+            step = _cholesky_solve(scaled + damping * eye, -grad)
+        if step is None:  # not even a gradient step: non-finite values
+            break
+        trial = x + step / norms
+        r_new, jac_new, hess_new = model.evaluate(trial)
+        nfev += 1
+        chi2_new = float(r_new @ r_new)
+        # a step this small is inside Newton's region of quadratic convergence,
+        # and the chi-square change it makes is below the rounding of the
+        # model at large phase arguments: take it without asking chi-square
+        small = -(grad @ step) <= _SURE_STEP**2 * chi2 / dof
+        if small or chi2_new <= chi2 + rounding:
+            x, r, jac, hess, chi2 = trial, r_new, jac_new, hess_new, chi2_new
+            damping = 0.0
+        else:
+            damping = max(10.0 * damping, 1e-4)
+    return x, r, jac, False, f"no convergence after {nfev} evaluations", nfev
 
 
 def _linear_start(model: _JointModel, freqs: np.ndarray) -> np.ndarray:
@@ -864,11 +962,39 @@ def _linear_start(model: _JointModel, freqs: np.ndarray) -> np.ndarray:
     trig = model.trig(freqs)
     coefs = []
     for sel in model.bands:
-        design = np.vstack([np.ones((1, model.tau[sel].size)), trig[:, sel]]).T
-        sw = model.sw[sel]
-        beta, *_ = np.linalg.lstsq(design * sw[:, None], model.y[sel] * sw, rcond=None)
-        coefs.append(beta)
+        rows = np.vstack([np.ones((1, model.tau[sel].size)), trig[:, sel]])
+        y, sw = model.y[sel], model.sw[sel]
+        if y.size > rows.shape[0]:
+            r, qy, _, _ = _weighted_factor(rows, y, sw)
+            diag = np.abs(np.diag(r))
+            if diag.min() > 1e-10 * diag.max():
+                coefs.append(linalg.solve_triangular(r, qy, check_finite=False))
+                continue
+        # too few points or (nearly) dependent terms: the minimum-norm solution
+        coefs.append(np.linalg.lstsq(rows.T * sw[:, None], y * sw, rcond=None)[0])
     return np.concatenate([freqs, *coefs])
+
+
+def _inverse_normal(jac: np.ndarray) -> np.ndarray:
+    """``(J^T J)^+`` from Jacobian rows, computed in column-norm scaling.
+
+    Cholesky when the scaled matrix is well conditioned (there it equals the
+    pseudo-inverse to rounding), the pseudo-inverse otherwise.
+    """
+    norms = np.linalg.norm(jac, axis=1)
+    norms[norms == 0] = 1.0
+    jn = jac / norms[:, None]
+    normal = jn @ jn.T
+    try:
+        inverse = linalg.cho_solve(
+            linalg.cho_factor(normal, check_finite=False), np.eye(normal.shape[0])
+        )
+        well = np.linalg.norm(normal, 1) * np.linalg.norm(inverse, 1) < 1e7
+    except np.linalg.LinAlgError:
+        well = False
+    if not well:
+        inverse = np.linalg.pinv(normal)
+    return inverse / np.outer(norms, norms)
 
 
 def multi_frequency_fit(
@@ -885,7 +1011,9 @@ def multi_frequency_fit(
     """Nonlinear least squares on shared frequencies plus per-band coefficients.
 
     Model in band b: ``A0_b + sum_j sum_{k<=orders[j]} c cos(2 pi k f_j tau) +
-    s sin(...)``, ``tau = t - tc``.  Used by :func:`refine_frequency` and by
+    s sin(...)``, ``tau = t - tc``.  Started from the linear fit at the given
+    frequencies and solved by damped Newton iterations (:func:`_newton`) to
+    well below the standard errors.  Used by :func:`refine_frequency` and by
     :mod:`core.prewhiten`.
     """
     t = np.asarray(time, dtype=float)
@@ -899,33 +1027,14 @@ def multi_frequency_fit(
     n_f = freqs0.size
     tc = _centre(t)
     model = _JointModel(t - tc, y, sw, bidx, n_bands, orders)
-    x0 = _linear_start(model, freqs0)
-    cache: dict[bytes, tuple] = {}
-
-    def evaluate(x):
-        key = x.tobytes()
-        if key not in cache:
-            cache.clear()  # least_squares asks for fun and jac at the same point
-            cache[key] = model.evaluate(x)
-        return cache[key]
-
-    def fun(x):
-        return evaluate(x)[0]
-
-    def jac(x):
-        return evaluate(x)[1].T
-
+    x = _linear_start(model, freqs0)
     if refine and n_f:
-        sol = optimize.least_squares(fun, x0, jac=jac, method="lm", x_scale="jac")
-        x, success, message, nfev = sol.x, bool(sol.success), str(sol.message), int(sol.nfev)
+        x, resid_w, jac, success, message, nfev = _newton(model, x, max_nfev=100 * x.size)
     else:
-        x, success, message, nfev = x0, True, "linear fit at fixed frequencies", 0
-    resid_w, jac_rows = evaluate(x)
+        success, message, nfev = True, "linear fit at fixed frequencies", 0
+        resid_w, jac, _ = model.evaluate(x, second=False)
     dof = max(t.size - x.size, 1)
-    norms = np.linalg.norm(jac_rows, axis=1)
-    norms[norms == 0] = 1.0
-    jn = jac_rows / norms[:, None]
-    cov = np.linalg.pinv(jn @ jn.T) / np.outer(norms, norms)
+    cov = _inverse_normal(jac)  # of the Gauss–Newton (Jacobian) kind
     if scale_errors:
         cov = cov * float(resid_w @ resid_w) / dof
     # at fixed frequencies this is still the frequency error at that point
@@ -1033,8 +1142,8 @@ def refine_frequency(
 ) -> RefinedFrequency:
     """Refine a frequency with all bands sharing it.
 
-    Nonlinear least squares (``scipy.optimize.least_squares``, Levenberg–
-    Marquardt with an analytic Jacobian) on the frequency plus, per band, a
+    Nonlinear least squares (damped Newton iterations with the exact
+    Hessian, see :func:`multi_frequency_fit`) on the frequency plus, per band, a
     mean and ``order`` harmonics.  A band that cannot support ``order``
     gets the order its sampling allows; bands allowing none are left out.
 
