@@ -981,15 +981,14 @@ def _inverse_normal(jac: np.ndarray) -> np.ndarray:
     Cholesky when the scaled matrix is well conditioned (there it equals the
     pseudo-inverse to rounding), the pseudo-inverse otherwise.
     """
-    norms = np.linalg.norm(jac, axis=1)
+    gauss = jac @ jac.T
+    norms = np.sqrt(np.diag(gauss))
     norms[norms == 0] = 1.0
-    jn = jac / norms[:, None]
-    normal = jn @ jn.T
+    normal = gauss / np.outer(norms, norms)
     try:
-        inverse = linalg.cho_solve(
-            linalg.cho_factor(normal, check_finite=False), np.eye(normal.shape[0])
-        )
-        well = np.linalg.norm(normal, 1) * np.linalg.norm(inverse, 1) < 1e7
+        factor = linalg.cho_factor(normal, check_finite=False)
+        inverse = linalg.cho_solve(factor, np.eye(normal.shape[0]), check_finite=False)
+        well = np.abs(normal).sum(axis=0).max() * np.abs(inverse).sum(axis=0).max() < 1e7
     except np.linalg.LinAlgError:
         well = False
     if not well:
