@@ -36,11 +36,13 @@ Montgomery, M. H. & O'Donoghue, D. 1999, Delta Scuti Star Newsletter 13, 28.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import linalg, optimize, special
+from scipy import linalg, special
+from scipy.linalg import lapack
 
 from .errors import PhasewiseError
 from .validation import finite_or_none, require_choice, require_int, require_positive, require_range
@@ -171,46 +173,80 @@ def montgomery_odonoghue_sigma_f(
 
 
 # ---------------------------------------------------------------- the basis
-def _basis(theta: np.ndarray, order: int) -> np.ndarray:
-    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...].
+def _basis_rows(theta: np.ndarray, order: int) -> np.ndarray:
+    """Rows [1, cos θ, sin θ, cos 2θ, sin 2θ, ...], shape ``(2 order + 1, n)``.
 
-    Harmonics by complex powers ``exp(ikθ)`` (a running product, error of
-    order ``k`` ulp), which is several times faster than ``k`` trig calls.
+    Row-major, so that ``rows.T`` is the Fortran-ordered design LAPACK
+    wants, without a copy.  Harmonics as in :func:`_add_harmonics`.
     """
     theta = np.asarray(theta, dtype=float)
-    out = np.empty((theta.size, 2 * order + 1))
-    out[:, 0] = 1.0
+    out = np.empty((2 * order + 1, theta.size))
+    out[0] = 1.0
     if order:
-        z = np.exp(1j * theta)
-        powers = np.cumprod(np.broadcast_to(z[:, None], (theta.size, order)), axis=1)
-        out[:, 1::2] = powers.real
-        out[:, 2::2] = powers.imag
+        np.cos(theta, out=out[1])
+        np.sin(theta, out=out[2])
+        _add_harmonics(out[1:])
     return out
 
 
-def _dbasis(theta: np.ndarray, order: int, deriv: int) -> np.ndarray:
-    """d^deriv/dθ^deriv of the basis columns (deriv = 1 or 2)."""
+def _add_harmonics(rows: np.ndarray) -> None:
+    """Fill rows [cos θ, sin θ, cos 2θ, sin 2θ, ...] in place from the first two.
+
+    Angle addition, ``cos kθ = cos(k-1)θ cos θ - sin(k-1)θ sin θ`` and
+    ``sin kθ = sin(k-1)θ cos θ + cos(k-1)θ sin θ``: two trig calls instead
+    of ``2k``, and more accurate at large ``θ`` than ``cos(kθ)``, whose
+    argument loses ``ulp(kθ)`` when it is formed (the recurrence errs by
+    about ``k`` ulp).
+    """
+    c1, s1 = rows[0], rows[1]
+    scratch = np.empty(c1.size)
+    for k in range(2, rows.shape[0] // 2 + 1):
+        c, s = rows[2 * k - 4], rows[2 * k - 3]
+        ck, sk = rows[2 * k - 2], rows[2 * k - 1]
+        np.multiply(c, c1, out=ck)
+        ck -= np.multiply(s, s1, out=scratch)
+        np.multiply(s, c1, out=sk)
+        sk += np.multiply(c, s1, out=scratch)
+
+
+def _basis(theta: np.ndarray, order: int) -> np.ndarray:
+    """Columns [1, cos θ, sin θ, cos 2θ, sin 2θ, ...] (see :func:`_basis_rows`)."""
+    return _basis_rows(theta, order).T
+
+
+@functools.cache
+def _grid_rows(size: int, order: int) -> np.ndarray:
+    """Basis rows on ``size`` evenly spaced phases; cached, read-only."""
+    rows = _basis_rows(TWO_PI * np.arange(size) / size, order)
+    rows.flags.writeable = False
+    return rows
+
+
+def _point_rows(theta: float, order: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Basis row at one phase and its first and second derivatives in θ."""
     k = np.arange(1, order + 1)
-    arg = np.multiply.outer(theta, k)
-    c, s = np.cos(arg), np.sin(arg)
-    out = np.zeros((theta.size, 2 * order + 1))
-    if deriv == 1:
-        out[:, 1::2] = -k * s
-        out[:, 2::2] = k * c
-    else:
-        out[:, 1::2] = -(k**2) * c
-        out[:, 2::2] = -(k**2) * s
-    return out
+    c, s = np.cos(k * theta), np.sin(k * theta)
+    value = np.empty(2 * order + 1)
+    d1 = np.zeros(2 * order + 1)
+    d2 = np.zeros(2 * order + 1)
+    value[0] = 1.0
+    value[1::2], value[2::2] = c, s
+    d1[1::2], d1[2::2] = -k * s, k * c
+    d2[1::2], d2[2::2] = -(k**2) * c, -(k**2) * s
+    return value, d1, d2
 
 
 def _extremum(beta: np.ndarray, order: int, theta0: float, brightest: bool) -> float:
     """Newton-refine an extremum of the curve from a grid estimate."""
     theta = theta0
     step_limit = TWO_PI / _GRID
+    k = np.arange(1, order + 1)
+    c, s = beta[1::2], beta[2::2]
+    kc, ks = k * c, k * s
     for _ in range(4):
-        t = np.array([theta])
-        d1 = float(_dbasis(t, order, 1)[0] @ beta)
-        d2 = float(_dbasis(t, order, 2)[0] @ beta)
+        cos_k, sin_k = np.cos(k * theta), np.sin(k * theta)
+        d1 = float(ks @ cos_k - kc @ sin_k)
+        d2 = -float(k * kc @ cos_k + k * ks @ sin_k)
         # a minimum of magnitude (brightest) needs d2 > 0, a maximum d2 < 0
         if d2 == 0 or (d2 > 0) != brightest:
             break
@@ -221,6 +257,33 @@ def _extremum(beta: np.ndarray, order: int, theta0: float, brightest: bool) -> f
         if abs(step) < 1e-13:
             break
     return theta
+
+
+def _weighted_factor(rows: np.ndarray, y: np.ndarray, sw: np.ndarray):
+    """Householder QR of the weighted design with the data as an extra column.
+
+    Returns ``(r, qy, chi2, total)``: the triangular factor of the design,
+    ``Q^T y``, the chi-square of the first ``j + 1`` columns for every ``j``
+    and ``y^T y`` (all weighted).  Appending the data column gives ``Q^T y``
+    in the factor's last column and the rms of the full fit in its corner, so
+    ``Q`` is never formed.  The columns are nested: ``r[:p, :p]`` and
+    ``qy[:p]`` factorise the first ``p`` columns, and their chi-square is the
+    corner squared plus ``sum(qy[p:] ** 2)``, a sum of positive terms (no
+    cancellation, unlike ``total - sum(qy[:p] ** 2)``).
+    """
+    p = rows.shape[0]
+    aug = np.empty((p + 1, rows.shape[1]))
+    np.multiply(rows, sw, out=aug[:p])
+    np.multiply(y, sw, out=aug[p])
+    total = float(aug[p] @ aug[p])
+    qr, _, _, info = lapack.dgeqrf(aug.T, overwrite_a=True)
+    if info != 0:  # pragma: no cover - LAPACK argument error
+        raise PhasewiseError(f"QR factorisation failed (LAPACK info {info})", field="order")
+    r = np.triu(qr[:p, :p])
+    qy = qr[:p, p].copy()
+    tail = np.append(np.cumsum((qy**2)[::-1])[::-1], 0.0)  # tail[j] = sum(qy[j:] ** 2)
+    chi2 = qr[p, p] ** 2 + tail[1:]
+    return r, qy, chi2, total
 
 
 def _prepare(time: Any, mag: Any, err: Any, frequency: float):
@@ -474,48 +537,49 @@ def fit_fourier(
         )
     tc = _centre(t)
     sw = 1.0 / e
-    x = _basis(TWO_PI * f * (t - tc), order)
-    xw = x * sw[:, None]
-    yw = y * sw
-    q, r = np.linalg.qr(xw)
-    if np.min(np.abs(np.diag(r))) <= 1e-10 * np.max(np.abs(np.diag(r))):
+    rows = _basis_rows(TWO_PI * f * (t - tc), order)
+    r, qy, _, total = _weighted_factor(rows, y, sw)
+    diag = np.abs(np.diag(r))
+    if diag.min() <= 1e-10 * diag.max():
         raise PhasewiseError(
             f"the phase coverage cannot constrain a Fourier fit of order {order}", field="order"
         )
-    beta = linalg.solve_triangular(r, q.T @ yw)
-    resid = y - x @ beta
+    beta = linalg.solve_triangular(r, qy, check_finite=False)
+    resid = y - beta @ rows
     chi2 = float(np.sum((resid * sw) ** 2))
     dof = n - p
-    rinv = linalg.solve_triangular(r, np.eye(p))
+    rinv = linalg.solve_triangular(r, np.eye(p), check_finite=False)
     cov = rinv @ rinv.T
     if scale_errors:
         cov = cov * (chi2 / dof)
-    return _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
+    return _build_fit(t, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, total)
 
 
-def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw) -> FourierFit:
+def _build_fit(t, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, total) -> FourierFit:
     n = t.size
     c, s = beta[1::2], beta[2::2]
     amp = np.hypot(c, s)
     phase_c = np.arctan2(c, s) if form == "sine" else np.arctan2(-s, c)
 
     # curve on a phase grid (phase relative to tc), extrema refined
-    grid = TWO_PI * np.arange(_GRID) / _GRID
-    curve = _basis(grid, order) @ beta
-    th_bright = _extremum(beta, order, grid[int(np.argmin(curve))], brightest=True)
-    th_faint = _extremum(beta, order, grid[int(np.argmax(curve))], brightest=False)
-    m_bright = float(_basis(np.array([th_bright]), order)[0] @ beta)
-    m_faint = float(_basis(np.array([th_faint]), order)[0] @ beta)
+    curve = beta @ _grid_rows(_GRID, order)
+    grid_step = TWO_PI / _GRID
+    th_bright = _extremum(beta, order, grid_step * int(np.argmin(curve)), brightest=True)
+    th_faint = _extremum(beta, order, grid_step * int(np.argmax(curve)), brightest=False)
+    row_bright, d1_bright, d2_bright = _point_rows(th_bright, order)
+    row_faint = _point_rows(th_faint, order)[0]
+    m_bright = float(row_bright @ beta)
+    m_faint = float(row_faint @ beta)
 
     # maximum light nearest the middle of the data (tc is that middle)
     cycles = th_bright / TWO_PI
     epoch_max = tc + (cycles - np.round(cycles)) / f
-    d2 = float(_dbasis(np.array([th_bright]), order, 2)[0] @ beta)
-    g_theta = -_dbasis(np.array([th_bright]), order, 1)[0] / d2 if d2 != 0 else None
+    d2 = float(d2_bright @ beta)
+    g_theta = -d1_bright / d2 if d2 != 0 else None
     epoch_max_err = (
         float(np.sqrt(g_theta @ cov @ g_theta) / (TWO_PI * f)) if g_theta is not None else np.nan
     )
-    g_ptp = _basis(np.array([th_faint]), order)[0] - _basis(np.array([th_bright]), order)[0]
+    g_ptp = row_faint - row_bright
     ptp_err = float(np.sqrt(max(g_ptp @ cov @ g_ptp, 0.0)))
 
     t0 = epoch_max if epoch is None else float(epoch)
@@ -535,22 +599,20 @@ def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
     amp_err = np.sqrt(np.einsum("ij,jk,ik->i", g_amp, cov, g_amp))
     phase_err = np.sqrt(np.einsum("ij,jk,ik->i", g_phase, cov, g_phase))
 
-    rk, rk_err, pk, pk_err = [], [], [], []
-    for kk in range(2, order + 1):
-        ratio = amp[kk - 1] / amp[0]
-        g_r = g_amp[kk - 1] / amp[0] - amp[kk - 1] / amp[0] ** 2 * g_amp[0]
-        g_p = g_phase[kk - 1] - kk * g_phase[0]
-        rk.append(float(ratio))
-        rk_err.append(float(np.sqrt(g_r @ cov @ g_r)))
-        pk.append(float(np.mod(phases[kk - 1] - kk * phases[0], TWO_PI)))
-        pk_err.append(float(np.sqrt(g_p @ cov @ g_p)))
+    # ratios and differences to the first term, k = 2..order, all at once
+    higher = k[1:]
+    ratio = amp[1:] / amp[0]
+    g_r = g_amp[1:] / amp[0] - (amp[1:] / amp[0] ** 2)[:, None] * g_amp[0]
+    g_p = g_phase[1:] - higher[:, None] * g_phase[0]
+    rk_err = np.sqrt(np.einsum("ij,jk,ik->i", g_r, cov, g_r))
+    pk = np.mod(phases[1:] - higher * phases[0], TWO_PI)
+    pk_err = np.sqrt(np.einsum("ij,jk,ik->i", g_p, cov, g_p))
 
     flux_mean = np.mean(10.0 ** (-0.4 * curve))
     centred = curve - curve.mean()
     sd = float(np.sqrt(np.mean(centred**2)))
-    skew = float(np.mean(centred**3) / sd**3) if sd > 0 else np.nan
+    skew = float(np.mean(centred * centred * centred) / sd**3) if sd > 0 else np.nan
     rise = float(np.mod((th_bright - th_faint) / TWO_PI, 1.0))
-    scale = float(np.sum(yw**2))
     return FourierFit(
         frequency=f,
         form=form,
@@ -562,10 +624,10 @@ def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
         amplitudes_err=tuple(float(a) for a in amp_err),
         phases=tuple(float(a) for a in phases),
         phases_err=tuple(float(a) for a in phase_err),
-        R_k1=tuple(rk),
-        R_k1_err=tuple(rk_err),
-        phi_k1=tuple(pk),
-        phi_k1_err=tuple(pk_err),
+        R_k1=tuple(float(x) for x in ratio),
+        R_k1_err=tuple(float(x) for x in rk_err),
+        phi_k1=tuple(float(x) for x in pk),
+        phi_k1_err=tuple(float(x) for x in pk_err),
         mean_mag=float(beta[0]),
         intensity_mean_mag=float(-2.5 * np.log10(flux_mean)),
         peak_to_peak=m_faint - m_bright,
@@ -577,7 +639,7 @@ def _build_fit(t, y, f, order, form, epoch, tc, beta, cov, resid, chi2, dof, yw)
         residual_std=float(np.sqrt(np.sum(resid**2) / dof)),
         chi2_reduced=chi2 / dof,
         n_points=int(n),
-        bic=float(_bic(chi2, n, p, scale)),
+        bic=float(_bic(chi2, n, p, total)),
     )
 
 
@@ -627,32 +689,30 @@ def choose_order(
         )
     n = t.size
     tc = _centre(t)
-    sw = 1.0 / e
-    x = _basis(TWO_PI * f * (t - tc), cap)
-    yw = y * sw
-    q, r = np.linalg.qr(x * sw[:, None])
-    qy = q.T @ yw
-    total = float(yw @ yw)
-    chi2 = total - np.cumsum(qy**2)  # chi2 of the first j+1 columns
+    rows = _basis_rows(TWO_PI * f * (t - tc), cap)
+    r, qy, chi2, total = _weighted_factor(rows, y, 1.0 / e)
     diag = np.abs(np.diag(r))
-    grid_basis = _basis(TWO_PI * np.arange(256) / 256, cap)
-    data_range = float(np.ptp(y))
-    orders: list[int] = []
-    for order in range(1, cap + 1):
-        p = 2 * order + 1
-        if diag[:p].min() <= 1e-10 * diag.max():
-            limited_by = "phase_gap"
-            break
-        beta = linalg.solve_triangular(r[:p, :p], qy[:p])
-        curve = grid_basis[:, :p] @ beta
-        if order > 1 and np.ptp(curve) > (1.0 + settings.max_overshoot) * data_range:
+    # the smallest pivot only falls as columns are added: the first order
+    # whose columns are (nearly) dependent ends the list
+    bad = np.flatnonzero(np.minimum.accumulate(diag)[2::2] <= 1e-10 * diag.max())
+    good = int(bad[0]) if bad.size else cap
+    if good < cap:
+        limited_by = "phase_gap"
+    orders = list(range(1, good + 1))
+    if good > 1:
+        # every order's coefficients at once: the inverse of a leading block
+        # of a triangular matrix is the leading block of its inverse, so
+        # beta_p = rinv[:p, :p] @ qy[:p] = running sums of rinv * qy
+        p_max = 2 * good + 1
+        rinv = linalg.solve_triangular(r[:p_max, :p_max], np.eye(p_max), check_finite=False)
+        running = np.cumsum(rinv * qy[:p_max], axis=1)[:, 2::2]  # column o-1: order o
+        coefs = np.where(np.arange(p_max)[:, None] <= 2 * np.arange(1, good + 1), running, 0.0)
+        curves = _grid_rows(256, good).T @ coefs
+        over = np.ptp(curves, axis=0) > (1.0 + settings.max_overshoot) * float(np.ptp(y))
+        over[0] = False  # order 1 is never refused for ringing
+        if over.any():
             limited_by = "overshoot"
-            break
-        orders.append(order)
-    if not orders:
-        raise PhasewiseError(
-            f"the phase coverage of {n} points cannot constrain a Fourier fit", field="order"
-        )
+            orders = orders[: int(np.argmax(over))]
     cap = len(orders)
     chis = np.array([max(chi2[2 * o], total * 1e-24) for o in orders])
     if settings.criterion == "bic":
@@ -722,32 +782,218 @@ class _MultiFit:
         return float(np.hypot(coef[1 + 2 * term], coef[2 + 2 * term]))
 
 
-def _term_matrix(tau, freqs, terms):
-    """cos and sin of every term; harmonics by complex powers (see _basis)."""
-    harm = np.array([k for _, k in terms], dtype=float)
-    fidx = np.array([j for j, _ in terms], dtype=int)
-    blocks = []
-    for j in range(len(freqs)):
-        n_j = int(np.count_nonzero(fidx == j))
-        if n_j:
-            z = np.exp(1j * TWO_PI * freqs[j] * tau)
-            blocks.append(np.cumprod(np.broadcast_to(z[:, None], (tau.size, n_j)), axis=1))
-    wave = np.concatenate(blocks, axis=1)
-    return wave.real, wave.imag, harm, fidx
+def _term_rows(tau: np.ndarray, freqs: np.ndarray, orders: tuple[int, ...]) -> np.ndarray:
+    """Rows [cos, sin] of every term, frequency by frequency (see _add_harmonics).
+
+    One cos and one sin call serve all the frequencies.
+    """
+    theta = np.multiply.outer(TWO_PI * np.asarray(freqs, dtype=float), tau)
+    starts = 2 * np.concatenate([[0], np.cumsum(orders)[:-1]]).astype(int)
+    out = np.empty((2 * sum(orders), tau.size))
+    out[starts] = np.cos(theta)
+    out[starts + 1] = np.sin(theta)
+    for start, order in zip(starts, orders, strict=True):
+        if order > 1:
+            _add_harmonics(out[start : start + 2 * order])
+    return out
 
 
-def _linear_start(tau, y, sw, band_index, n_bands, freqs, terms):
-    cos_, sin_, _, _ = _term_matrix(tau, freqs, terms)
+class _JointModel:
+    """Shared frequencies, per-band mean and harmonics: residuals and derivatives.
+
+    Parameters ``x = [f_1..f_F, band 0: A0, c, s per term, band 1: ...]``;
+    weighted residuals ``r = (y - m) / err``.  Matrices have one row per
+    parameter (``jac`` is the transposed Jacobian of ``r``), the layout the
+    products below read fastest.
+    """
+
+    def __init__(self, tau, y, sw, band_index, n_bands, orders):
+        self.tau, self.y, self.sw = tau, y, sw
+        self.orders = tuple(int(o) for o in orders)
+        self.n_f, n_t = len(self.orders), sum(self.orders)
+        self.per_band = 1 + 2 * n_t
+        self.n_par = self.n_f + n_bands * self.per_band
+        # a slice keeps the one-band case free of copies
+        self.bands = [slice(None)] if n_bands == 1 else [band_index == b for b in range(n_bands)]
+        self.term_freq = np.repeat(np.arange(self.n_f), self.orders)
+        self.term_k = np.concatenate([np.arange(1.0, o + 1) for o in self.orders] + [[]])
+        self.cos_cols = 2 * np.arange(n_t)  # term rows in _term_rows
+        self.tau_w = TWO_PI * tau  # d(k theta_j) / d(f_j) = k tau_w
+        self._last: tuple[bytes, np.ndarray] = (b"", np.empty(0))
+
+    def trig(self, freqs: np.ndarray) -> np.ndarray:
+        """Term rows at ``freqs``; the last ones are kept (the start is used twice)."""
+        key = np.asarray(freqs, dtype=float).tobytes()
+        if key != self._last[0]:
+            self._last = (key, _term_rows(self.tau, freqs, self.orders))
+        return self._last[1]
+
+    def _by_term(self, cos_part, sin_part):
+        """(F, 2 T) matrix putting per-term weights in their frequency's row."""
+        out = np.zeros((self.n_f, 2 * self.term_k.size))
+        out[self.term_freq, self.cos_cols] = cos_part
+        out[self.term_freq, self.cos_cols + 1] = sin_part
+        return out
+
+    def evaluate(self, x: np.ndarray, second: bool = True):
+        """``(r, jac, s)``: residuals, Jacobian rows, second-order Hessian part.
+
+        ``s`` is what the Gauss–Newton ``jac @ jac.T`` leaves out of the
+        Hessian of ``r.r / 2``, namely ``-sum_i r_i w_i d2 m_i``.  It is zero
+        but in the frequency rows and columns (the model is linear in the
+        coefficients): ``d2 m / d f_j^2`` and ``d2 m / (d f_j d c, s)`` of
+        that frequency's own terms.
+        """
+        n_f, per_band, k = self.n_f, self.per_band, self.term_k
+        trig = self.trig(x[:n_f])
+        n = self.tau.size
+        jac = np.zeros((self.n_par, n))
+        model = np.empty(n)
+        slope = np.empty((n_f, n))  # d m / d f_j over tau_w
+        curve = np.empty((n_f, n)) if second else None  # d2 m / d f_j^2 over tau_w^2
+        for b, sel in enumerate(self.bands):
+            base = n_f + b * per_band
+            coef = x[base : base + per_band]
+            c, s = coef[1::2], coef[2::2]
+            rows = trig[:, sel]
+            jac[base, sel] = 1.0
+            jac[base + 1 : base + per_band, sel] = rows
+            model[sel] = coef[0] + coef[1:] @ rows
+            # d/dθ of c cos kθ + s sin kθ is k (s cos kθ - c sin kθ)
+            slope[:, sel] = self._by_term(k * s, -k * c) @ rows
+            if second:
+                curve[:, sel] = self._by_term(-(k**2) * c, -(k**2) * s) @ rows
+        jac[:n_f] = slope * self.tau_w
+        r = (self.y - model) * self.sw
+        jac *= -self.sw
+        if not second:
+            return r, jac, None
+        rw = r * self.sw
+        hess = np.zeros((self.n_par, self.n_par))
+        hess[np.arange(n_f), np.arange(n_f)] = -(curve @ (rw * self.tau_w**2))
+        rwt = rw * self.tau_w
+        for b, sel in enumerate(self.bands):
+            # d2 m / (d f_j d c) = -k tau_w sin kθ, d2 m / (d f_j d s) = k tau_w cos kθ
+            sums = trig[:, sel] @ rwt[sel]
+            cols = n_f + b * per_band + 1 + self.cos_cols
+            hess[self.term_freq, cols] = k * sums[1::2]
+            hess[self.term_freq, cols + 1] = -k * sums[0::2]
+        hess[n_f:, :n_f] = hess[:n_f, n_f:].T
+        return r, jac, hess
+
+
+#: A joint fit has converged when the Newton step from its last point is
+#: below this many standard errors in every direction.  That point is
+#: returned (its residuals and Jacobian are at hand); it lies about one such
+#: step from the minimum.
+_STEP_TOL = 1e-6
+#: Steps below this many standard errors are taken without a chi-square test.
+_SURE_STEP = 1e-3
+#: Damping always added to the unit-diagonal Gauss-Newton part.
+_DAMPING_FLOOR = 1e-12
+
+
+def _cholesky_solve(matrix: np.ndarray, rhs: np.ndarray) -> np.ndarray | None:
+    """``matrix^-1 rhs`` for a positive definite matrix, else None."""
+    try:
+        factor = linalg.cho_factor(matrix, check_finite=False)
+    except np.linalg.LinAlgError:
+        return None
+    return linalg.cho_solve(factor, rhs, check_finite=False)
+
+
+def _newton(model: _JointModel, x0: np.ndarray, max_nfev: int):
+    """Damped Newton iterations on ``r.r`` from ``x0``.
+
+    Full Newton steps (the exact Hessian, see :meth:`_JointModel.evaluate`)
+    in the parameter scaling of the Jacobian's column norms, so convergence
+    is quadratic near the minimum.  A step that does not lower chi-square, or
+    a Hessian that is not positive definite, raises a Levenberg–Marquardt
+    damping term until it does.  Stops when the Newton step (damped by no
+    more than ``_DAMPING_FLOOR``) is below ``_STEP_TOL`` standard errors: its
+    Newton decrement ``-g.step`` is below ``_STEP_TOL**2`` times the reduced
+    chi-square.
+
+    Returns ``(x, r, jac, converged, message, nfev)``.
+    """
+    x = x0
+    r, jac, hess = model.evaluate(x)
+    chi2, nfev, damping = float(r @ r), 1, 0.0
+    dof = max(r.size - x.size, 1)
+    eye = np.eye(x.size)
+    rounding = np.finfo(float).eps * r.size * chi2
+    while nfev < max_nfev:
+        gauss = jac @ jac.T
+        norms = np.sqrt(np.diag(gauss))
+        norms[norms == 0] = 1.0
+        scaled = (gauss + hess) / np.outer(norms, norms)
+        grad = (jac @ r) / norms
+        # a floor far below any determined direction's curvature: it leaves
+        # the fixed point alone but lets undetermined coefficients (a band
+        # with fewer points than terms) through the factorisation
+        newton = _cholesky_solve(scaled + _DAMPING_FLOOR * eye, -grad)
+        if newton is not None and -(grad @ newton) <= _STEP_TOL**2 * chi2 / dof:
+            message = f"converged (next step below {_STEP_TOL:g} standard errors)"
+            return x, r, jac, True, message, nfev
+        step = newton if damping == 0.0 else None
+        while step is None and damping < 1e10:
+            damping = max(10.0 * damping, 1e4 * _DAMPING_FLOOR)
+            step = _cholesky_solve(scaled + damping * eye, -grad)
+        if step is None:  # not even a gradient step: non-finite values
+            break
+        trial = x + step / norms
+        r_new, jac_new, hess_new = model.evaluate(trial)
+        nfev += 1
+        chi2_new = float(r_new @ r_new)
+        # a step this small is inside Newton's region of quadratic convergence,
+        # and the chi-square change it makes is below the rounding of the
+        # model at large phase arguments: take it without asking chi-square
+        small = -(grad @ step) <= _SURE_STEP**2 * chi2 / dof
+        if small or chi2_new <= chi2 + rounding:
+            x, r, jac, hess, chi2 = trial, r_new, jac_new, hess_new, chi2_new
+            damping = 0.0
+        else:
+            damping = max(10.0 * damping, 1e-4)
+    return x, r, jac, False, f"no convergence after {nfev} evaluations", nfev
+
+
+def _linear_start(model: _JointModel, freqs: np.ndarray) -> np.ndarray:
+    """Parameters with every band's coefficients fitted at fixed frequencies."""
+    trig = model.trig(freqs)
     coefs = []
-    for b in range(n_bands):
-        sel = band_index == b
-        x = np.empty((int(sel.sum()), 1 + 2 * len(terms)))
-        x[:, 0] = 1.0
-        x[:, 1::2] = cos_[sel]
-        x[:, 2::2] = sin_[sel]
-        beta, *_ = np.linalg.lstsq(x * sw[sel, None], y[sel] * sw[sel], rcond=None)
-        coefs.append(beta)
-    return coefs
+    for sel in model.bands:
+        rows = np.vstack([np.ones((1, model.tau[sel].size)), trig[:, sel]])
+        y, sw = model.y[sel], model.sw[sel]
+        if y.size > rows.shape[0]:
+            r, qy, _, _ = _weighted_factor(rows, y, sw)
+            diag = np.abs(np.diag(r))
+            if diag.min() > 1e-10 * diag.max():
+                coefs.append(linalg.solve_triangular(r, qy, check_finite=False))
+                continue
+        # too few points or (nearly) dependent terms: the minimum-norm solution
+        coefs.append(np.linalg.lstsq(rows.T * sw[:, None], y * sw, rcond=None)[0])
+    return np.concatenate([freqs, *coefs])
+
+
+def _inverse_normal(jac: np.ndarray) -> np.ndarray:
+    """``(J^T J)^+`` from Jacobian rows, computed in column-norm scaling.
+
+    Cholesky when the scaled matrix is well conditioned (there it equals the
+    pseudo-inverse to rounding), the pseudo-inverse otherwise.
+    """
+    gauss = jac @ jac.T
+    norms = np.sqrt(np.diag(gauss))
+    norms[norms == 0] = 1.0
+    normal = gauss / np.outer(norms, norms)
+    try:
+        factor = linalg.cho_factor(normal, check_finite=False)
+        inverse = linalg.cho_solve(factor, np.eye(normal.shape[0]), check_finite=False)
+        well = np.abs(normal).sum(axis=0).max() * np.abs(inverse).sum(axis=0).max() < 1e7
+    except np.linalg.LinAlgError:
+        well = False
+    if not well:
+        inverse = np.linalg.pinv(normal)
+    return inverse / np.outer(norms, norms)
 
 
 def multi_frequency_fit(
@@ -764,7 +1010,9 @@ def multi_frequency_fit(
     """Nonlinear least squares on shared frequencies plus per-band coefficients.
 
     Model in band b: ``A0_b + sum_j sum_{k<=orders[j]} c cos(2 pi k f_j tau) +
-    s sin(...)``, ``tau = t - tc``.  Used by :func:`refine_frequency` and by
+    s sin(...)``, ``tau = t - tc``.  Started from the linear fit at the given
+    frequencies and solved by damped Newton iterations (:func:`_newton`) to
+    well below the standard errors.  Used by :func:`refine_frequency` and by
     :mod:`core.prewhiten`.
     """
     t = np.asarray(time, dtype=float)
@@ -773,70 +1021,24 @@ def multi_frequency_fit(
     bidx = np.zeros(t.size, dtype=int) if band_index is None else np.asarray(band_index, int)
     n_bands = int(bidx.max()) + 1 if t.size else 1
     freqs0 = np.asarray(frequencies, dtype=float)
-    terms = tuple((j, k) for j, o in enumerate(orders) for k in range(1, int(o) + 1))
-    n_f, n_t = freqs0.size, len(terms)
-    per_band = 1 + 2 * n_t
+    orders = tuple(int(o) for o in orders)
+    terms = tuple((j, k) for j, o in enumerate(orders) for k in range(1, o + 1))
+    n_f = freqs0.size
     tc = _centre(t)
-    tau = t - tc
-    coefs0 = _linear_start(tau, y, sw, bidx, n_bands, freqs0, terms)
-    x0 = np.concatenate([freqs0, *coefs0])
-    rows = np.arange(t.size)
-
-    def unpack(x):
-        freqs = x[:n_f]
-        coef = x[n_f:].reshape(n_bands, per_band)[bidx]  # per point
-        return freqs, coef
-
-    cache: dict[bytes, tuple] = {}
-
-    def model_and_parts(x):
-        key = x.tobytes()
-        if key not in cache:
-            cache.clear()  # least_squares asks for fun and jac at the same point
-            cache[key] = _model_and_parts(x)
-        return cache[key]
-
-    def _model_and_parts(x):
-        freqs, coef = unpack(x)
-        cos_, sin_, harm, fidx = _term_matrix(tau, freqs, terms)
-        c, s = coef[:, 1::2], coef[:, 2::2]
-        model = coef[:, 0] + np.sum(c * cos_ + s * sin_, axis=1)
-        return model, cos_, sin_, harm, fidx, c, s
-
-    def fun(x):
-        return (y - model_and_parts(x)[0]) * sw
-
-    def jac(x):
-        _, cos_, sin_, harm, fidx, c, s = model_and_parts(x)
-        out = np.zeros((t.size, x.size))
-        dterm = TWO_PI * harm * tau[:, None] * (-c * sin_ + s * cos_)
-        for j in range(n_f):
-            out[:, j] = dterm[:, fidx == j].sum(axis=1)
-        design = np.empty((t.size, per_band))
-        design[:, 0] = 1.0
-        design[:, 1::2] = cos_
-        design[:, 2::2] = sin_
-        # each point's coefficients sit in its own band's block
-        out[:, n_f:].reshape(t.size, n_bands, per_band)[rows, bidx] = design
-        return -out * sw[:, None]
-
+    model = _JointModel(t - tc, y, sw, bidx, n_bands, orders)
+    x = _linear_start(model, freqs0)
     if refine and n_f:
-        sol = optimize.least_squares(fun, x0, jac=jac, method="lm", x_scale="jac")
-        x, success, message, nfev = sol.x, bool(sol.success), str(sol.message), int(sol.nfev)
+        x, resid_w, jac, success, message, nfev = _newton(model, x, max_nfev=100 * x.size)
     else:
-        x, success, message, nfev = x0, True, "linear fit at fixed frequencies", 0
-    jmat = jac(x)
-    resid_w = fun(x)
+        success, message, nfev = True, "linear fit at fixed frequencies", 0
+        resid_w, jac, _ = model.evaluate(x, second=False)
     dof = max(t.size - x.size, 1)
-    norms = np.linalg.norm(jmat, axis=0)
-    norms[norms == 0] = 1.0
-    jn = jmat / norms
-    cov = np.linalg.pinv(jn.T @ jn) / np.outer(norms, norms)
+    cov = _inverse_normal(jac)  # of the Gauss–Newton (Jacobian) kind
     if scale_errors:
         cov = cov * float(resid_w @ resid_w) / dof
     # at fixed frequencies this is still the frequency error at that point
     ferr = np.sqrt(np.clip(np.diag(cov)[:n_f], 0, None))
-    coef_b = x[n_f:].reshape(n_bands, per_band)
+    coef_b = x[n_f:].reshape(n_bands, model.per_band)
     return _MultiFit(
         frequencies=x[:n_f].copy(),
         frequencies_err=ferr,
@@ -939,8 +1141,8 @@ def refine_frequency(
 ) -> RefinedFrequency:
     """Refine a frequency with all bands sharing it.
 
-    Nonlinear least squares (``scipy.optimize.least_squares``, Levenberg–
-    Marquardt with an analytic Jacobian) on the frequency plus, per band, a
+    Nonlinear least squares (damped Newton iterations with the exact
+    Hessian, see :func:`multi_frequency_fit`) on the frequency plus, per band, a
     mean and ``order`` harmonics.  A band that cannot support ``order``
     gets the order its sampling allows; bands allowing none are left out.
 
