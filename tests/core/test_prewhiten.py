@@ -224,3 +224,22 @@ def test_a_search_that_refuses_stops_prewhitening_with_its_reason():
     assert res.stop_reason == "search failed" and "above the limit" in res.note
     assert len(res.frequencies) == 1 and res.frequencies[0].kind == "main"
     assert res.to_dict()["note"] == res.note
+
+
+def test_residual_search_keeps_to_the_main_search_range():
+    from core.periodogram import PeriodogramSettings
+    from core.prewhiten import residual_search
+
+    t = _times(14)
+    lc = _star(t, _double_mode(t), 14)
+    search = residual_search(3, PeriodogramSettings(method="pdm", fmin=0.5, fmax=3.0))
+    grid, power = search(lc)
+    baseline = np.ptp(t)
+    assert grid[0] == pytest.approx(0.5) and grid[-1] <= 3.0
+    assert np.diff(grid)[0] == pytest.approx(1.0 / (3 * baseline))  # its own oversampling
+    assert np.all((power >= 0) & (power <= 1))  # a least-squares power even for a PDM main search
+    # both modes of the double-mode star lie below 3 c/d: the second is found in range
+    assert F1O < 3.0 and F_F < 3.0
+    res = prewhiten(lc, F1O, search=search)
+    assert all(0.5 <= f.frequency <= 3.0 for f in res.frequencies)
+    assert min(abs(f.frequency - F_F) for f in res.frequencies[1:]) < 1.0 / baseline
