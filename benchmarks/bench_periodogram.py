@@ -33,6 +33,7 @@ from core.periodogram import (  # noqa: E402
     grid_parameters,
     shared_epoch_periodograms,
 )
+from core.periodogram.kernels.gls import clear_weight_terms  # noqa: E402
 
 
 def median_time(func, repeats: int) -> float:
@@ -83,9 +84,14 @@ def main() -> None:
     print(f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores; one thread")
     print(f"{t.size} points, {grid.n:,} frequencies ({grid.fmin:.4g}-{grid.fmax:.4g} c/d)")
 
-    ours, raw = interleaved_medians(
+    def first_sight():  # a star seen for the first time: its weight terms are computed
+        clear_weight_terms()
+        return compute_periodogram(lc, settings)
+
+    ours, again, raw = interleaved_medians(
         [
-            lambda: compute_periodogram(lc, settings),
+            first_sight,
+            lambda: compute_periodogram(lc, settings),  # the same points again (prewhitening)
             lambda: nifty_ls.lombscargle(
                 t,
                 mag,
@@ -101,7 +107,8 @@ def main() -> None:
     )
     ls = LombScargle(t, mag, err)
     astro = median_time(lambda: ls.power(freq, method="fast"), max(3, reps // 3))
-    print(f"GLS ours            {ours * 1e3:8.2f} ms")
+    print(f"GLS ours            {ours * 1e3:8.2f} ms (a new star: three transforms)")
+    print(f"GLS ours, same points {again * 1e3:6.2f} ms (weight terms kept: one transform)")
     print(
         f"GLS raw nifty-ls    {raw * 1e3:8.2f} ms   ours/raw = {ours / raw:5.2f}x (target <= 1.2)"
     )

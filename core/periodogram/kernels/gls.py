@@ -25,7 +25,14 @@ import numpy as np
 
 from .nufft import trig_sums
 
-__all__ = ["gls_exact", "gls_nufft", "weight_terms", "WeightTerms", "CHUNK_ELEMENTS"]
+__all__ = [
+    "gls_exact",
+    "gls_nufft",
+    "weight_terms",
+    "clear_weight_terms",
+    "WeightTerms",
+    "CHUNK_ELEMENTS",
+]
 
 #: Frequencies x points handled at once by the numpy kernels (bounds memory).
 CHUNK_ELEMENTS = 2_000_000
@@ -133,6 +140,11 @@ class WeightTerms(NamedTuple):
 WEIGHT_CACHE_BYTES = 64 * 2**20
 
 _local = threading.local()
+
+
+def clear_weight_terms() -> None:
+    """Drop this thread's kept weight terms."""
+    _local.weights = OrderedDict()
 
 
 def weight_terms(t, w, grid, *, n_threads: int = 1) -> WeightTerms:
