@@ -26,7 +26,8 @@ from typing import Any
 
 import astropy.units as u
 import numpy as np
-from astropy.table import Table
+from astropy.table import Column as TableColumn
+from astropy.table import MaskedColumn, Table
 
 from . import __version__
 from .errors import PhasewiseError
@@ -349,28 +350,52 @@ def _write_csv(table: Table, path: Path) -> None:
     out.write(path, format="ascii.csv", comment="# ")
 
 
+#: Typographic characters our texts use, as FITS (ASCII only) writes them.
+_ASCII_FOR = str.maketrans(
+    {"–": "-", "—": "-", "−": "-", "‘": "'", "’": "'", "“": '"', "”": '"', "±": "+/-", "×": "x"}
+)
+
+
+def _ascii(text: str) -> str:
+    """``text`` in ASCII: typographic marks replaced, accents dropped, anything else '?'."""
+    import unicodedata
+
+    decomposed = unicodedata.normalize("NFKD", str(text).translate(_ASCII_FOR))
+    bare = "".join(c for c in decomposed if not unicodedata.combining(c))
+    return bare.encode("ascii", "replace").decode("ascii")
+
+
 def _write_fits(table: Table, path: Path) -> None:
+    """FITS tables and headers hold ASCII only: texts are transliterated (the
+    ECSV, VOTable and CSV catalogues keep them as they are)."""
     from astropy.io import fits
 
     out = table.copy(copy_data=False)
     meta = table.meta
     out.meta = {}
+    for name in out.colnames:
+        column = out[name]
+        if column.dtype.kind != "U":
+            continue
+        mask = np.ma.getmaskarray(column)
+        texts = [_ascii(v) for v in np.ma.filled(column, "")]
+        out[name] = MaskedColumn(texts, mask=mask) if mask.any() else TableColumn(texts)
     hdu = fits.table_to_hdu(out)
     header = hdu.header
     header["EXTNAME"] = "VETTED"
-    header["PROGRAM"] = meta["program"]
+    header["PROGRAM"] = _ascii(meta["program"])
     header["DATE"] = meta["date"]
-    header["LEDGER"] = meta["ledger"]
+    header["LEDGER"] = _ascii(meta["ledger"])
     header["LEDGSUM"] = meta["ledger_checksum"]
     header["SETHASH"] = meta["settings_hash"] or ""
-    header["SETTINGS"] = json.dumps(meta["analysis_settings"], sort_keys=True)
+    header["SETTINGS"] = json.dumps(meta["analysis_settings"], sort_keys=True)  # ASCII-escaped
     for index, name in enumerate(out.colnames, start=1):
         column = table[name]
         header[f"TUCD{index}"] = column.meta["ucd"]
-        header[f"TCOMM{index}"] = column.description[:68]
+        header[f"TCOMM{index}"] = _ascii(column.description)[:68]
     for relation in meta["relations"]:
-        header.add_history(f"relation cited: {relation}")
-    header.add_comment(meta["caution"])
+        header.add_history(_ascii(f"relation cited: {relation}"))
+    header.add_comment(_ascii(meta["caution"]))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", fits.verify.VerifyWarning)
         fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(path)

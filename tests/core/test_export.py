@@ -259,3 +259,18 @@ def test_star_without_analysis_exports_blanks(tmp_path):
     assert (row["class"], row["period"], row["fourier_order"]) == ("EA", 2.5, -1)
     assert np.ma.is_masked(row["fap"]) or math.isnan(row["fap"])
     assert row["time_scale"] == "JD"  # from the star's photometry
+
+
+def test_fits_writes_texts_as_ascii_and_the_other_formats_keep_them(led, tmp_path):
+    # FITS tables and headers hold ASCII only (FITS Standard 4.0, sections 4.1 and 7.3:
+    # characters 32-126; from memory). Notes and flags written by people and by the
+    # relations' range checks ("2.5–5.5 rad") are transliterated there, kept elsewhere.
+    note = "Blazhko–like, see Ångström’s remark ±0.01"
+    led.set_verdict("TX-0", "confirmed", note=note)
+    write_catalogue(led, tmp_path / "n.fits")
+    write_catalogue(led, tmp_path / "n.ecsv")
+    fits_table, ecsv_table = _read(tmp_path / "n.fits", "fits"), _read(tmp_path / "n.ecsv", "ecsv")
+    row = [_text(fits_table["star_id"], i) for i in range(len(fits_table))].index("TX-0")
+    assert _text(fits_table["note"], row) == "Blazhko-like, see Angstrom's remark +/-0.01"
+    row = [_text(ecsv_table["star_id"], i) for i in range(len(ecsv_table))].index("TX-0")
+    assert _text(ecsv_table["note"], row) == note
