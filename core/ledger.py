@@ -465,11 +465,37 @@ class Ledger:
         return int(version)
 
     @staticmethod
+    def _live_holder(conn: sqlite3.Connection, path: Path) -> None:
+        """Raise :class:`LedgerLockedError` naming the holder if a live process holds the lock."""
+        row = conn.execute(
+            "SELECT pid, host, since, program, token FROM lock WHERE id = 1"
+        ).fetchone()
+        if row is None:
+            return
+        holder = LockHolder(int(row[0]), row[1], row[2], row[3])
+        started = row[4].partition("/")[2]
+        if holder.host != socket.gethostname() or _holder_alive(holder.pid, started):
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            conn.close()
+            where = (
+                "" if holder.host == socket.gethostname() else " (another machine: cannot check it)"
+            )
+            raise LedgerLockedError(
+                f"held for writing by {holder.describe()}{where}; "
+                "close it there, or open this ledger read-only",
+                file=path,
+            )
+        # the holder died without closing: its lock is stale, to be taken over
+
+    @staticmethod
     def _take_lock(conn: sqlite3.Connection, path: Path) -> str:
         # the token carries the process start time, so a reused pid is not mistaken
         # for the holder
         token = f"{uuid.uuid4().hex}/{_process_start(os.getpid()) or ''}"
-        host = socket.gethostname()
+        # a read first (in WAL mode it never waits for a writer): a live holder is
+        # named at once, not after waiting for a write lock it keeps taking
+        Ledger._live_holder(conn, path)
         try:
             conn.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as exc:
@@ -478,26 +504,11 @@ class Ledger:
                 f"another process is writing to it and did not finish within 10 s ({exc})",
                 file=path,
             ) from exc
-        row = conn.execute(
-            "SELECT pid, host, since, program, token FROM lock WHERE id = 1"
-        ).fetchone()
-        if row is not None:
-            holder = LockHolder(int(row[0]), row[1], row[2], row[3])
-            started = row[4].partition("/")[2]
-            if holder.host != host or _holder_alive(holder.pid, started):
-                conn.execute("ROLLBACK")
-                conn.close()
-                where = "" if holder.host == host else " (another machine: cannot check it)"
-                raise LedgerLockedError(
-                    f"held for writing by {holder.describe()}{where}; "
-                    "close it there, or open this ledger read-only",
-                    file=path,
-                )
-            # the holder died without closing: its lock is stale, take it over
+        Ledger._live_holder(conn, path)  # again, inside the transaction: it may have changed
         conn.execute(
             "INSERT OR REPLACE INTO lock(id, token, pid, host, since, program) "
             "VALUES (1, ?, ?, ?, ?, ?)",
-            (token, os.getpid(), host, _now(), f"phasewise {__version__}"),
+            (token, os.getpid(), socket.gethostname(), _now(), f"phasewise {__version__}"),
         )
         conn.execute("COMMIT")
         return token
