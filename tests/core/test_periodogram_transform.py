@@ -132,3 +132,18 @@ def test_threads_compute_independently():
     for got in results.values():
         for power, want in zip(got, expected * 3, strict=True):
             assert np.max(np.abs(power - want)) < 1e-12
+
+
+def test_plan_cache_is_bounded_by_grid_points(monkeypatch):
+    from core.periodogram.kernels import nufft
+
+    monkeypatch.setattr(nufft, "MAX_PLAN_MODES", 1500)
+    clear_plans()
+    rng = np.random.default_rng(3)
+    t, c = rng.uniform(-5, 5, 20), rng.normal(size=20)
+    for n in (1000, 400, 300):
+        trig_sums(t, c, 0.1, 0.01, n)
+    kept = [key[0] for key in nufft._local.plans]
+    assert kept == [400, 300]  # 1000 + 400 + 300 is over the budget: the oldest went
+    trig_sums(t, c, 0.1, 0.01, 2000)  # one plan alone may exceed it
+    assert [key[0] for key in nufft._local.plans] == [2000]

@@ -34,8 +34,12 @@ EPS = 1e-9
 _FFTW_ESTIMATE = 64
 
 #: Plans kept per thread (grid sizes differ between the main search, the
-#: residual searches and the spectral window).
+#: residual searches and the spectral window) ...
 MAX_PLANS = 6
+#: ... and the most grid points they may hold together: a plan's work arrays
+#: take about 40 bytes per grid point, so this bounds them near 120 MB per
+#: thread (the newest plan is always kept).
+MAX_PLAN_MODES = 3_000_000
 
 _local = threading.local()
 
@@ -60,7 +64,9 @@ def _plan(n_modes: int, n_threads: int):
             fftw=_FFTW_ESTIMATE,
         )
         cache[key] = plan
-        while len(cache) > MAX_PLANS:
+        while len(cache) > 1 and (
+            len(cache) > MAX_PLANS or sum(k[0] for k in cache) > MAX_PLAN_MODES
+        ):
             cache.popitem(last=False)
     else:
         cache.move_to_end(key)
