@@ -1,10 +1,7 @@
-"""Phasewise front ends: the command line (``app.cli``) and the desktop window.
+"""Phasewise front ends: the command line (``phasewise.app.cli``) and the desktop window.
 
-Importing this package loads no Qt; only the window modules do.  It does
-guard ``None`` against a reference leak of PySide6 6.12 on Python 3.11 (see
-:mod:`app.refguard`), so that every Qt window and test run lasts.
+Importing this package loads no Qt and changes nothing in the process.  The
+window packages (``phasewise.app.desk``, ``phasewise.app.population``) guard
+``None`` against a reference leak of PySide6 6.12 on Python 3.11 when they are
+imported (see :mod:`phasewise.app.refguard`).
 """
-
-from .refguard import guard_none
-
-guard_none()

@@ -1,5 +1,8 @@
+"""``python -m phasewise.app``: the command line (same as ``python -m phasewise``)."""
+
 import sys
 
-from app.cli import main
+from phasewise.app.cli import main
 
-sys.exit(main())
+if __name__ == "__main__":
+    sys.exit(main())

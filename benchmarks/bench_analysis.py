@@ -31,10 +31,10 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import numpy as np  # noqa: E402
 from nifty_ls import finufft  # noqa: E402
 
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.io import open_photometry  # noqa: E402
-from core.periodogram import grid_parameters  # noqa: E402
-from core.synthetic import synthetic_field  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.io import open_photometry  # noqa: E402
+from phasewise.core.periodogram import grid_parameters  # noqa: E402
+from phasewise.core.synthetic import synthetic_field  # noqa: E402
 
 TARGET_MS = 60.0
 N_FREQ = 100_000

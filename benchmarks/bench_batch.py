@@ -38,17 +38,17 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.batch import analyse_chunk, analyse_ledger, shared_epoch_groups  # noqa: E402
-from core.clean import clean  # noqa: E402
-from core.ledger import Ledger  # noqa: E402
-from core.periodogram import (  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.batch import analyse_chunk, analyse_ledger, shared_epoch_groups  # noqa: E402
+from phasewise.core.clean import clean  # noqa: E402
+from phasewise.core.ledger import Ledger  # noqa: E402
+from phasewise.core.periodogram import (  # noqa: E402
     PeriodogramSettings,
     compute_periodogram,
     grid_parameters,
     shared_epoch_periodograms,
 )
-from core.synthetic import synthetic_field  # noqa: E402
+from phasewise.core.synthetic import synthetic_field  # noqa: E402
 
 N_FREQUENCIES = 100_000
 
@@ -110,7 +110,7 @@ def whole_analysis_both_ways(lcs, settings) -> tuple[float, float]:
 
 
 def demo_lightcurves(n: int | None):
-    from core.io import open_photometry
+    from phasewise.core.io import open_photometry
 
     source = open_photometry(ROOT / "demo_data" / "caldera_survey.csv")
     lcs = list(source.stars())

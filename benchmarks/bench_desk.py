@@ -24,13 +24,13 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 import numpy as np  # noqa: E402
 
-import core  # noqa: E402, F401  (first, as in the program: it sets one BLAS thread before numpy)
+from phasewise import core  # noqa: E402, F401  (first, as in the program: it sets one BLAS thread before numpy)
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 
 def invented_star(star_id: str, n: int, period: float, seed: int):
-    from core.lightcurve import LightCurve
+    from phasewise.core.lightcurve import LightCurve
 
     rng = np.random.default_rng(seed)
     t = 2461000.0 + np.sort(rng.uniform(0.0, 900.0, n))
@@ -48,7 +48,7 @@ _TEMPLATE: dict = {}
 def template_result() -> dict:
     """One real core.analysis result (of a 700-point invented star), reused as a template."""
     if not _TEMPLATE:
-        from app.desk.services import CoreServices
+        from phasewise.app.desk.services import CoreServices
 
         services = CoreServices()
         lc = invented_star("TEMPLATE", 700, 0.5, 0)
@@ -60,8 +60,8 @@ def make_ledger(path: Path, n_stars: int, n_points: int, analyse: bool):
     """Invented stars in a new ledger; each analysed by core.analysis, or (for big
     ledgers and curves, where the analysis is not what is measured) given a copy
     of one real result."""
-    from app.desk.services import CoreServices
-    from core.ledger import Ledger
+    from phasewise.app.desk.services import CoreServices
+    from phasewise.core.ledger import Ledger
 
     services = CoreServices()
     settings = services.default_settings()
@@ -82,7 +82,7 @@ def window_on(path: Path):
     from PySide6.QtCore import QSettings
     from PySide6.QtWidgets import QApplication
 
-    from app.desk import MainWindow
+    from phasewise.app.desk import MainWindow
 
     app = QApplication.instance() or QApplication([])
     tmp = tempfile.mkdtemp()
@@ -161,7 +161,7 @@ sys.path.insert(0, sys.argv[3])
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication
 app = QApplication([])
-from app.desk import MainWindow
+from phasewise.app.desk import MainWindow
 w = MainWindow(settings=QSettings(sys.argv[4], QSettings.Format.IniFormat))
 w.show()
 w.open_ledger(sys.argv[1])

@@ -21,8 +21,8 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.ledger import Ledger  # noqa: E402
-from core.lightcurve import LightCurve, StarMeta  # noqa: E402
+from phasewise.core.ledger import Ledger  # noqa: E402
+from phasewise.core.lightcurve import LightCurve, StarMeta  # noqa: E402
 
 
 def synthetic_field(n_stars: int, n_points: int, seed: int = 1):
@@ -126,7 +126,7 @@ def main() -> None:
         items = [(s, "confirmed", "RRab", 0.5, None) for s in ids]
         _, t_bulk = timed(lambda: ledger.set_verdicts(items, label="bulk confirm"))
         print(f"  bulk confirm {n} (one action)  {t_bulk:7.2f} s")
-        from core.export import write_catalogue
+        from phasewise.core.export import write_catalogue
 
         for suffix in (".fits", ".vot"):
             target = folder / f"bench_vetted{suffix}"

@@ -25,15 +25,15 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.lightcurve import LightCurve  # noqa: E402
-from core.periodogram import (  # noqa: E402
+from phasewise.core.lightcurve import LightCurve  # noqa: E402
+from phasewise.core.periodogram import (  # noqa: E402
     PeriodogramSettings,
     compute_periodogram,
     find_candidates,
     grid_parameters,
     shared_epoch_periodograms,
 )
-from core.periodogram.kernels.gls import clear_weight_terms  # noqa: E402
+from phasewise.core.periodogram.kernels.gls import clear_weight_terms  # noqa: E402
 
 
 def median_time(func, repeats: int) -> float:

@@ -32,8 +32,8 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core import diagrams as dg  # noqa: E402
-from core.physics import population  # noqa: E402
+from phasewise.core import diagrams as dg  # noqa: E402
+from phasewise.core.physics import population  # noqa: E402
 
 
 def invented_points(n_stars: int, seed: int = 5) -> list[dg.StarPoint]:
@@ -135,8 +135,8 @@ def time_gui(points: list[dg.StarPoint]) -> float:
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from PySide6 import QtWidgets
 
-    import app  # noqa: F401  (guards None against the PySide6 6.12 leak)
-    from app.population import PopulationView
+    from phasewise import app  # noqa: F401  (guards None against the PySide6 6.12 leak)
+    from phasewise.app.population import PopulationView
 
     qt = QtWidgets.QApplication.instance() or QtWidgets.QApplication([])
     view = PopulationView()

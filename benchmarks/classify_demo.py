@@ -20,8 +20,8 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.synthetic import make_survey  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.synthetic import make_survey  # noqa: E402
 
 TARGET_CLASSES = ("RRab", "RRc", "DCEP", "DSCT", "EW")
 TARGET = 0.90

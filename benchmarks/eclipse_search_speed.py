@@ -28,10 +28,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.synthetic import synthetic_field  # noqa: E402
+from phasewise.core.synthetic import synthetic_field  # noqa: E402
 
 # the module (the package exports a function of the same name)
-es = importlib.import_module("core.periodogram.eclipse_search")
+es = importlib.import_module("phasewise.core.periodogram.eclipse_search")
 
 _CHUNK = 150_000
 
@@ -123,11 +123,11 @@ def _one_star(lc, repeat: int) -> dict:
 def _first_call(cache_dir: str, queue) -> None:
     """In a spawned process: time the import of the loop and the first search."""
     os.environ["NUMBA_CACHE_DIR"] = cache_dir
-    from core.periodogram.eclipse_search import eclipse_search
+    from phasewise.core.periodogram.eclipse_search import eclipse_search
 
     lc = synthetic_field(1, n_epochs=700, seed=3, shared_epochs=False).lightcurves()[0]
     start = time.perf_counter()
-    from core.periodogram import _aov_loop  # noqa: F401  (numba and the cached code)
+    from phasewise.core.periodogram import _aov_loop  # noqa: F401  (numba and the cached code)
 
     imported = time.perf_counter()
     eclipse_search(lc)

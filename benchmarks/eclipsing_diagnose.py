@@ -28,8 +28,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from benchmarks.classify_demo import _true_classes  # noqa: E402
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.synthetic import CadenceSettings, make_survey  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.synthetic import CadenceSettings, make_survey  # noqa: E402
 
 DEMO_SEED = 20261201
 

@@ -18,8 +18,8 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.synthetic import make_survey  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.synthetic import make_survey  # noqa: E402
 
 
 def main(argv: list[str] | None = None) -> int:

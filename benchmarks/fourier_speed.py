@@ -37,14 +37,11 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 
-import core.analysis  # noqa: E402
-import core.eclipse  # noqa: E402
-import core.fourier  # noqa: E402
-import core.prewhiten  # noqa: E402
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.errors import PhasewiseError  # noqa: E402
-from core.periodogram import PeriodogramSettings  # noqa: E402
-from core.synthetic import synthetic_field  # noqa: E402
+from phasewise import core  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.errors import PhasewiseError  # noqa: E402
+from phasewise.core.periodogram import PeriodogramSettings  # noqa: E402
+from phasewise.core.synthetic import synthetic_field  # noqa: E402
 
 #: where each fitting function is looked up by the per-star analysis
 IMPORTERS = {
@@ -63,9 +60,9 @@ def load_reference(rev: str):
         text=True,
         check=True,
     ).stdout
-    spec = importlib.util.spec_from_loader("core._fourier_ref", loader=None)
+    spec = importlib.util.spec_from_loader("phasewise.core._fourier_ref", loader=None)
     module = importlib.util.module_from_spec(spec)
-    module.__package__ = "core"  # its relative imports resolve in this tree
+    module.__package__ = "phasewise.core"  # its relative imports resolve in this tree
     sys.modules[spec.name] = module
     exec(compile(source, f"{rev}:core/fourier.py", "exec"), module.__dict__)
     return module

@@ -23,10 +23,10 @@ import time  # noqa: E402
 import nifty_ls  # noqa: E402
 import numpy as np  # noqa: E402
 
-from core.eclipse import eclipse_test  # noqa: E402
-from core.fourier import choose_order, decompose, fit_fourier, refine_frequency  # noqa: E402
-from core.lightcurve import LightCurve  # noqa: E402
-from core.prewhiten import PrewhitenSettings, prewhiten  # noqa: E402
+from phasewise.core.eclipse import eclipse_test  # noqa: E402
+from phasewise.core.fourier import choose_order, decompose, fit_fourier, refine_frequency  # noqa: E402
+from phasewise.core.lightcurve import LightCurve  # noqa: E402
+from phasewise.core.prewhiten import PrewhitenSettings, prewhiten  # noqa: E402
 
 N_FREQ = 100_000
 

@@ -16,8 +16,8 @@ from astropy.table import Table
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.io import open_photometry, write_stars  # noqa: E402
-from core.lightcurve import LightCurve, StarMeta  # noqa: E402
+from phasewise.core.io import open_photometry, write_stars  # noqa: E402
+from phasewise.core.lightcurve import LightCurve, StarMeta  # noqa: E402
 
 ASTROPY = {".csv": "ascii.csv", ".ecsv": "ascii.ecsv", ".fits": "fits", ".vot": "votable"}
 

@@ -41,6 +41,7 @@ from typing import Any
 import numpy as np
 
 from .errors import PhasewiseError
+from .threads import limit_blas_threads
 
 __all__ = [
     "DEFAULT_ANALYSE",
@@ -57,7 +58,7 @@ __all__ = [
 ]
 
 #: The analysis a batch runs unless told otherwise ("module:function").
-DEFAULT_ANALYSE = "core.analysis:analyse"
+DEFAULT_ANALYSE = "phasewise.core.analysis:analyse"
 
 #: Which stars a run takes (see ``Ledger.stars_needing_analysis``).
 ONLY_CHOICES = ("unanalysed", "stale", "all")
@@ -405,6 +406,7 @@ def shared_epoch_groups(lightcurves: Sequence, settings) -> list[EpochGroup]:
 def _worker_init(parent_pid: int) -> None:
     """Start-up of a pool worker: Ctrl-C is the parent's; die with the parent."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    limit_blas_threads()
 
     def watch() -> None:
         while True:

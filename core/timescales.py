@@ -36,9 +36,6 @@ from .lightcurve import TIME_SCALES
 
 __all__ = ["DEMO_OBSERVATORY", "MJD_OFFSET", "convert_times", "to_time_scale"]
 
-# No network on the machines Phasewise runs on; never try to fetch IERS-A.
-iers.conf.auto_download = False
-
 #: JD - MJD, exact by definition.
 MJD_OFFSET = 2400000.5
 
@@ -62,7 +59,13 @@ def _check_scale(name: str, scale: str) -> str:
 
 def _light_travel(jd_utc: np.ndarray, kind: str, star: SkyCoord, location: EarthLocation):
     """Light travel time in days (and TDB-UTC for barycentric) at JD(UTC)."""
-    with warnings.catch_warnings(), iers.conf.set_temp("auto_max_age", None):
+    # Never fetch IERS-A (many machines have no network); scoped, so other
+    # astropy users in the process keep their own configuration.
+    with (
+        warnings.catch_warnings(),
+        iers.conf.set_temp("auto_download", False),
+        iers.conf.set_temp("auto_max_age", None),
+    ):
         # Past the bundled IERS table astropy warns and uses mean polar motion;
         # the effect is ~1 microsecond (see module docstring).
         warnings.simplefilter("ignore")

@@ -24,7 +24,7 @@ if str(HERE.parent) not in sys.path:  # run as a script from anywhere
 
 from astropy.table import Table  # noqa: E402
 
-from core.synthetic import CLUSTER, SITE, make_survey  # noqa: E402
+from phasewise.core.synthetic import CLUSTER, SITE, make_survey  # noqa: E402
 
 DEMO_SEED = 20261201
 N_STARS = 300

@@ -13,8 +13,9 @@ import argparse
 import importlib
 import sys
 
-from core import __version__
-from core.errors import PhasewiseError
+from phasewise import __version__
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.threads import limit_blas_threads
 
 #: Modules of this package that add commands, in help order.
 COMMAND_MODULES: tuple[str, ...] = ("read", "inspect", "ledger", "analyse", "gui")
@@ -43,6 +44,7 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 0
+    limit_blas_threads()  # the program's choice for its own process (see core/threads.py)
     try:
         return int(args.func(args) or 0)
     except PhasewiseError as exc:

@@ -14,7 +14,7 @@ import sys
 import time
 from pathlib import Path
 
-from core.batch import ONLY_CHOICES, BatchSummary, Progress
+from phasewise.core.batch import ONLY_CHOICES, BatchSummary, Progress
 
 #: Seconds between plain progress lines when stderr is not a terminal.
 PLAIN_EVERY = 5.0
@@ -71,8 +71,8 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from core.batch import analyse_ledger, load_settings
-    from core.errors import PhasewiseError
+    from phasewise.core.batch import analyse_ledger, load_settings
+    from phasewise.core.errors import PhasewiseError
 
     settings = load_settings(args.settings) if args.settings else None
     if args.ledger is not None:
@@ -107,8 +107,8 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _import(files: list[Path], ledger_path: Path, columns: str | None, *, quiet: bool) -> None:
-    from core.io import ColumnMapping, open_photometry
-    from core.ledger import Ledger, file_checksum
+    from phasewise.core.io import ColumnMapping, open_photometry
+    from phasewise.core.ledger import Ledger, file_checksum
 
     mapping = ColumnMapping.parse(columns) if columns else None
     sources = [open_photometry(path, mapping) for path in files]  # all readable before writing

@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 import math
 
-from core.errors import PhasewiseError
+from phasewise.core.errors import PhasewiseError
 
 #: Candidates and suggestions printed in the readable summary.
 SHOWN = 5
@@ -42,7 +42,7 @@ def register(subparsers) -> None:
 
 
 def _load_star(path: str, star: str | None, columns: str | None):
-    from core.io import ColumnMapping, open_photometry
+    from phasewise.core.io import ColumnMapping, open_photometry
 
     mapping = ColumnMapping.parse(columns) if columns else None
     source = open_photometry(path, mapping)
@@ -60,7 +60,7 @@ def _load_star(path: str, star: str | None, columns: str | None):
 def run(args) -> int:
     from dataclasses import replace
 
-    from core.analysis import AnalysisSettings, analyse
+    from phasewise.core.analysis import AnalysisSettings, analyse
 
     lc = _load_star(args.file, args.star, args.columns)
     defaults = AnalysisSettings()

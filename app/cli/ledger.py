@@ -11,8 +11,8 @@ import math
 from pathlib import Path
 from typing import Any
 
-from core.errors import PhasewiseError
-from core.ledger import VERDICT_STATUSES, Ledger, file_checksum
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.ledger import VERDICT_STATUSES, Ledger, file_checksum
 
 DECISIONS = tuple(s for s in VERDICT_STATUSES if s != "unreviewed")
 
@@ -85,7 +85,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 # ----------------------------------------------------------------- ledger new
 def run_new(args: argparse.Namespace) -> int:
-    from core.io import ColumnMapping, open_photometry
+    from phasewise.core.io import ColumnMapping, open_photometry
 
     mapping = ColumnMapping.parse(args.columns) if args.columns else None
     sources = [open_photometry(path, mapping) for path in args.files]  # all readable first
@@ -249,7 +249,7 @@ def run_walk(args: argparse.Namespace) -> int:
 
 # --------------------------------------------------------------------- export
 def run_export(args: argparse.Namespace) -> int:
-    from core.export import write_catalogue
+    from phasewise.core.export import write_catalogue
 
     statuses = ("confirmed", "relabelled")
     if args.status:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 from collections import Counter
 
-from core.io import ColumnMapping, open_photometry
+from phasewise.core.io import ColumnMapping, open_photometry
 
 #: Skipped rows printed one by one (all are counted).
 SHOWN_SKIPS = 10

@@ -20,8 +20,12 @@ Other views dock into the window through these extension points:
   window commands when present.
 """
 
-# app/__init__.py has already run app.refguard.guard_none() (PySide6 6.12 on
-# Python 3.11 drops references to None/True/False; see that module).
-from .main_window import MainWindow
+# PySide6 6.12 on Python 3.11 drops references to None/True/False (see
+# phasewise.app.refguard): guard them before any Qt call of the window.
+from ..refguard import guard_none
+
+guard_none()
+
+from .main_window import MainWindow  # noqa: E402
 
 __all__ = ["MainWindow"]

@@ -17,8 +17,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.errors import PhasewiseError
-from core.folding import phase_fold, phase_grid_times
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.folding import phase_fold, phase_grid_times
 
 from .plots import FastPoints, cache_axes
 from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_colours

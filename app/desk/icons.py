@@ -1,14 +1,13 @@
 """Icons of our own design (SVG files in the repository's ``icons/``).
 
-A source checkout (or an editable install) reads them from ``icons/`` beside
-``app/``; a wheel installs them as data files under
-``<prefix>/share/phasewise/icons`` (see ``pyproject.toml``).
+They ship inside the package as ``phasewise.icons`` and are read with
+:mod:`importlib.resources`, from a source checkout and from a wheel alike.
 """
 
 from __future__ import annotations
 
-import sys
 from functools import cache
+from importlib import resources
 from pathlib import Path
 
 from PySide6.QtGui import QIcon
@@ -16,17 +15,9 @@ from PySide6.QtGui import QIcon
 __all__ = ["ICON_DIR", "icon", "icon_dir"]
 
 
-def icon_dir(candidates: tuple[Path, ...] | None = None) -> Path:
-    """The first folder of ``candidates`` holding our icons (source tree, then install)."""
-    if candidates is None:
-        candidates = (
-            Path(__file__).resolve().parents[2] / "icons",
-            Path(sys.prefix) / "share" / "phasewise" / "icons",
-        )
-    for folder in candidates:
-        if (folder / "confirm.svg").is_file():
-            return folder
-    return candidates[0]
+def icon_dir() -> Path:
+    """The folder of the ``phasewise.icons`` resources."""
+    return Path(str(resources.files("phasewise.icons").joinpath("confirm.svg"))).parent
 
 
 ICON_DIR = icon_dir()

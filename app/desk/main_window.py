@@ -20,8 +20,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.errors import PhasewiseError
-from core.vetting import NON_PERIODIC_CLASSES, VettingSession
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.vetting import NON_PERIODIC_CLASSES, VettingSession
 
 from .dialogs import AnalysisSettingsDialog, ColumnMappingDialog, ShortcutSheet
 from .fold_panel import FoldPanel
@@ -65,8 +65,8 @@ def _preload_science() -> None:
     import threading
 
     def load() -> None:
-        import core.fourier  # noqa: F401
-        import core.periodogram  # noqa: F401
+        import phasewise.core.fourier  # noqa: F401
+        import phasewise.core.periodogram  # noqa: F401
 
     threading.Thread(target=load, name="preload-core", daemon=True).start()
 
@@ -946,7 +946,7 @@ class MainWindow(QMainWindow):
         self.shortcut_sheet.show()
 
     def show_about(self) -> None:
-        from core import __version__
+        from phasewise.core import __version__
 
         QMessageBox.about(
             self,

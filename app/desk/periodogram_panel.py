@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.folding import snap_to_peak
+from phasewise.core.folding import snap_to_peak
 
 from .plots import make_plot, set_labels
 from .style import MARKER_COLOUR, fmt_period

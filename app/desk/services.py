@@ -34,13 +34,13 @@ class CoreServices:
 
     # ------------------------------------------------------------ settings
     def default_settings(self):
-        from core.analysis import AnalysisSettings
+        from phasewise.core.analysis import AnalysisSettings
 
         return AnalysisSettings()
 
     def ledger_settings(self, ledger):
         """The settings the ledger's results were computed with (defaults if none)."""
-        from core.settings_file import ledger_settings
+        from phasewise.core.settings_file import ledger_settings
 
         if ledger is None or not hasattr(ledger, "analysis_settings"):
             return self.default_settings()
@@ -49,7 +49,7 @@ class CoreServices:
     def periodogram_settings(self, settings):
         pg = getattr(settings, "periodogram", None)
         if pg is None:
-            from core.periodogram import PeriodogramSettings
+            from phasewise.core.periodogram import PeriodogramSettings
 
             pg = PeriodogramSettings()
         return pg
@@ -64,12 +64,12 @@ class CoreServices:
 
     # ------------------------------------------------------------- science
     def analyse(self, lc, settings) -> dict[str, Any]:
-        from core.analysis import analyse
+        from phasewise.core.analysis import analyse
 
         return analyse(lc, settings).to_dict()
 
     def compute_periodogram(self, lc, pg_settings) -> PeriodogramView:
-        from core import periodogram as core_pg
+        from phasewise.core import periodogram as core_pg
 
         pgram = core_pg.compute_periodogram(lc, pg_settings)
         found = core_pg.find_candidates(pgram, lc, pg_settings)
@@ -85,8 +85,8 @@ class CoreServices:
         """Power levels of FAP 0.1, 0.01 and 0.001 (GLS and multi-harmonic only)."""
         if pgram.method not in ("gls", "mhgls"):
             return ()
-        from core.folding import power_at_fap
-        from core.periodogram import candidates
+        from phasewise.core.folding import power_at_fap
+        from phasewise.core.periodogram import candidates
 
         def fap_of_power(power):
             return candidates._faps(pgram, lc, pg_settings, np.zeros(len(power)), power)[0]
@@ -99,33 +99,33 @@ class CoreServices:
         return tuple(levels)
 
     def spectral_window(self, time, frequency) -> np.ndarray:
-        from core.periodogram import spectral_window
+        from phasewise.core.periodogram import spectral_window
 
         return np.asarray(spectral_window(time, frequency), dtype=float)
 
     def fit_fourier(self, time, mag, err, frequency, order, form="sine"):
-        from core.fourier import fit_fourier
+        from phasewise.core.fourier import fit_fourier
 
         return fit_fourier(time, mag, err, frequency, order, form=form)
 
     # -------------------------------------------------------------- ledger
     def open_ledger(self, path, readonly: bool = False):
-        from core.ledger import Ledger
+        from phasewise.core.ledger import Ledger
 
         return Ledger.open(Path(path), readonly=readonly)
 
     def create_ledger(self, path):
-        from core.ledger import Ledger
+        from phasewise.core.ledger import Ledger
 
         return Ledger.create(Path(path))
 
     def open_photometry(self, path, mapping=None):
-        from core.io import open_photometry
+        from phasewise.core.io import open_photometry
 
         return open_photometry(Path(path), mapping)
 
     def column_mapping(self, **roles):
-        from core.io import ColumnMapping
+        from phasewise.core.io import ColumnMapping
 
         return ColumnMapping(**roles)
 
@@ -133,7 +133,7 @@ class CoreServices:
         return ledger.add_stars(lightcurves, source_file=source_file)
 
     def settings_record(self, settings) -> tuple[dict, str]:
-        from core.settings import settings_hash, settings_to_dict
+        from phasewise.core.settings import settings_hash, settings_to_dict
 
         return settings_to_dict(settings), settings_hash(settings)
 
@@ -152,7 +152,7 @@ class CoreServices:
         ledger.store_results([(sid, r.get("settings_hash") or fallback, r) for sid, r in items])
 
     def write_catalogue(self, ledger, path, fmt: str | None = None):
-        from core.export import write_catalogue
+        from phasewise.core.export import write_catalogue
 
         return write_catalogue(ledger, Path(path), format=fmt)
 
@@ -181,7 +181,7 @@ class CoreServices:
         else analyses star by star here.
         """
         try:
-            from core.batch import analyse_ledger
+            from phasewise.core.batch import analyse_ledger
         except ImportError:
             analyse_ledger = None
         if analyse_ledger is not None:

@@ -25,7 +25,7 @@ __all__ = ["StarSheet", "CLASS_CODES", "CAUTION"]
 
 def _class_codes() -> tuple[str, ...]:
     """The rulebook's class codes (core.classify), in its order."""
-    from core.classify import CLASS_CODES
+    from phasewise.core.classify import CLASS_CODES
 
     return tuple(CLASS_CODES)
 

@@ -17,7 +17,7 @@ from collections.abc import Callable
 from PySide6.QtCore import QObject, QRunnable, QThreadPool, Signal
 from PySide6.QtWidgets import QProgressDialog, QWidget
 
-from core.errors import PhasewiseError
+from phasewise.core.errors import PhasewiseError
 
 __all__ = ["Worker", "WorkerPool", "Cancelled"]
 

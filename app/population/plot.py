@@ -16,8 +16,8 @@ import pyqtgraph as pg
 from pyqtgraph.exporters import ImageExporter
 from PySide6 import QtCore, QtGui, QtSvg, QtWidgets
 
-from core.diagrams import Diagram
-from core.errors import PhasewiseError
+from phasewise.core.diagrams import Diagram
+from phasewise.core.errors import PhasewiseError
 
 from .style import class_style
 

@@ -13,7 +13,7 @@ from collections.abc import Sequence
 
 from PySide6 import QtCore, QtWidgets
 
-from core import diagrams as dg
+from phasewise.core import diagrams as dg
 
 from .style import class_style, symbol_glyph
 

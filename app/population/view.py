@@ -34,8 +34,8 @@ from typing import Any
 
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from core import diagrams as dg
-from core.errors import PhasewiseError
+from phasewise.core import diagrams as dg
+from phasewise.core.errors import PhasewiseError
 
 from .plot import DiagramPlot
 from .style import class_style, symbol_glyph

@@ -44,6 +44,7 @@ import os
 import re
 import tomllib
 from dataclasses import dataclass
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -166,8 +167,8 @@ class Rulebook:
 
 
 def shipped_rulebook_path() -> Path:
-    """The rulebook shipped with Phasewise."""
-    return Path(__file__).with_name("rulebook.toml")
+    """The rulebook shipped with Phasewise (a package resource of ``phasewise.core.classify``)."""
+    return Path(str(resources.files(__package__).joinpath("rulebook.toml")))
 
 
 def user_rulebook_path() -> Path:

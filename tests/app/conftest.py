@@ -6,6 +6,12 @@ import pytest
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
+# This test process is a Qt program, as the window commands are: guard the
+# singletons PySide6 6.12 loses references to on Python 3.11 (see refguard).
+from phasewise.app.refguard import guard_none  # noqa: E402
+
+guard_none()
+
 ROOT = Path(__file__).resolve().parents[2]
 #: The first stars of the committed demo survey: two RR Lyrae of each kind and constants.
 SUBSET = ("CAL-V001", "CAL-V002", "CAL-V003", "CAL-V004", "CAL-V005", "CAL-V006")
@@ -21,10 +27,10 @@ def qsettings(tmp_path):
 @pytest.fixture(scope="session")
 def demo_subset(tmp_path_factory) -> Path:
     """A ledger of six demo stars analysed by core.analysis (built once per run)."""
-    from core.analysis import AnalysisSettings, analyse
-    from core.io import open_photometry
-    from core.ledger import Ledger
-    from core.settings import settings_hash, settings_to_dict
+    from phasewise.core.analysis import AnalysisSettings, analyse
+    from phasewise.core.io import open_photometry
+    from phasewise.core.ledger import Ledger
+    from phasewise.core.settings import settings_hash, settings_to_dict
 
     path = tmp_path_factory.mktemp("ledger") / "subset.ledger.sqlite"
     source = open_photometry(ROOT / "demo_data" / "stars")

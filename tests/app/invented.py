@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from core.lightcurve import LightCurve
+from phasewise.core.lightcurve import LightCurve
 
 
 def make_star(star_id, period, n=300, amp=0.4, bands=("V",), seed=0, baseline=120.0):

@@ -47,8 +47,8 @@ class FakeLedger:
 
 def build_ledger(path, rows=None):
     """A real ``core.ledger.Ledger`` holding the invented field, its results and verdicts."""
-    from core.ledger import Ledger
-    from core.lightcurve import LightCurve
+    from phasewise.core.ledger import Ledger
+    from phasewise.core.lightcurve import LightCurve
 
     rows = invented_field() if rows is None else rows
     ledger = Ledger.create(path)

@@ -13,13 +13,13 @@ from pathlib import Path
 
 import pytest
 
-from app.cli import main
-from app.cli.analyse import ProgressBar, progress_text, summary_text
-from core.batch import BatchSummary, Progress
-from core.errors import PhasewiseError
-from core.io import write_stars
-from core.ledger import Ledger
-from core.synthetic import synthetic_field
+from phasewise.app.cli import main
+from phasewise.app.cli.analyse import ProgressBar, progress_text, summary_text
+from phasewise.core.batch import BatchSummary, Progress
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.io import write_stars
+from phasewise.core.ledger import Ledger
+from phasewise.core.synthetic import synthetic_field
 
 #: A small grid keeps the real analysis quick.
 SETTINGS = "[periodogram]\nfmax = 3.0\noversampling = 3\n"
@@ -171,7 +171,15 @@ def test_ctrl_c_keeps_results_and_a_rerun_finishes(tmp_path):
         book.add_stars(lcs)
     settings = tmp_path / "fast.toml"
     settings.write_text(SETTINGS, encoding="utf-8")
-    command = [sys.executable, "-m", "app", "analyse", str(ledger), "--settings", str(settings)]
+    command = [
+        sys.executable,
+        "-m",
+        "phasewise",
+        "analyse",
+        str(ledger),
+        "--settings",
+        str(settings),
+    ]
     proc = subprocess.Popen(
         [*command, "--workers", "1", "--chunk-size", "2"],
         cwd=ROOT,

@@ -8,9 +8,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.io import write_stars
-from core.lightcurve import LightCurve
+from phasewise.app.cli import main
+from phasewise.core.io import write_stars
+from phasewise.core.lightcurve import LightCurve
 from tests.contract import INSPECT_JSON_KEYS
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -57,7 +57,7 @@ def test_several_stars_need_a_choice(tmp_path, capsys):
 
 def test_runs_as_a_subprocess_without_qt(one_star_csv):
     code = (
-        "import sys; from app.cli import main; rc = main(['inspect', sys.argv[1], '--json']);"
+        "import sys; from phasewise.app.cli import main; rc = main(['inspect', sys.argv[1], '--json']);"
         "print(any(m.startswith('PySide6') for m in sys.modules), file=sys.stderr); sys.exit(rc)"
     )
     proc = subprocess.run(

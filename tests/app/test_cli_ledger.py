@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 from astropy.table import Table
 
-from app.cli import main
-from core.ledger import Ledger
-from core.lightcurve import LightCurve
+from phasewise.app.cli import main
+from phasewise.core.ledger import Ledger
+from phasewise.core.lightcurve import LightCurve
 
 
 def _suggestion(cls, score, period):
@@ -129,8 +129,8 @@ def test_info_and_locked_message(ledger_path, capsys):
 
 
 def test_ledger_new_imports_files(tmp_path, capsys):
-    pytest.importorskip("core.io")
-    from core.io import write_stars
+    pytest.importorskip("phasewise.core.io")
+    from phasewise.core.io import write_stars
 
     rng = np.random.default_rng(4)
     stars = [
@@ -147,7 +147,7 @@ def test_ledger_new_imports_files(tmp_path, capsys):
         assert ledger.star_ids() == ["VV-0", "VV-1", "VV-2"]
         back = ledger.lightcurve("VV-1")
         np.testing.assert_allclose(back.mag, stars[1].mag, rtol=1e-12)
-        from core.ledger import file_checksum
+        from phasewise.core.ledger import file_checksum
 
         assert ledger.star_info("VV-1")["source_checksum"] == file_checksum(source)
     code, _, err = run(capsys, "ledger", "new", path, source)
@@ -169,7 +169,7 @@ def test_subprocess_exit_code_and_message_when_locked(ledger_path):
             [
                 sys.executable,
                 "-m",
-                "app",
+                "phasewise",
                 "verdict",
                 str(ledger_path),
                 "QZ-0",

@@ -5,7 +5,7 @@ import subprocess
 import sys
 from pathlib import Path
 
-from app.cli import main
+from phasewise.app.cli import main
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -56,7 +56,7 @@ def test_read_reports_a_bad_file_and_a_bad_role(tmp_path, capsys):
 
 def test_read_runs_as_a_module(tmp_path):
     result = subprocess.run(
-        [sys.executable, "-m", "app", "read", str(_csv(tmp_path)), "--json"],
+        [sys.executable, "-m", "phasewise", "read", str(_csv(tmp_path)), "--json"],
         cwd=ROOT,
         capture_output=True,
         text=True,
@@ -64,7 +64,7 @@ def test_read_runs_as_a_module(tmp_path):
     )
     assert json.loads(result.stdout)["sources"][0]["rows_skipped"] == 1
     help_text = subprocess.run(
-        [sys.executable, "-m", "app", "--help"],
+        [sys.executable, "-m", "phasewise", "--help"],
         cwd=ROOT,
         capture_output=True,
         text=True,

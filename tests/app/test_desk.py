@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from PySide6.QtCore import QPointF, QRectF, Qt
 
-from app.desk import MainWindow
-from app.desk.star_list import StarTableModel
+from phasewise.app.desk import MainWindow
+from phasewise.app.desk.star_list import StarTableModel
 
 from .conftest import dispose
 
@@ -198,7 +198,7 @@ def test_layout_and_recent_files_persist(desk, qsettings):
 
 
 def test_analysis_settings_change_the_periodogram(desk, qtbot, monkeypatch):
-    from app.desk import dialogs
+    from phasewise.app.desk import dialogs
 
     before = len(desk.periodogram.view.frequency)
     monkeypatch.setattr(dialogs.AnalysisSettingsDialog, "exec", lambda self: True)
@@ -219,8 +219,8 @@ def test_analysis_settings_change_the_periodogram(desk, qtbot, monkeypatch):
 def test_desk_uses_the_settings_stored_in_the_ledger(qtbot, qsettings, subset_copy):
     from dataclasses import replace
 
-    from core.analysis import AnalysisSettings
-    from core.ledger import Ledger
+    from phasewise.core.analysis import AnalysisSettings
+    from phasewise.core.ledger import Ledger
 
     stored = AnalysisSettings()
     stored = replace(stored, periodogram=replace(stored.periodogram, fmax=12.0, oversampling=3))
@@ -289,7 +289,7 @@ def test_points_in_polygon_matches_qt():
     from PySide6.QtCore import QPointF
     from PySide6.QtGui import QPainterPath, QPolygonF
 
-    from app.desk.plots import points_in_polygon
+    from phasewise.app.desk.plots import points_in_polygon
 
     rng = np.random.default_rng(5)
     x, y = rng.uniform(-1, 3, 400), rng.uniform(-1, 3, 400)
@@ -377,8 +377,8 @@ def test_a_constant_star_gets_no_period(desk, qtbot):
 
 
 def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
-    from app.desk.fold_panel import FoldView
-    from app.desk.services import CoreServices
+    from phasewise.app.desk.fold_panel import FoldView
+    from phasewise.app.desk.services import CoreServices
 
     view = FoldView(CoreServices())
     qtbot.addWidget(view)

@@ -27,7 +27,7 @@ def _env() -> dict:
 def _run(*args, timeout=120):
     env = _env()
     return subprocess.run(
-        [sys.executable, "-m", "app", *args],
+        [sys.executable, "-m", "phasewise", *args],
         cwd=ROOT,
         capture_output=True,
         text=True,
@@ -62,12 +62,12 @@ def test_unknown_star_and_missing_file_are_named(subset_copy, tmp_path):
 
 
 def test_command_line_imports_no_qt():
-    code = "import sys; from app.cli import build_parser; build_parser().parse_args(['open', '-h'])"
+    code = "import sys; from phasewise.app.cli import build_parser; build_parser().parse_args(['open', '-h'])"
     proc = subprocess.run(
         [sys.executable, "-c", code + "\n"], cwd=ROOT, capture_output=True, text=True
     )
     assert "--screenshot" in proc.stdout
-    check = "import sys; import app.cli as c; c.build_parser(); print('PySide6' in sys.modules)"
+    check = "import sys; import phasewise.app.cli as c; c.build_parser(); print('PySide6' in sys.modules)"
     proc = subprocess.run([sys.executable, "-c", check], cwd=ROOT, capture_output=True, text=True)
     assert proc.stdout.strip() == "False", proc.stderr
 
@@ -76,8 +76,8 @@ def test_demo_ledger_is_reused_only_when_up_to_date(subset_copy, tmp_path):
     import dataclasses
     import os
 
-    from app.cli.gui import _up_to_date, demo_files
-    from core.analysis import AnalysisSettings
+    from phasewise.app.cli.gui import _up_to_date, demo_files
+    from phasewise.core.analysis import AnalysisSettings
 
     assert demo_files(ROOT / "demo_data") == [ROOT / "demo_data" / "caldera_survey.ecsv"]
     source = tmp_path / "survey.ecsv"
@@ -106,7 +106,7 @@ def test_open_files_imports_them_into_a_new_ledger(tmp_path):
     assert proc.returncode == 0, proc.stderr
     ledger_path = tmp_path / "night.ledger.sqlite"
     assert ledger_path.exists() and out.stat().st_size > 50_000
-    from core.ledger import Ledger
+    from phasewise.core.ledger import Ledger
 
     with Ledger.open(ledger_path, readonly=True) as ledger:
         assert ledger.star_ids() == ["CAL-V001", "CAL-V002"]
@@ -125,7 +125,7 @@ def test_window_closed_by_the_user_exits_cleanly(subset_copy):
         "from PySide6.QtWidgets import QApplication\n"
         "app = QApplication(sys.argv[:1])\n"
         "QTimer.singleShot(2500, QApplication.closeAllWindows)\n"
-        "from app.cli import main\n"
+        "from phasewise.app.cli import main\n"
         f"sys.exit(main(['open', {str(subset_copy)!r}]))\n"
     )
     env = _env()

@@ -6,9 +6,9 @@ from pathlib import Path
 
 import numpy as np
 
-from app.desk import MainWindow
-from app.desk.dialogs import ColumnMappingDialog
-from core.io import ColumnMapping, open_photometry, write_stars
+from phasewise.app.desk import MainWindow
+from phasewise.app.desk.dialogs import ColumnMappingDialog
+from phasewise.core.io import ColumnMapping, open_photometry, write_stars
 
 from .conftest import dispose
 from .invented import make_star

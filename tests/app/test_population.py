@@ -6,9 +6,9 @@ pytest.importorskip("pytestqt")
 from PySide6 import QtCore, QtGui, QtWidgets  # noqa: E402
 from PySide6.QtTest import QTest  # noqa: E402
 
-from app.population import PopulationView  # noqa: E402
-from core import diagrams as dg  # noqa: E402
-from core.errors import PhasewiseError  # noqa: E402
+from phasewise.app.population import PopulationView  # noqa: E402
+from phasewise.core import diagrams as dg  # noqa: E402
+from phasewise.core.errors import PhasewiseError  # noqa: E402
 
 from .population_fakes import build_ledger  # noqa: E402
 
@@ -211,7 +211,7 @@ def test_export_png_and_svg_with_labels(view, tmp_path):
 
 def _members_as_core_sees_them(ledger, ebv):
     """The same members, derived and summarised by core.physics directly."""
-    from core import physics
+    from phasewise.core import physics
 
     points = dg.summary_members(dg.star_points(ledger))
     stars = dg.star_physics(points, physics.PhysicsSettings(ebv=ebv))

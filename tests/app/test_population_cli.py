@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from app.cli import COMMAND_MODULES
+from phasewise.app.cli import COMMAND_MODULES
 
 from .population_fakes import build_ledger
 
@@ -26,7 +26,7 @@ def test_open_with_the_population_view_writes_a_screenshot(tmp_path):
         [
             sys.executable,
             "-m",
-            "app",
+            "phasewise",
             "open",
             str(ledger_path),
             "--screenshot",

@@ -7,10 +7,10 @@ import pytest
 
 pytest.importorskip("pytestqt")
 
-from app.population import PopulationView  # noqa: E402
-from core.analysis import AnalysisSettings, analyse  # noqa: E402
-from core.io import open_photometry  # noqa: E402
-from core.ledger import Ledger  # noqa: E402
+from phasewise.app.population import PopulationView  # noqa: E402
+from phasewise.core.analysis import AnalysisSettings, analyse  # noqa: E402
+from phasewise.core.io import open_photometry  # noqa: E402
+from phasewise.core.ledger import Ledger  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 SURVEY = ROOT / "demo_data" / "caldera_survey.csv"

@@ -3,11 +3,11 @@
 import pytest
 
 pytest.importorskip("pytestqt")
-desk = pytest.importorskip("app.desk")
+desk = pytest.importorskip("phasewise.app.desk")
 
 from PySide6.QtCore import QSettings  # noqa: E402
 
-from app.population import attach  # noqa: E402
+from phasewise.app.population import attach  # noqa: E402
 
 from .population_fakes import build_ledger  # noqa: E402
 

@@ -8,7 +8,7 @@ def test_singletons_survive_many_repaints(qtbot):
     import numpy as np
     import pyqtgraph as pg
 
-    import app.desk  # noqa: F401  (importing the desk installs the guard)
+    import phasewise.app.desk  # noqa: F401  (importing the desk installs the guard)
 
     before = sys.getrefcount(None)
     assert before > 1 << 39

@@ -10,7 +10,7 @@ ROOT = Path(__file__).resolve().parents[2]
 # nothing lost a reference to None, each signal emit one to True, and both start
 # with only a few thousand references.
 PROBE = """
-import app
+import phasewise.app.desk  # the window package guards the singletons
 import pyqtgraph as pg
 from PySide6 import QtWidgets
 application = QtWidgets.QApplication([])

@@ -6,10 +6,10 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from core.analysis import STATUSES, AnalysisSettings, analyse
-from core.lightcurve import LightCurve
-from core.periodogram import compute_periodogram
-from core.synthetic import make_survey
+from phasewise.core.analysis import STATUSES, AnalysisSettings, analyse
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import compute_periodogram
+from phasewise.core.synthetic import make_survey
 from tests.contract import RESULT_KEYS
 
 FOURIER_KEYS = {
@@ -100,7 +100,7 @@ def test_nan_rows_are_excluded_not_fatal(survey):
 def test_given_periodogram_gives_the_same_result(survey):
     lc, _ = _first(survey, "RRc")
     settings = AnalysisSettings()
-    from core.clean import clean
+    from phasewise.core.clean import clean
 
     cleaned, _ = clean(lc, settings.clean)
     pgram = compute_periodogram(cleaned, settings.periodogram)

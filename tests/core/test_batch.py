@@ -14,20 +14,20 @@ import threading
 import numpy as np
 import pytest
 
-from core.analysis import AnalysisSettings, analyse
-from core.batch import (
+from phasewise.core.analysis import AnalysisSettings, analyse
+from phasewise.core.batch import (
     BatchSummary,
     Progress,
     analyse_chunk,
     analyse_ledger,
     shared_epoch_groups,
 )
-from core.clean import clean
-from core.errors import PhasewiseError
-from core.ledger import Ledger
-from core.lightcurve import LightCurve
-from core.periodogram import PeriodogramSettings, compute_periodogram
-from core.synthetic import synthetic_field
+from phasewise.core.clean import clean
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.ledger import Ledger
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import PeriodogramSettings, compute_periodogram
+from phasewise.core.synthetic import synthetic_field
 
 QUICK = "tests.core.batch_helpers:quick_analyse"
 RAISING = "tests.core.batch_helpers:raising_analyse"
@@ -92,7 +92,7 @@ def test_shared_epoch_groups_place_each_star_on_the_common_epochs(field):
 
 
 def test_shared_periodograms_equal_star_by_star(field):
-    from core.periodogram import shared_epoch_periodograms
+    from phasewise.core.periodogram import shared_epoch_periodograms
 
     lcs = field.lightcurves()
     group = shared_epoch_groups(lcs, FAST)[0]

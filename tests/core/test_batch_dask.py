@@ -6,11 +6,11 @@ import importlib.util
 
 import pytest
 
-from core.analysis import AnalysisSettings
-from core.batch import analyse_ledger
-from core.ledger import Ledger
-from core.periodogram import PeriodogramSettings
-from core.synthetic import synthetic_field
+from phasewise.core.analysis import AnalysisSettings
+from phasewise.core.batch import analyse_ledger
+from phasewise.core.ledger import Ledger
+from phasewise.core.periodogram import PeriodogramSettings
+from phasewise.core.synthetic import synthetic_field
 from tests.core.test_batch import assert_same
 
 pytestmark = [
@@ -66,8 +66,8 @@ def test_local_pool_and_dask_cluster_agree(tmp_path):
 
 
 def test_unreachable_scheduler_is_a_clear_error(tmp_path, monkeypatch):
-    import core.batch
-    from core.errors import PhasewiseError
+    from phasewise import core
+    from phasewise.core.errors import PhasewiseError
 
     monkeypatch.setattr(core.batch, "SCHEDULER_TIMEOUT", 1.0)
     path = tmp_path / "x.ledger.sqlite"

@@ -12,10 +12,10 @@ from pathlib import Path
 
 import pytest
 
-from core.analysis import AnalysisSettings
-from core.batch import analyse_ledger
-from core.ledger import Ledger
-from core.synthetic import synthetic_field
+from phasewise.core.analysis import AnalysisSettings
+from phasewise.core.batch import analyse_ledger
+from phasewise.core.ledger import Ledger
+from phasewise.core.synthetic import synthetic_field
 from tests.core.batch_helpers import DELAY_VARIABLE, LOG_VARIABLE
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -25,7 +25,7 @@ N_STARS = 60
 RUN = textwrap.dedent(
     """
     import sys
-    from core.batch import analyse_ledger
+    from phasewise.core.batch import analyse_ledger
 
     def said(p):
         print(f"done {p.done}", flush=True)

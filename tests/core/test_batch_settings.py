@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import pytest
 
-from core.analysis import AnalysisSettings
-from core.batch import load_settings
-from core.errors import PhasewiseError
-from core.settings_file import settings_from_dict
+from phasewise.core.analysis import AnalysisSettings
+from phasewise.core.batch import load_settings
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.settings_file import settings_from_dict
 
 
 def write(tmp_path, text):

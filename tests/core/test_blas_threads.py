@@ -1,4 +1,4 @@
-"""Per-star work runs on one BLAS thread, whatever imported numpy first."""
+"""Programs that analyse run on one BLAS thread, whatever imported numpy first."""
 
 from __future__ import annotations
 
@@ -15,7 +15,8 @@ ROOT = Path(__file__).resolve().parents[2]
 PROBE = """
 import json, sys
 import numpy  # before core, as a user's script or the window may do
-import core
+from phasewise.core.threads import limit_blas_threads
+limit_blas_threads()  # what the command line, the window and the batch workers call
 from threadpoolctl import threadpool_info
 print(json.dumps([lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]))
 """
@@ -50,5 +51,5 @@ def test_the_users_own_setting_wins():
     env = _clean_env()
     env["OPENBLAS_NUM_THREADS"] = "2"
     threads = _blas_threads(env)
-    # the user asked for two: core leaves the loaded library alone
+    # the user asked for two: the limit leaves the loaded library alone
     assert threads and all(n == 2 for n in threads)

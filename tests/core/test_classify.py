@@ -13,7 +13,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.classify import (
+from phasewise.core.classify import (
     FEATURES,
     Rule,
     Suggestion,

@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from core.clean import CleanSettings, clean
-from core.errors import SettingsError
-from core.lightcurve import LightCurve
+from phasewise.core.clean import CleanSettings, clean
+from phasewise.core.errors import SettingsError
+from phasewise.core.lightcurve import LightCurve
 
 
 def _curve(n=30, seed=3, **kwargs):

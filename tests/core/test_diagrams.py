@@ -7,8 +7,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core import diagrams as dg
-from core.errors import SettingsError
+from phasewise.core import diagrams as dg
+from phasewise.core.errors import SettingsError
 
 
 def _field(seed=3):

@@ -7,9 +7,9 @@ import json
 import numpy as np
 import pytest
 
-from core.eclipse import EclipseSettings, eclipse_test
-from core.errors import PhasewiseError, SettingsError
-from core.lightcurve import LightCurve
+from phasewise.core.eclipse import EclipseSettings, eclipse_test
+from phasewise.core.errors import PhasewiseError, SettingsError
+from phasewise.core.lightcurve import LightCurve
 
 N = 700
 P_ORB = 0.37  # invented binary, days
@@ -115,7 +115,7 @@ def test_sawtooth_pulsator_is_told_from_a_contact_binary():
 
 
 def test_a_given_fit_at_the_period_is_reused():
-    from core.fourier import decompose
+    from phasewise.core.fourier import decompose
 
     lc = rrab_curve()
     fit = decompose(lc, 1 / P_RR)["V"]

@@ -11,11 +11,11 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from core.analysis import AnalysisSettings, analyse
-from core.errors import SettingsError
-from core.lightcurve import LightCurve
-from core.periodogram import EclipseSearchSettings, eclipse_search
-from core.periodogram.eclipse_search import aov_binned
+from phasewise.core.analysis import AnalysisSettings, analyse
+from phasewise.core.errors import SettingsError
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import EclipseSearchSettings, eclipse_search
+from phasewise.core.periodogram.eclipse_search import aov_binned
 
 P_EA = 2.1374  # invented detached binary, days
 

@@ -13,11 +13,11 @@ from astropy.io.votable import parse
 from astropy.io.votable.ucd import check_ucd
 from astropy.table import Table
 
-from core import export as export_module
-from core.errors import PhasewiseError
-from core.export import COLUMNS, catalogue_table, write_catalogue
-from core.ledger import Ledger
-from core.lightcurve import LightCurve, StarMeta
+from phasewise.core import export as export_module
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.export import COLUMNS, catalogue_table, write_catalogue
+from phasewise.core.ledger import Ledger
+from phasewise.core.lightcurve import LightCurve, StarMeta
 
 RESULT = {
     "status": "ok",

@@ -4,8 +4,8 @@ from astropy import units as u
 from astropy.time import Time
 from astropy.timeseries import TimeSeries
 
-from core.errors import PhasewiseError
-from core.folding import (
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.folding import (
     period_step,
     phase_fold,
     phase_grid_times,

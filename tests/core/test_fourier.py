@@ -13,8 +13,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import integrate, optimize
 
-from core.errors import PhasewiseError, SettingsError
-from core.fourier import (
+from phasewise.core.errors import PhasewiseError, SettingsError
+from phasewise.core.fourier import (
     FourierSettings,
     choose_order,
     convert_phase,
@@ -26,7 +26,7 @@ from core.fourier import (
     petersen_ratio_errors,
     refine_frequency,
 )
-from core.lightcurve import LightCurve
+from phasewise.core.lightcurve import LightCurve
 
 TWO_PI = 2 * np.pi
 FREQ = 1 / 0.5731  # an RRab-like period, invented
@@ -396,8 +396,8 @@ def test_errors_are_honest_on_the_synthetic_survey():
     # seasonal gaps, magnitude-dependent noise, outliers removed by core.clean.
     # Injected R21, phi31 (sine form, V) and period must lie within the
     # covariance errors as often as Gaussian statistics say.
-    from core.clean import CleanSettings, clean
-    from core.synthetic import make_survey
+    from phasewise.core.clean import CleanSettings, clean
+    from phasewise.core.synthetic import make_survey
 
     survey = make_survey(n_stars=150, seed=20260)
     z = []
@@ -428,7 +428,7 @@ def test_errors_are_honest_on_the_synthetic_survey():
 def test_harmonic_recurrence_matches_direct_trig():
     # angle addition (cos kθ, sin kθ from cos θ, sin θ) against plain
     # np.cos/np.sin of k θ, where forming k θ costs little precision
-    from core.fourier import _basis, _basis_rows
+    from phasewise.core.fourier import _basis, _basis_rows
 
     theta = np.random.default_rng(70).uniform(-40.0, 40.0, 500)
     rows = _basis_rows(theta, 30)
@@ -444,7 +444,7 @@ def test_harmonic_recurrence_keeps_its_precision_at_large_phase():
     # at θ ~ 1e4 rad (20 c/d over 150 d) np.cos(k θ) loses ulp(k θ) ~ 1e-11
     # when forming k θ; the recurrence stays near 1e-14.  Reference: cos and
     # sin of k θ in x87 extended precision (64-bit mantissa).
-    from core.fourier import _basis_rows
+    from phasewise.core.fourier import _basis_rows
 
     theta = np.random.default_rng(71).uniform(-2e4, 2e4, 500)
     rows = _basis_rows(theta, 30)
@@ -467,7 +467,7 @@ def test_nested_chi_square_matches_separate_least_squares_fits():
     # reference is np.linalg.lstsq per order.  A bright, precise star (mean
     # 15 mag, errors 2 mmag) has sum(y^2/err^2) some 1e7 times chi-square,
     # where "total minus explained" would lose about seven digits.
-    from core.fourier import _basis_rows, _weighted_factor
+    from phasewise.core.fourier import _basis_rows, _weighted_factor
 
     t = sampling(n=500, seed=72)
     err = np.full(t.size, 0.002)
@@ -554,7 +554,7 @@ def _two_band_signal(seed=80):
 
 def test_joint_model_jacobian_matches_finite_differences():
     # analytic Jacobian of the weighted residuals vs central differences
-    from core.fourier import _JointModel
+    from phasewise.core.fourier import _JointModel
 
     t, mag, err, band, freqs, orders = _two_band_signal()
     tau = t - 0.5 * (t.min() + t.max())
@@ -574,7 +574,7 @@ def test_joint_model_jacobian_matches_finite_differences():
 def test_joint_model_hessian_matches_finite_differences():
     # exact Hessian of r.r/2 (Gauss-Newton part plus the second-order part)
     # against central differences of the analytic gradient J^T r
-    from core.fourier import _JointModel
+    from phasewise.core.fourier import _JointModel
 
     t, mag, err, band, freqs, orders = _two_band_signal()
     tau = t - 0.5 * (t.min() + t.max())
@@ -634,7 +634,7 @@ def _plain_fit(t, mag, err, band, freqs, orders, tight=True):
 def test_joint_fit_matches_scipy_least_squares():
     # reference: scipy.optimize.least_squares (Levenberg-Marquardt, numerical
     # Jacobian) on the plainly written model, converged to machine tolerance
-    from core.fourier import _JointModel, multi_frequency_fit
+    from phasewise.core.fourier import _JointModel, multi_frequency_fit
 
     t, mag, err, band, freqs, orders = _two_band_signal()
     start = np.array(freqs) + np.array([2e-5, -1e-4, 1e-4])  # off by a fraction of 1/T
@@ -659,7 +659,7 @@ def test_joint_fit_with_a_band_of_fewer_points_than_terms():
     # six points cannot constrain a band's eleven coefficients: that band
     # fits its points exactly at any frequency, so the shared frequencies
     # are those of the other band alone
-    from core.fourier import multi_frequency_fit
+    from phasewise.core.fourier import multi_frequency_fit
 
     t, mag, err, band, freqs, orders = _two_band_signal()
     keep = (band == 0) | ((band == 1) & (np.cumsum(band == 1) <= 6))

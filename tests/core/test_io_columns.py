@@ -2,8 +2,8 @@
 
 import pytest
 
-from core.errors import PhasewiseError, ReadError
-from core.io import ColumnMapping, resolve_columns, time_scale_of_name
+from phasewise.core.errors import PhasewiseError, ReadError
+from phasewise.core.io import ColumnMapping, resolve_columns, time_scale_of_name
 
 
 def test_detects_common_names_case_insensitively():

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from core.io import open_photometry
+from phasewise.core.io import open_photometry
 
 DEMO = Path(__file__).resolve().parents[2] / "demo_data"
 FORMS = [DEMO / "caldera_survey.ecsv", DEMO / "caldera_survey.csv", DEMO / "stars"]

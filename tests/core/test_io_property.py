@@ -9,8 +9,8 @@ from astropy.table import Table
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from core.errors import PhasewiseError
-from core.io import open_photometry
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.io import open_photometry
 
 ENDINGS = [".csv", ".tsv", ".txt", ".ecsv", ".fits", ".vot"]
 NAMES = ["id", "star", "jd", "hjd", "bjd", "time", "mag", "err", "band", "flux", "x", "ra"]

@@ -5,9 +5,9 @@ import pytest
 from astropy.io import fits
 from astropy.table import Table
 
-from core.errors import PhasewiseError, ReadError
-from core.io import ColumnMapping, open_photometry, write_stars
-from core.lightcurve import LightCurve, StarMeta
+from phasewise.core.errors import PhasewiseError, ReadError
+from phasewise.core.io import ColumnMapping, open_photometry, write_stars
+from phasewise.core.lightcurve import LightCurve, StarMeta
 
 
 def _file(tmp_path, name, text):

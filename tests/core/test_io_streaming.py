@@ -2,7 +2,7 @@
 
 import tracemalloc
 
-from core.io import open_photometry
+from phasewise.core.io import open_photometry
 
 
 def _big_csv(path, n_stars=40, n_rows=2500):

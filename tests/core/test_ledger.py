@@ -7,10 +7,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from core import ledger as ledger_module
-from core.errors import LedgerError, LedgerVersionError
-from core.ledger import SCHEMA_VERSION, Ledger, file_checksum
-from core.lightcurve import LightCurve, StarMeta
+from phasewise.core import ledger as ledger_module
+from phasewise.core.errors import LedgerError, LedgerVersionError
+from phasewise.core.ledger import SCHEMA_VERSION, Ledger, file_checksum
+from phasewise.core.lightcurve import LightCurve, StarMeta
 
 
 def make_stars(n=4, n_points=60, seed=3):

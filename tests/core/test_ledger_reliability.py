@@ -11,9 +11,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from core.errors import LedgerError, LedgerLockedError
-from core.ledger import Ledger
-from core.lightcurve import LightCurve
+from phasewise.core.errors import LedgerError, LedgerLockedError
+from phasewise.core.ledger import Ledger
+from phasewise.core.lightcurve import LightCurve
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -36,7 +36,7 @@ def path(tmp_path):
 
 WRITER = """
 import sys
-from core.ledger import Ledger
+from phasewise.core.ledger import Ledger
 ledger = Ledger.open(sys.argv[1])
 print("open", flush=True)
 i = 0
@@ -193,8 +193,8 @@ def test_kill_during_import_leaves_previous_state(tmp_path):
     Ledger.create(path).close()
     code = (
         "import sys, numpy as np\n"
-        "from core.ledger import Ledger\n"
-        "from core.lightcurve import LightCurve\n"
+        "from phasewise.core.ledger import Ledger\n"
+        "from phasewise.core.lightcurve import LightCurve\n"
         "def stars():\n"
         "    for i in range(10**9):\n"
         "        if i == 200: print('deep', flush=True)\n"
@@ -232,7 +232,7 @@ def test_reused_pid_is_not_taken_for_the_holder(path):
 
 RESULT_WRITER = """
 import sys
-from core.ledger import Ledger
+from phasewise.core.ledger import Ledger
 ledger = Ledger.open(sys.argv[1])
 ledger.set_analysis_settings({"method": "gls"}, "s1")
 ids = ledger.star_ids()

@@ -1,8 +1,8 @@
 import numpy as np
 import pytest
 
-from core.errors import PhasewiseError
-from core.lightcurve import LightCurve, StarMeta
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.lightcurve import LightCurve, StarMeta
 
 
 def make(n=20, **kw):

@@ -8,8 +8,8 @@ ROOT = Path(__file__).resolve().parents[2]
 
 PROBE = """
 import importlib, pkgutil, sys
-import core
-names = [m.name for m in pkgutil.walk_packages(core.__path__, "core.")]
+from phasewise import core
+names = [m.name for m in pkgutil.walk_packages(core.__path__, "phasewise.core.")]
 for name in names:
     importlib.import_module(name)
 loaded = sorted(m for m in sys.modules if m.split(".")[0] in {"PySide6", "PyQt5", "PyQt6", "pyqtgraph", "shiboken6"})
@@ -33,7 +33,7 @@ def test_every_core_module_imports_without_qt():
 def test_command_line_help_loads_no_qt():
     code = (
         "import sys, contextlib, io\n"
-        "from app.cli import main\n"
+        "from phasewise.app.cli import main\n"
         "with contextlib.redirect_stdout(io.StringIO()):\n"
         "    main([])\n"
         "print(','.join(m for m in sys.modules if m.startswith(('PySide6', 'pyqtgraph'))))"

@@ -9,9 +9,9 @@ from hypothesis import given
 from hypothesis import settings as hyp_settings
 from hypothesis import strategies as st
 
-from core.errors import GridTooLargeError, PhasewiseError, SettingsError
-from core.lightcurve import LightCurve
-from core.periodogram import (
+from phasewise.core.errors import GridTooLargeError, PhasewiseError, SettingsError
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import (
     KERNELS,
     REFERENCE_KERNELS,
     Periodogram,
@@ -113,7 +113,7 @@ def test_every_kernel_matches_its_slow_reference(sample, name, with_errors):
     dy = dy if with_errors else None
     kernel = KERNELS[name]
     settings = PeriodogramSettings(method=kernel.method)
-    from core.periodogram import regular_grid_of
+    from phasewise.core.periodogram import regular_grid_of
 
     frequency = _small_grid(t)
     power, statistic = kernel.function(

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from astropy.timeseries import LombScargle
 
-from core.lightcurve import LightCurve
-from core.periodogram import (
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import (
     Candidate,
     PeriodogramSettings,
     WindowPeak,

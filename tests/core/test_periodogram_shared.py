@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from core.errors import PhasewiseError
-from core.lightcurve import LightCurve
-from core.periodogram import (
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import (
     KERNELS,
     PeriodogramSettings,
     compute_periodogram,
@@ -40,7 +40,7 @@ def _single(t, mag_row, err_row, settings, with_errors=True):
 
 
 def _grid(t, settings):
-    from core.periodogram import frequency_grid
+    from phasewise.core.periodogram import frequency_grid
 
     return frequency_grid(t, settings)
 

@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 from astropy.timeseries import LombScargle
 
-from core.periodogram.grid import RegularGrid
-from core.periodogram.kernels import gls as gls_module
-from core.periodogram.kernels.gls import clear_weight_terms, gls_nufft, weight_terms
-from core.periodogram.kernels.nufft import clear_plans, trig_sums
+from phasewise.core.periodogram.grid import RegularGrid
+from phasewise.core.periodogram.kernels import gls as gls_module
+from phasewise.core.periodogram.kernels.gls import clear_weight_terms, gls_nufft, weight_terms
+from phasewise.core.periodogram.kernels.nufft import clear_plans, trig_sums
 
 
 def _direct(t, c, frequency):
@@ -135,7 +135,7 @@ def test_threads_compute_independently():
 
 
 def test_plan_cache_is_bounded_by_grid_points(monkeypatch):
-    from core.periodogram.kernels import nufft
+    from phasewise.core.periodogram.kernels import nufft
 
     monkeypatch.setattr(nufft, "MAX_PLAN_MODES", 1500)
     clear_plans()

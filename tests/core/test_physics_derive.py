@@ -6,8 +6,8 @@ import math
 
 import pytest
 
-from core.errors import SettingsError
-from core.physics import (
+from phasewise.core.errors import SettingsError
+from phasewise.core.physics import (
     PhysicalValue,
     PhysicsSettings,
     StarPhysics,

@@ -17,10 +17,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.physics import PhysicalValue, StarPhysics, class_distance, population_summary
-from core.physics import population as population_module
-from core.physics.distance import modulus_to_distance
-from core.physics.population import ClassDistance, _candidates, _weight
+from phasewise.core.physics import PhysicalValue, StarPhysics, class_distance, population_summary
+from phasewise.core.physics import population as population_module
+from phasewise.core.physics.distance import modulus_to_distance
+from phasewise.core.physics.population import ClassDistance, _candidates, _weight
 
 # --- the former implementation, kept as the reference -----------------------
 

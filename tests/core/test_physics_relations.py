@@ -10,7 +10,7 @@ import math
 
 import pytest
 
-from core.physics import RELATIONS, ccm89_ratio, extinction_ratio_i, sine_to_cosine_phi31
+from phasewise.core.physics import RELATIONS, ccm89_ratio, extinction_ratio_i, sine_to_cosine_phi31
 
 CONFIDENCE = {"paper", "secondary", "memory"}
 

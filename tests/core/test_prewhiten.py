@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 from astropy.timeseries import LombScargle
 
-from core.errors import PhasewiseError, SettingsError
-from core.lightcurve import LightCurve
-from core.prewhiten import PrewhitenSettings, _combination_label, _noise, prewhiten
+from phasewise.core.errors import PhasewiseError, SettingsError
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.prewhiten import PrewhitenSettings, _combination_label, _noise, prewhiten
 
 TWO_PI = 2 * np.pi
 N, SPAN, NOISE = 700, 300.0, 0.02
@@ -214,7 +214,7 @@ def test_default_search_is_the_project_periodogram_and_handles_bands():
 
 
 def test_a_search_that_refuses_stops_prewhitening_with_its_reason():
-    from core.errors import GridTooLargeError
+    from phasewise.core.errors import GridTooLargeError
 
     def refusing(lc):
         raise GridTooLargeError("grid of 2,000,000 frequencies is above the limit")
@@ -227,8 +227,8 @@ def test_a_search_that_refuses_stops_prewhitening_with_its_reason():
 
 
 def test_residual_search_keeps_to_the_main_search_range():
-    from core.periodogram import PeriodogramSettings
-    from core.prewhiten import residual_search
+    from phasewise.core.periodogram import PeriodogramSettings
+    from phasewise.core.prewhiten import residual_search
 
     t = _times(14)
     lc = _star(t, _double_mode(t), 14)

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 from astropy.timeseries import LombScargle
 
-from core.lightcurve import LightCurve
-from core.periodogram import PeriodogramSettings, compute_periodogram, find_candidates
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import PeriodogramSettings, compute_periodogram, find_candidates
 
 sunspots = pytest.importorskip("statsmodels.datasets.sunspots")
 

@@ -6,7 +6,7 @@ import textwrap
 
 import pytest
 
-from core.classify import (
+from phasewise.core.classify import (
     CLASS_CODES,
     is_known_feature,
     load_rulebook,
@@ -14,7 +14,7 @@ from core.classify import (
     shipped_rulebook_path,
     user_rulebook_path,
 )
-from core.errors import PhasewiseError, RulebookError
+from phasewise.core.errors import PhasewiseError, RulebookError
 
 GOOD = textwrap.dedent(
     """\

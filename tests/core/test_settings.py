@@ -2,9 +2,9 @@ from dataclasses import dataclass
 
 import pytest
 
-from core.errors import PhasewiseError, SettingsError
-from core.settings import settings_hash
-from core.validation import require_choice, require_int, require_positive, require_range
+from phasewise.core.errors import PhasewiseError, SettingsError
+from phasewise.core.settings import settings_hash
+from phasewise.core.validation import require_choice, require_int, require_positive, require_range
 
 
 @dataclass(frozen=True)

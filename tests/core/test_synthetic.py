@@ -11,9 +11,9 @@ import pytest
 from astropy.table import Table
 from astropy.timeseries import LombScargle
 
-from core import synthetic as syn
-from core.errors import SettingsError
-from core.lightcurve import LightCurve
+from phasewise.core import synthetic as syn
+from phasewise.core.errors import SettingsError
+from phasewise.core.lightcurve import LightCurve
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "demo_data"

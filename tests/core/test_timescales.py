@@ -10,8 +10,8 @@ import pytest
 from astropy.coordinates import SkyCoord
 from astropy.time import Time
 
-from core.errors import PhasewiseError
-from core.timescales import DEMO_OBSERVATORY, MJD_OFFSET, convert_times
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.timescales import DEMO_OBSERVATORY, MJD_OFFSET, convert_times
 
 RA, DEC = 150.0, -30.0  # invented
 JD = np.array([2459580.5, 2459671.25, 2459762.75, 2459853.125, 2460100.6])  # invented dates
@@ -110,8 +110,8 @@ def test_unknown_scale_is_named():
 
 
 def test_a_light_curve_converts_with_its_own_coordinates():
-    from core.lightcurve import LightCurve, StarMeta
-    from core.timescales import to_time_scale
+    from phasewise.core.lightcurve import LightCurve, StarMeta
+    from phasewise.core.timescales import to_time_scale
 
     lc = LightCurve(
         "CAV-1", JD, np.full(JD.size, 15.0), time_scale="JD", meta=StarMeta(ra=RA, dec=DEC)

@@ -1,8 +1,8 @@
 import pytest
 
-from core.errors import PhasewiseError
-from core.folding import period_step
-from core.vetting import LARGE_STEP_CYCLES, SMALL_STEP_CYCLES, VettingSession
+from phasewise.core.errors import PhasewiseError
+from phasewise.core.folding import period_step
+from phasewise.core.vetting import LARGE_STEP_CYCLES, SMALL_STEP_CYCLES, VettingSession
 
 
 def _session():

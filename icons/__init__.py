@@ -1,0 +1,1 @@
+"""Icons of our own design (SVG), shipped as resources of ``phasewise.icons``."""
