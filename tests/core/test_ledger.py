@@ -7,7 +7,6 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from phasewise.core import ledger as ledger_module
 from phasewise.core.errors import LedgerError, LedgerVersionError
 from phasewise.core.ledger import SCHEMA_VERSION, Ledger, file_checksum
 from phasewise.core.lightcurve import LightCurve, StarMeta
@@ -281,7 +280,9 @@ def test_newer_version_is_refused(led, path):
     conn = sqlite3.connect(path)
     conn.execute(f"PRAGMA user_version={SCHEMA_VERSION + 5}")
     conn.close()
-    with pytest.raises(LedgerVersionError, match=f"newer Phasewise.*schema version {SCHEMA_VERSION + 5}"):
+    with pytest.raises(
+        LedgerVersionError, match=f"newer Phasewise.*schema version {SCHEMA_VERSION + 5}"
+    ):
         Ledger.open(path)
 
 
