@@ -49,11 +49,14 @@ import os
 import socket
 import sqlite3
 import struct
+import tempfile
 import threading
+import time
 import uuid
 import zlib
-from collections.abc import Callable, Iterable, Mapping
-from dataclasses import dataclass
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from contextlib import contextmanager
+from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
@@ -79,6 +82,7 @@ __all__ = [
     "LockHolder",
     "Problem",
     "file_checksum",
+    "lock_holder_of",
 ]
 
 #: Version of the table layout written by this Phasewise.
@@ -488,7 +492,11 @@ def _header_problem(path: Path) -> str | None:
     valid_for = struct.unpack(">I", header[92:96])[0]
     if size % page_size:
         return f"damaged: length {size} bytes is not a whole number of {page_size}-byte pages"
-    if n_pages and valid_for == change_counter and size < n_pages * page_size:
+    wal = Path(f"{path}-wal")
+    live_wal = wal.exists() and wal.stat().st_size > 0
+    # with a live WAL the pages beyond the file's end may still sit in the WAL
+    # (a checkpoint stopped by a full disk): SQLite reads them from there
+    if n_pages and valid_for == change_counter and size < n_pages * page_size and not live_wal:
         return f"damaged: truncated to {size} bytes; the header says {n_pages * page_size} bytes"
     return None
 
@@ -517,43 +525,130 @@ class Ledger:
     # ------------------------------------------------------------- opening
     @classmethod
     def create(cls, path: str | os.PathLike, *, overwrite: bool = False) -> Ledger:
-        """Make a new, empty ledger file and open it for writing."""
+        """Make a new, empty ledger file and open it for writing.
+
+        With ``overwrite``, an existing ledger (not held by another process)
+        is replaced by the new one only once the new one is complete.  To
+        import into a replacement before it takes the old one's place, use
+        :meth:`building`.
+        """
         path = Path(path)
-        if path.exists():
-            if not overwrite:
-                raise LedgerError("a file of that name exists; choose another name", file=path)
-            Ledger.open(path).close()  # refuses if another process holds it or it is damaged
-        # WAL/SHM files left beside a deleted ledger would be replayed into the new one
-        for suffix in ("", "-wal", "-shm"):
-            Path(f"{path}{suffix}").unlink(missing_ok=True)
-        # built under a temporary name and renamed, so a crash never leaves half a ledger
-        temp = path.with_name(f".{path.name}.{uuid.uuid4().hex[:8]}.tmp")
+        cls._check_target(path, overwrite)
+        temp = cls._new_file(path)
         try:
-            conn = sqlite3.connect(temp, isolation_level=None)
-            conn.execute(f"PRAGMA application_id={APPLICATION_ID}")
-            conn.executescript("BEGIN;" + _SCHEMA_V1 + "COMMIT;")
-            conn.execute("BEGIN IMMEDIATE")
-            for version in range(1, SCHEMA_VERSION):
-                MIGRATIONS[version](conn)
-            conn.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
-            facts = [("created_at", _now()), ("created_by", f"phasewise {__version__}")]
-            conn.executemany(
-                "INSERT INTO meta(key, value, seal) VALUES (?, ?, ?)",
-                [(key, value, _seal(key, value)) for key, value in facts],
-            )
-            conn.execute("COMMIT")
-            conn.execute("PRAGMA journal_mode=WAL")
-            conn.close()
-            os.replace(temp, path)
-        except (sqlite3.Error, OSError) as exc:
-            for suffix in ("", "-wal", "-shm", "-journal"):
-                Path(f"{temp}{suffix}").unlink(missing_ok=True)
-            raise LedgerError(f"cannot create the ledger: {exc}", file=path) from exc
+            cls._swap_in(temp, path)
+        except BaseException:
+            _unlink_ledger_files(temp)
+            raise
         return cls.open(path)
 
     @classmethod
+    @contextmanager
+    def building(cls, path: str | os.PathLike, *, overwrite: bool = False) -> Iterator[Ledger]:
+        """A new ledger built beside ``path``, moved into place only if the block succeeds.
+
+        The block fills the ledger (an import, say).  If it raises, is
+        interrupted, or the disk fills, the new file is removed and an
+        existing ledger at ``path`` is left as it was, verdicts and all.  A
+        process killed during the block leaves a hidden ``.NAME.*.building``
+        file, which the next build of the same ledger removes.
+        """
+        path = Path(path)
+        cls._check_target(path, overwrite)
+        _remove_abandoned_builds(path)
+        temp = cls._new_file(path)
+        try:
+            ledger = cls.open(temp)
+        except BaseException:
+            _unlink_ledger_files(temp)
+            raise
+        try:
+            yield ledger
+            ledger.close()
+            if path.exists():
+                cls._check_target(path, overwrite)  # nobody took it meanwhile
+            cls._swap_in(temp, path)
+        except BaseException:
+            ledger.close()
+            _unlink_ledger_files(temp)
+            raise
+
+    @classmethod
+    def _check_target(cls, path: Path, overwrite: bool) -> None:
+        if not path.exists():
+            if not os.access(path.parent if str(path.parent) else ".", os.W_OK):
+                raise LedgerError("cannot create it: the folder is not writable", file=path)
+            return
+        if not overwrite:
+            raise LedgerError("a file of that name exists; choose another name", file=path)
+        # refuses if another process holds it, it is damaged or read-only;
+        # closing the last connection also folds its WAL into the file
+        cls.open(path).close()
+
+    @staticmethod
+    def _new_file(path: Path) -> Path:
+        """An empty ledger of the current schema under a hidden name beside ``path``."""
+        try:
+            handle, name = tempfile.mkstemp(
+                prefix=f".{path.name}.", suffix=".building", dir=path.parent
+            )
+            os.close(handle)
+            # mkstemp makes the file private; a ledger gets the usual mode
+            mask = os.umask(0)
+            os.umask(mask)
+            os.chmod(name, 0o666 & ~mask)
+        except OSError as exc:
+            raise LedgerError(
+                f"cannot create a file in its folder ({exc.strerror})", file=path
+            ) from None
+        temp = Path(name)
+        try:
+            conn = sqlite3.connect(temp, isolation_level=None)
+            try:
+                conn.execute(f"PRAGMA application_id={APPLICATION_ID}")
+                conn.executescript("BEGIN;" + _SCHEMA_V1 + "COMMIT;")
+                conn.execute("BEGIN IMMEDIATE")
+                for version in range(1, SCHEMA_VERSION):
+                    MIGRATIONS[version](conn)
+                conn.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
+                facts = [("created_at", _now()), ("created_by", f"phasewise {__version__}")]
+                conn.executemany(
+                    "INSERT INTO meta(key, value, seal) VALUES (?, ?, ?)",
+                    [(key, value, _seal(key, value)) for key, value in facts],
+                )
+                conn.execute("COMMIT")
+                conn.execute("PRAGMA journal_mode=WAL")
+            finally:
+                conn.close()
+        except (sqlite3.Error, OSError) as exc:
+            _unlink_ledger_files(temp)
+            raise LedgerError(
+                "cannot create the ledger: " + _write_error(exc, path).reason, file=path
+            ) from None
+        return temp
+
+    @staticmethod
+    def _swap_in(temp: Path, path: Path) -> None:
+        # side files of the old ledger must never meet the new one: a WAL
+        # left beside it would be replayed into it
+        try:
+            for suffix in ("-wal", "-shm"):
+                Path(f"{path}{suffix}").unlink(missing_ok=True)
+            os.replace(temp, path)
+        except OSError as exc:
+            raise LedgerError(
+                f"cannot put the new ledger in place ({exc.strerror})", file=path
+            ) from None
+        Path(f"{temp}-shm").unlink(missing_ok=True)
+
+    @classmethod
     def open(
-        cls, path: str | os.PathLike, readonly: bool = False, *, check: str = "none"
+        cls,
+        path: str | os.PathLike,
+        readonly: bool = False,
+        *,
+        check: str = "none",
+        take_over: LockHolder | None = None,
     ) -> Ledger:
         """Open a ledger.
 
@@ -566,6 +661,12 @@ class Ledger:
             Only the header check (default: opening never reads the whole
             file; :meth:`check` and ``phasewise ledger check`` do), or also
             SQLite's ``quick_check`` or ``integrity_check``.
+        take_over : LockHolder, optional
+            Take the write lock from exactly this holder (as given by
+            :func:`lock_holder_of`), which the person has confirmed is gone:
+            a process on another machine (a crashed container, a copied
+            file) cannot be checked from here.  The take-over is written to
+            the history.  A live process on this machine is never overruled.
 
         Raises
         ------
@@ -596,16 +697,27 @@ class Ledger:
                     "for writing once to upgrade it",
                     file=path,
                 )
-            conn = sqlite3.connect(
-                f"{path.resolve().as_uri()}?mode=ro", uri=True, check_same_thread=False
-            )
+            try:
+                conn = sqlite3.connect(_reader_uri(path), uri=True, check_same_thread=False)
+            except sqlite3.Error as exc:
+                raise LedgerError(f"cannot open it read-only: {exc}", file=path) from None
             conn.isolation_level = None
             return cls(path, conn, readonly=True)
-        conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False, timeout=10)
-        conn.execute("PRAGMA journal_mode=WAL")
-        conn.execute("PRAGMA synchronous=FULL")
-        conn.execute("PRAGMA foreign_keys=ON")
-        token = cls._take_lock(conn, path)
+        if not _writable(path):
+            raise LedgerError(
+                "the ledger is read-only here (the file or its folder is not writable): "
+                "it can be read (info, history, export) but not changed; copy it to a "
+                "writable folder to change it",
+                file=path,
+            )
+        try:
+            conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False, timeout=10)
+            conn.execute("PRAGMA journal_mode=WAL")
+            conn.execute("PRAGMA synchronous=FULL")
+            conn.execute("PRAGMA foreign_keys=ON")
+            token = cls._take_lock(conn, path, take_over)
+        except sqlite3.Error as exc:
+            raise _write_error(exc, path) from None
         try:
             if version < SCHEMA_VERSION:
                 cls._migrate(conn, path, version)
@@ -626,7 +738,7 @@ class Ledger:
         side_files = [Path(f"{path}{s}") for s in ("-wal", "-shm")]
         existed = [p.exists() for p in side_files]
         try:
-            conn = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+            conn = sqlite3.connect(_reader_uri(path), uri=True)
         except sqlite3.Error as exc:
             raise LedgerError(f"cannot open: {exc}", file=path) from exc
         try:
@@ -651,21 +763,33 @@ class Ledger:
         return int(version)
 
     @staticmethod
-    def _live_holder(conn: sqlite3.Connection, path: Path) -> None:
-        """Raise :class:`LedgerLockedError` naming the holder if a live process holds the lock."""
+    def _live_holder(
+        conn: sqlite3.Connection, path: Path, take_over: LockHolder | None = None
+    ) -> LockHolder | None:
+        """Raise :class:`LedgerLockedError` naming the holder if a live process holds the lock.
+
+        Returns the holder whose lock is taken over (None if there was none
+        or it was a dead process of this host).
+        """
         row = conn.execute(
             "SELECT pid, host, since, program, token FROM lock WHERE id = 1"
         ).fetchone()
         if row is None:
-            return
+            return None
         holder = LockHolder(int(row[0]), row[1], row[2], row[3])
         started = row[4].partition("/")[2]
-        if holder.host != socket.gethostname() or _holder_alive(holder.pid, started):
+        here = holder.host == socket.gethostname()
+        if take_over is not None and holder == take_over and not here:
+            return holder
+        if not here or _holder_alive(holder.pid, started):
             if conn.in_transaction:
                 conn.execute("ROLLBACK")
             conn.close()
             where = (
-                "" if holder.host == socket.gethostname() else " (another machine: cannot check it)"
+                ""
+                if here
+                else " (another machine: cannot check it; if that process is gone, "
+                "take the lock over with 'phasewise ledger unlock')"
             )
             raise LedgerLockedError(
                 f"held for writing by {holder.describe()}{where}; "
@@ -673,15 +797,18 @@ class Ledger:
                 file=path,
             )
         # the holder died without closing: its lock is stale, to be taken over
+        return holder
 
     @staticmethod
-    def _take_lock(conn: sqlite3.Connection, path: Path) -> str:
+    def _take_lock(
+        conn: sqlite3.Connection, path: Path, take_over: LockHolder | None = None
+    ) -> str:
         # the token carries the process start time, so a reused pid is not mistaken
         # for the holder
         token = f"{uuid.uuid4().hex}/{_process_start(os.getpid()) or ''}"
         # a read first (in WAL mode it never waits for a writer): a live holder is
         # named at once, not after waiting for a write lock it keeps taking
-        Ledger._live_holder(conn, path)
+        Ledger._live_holder(conn, path, take_over)
         try:
             conn.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as exc:
@@ -690,13 +817,22 @@ class Ledger:
                 f"another process is writing to it and did not finish within 10 s ({exc})",
                 file=path,
             ) from exc
-        Ledger._live_holder(conn, path)  # again, inside the transaction: it may have changed
-        conn.execute(
-            "INSERT OR REPLACE INTO lock(id, token, pid, host, since, program) "
-            "VALUES (1, ?, ?, ?, ?, ?)",
-            (token, os.getpid(), socket.gethostname(), _now(), f"phasewise {__version__}"),
-        )
-        conn.execute("COMMIT")
+        try:
+            # again, inside the transaction: it may have changed
+            previous = Ledger._live_holder(conn, path, take_over)
+            mine = LockHolder(os.getpid(), socket.gethostname(), _now(), f"phasewise {__version__}")
+            conn.execute(
+                "INSERT OR REPLACE INTO lock(id, token, pid, host, since, program) "
+                "VALUES (1, ?, ?, ?, ?, ?)",
+                (token, mine.pid, mine.host, mine.since, mine.program),
+            )
+            if take_over is not None and previous == take_over:
+                _record_take_over(conn, previous, mine)
+            conn.execute("COMMIT")
+        except BaseException:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            raise
         return token
 
     @staticmethod
@@ -831,8 +967,12 @@ class Ledger:
         self._put_meta("content_sum", f"{total:064x}")
 
     def _content_sum(self) -> int:
-        row = self._query("SELECT value FROM meta WHERE key = 'content_sum'").fetchone()
-        return int(row[0], 16) if row else 0
+        row = self._query("SELECT value, seal FROM meta WHERE key = 'content_sum'").fetchone()
+        if row is None:
+            return 0
+        if _seal("content_sum", row[0]) != row[1]:
+            raise self._damaged(None, "content checksum")
+        return int(row[0], 16)
 
     def _put_meta(self, key: str, value: str) -> None:
         self._query(
@@ -1593,10 +1733,7 @@ class Ledger:
         does not depend on SQLite's page layout or on the WAL.
         :meth:`check` confirms that the sum matches the records.
         """
-        row = self._query("SELECT value, seal FROM meta WHERE key = 'content_sum'").fetchone()
-        if row is not None and _seal("content_sum", row[0]) != row[1]:
-            raise self._damaged(None, "content checksum")
-        total = 0 if row is None else int(row[0], 16)
+        total = self._content_sum()
         text = f"phasewise ledger content/{SCHEMA_VERSION}/{total:064x}"
         return hashlib.sha256(text.encode()).hexdigest()
 
@@ -1623,7 +1760,7 @@ class Ledger:
                 problems.append(Problem(None, "file", f"SQLite integrity check: {detail}"))
             try:
                 problems += self._check_records()
-            except sqlite3.DatabaseError as exc:
+            except (sqlite3.DatabaseError, LedgerError, ValueError) as exc:
                 problems.append(Problem(None, "file", f"cannot read every record: {exc}"))
         return problems
 
@@ -1780,6 +1917,90 @@ def _mask(blob: bytes | None, n: int) -> np.ndarray:
     if blob is None:
         return np.zeros(n, dtype=bool)
     return np.frombuffer(blob, dtype=np.uint8, count=n).astype(bool)
+
+
+def lock_holder_of(path: str | os.PathLike) -> LockHolder | None:
+    """Who holds a ledger file for writing (None if nobody), read without opening it."""
+    return _file_lock_holder(Path(path))
+
+
+def _record_take_over(conn: sqlite3.Connection, old: LockHolder, new: LockHolder) -> None:
+    """Write a lock take-over to the history (not undoable), inside the caller's transaction."""
+    at = _now()
+    values = ("lock", f"take over the lock from {old.host}", at, None, None)
+    action = conn.execute(
+        "INSERT INTO actions(kind, label, at, target, state, seal) VALUES (?, ?, ?, ?, ?, ?)",
+        (*values, _seal(*values)),
+    ).lastrowid
+    entry = (action, at, None, "lock", _dumps(asdict(old)), _dumps(asdict(new)))
+    conn.execute(
+        "INSERT INTO history(action, at, star_id, what, old, new, seal) "
+        "VALUES (?, ?, ?, ?, ?, ?, ?)",
+        (*entry, _seal(*entry)),
+    )
+
+
+def _unlink_ledger_files(path: Path) -> None:
+    for suffix in ("", "-wal", "-shm", "-journal"):
+        try:
+            Path(f"{path}{suffix}").unlink(missing_ok=True)
+        except OSError:
+            pass
+
+
+def _remove_abandoned_builds(path: Path, *, grace: float = 60.0) -> None:
+    """Remove ``.NAME.*.building`` files of builds whose process died.
+
+    A build holds the lock of its file; a file whose lock names a dead
+    process of this host (or without a lock, older than ``grace`` seconds)
+    is what a killed ``ledger new`` left behind.
+    """
+    for temp in path.parent.glob(f".{path.name}.*.building"):
+        try:
+            holder = _file_lock_holder(temp)
+            if holder is None:
+                if time.time() - temp.stat().st_mtime < grace:
+                    continue  # being created right now
+            elif holder.host != socket.gethostname() or _pid_alive(holder.pid):
+                continue
+        except OSError:
+            continue
+        _unlink_ledger_files(temp)
+
+
+def _file_lock_holder(path: Path) -> LockHolder | None:
+    try:
+        conn = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+        try:
+            row = conn.execute("SELECT pid, host, since, program FROM lock").fetchone()
+        finally:
+            conn.close()
+    except sqlite3.Error:
+        return None
+    return None if row is None else LockHolder(int(row[0]), row[1], row[2], row[3])
+
+
+def _writable(path: Path) -> bool:
+    """Whether SQLite can write the file and make its side files beside it."""
+    return os.access(path, os.W_OK) and _folder_writable(path)
+
+
+def _folder_writable(path: Path) -> bool:
+    return os.access(path.parent, os.W_OK)
+
+
+def _reader_uri(path: Path) -> str:
+    """URI of a read-only connection that works where nothing may be written.
+
+    A read-only folder cannot hold the WAL index that a reader normally
+    creates; there, with no pending WAL, the file is opened ``immutable``.
+    """
+    uri = path.resolve().as_uri()
+    wal = Path(f"{path}-wal")
+    pending = wal.exists() and wal.stat().st_size > 0
+    if not _folder_writable(path) and not pending:
+        return f"{uri}?immutable=1"
+    return f"{uri}?mode=ro"
 
 
 def _remove_new_side_files(side_files: list[Path], existed: list[bool]) -> None:
