@@ -519,8 +519,15 @@ class Ledger:
         self._order: list[str] = []
         self._listeners: list[Callable[[Change], None]] = []
         self._sum_delta = 0  # change of the content sum in the open transaction
-        self._codec = _Codec(conn)
-        self._load_ids()
+        try:
+            self._codec = _Codec(conn)
+            self._load_ids()
+        except (sqlite3.DatabaseError, LedgerError, UnicodeDecodeError) as exc:
+            conn.close()
+            self._conn = None
+            if isinstance(exc, LedgerError):
+                raise
+            raise _damaged_file(exc, path) from None
 
     # ------------------------------------------------------------- opening
     @classmethod
@@ -698,7 +705,7 @@ class Ledger:
                     file=path,
                 )
             try:
-                conn = sqlite3.connect(_reader_uri(path), uri=True, check_same_thread=False)
+                conn = _connect(_reader_uri(path), uri=True, check_same_thread=False)
             except sqlite3.Error as exc:
                 raise LedgerError(f"cannot open it read-only: {exc}", file=path) from None
             conn.isolation_level = None
@@ -711,7 +718,7 @@ class Ledger:
                 file=path,
             )
         try:
-            conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False, timeout=10)
+            conn = _connect(path, isolation_level=None, check_same_thread=False, timeout=10)
             conn.execute("PRAGMA journal_mode=WAL")
             conn.execute("PRAGMA synchronous=FULL")
             conn.execute("PRAGMA foreign_keys=ON")
@@ -738,7 +745,7 @@ class Ledger:
         side_files = [Path(f"{path}{s}") for s in ("-wal", "-shm")]
         existed = [p.exists() for p in side_files]
         try:
-            conn = sqlite3.connect(_reader_uri(path), uri=True)
+            conn = _connect(_reader_uri(path), uri=True)
         except sqlite3.Error as exc:
             raise LedgerError(f"cannot open: {exc}", file=path) from exc
         try:
@@ -751,10 +758,10 @@ class Ledger:
                     raise LedgerError(f"damaged: SQLite check failed: {detail}", file=path)
             if app_id != APPLICATION_ID:
                 raise LedgerError("an SQLite file, but not a Phasewise ledger", file=path)
-        except sqlite3.DatabaseError as exc:
+        except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
             conn.close()
             _remove_new_side_files(side_files, existed)
-            raise LedgerError(f"damaged or not a ledger: {exc}", file=path) from exc
+            raise _damaged_file(exc, path) from None
         except LedgerError:
             conn.close()
             _remove_new_side_files(side_files, existed)
@@ -893,12 +900,8 @@ class Ledger:
                 return _Rows(cursor.fetchall(), cursor.lastrowid)
             except sqlite3.OperationalError as exc:
                 raise _write_error(exc, self.path) from None
-            except sqlite3.DatabaseError as exc:
-                raise LedgerError(
-                    f"damaged: SQLite cannot read part of the file ({exc}); run "
-                    "'phasewise ledger check' on it and restore it from a copy",
-                    file=self.path,
-                ) from None
+            except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
+                raise _damaged_file(exc, self.path) from None
 
     def _stream(self, sql: str) -> Iterable[tuple[Any, ...]]:
         if self._conn is None:
@@ -1753,7 +1756,7 @@ class Ledger:
         with self._mutex:
             try:
                 rows = self._conn.execute("PRAGMA integrity_check").fetchall()
-            except sqlite3.DatabaseError as exc:
+            except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
                 return [Problem(None, "file", f"SQLite cannot check the file: {exc}")]
             if [r[0] for r in rows] != ["ok"]:
                 detail = "; ".join(str(r[0]) for r in rows[:5])
@@ -1898,7 +1901,12 @@ class _Transaction:
 def _write_error(error: sqlite3.Error, path: Path) -> LedgerError:
     """One plain sentence for a failed write; nothing of it was kept."""
     text = str(error).lower()
-    if "full" in text:
+    if "malformed" in text or "not a database" in text or "corrupt" in text:
+        reason = (
+            f"damaged: SQLite cannot read part of the file ({error}); run "
+            "'phasewise ledger check' on it and restore it from a copy"
+        )
+    elif "full" in text:
         reason = (
             "the disk is full; nothing of this change was written and everything "
             "committed before is safe. Free some space and try again"
@@ -1910,6 +1918,16 @@ def _write_error(error: sqlite3.Error, path: Path) -> LedgerError:
     else:
         reason = f"SQLite could not read or write it ({error}); nothing was changed"
     return LedgerError(reason, file=path)
+
+
+def _damaged_file(error: Exception, path: Path) -> LedgerError:
+    if isinstance(error, sqlite3.OperationalError):
+        return _write_error(error, path)
+    return LedgerError(
+        f"damaged: SQLite cannot read part of the file ({error}); run "
+        "'phasewise ledger check' on it and restore it from a copy",
+        file=path,
+    )
 
 
 def _mask(blob: bytes | None, n: int) -> np.ndarray:
@@ -1938,6 +1956,18 @@ def _record_take_over(conn: sqlite3.Connection, old: LockHolder, new: LockHolder
         "VALUES (?, ?, ?, ?, ?, ?, ?)",
         (*entry, _seal(*entry)),
     )
+
+
+def _connect(target: Any, **kwargs: Any) -> sqlite3.Connection:
+    conn = sqlite3.connect(target, **kwargs)
+    # a damaged byte in a stored text must not stop the reading: the text comes
+    # back with the byte escaped, and its record's seal then reports the damage
+    conn.text_factory = _text
+    return conn
+
+
+def _text(data: bytes) -> str:
+    return data.decode("utf-8", "surrogateescape")
 
 
 def _unlink_ledger_files(path: Path) -> None:
@@ -1970,7 +2000,7 @@ def _remove_abandoned_builds(path: Path, *, grace: float = 60.0) -> None:
 
 def _file_lock_holder(path: Path) -> LockHolder | None:
     try:
-        conn = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+        conn = _connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
         try:
             row = conn.execute("SELECT pid, host, since, program FROM lock").fetchone()
         finally:
