@@ -154,6 +154,7 @@ class StoredResult:
     failed: bool
     error: str | None
     damaged: bool = False  # the stored record failed its checksum; analyse the star again
+    error_detail: str | None = None  # raw text of a failure, for debugging only
 
 
 @dataclass(frozen=True)
@@ -1377,6 +1378,7 @@ class Ledger:
             stale=stale,
             failed=bool(failed),
             error=error,
+            error_detail=values[16],
         )
 
     def stars_needing_analysis(self, settings_hash: str, only: str = "unanalysed") -> list[str]:

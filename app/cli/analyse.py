@@ -53,7 +53,11 @@ def register(subparsers) -> None:
     parser.add_argument(
         "--scheduler",
         metavar="tcp://HOST:PORT",
-        help="run on the Dask cluster of this scheduler (needs phasewise[dask])",
+        help="run on the Dask cluster of this scheduler (needs phasewise[dask]). Light "
+        "curves, settings and results travel to and from the scheduler and workers as "
+        "pickles, which can run code when loaded: use only machines you trust. On a shared "
+        "network use tls://HOST:PORT with distributed's TLS settings (CA file, certificate "
+        "and key under distributed.comm.tls in the dask configuration)",
     )
     parser.add_argument("--settings", type=Path, metavar="FILE", help="analysis settings (TOML)")
     parser.add_argument(
