@@ -454,3 +454,44 @@ def test_ecsv_with_a_bad_cell_is_read_row_by_row(tmp_path):
     assert source.report.skipped[0]["row"] == data_start + 5  # a line number of the file
     assert source.report.skipped[0]["reason"] == "column 'mag': not a number: 'oops'"
     assert "astropy could not read the ECSV file" in source.report.table
+
+
+def test_write_stars_ignores_a_planted_symlink_and_cleans_up(tmp_path):
+    # a symlink at the old predictable temporary name must not be followed
+    victim = tmp_path / "victim.txt"
+    victim.write_text("keep me")
+    (tmp_path / ".out.csv.part").symlink_to(victim)
+    lc = LightCurve("KRN-1", np.arange(5.0) + 2460000, np.full(5, 15.0), time_scale="HJD")
+    write_stars([lc], tmp_path / "out.csv")
+    assert victim.read_text() == "keep me"
+    assert open_photometry(tmp_path / "out.csv").star("KRN-1").n_points == 5
+    assert [p.name for p in tmp_path.glob(".out.csv.*.part")] == []
+
+
+def test_write_stars_removes_its_temporary_file_on_failure(tmp_path, monkeypatch):
+    from astropy.table import Table
+
+    def broken(self, *args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(Table, "write", broken)
+    lc = LightCurve("KRN-1", np.arange(5.0) + 2460000, np.full(5, 15.0), time_scale="HJD")
+    with pytest.raises(PhasewiseError, match="out.ecsv: cannot write: No space left"):
+        write_stars([lc], tmp_path / "out.ecsv")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_abandoned_temporary_files_are_removed_by_the_next_write(tmp_path):
+    import os
+    import time
+
+    from phasewise.core.io.writers import remove_abandoned_temps
+
+    old = tmp_path / ".vetted.ecsv.k3j2h1.partial"  # what a killed export leaves
+    old.write_bytes(b"x" * 1000)
+    fresh = tmp_path / ".vetted.ecsv.a1b2c3.partial"  # an export still running
+    fresh.write_bytes(b"y")
+    hour_ago = time.time() - 3600
+    os.utime(old, (hour_ago, hour_ago))
+    assert remove_abandoned_temps(tmp_path / "vetted.ecsv", ".partial") == 1
+    assert not old.exists() and fresh.exists()
