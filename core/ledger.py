@@ -1226,9 +1226,10 @@ class Ledger:
         self._query("UPDATE photometry SET excluded = ? WHERE star = ?", (blob, key))
         self._reseal_photometry(key)
         if self._query("SELECT outdated FROM results WHERE star = ?", (key,)).fetchone() == (0,):
-            self._check_result(key)  # never seal over a damaged result
-            self._query("UPDATE results SET outdated = 1 WHERE star = ?", (key,))
-            self._reseal_result(key)
+            record = self._result_record(key)
+            if record is not None and record[2]:  # a damaged result is never sealed over
+                self._query("UPDATE results SET outdated = 1 WHERE star = ?", (key,))
+                self._reseal_result(key)
 
     # ------------------------------------------------------------ analysis
     def set_analysis_settings(self, settings: Mapping[str, Any], settings_hash: str) -> None:
@@ -1338,11 +1339,6 @@ class Ledger:
             except ValueError:
                 intact = False
         return values, text, intact and _seal(key, *values, text) == seal
-
-    def _check_result(self, key: int) -> None:
-        record = self._result_record(key)
-        if record is not None and not record[2]:
-            raise self._damaged(self._names.get(key), "result")
 
     def _reseal_result(self, key: int) -> None:
         record = self._result_record(key)
