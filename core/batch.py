@@ -40,7 +40,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import PhasewiseError
+from .errors import PhasewiseError, plain_reason
 from .threads import limit_blas_threads
 
 __all__ = [
@@ -184,8 +184,9 @@ class StarOutcome:
 
     star_id: str
     result: dict[str, Any] | None = None
-    error: str | None = None
+    error: str | None = None  # our own sentence for the person
     shared_epochs: bool = False
+    detail: str | None = None  # the raw exception text, kept for debugging only
 
     @property
     def failed(self) -> bool:
@@ -302,7 +303,9 @@ def analyse_chunk(
                 result = fn(lc, settings, periodogram=pgram)
             outcomes.append(_outcome(lc.star_id, result, pgram is not None))
         except Exception as exc:  # noqa: BLE001 - one star's bug must not stop the run
-            outcomes.append(StarOutcome(lc.star_id, error=_error_text(exc)))
+            outcomes.append(
+                StarOutcome(lc.star_id, error=plain_reason(exc), detail=_error_text(exc))
+            )
     return outcomes
 
 
@@ -527,6 +530,12 @@ class _DaskEngine(_Engine):
             raise PhasewiseError(
                 f"cannot reach the Dask scheduler at {scheduler}: {exc}", field="scheduler"
             ) from exc
+        except (ValueError, TypeError) as exc:  # a malformed address
+            raise PhasewiseError(
+                f"not a scheduler address: {scheduler!r}; expected tcp://HOST:PORT "
+                f"(or tls://HOST:PORT) ({exc})",
+                field="scheduler",
+            ) from None
         threads = sum(self._client.nthreads().values())
         self.workers = workers or max(1, threads)
 
@@ -777,13 +786,18 @@ class _Run:
             if not retried:
                 self.retry.extend([star_id] for star_id in ids)
                 return
-            message = f"the worker analysing this star was lost: {_error_text(exc)}"
-            outcomes = [StarOutcome(ids[0], error=message)]
+            message = (
+                "the process analysing this star stopped (killed, out of memory, or a crash "
+                "in compiled code) twice; it is recorded as failed"
+            )
+            outcomes = [StarOutcome(ids[0], error=message, detail=_error_text(exc))]
         self._write(outcomes)
 
     def _write(self, outcomes: list[StarOutcome]) -> None:
         results = [(o.star_id, self.settings.hash, o.result) for o in outcomes if not o.failed]
-        failures = [(o.star_id, self.settings.hash, o.error) for o in outcomes if o.failed]
+        failures = [
+            (o.star_id, self.settings.hash, o.error, o.detail) for o in outcomes if o.failed
+        ]
         if results:
             self.ledger.store_results(results)
         if failures:
@@ -792,7 +806,7 @@ class _Run:
         self.failed += len(failures)
         self.shared += sum(o.shared_epochs for o in outcomes)
         room = KEPT_FAILURES - len(self.failures)
-        self.failures.extend((s, m) for s, _, m in failures[: max(0, room)])
+        self.failures.extend((s, m) for s, _, m, _ in failures[: max(0, room)])
         self._report()
 
     def _report(self) -> None:
