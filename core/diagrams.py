@@ -34,6 +34,7 @@ from typing import Any
 import numpy as np
 
 from . import physics
+from .classes import CLASSES
 from .errors import PhasewiseError
 from .validation import require_int, require_positive
 
@@ -89,7 +90,9 @@ DIAGRAMS: dict[str, str] = {
 }
 
 #: Classes that have no locus to be far from: never used for the outlier rule.
-NO_LOCUS_CLASSES = frozenset({"UNKNOWN", "CONST", "REJECTED"})
+NO_LOCUS_CLASSES = frozenset(
+    {"UNKNOWN", "REJECTED"} | {c.code for c in CLASSES.values() if not c.periodic}
+)
 
 #: Verdict states whose class is the person's, not the machine's.
 _DECIDED = frozenset({"confirmed", "relabelled"})
@@ -501,7 +504,9 @@ RATIO_WINDOW = (0.60, 0.90)
 #: Classes with a locus in the period-ratio diagram (the outlier rule tests only these).
 DOUBLE_MODE_CLASSES = frozenset({"RRd"})
 
-_NOT_PULSATING = frozenset({"CONST", "REJECTED", "EA", "EB", "EW", "LPV"})
+_NOT_PULSATING = frozenset(
+    {"REJECTED", "LPV"} | {c.code for c in CLASSES.values() if not (c.pulsating and c.periodic)}
+) - {"UNKNOWN"}
 
 
 def period_ratio(points: Iterable[StarPoint]) -> Diagram:
@@ -824,7 +829,7 @@ def find_outliers(
 
 # --------------------------------------------------------------------------- field state
 #: Classes whose members give a distance modulus in the field summary.
-STANDARD_CANDLES = ("RRab", "RRc", "RRd", "DCEP", "DCEP(1O)", "T2CEP", "DSCT", "SXPHE")
+STANDARD_CANDLES = tuple(code for code, c in CLASSES.items() if c.relations)
 
 #: Relations that can be drawn on the period–luminosity diagram.
 _PL_KERNELS = frozenset({"pl", "pl_fundamental", "pl_plain"})
