@@ -102,9 +102,7 @@ _ALL = (
         pulsating=True,
         relations=("benedict07_pl_v", "benedict07_pw_vi"),
     ),
-    ClassInfo(
-        "T2CEP", "type II Cepheid", True, pulsating=True, relations=("matsunaga06_pl_ks",)
-    ),
+    ClassInfo("T2CEP", "type II Cepheid", True, pulsating=True, relations=("matsunaga06_pl_ks",)),
     ClassInfo("ACEP", "anomalous Cepheid", True, pulsating=True),
     ClassInfo("DSCT", "delta Scuti", True, pulsating=True, relations=("mcnamara11_pl_v",)),
     ClassInfo("SXPHE", "SX Phoenicis", True, pulsating=True, relations=("mcnamara11_pl_v",)),

@@ -30,7 +30,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .classes import CLASSES, EPOCH_PRIMARY_MINIMUM, canonical_code, class_info
+from .classes import CLASSES, canonical_code, class_info
 from .errors import PhasewiseError
 from .results import StarResult, number
 
@@ -314,7 +314,10 @@ def _secondary(result: StarResult, frequency: float, baseline: float):
         if f is None or f <= 0 or item.kind not in (None, "independent"):
             continue
         k = max(1, round(f / frequency))
-        if abs(f - k * frequency) <= tol or abs(2 * f - round(2 * f / frequency) * frequency) <= tol:
+        if (
+            abs(f - k * frequency) <= tol
+            or abs(2 * f - round(2 * f / frequency) * frequency) <= tol
+        ):
             continue
         return 1.0 / f, number(item.snr)
     return None, None
@@ -443,8 +446,10 @@ def _periodic(kept, result, code, asked, source, flags, common, settings) -> Fin
     analysed = result.number("period")
     frequency, frequency_err = 1.0 / asked, None
     analysed_f, analysed_err = result.number("frequency"), result.number("frequency_err")
-    if analysed_f is not None and analysed_err is not None and (
-        _same(asked, analysed) or _same(asked, 2.0 * analysed)
+    if (
+        analysed_f is not None
+        and analysed_err is not None
+        and (_same(asked, analysed) or _same(asked, 2.0 * analysed))
     ):
         # the analysed frequency is refined already; half of it is known to
         # half its error (an eclipsing binary's orbit at twice the Fourier period)
