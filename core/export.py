@@ -46,7 +46,7 @@ from astropy.table import Table
 
 from . import __version__
 from .errors import PhasewiseError
-from .final import FinalNumbers
+from .final import FinalNumbers, matches_verdict, result_key
 from .ledger import VERDICT_STATUSES, Ledger
 from .results import FourierTerms, PhysicsValue, StarResult, number
 
@@ -288,40 +288,36 @@ def _n(value: Any) -> float:
 
 
 def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, list[str]]:
-    """The final numbers a row shows, and flags about where they come from."""
+    """The final numbers a row shows, and flags about where they come from.
+
+    A decided verdict (confirmed, relabelled, rejected) shows the numbers
+    stored with it; an undecided one the top suggestion's, stored with the
+    analysis result.  A confirmation stored without numbers shows the
+    suggestion's when they are the ones it asks for.  Nothing is recomputed.
+    """
     flags: list[str] = []
     decided = verdict.status in ("confirmed", "relabelled", "rejected")
-    stored = getattr(verdict, "final", None) if decided else None
-    if stored:
-        final = FinalNumbers.from_dict(stored)
-    else:
-        suggested = result.final if result is not None else None
-        final = None
-        if isinstance(suggested, Mapping) and "error" not in suggested:
-            final = FinalNumbers.from_dict(suggested)
-        elif isinstance(suggested, Mapping):
-            flags.append(str(suggested["error"]))
-        if decided and final is not None and not _matches(verdict, final):
-            final = None
-        if decided and final is None and verdict.status != "rejected":
-            flags.append("final numbers of this verdict not stored; run 'phasewise finalise'")
-    if final is not None and result is not None and final.result_hash != result.settings_hash:
-        flags.append("final numbers from an older analysis")
+    stored = _verdict_final(verdict) if decided else None
+    final = FinalNumbers.from_dict(stored) if stored else None
+    if final is None and result is not None and isinstance(result.final, Mapping):
+        if "error" in result.final:
+            flags.append(str(result.final["error"]))
+        else:
+            suggested = FinalNumbers.from_dict(result.final)
+            if not decided or matches_verdict(
+                suggested, verdict.status, verdict.class_code, verdict.period
+            ):
+                final = suggested
+    if decided and final is None and verdict.status != "rejected":
+        flags.append("final numbers of this verdict not stored; run 'phasewise finalise'")
+    if final is not None and result is not None and final.result_key != result_key(result):
+        flags.append("final numbers from an earlier analysis; run 'phasewise finalise'")
     return final, flags
 
 
-def _matches(verdict, final: FinalNumbers) -> bool:
-    """Whether a suggestion's final numbers are the ones a verdict asks for."""
-    if verdict.status == "rejected":
-        return False
-    if verdict.class_code and verdict.class_code != final.class_code:
-        return False
-    if verdict.period is None:
-        return True
-    return any(
-        p is not None and math.isclose(verdict.period, p, rel_tol=1e-9)
-        for p in (final.period, final.period_asked)
-    )
+def _verdict_final(verdict) -> dict[str, Any] | None:
+    # Verdict.final arrives with the ledger's schema migration; until then none is stored
+    return getattr(verdict, "final", None)
 
 
 def catalogue_row(

@@ -48,6 +48,9 @@ __all__ = [
     "verdict_final",
     "finalise_stars",
     "record_verdict",
+    "record_verdicts",
+    "matches_verdict",
+    "result_key",
     "EclipseShape",
     "eclipse_shape",
 ]
@@ -124,7 +127,7 @@ class FinalNumbers:
     ebv_err: float | None
     rv: float | None
     flags: tuple[str, ...] = ()
-    result_hash: str | None = None
+    result_key: str | None = None
     extra: dict[str, Any] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, Any]:
@@ -391,7 +394,7 @@ def final_numbers(
         "ebv": physics.ebv,
         "ebv_err": physics.ebv_err,
         "rv": physics.rv,
-        "result_hash": result.settings_hash,
+        "result_key": result_key(result),
     }
     if periodic is False or not info.periodic:
         return _aperiodic(kept, common, asked=period)
@@ -554,6 +557,27 @@ def _json_fit(fit) -> dict[str, Any]:
 
 
 # ------------------------------------------------------------------ verdicts
+def result_key(result: StarResult | Mapping[str, Any]) -> str:
+    """A short fingerprint of the analysis result that final numbers come from.
+
+    It changes when the star is analysed again with other settings, another
+    period, or other points (a new mask, other set-aside points).
+    """
+    import hashlib
+    import json
+
+    if not isinstance(result, StarResult):
+        result = StarResult.from_dict(result)
+    basis = [
+        result.settings_hash,
+        result.number("frequency"),
+        result.n_good,
+        list(result.set_aside or ()),
+        list(result.outlier_times or ()),
+    ]
+    return hashlib.sha256(json.dumps(basis).encode()).hexdigest()[:16]
+
+
 def suggested_final(
     lc: LightCurve, result: StarResult | Mapping[str, Any], settings: AnalysisSettings | None = None
 ) -> FinalNumbers | None:
@@ -588,11 +612,73 @@ def verdict_final(
     return final_numbers(lc, result, class_code, period, settings=settings)
 
 
-def _result_of(ledger, star_id: str) -> StarResult | None:
-    stored = ledger.result(star_id)
-    if stored is None or stored.failed or not stored.result:
+def matches_verdict(final: FinalNumbers, status: str, class_code: str | None, period) -> bool:
+    """Whether ``final`` holds the numbers a verdict asks for (class and period)."""
+    if status not in _DECIDED:
+        return False
+    if class_code and canonical_code(class_code) != final.class_code:
+        return False
+    if period is None:
+        return True
+    return any(_same(float(period), p) for p in (final.period, final.period_asked))
+
+
+def _stored_suggestion(result: StarResult) -> FinalNumbers | None:
+    final = result.final
+    if not isinstance(final, Mapping) or "error" in final:
         return None
-    return StarResult.from_dict(stored.result)
+    final = FinalNumbers.from_dict(final)
+    return final if final.result_key == result_key(result) else None
+
+
+class _Finaliser:
+    """Final numbers of verdicts of one ledger (settings read once, when first needed).
+
+    A star whose numbers cannot be computed (no readable settings, bad data)
+    gets none; ``problems`` says why, star by star.
+    """
+
+    def __init__(self, ledger, settings: AnalysisSettings | None) -> None:
+        self.ledger, self._settings = ledger, settings
+        self.problems: list[tuple[str, str]] = []
+
+    def settings(self) -> AnalysisSettings:
+        if self._settings is None:
+            from .settings_file import ledger_settings
+
+            self._settings = ledger_settings(self.ledger)
+        return self._settings
+
+    def final(self, star_id: str, status: str, code, period) -> dict[str, Any] | None:
+        stored = self.ledger.result(star_id)
+        if stored is None or stored.failed or not stored.result:
+            return None
+        result = StarResult.from_dict(stored.result)
+        suggested = _stored_suggestion(result)
+        if suggested is not None and matches_verdict(suggested, status, code, period):
+            return suggested.to_dict()  # the confirmed suggestion: computed at analysis time
+        if status not in (*_DECIDED, "rejected"):
+            return None
+        try:
+            lc = self.ledger.lightcurve(star_id)
+            final = verdict_final(lc, result, status, code, period, self.settings())
+        except (PhasewiseError, ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+            reason = exc.reason if isinstance(exc, PhasewiseError) else str(exc)
+            self.problems.append((star_id, f"final numbers not computed: {reason}"))
+            return None
+        return None if final is None else final.to_dict()
+
+    def stale(self, verdict) -> bool:
+        """Whether a verdict's stored final numbers are missing or from another result."""
+        if verdict.status not in (*_DECIDED, "rejected"):
+            return False
+        final = verdict.final
+        stored = self.ledger.result(verdict.star_id)
+        if stored is None or stored.failed or not stored.result:
+            return final is not None
+        if not final:
+            return True
+        return final.get("result_key") != result_key(stored.result)
 
 
 def record_verdict(
@@ -610,40 +696,46 @@ def record_verdict(
     ``class_code`` is written in the registry's spelling (``NONVAR`` ->
     ``CONST``); a class without a period records no period.
     """
-    code = canonical_code(class_code)
-    if code is not None and not CLASSES[code].periodic:
-        period = None
-    final = _final_for(ledger, str(star_id), status, code, period, settings)
-    return ledger.set_verdict(
-        star_id, status, class_code=code, period=period, note=note, final=final
-    )
+    return record_verdicts(
+        ledger, [(star_id, status, class_code, period, note)], settings=settings
+    )[0]
 
 
-def _final_for(ledger, star_id, status, code, period, settings) -> dict[str, Any] | None:
-    result = _result_of(ledger, star_id)
-    if result is None:
-        return None
-    if settings is None:
-        from .settings_file import ledger_settings
-
-        settings = ledger_settings(ledger)
-    final = verdict_final(ledger.lightcurve(star_id), result, status, code, period, settings)
-    return None if final is None else final.to_dict()
+def record_verdicts(
+    ledger,
+    items: Iterable[tuple[str, str, str | None, float | None, str | None]],
+    *,
+    label: str | None = None,
+    settings: AnalysisSettings | None = None,
+):
+    """Several verdicts ``(star_id, status, class_code, period, note)`` with their
+    final numbers, as one undoable action; returns the Verdicts."""
+    finaliser = _Finaliser(ledger, settings)
+    rows = []
+    for star_id, status, class_code, period, note in items:
+        code = canonical_code(class_code)
+        if code is not None and not CLASSES[code].periodic:
+            period = None
+        final = finaliser.final(str(star_id), status, code, period)
+        rows.append((str(star_id), status, code, period, note, final))
+    return _set_verdicts(ledger, rows, label)
 
 
 def finalise_stars(
-    ledger, star_ids: Iterable[str] | None = None, *, settings: AnalysisSettings | None = None
+    ledger,
+    star_ids: Iterable[str] | None = None,
+    *,
+    only_stale: bool = True,
+    settings: AnalysisSettings | None = None,
 ) -> int:
-    """Compute and store the final numbers of the given stars' verdicts (default: all decided).
+    """Compute and store the final numbers of verdicts; returns how many were updated.
 
-    Used after a re-analysis of stars that have verdicts: their numbers
-    follow the new result.  One undoable action; returns how many verdicts
-    were updated.
+    Used after a re-analysis of stars that have verdicts, so their numbers
+    follow the new result.  By default only verdicts whose stored numbers
+    are missing or come from another analysis result are recomputed.  One
+    undoable action.
     """
-    if settings is None:
-        from .settings_file import ledger_settings
-
-        settings = ledger_settings(ledger)
+    finaliser = _Finaliser(ledger, settings)
     wanted = None if star_ids is None else {str(s) for s in star_ids}
     items = []
     for verdict in ledger.verdicts():
@@ -651,9 +743,9 @@ def finalise_stars(
             continue
         if verdict.status not in (*_DECIDED, "rejected"):
             continue
-        final = _final_for(
-            ledger, verdict.star_id, verdict.status, verdict.class_code, verdict.period, settings
-        )
+        if only_stale and not finaliser.stale(verdict):
+            continue
+        final = finaliser.final(verdict.star_id, verdict.status, verdict.class_code, verdict.period)
         items.append(
             (
                 verdict.star_id,
@@ -665,8 +757,15 @@ def finalise_stars(
             )
         )
     if items:
-        ledger.set_verdicts(items, label=f"final numbers of {len(items)} verdict(s) recomputed")
+        _set_verdicts(ledger, items, f"final numbers of {len(items)} verdict(s) recomputed")
     return len(items)
+
+
+def _set_verdicts(ledger, rows, label):
+    try:
+        return ledger.set_verdicts(rows, label=label)
+    except TypeError:  # TEMPORARY: a ledger before the final-numbers migration reaches main
+        return ledger.set_verdicts([row[:5] for row in rows], label=label)
 
 
 def suggested_final_dict(
