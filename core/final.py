@@ -215,11 +215,15 @@ def eclipse_shape(time: Any, mag: Any, err: Any, period: float) -> EclipseShape:
     bright = int(idx[np.argmin(medians[idx])])
     width = 1.0 / n_bins
     centre = (faint + 0.5) * width
-    phase_min, phase_err = _parabola_minimum(phase, m, e, centre, 1.5 * width)
-    if phase_min is None:
+    vertex = _parabola_minimum(phase, m, e, centre, 1.5 * width)
+    if vertex is None:
         phase_min, phase_err = centre, width / math.sqrt(12.0)
-    depth1 = float(medians[faint] - medians[bright])
-    depth1_err = float(math.hypot(errors[faint], errors[bright]))
+        faintest, faintest_err = medians[faint], errors[faint]
+    else:
+        # a bin median dilutes a minimum narrower than the bin; the parabola does not
+        phase_min, phase_err, faintest, faintest_err = vertex
+    depth1 = float(faintest - medians[bright])
+    depth1_err = float(math.hypot(faintest_err, errors[bright]))
     distance = np.abs(((idx + 0.5) * width - phase_min + 0.5) % 1.0 - 0.5)
     far = idx[distance >= SECONDARY_MIN_SEPARATION]
     depth2 = depth2_err = None
@@ -241,33 +245,38 @@ def eclipse_shape(time: Any, mag: Any, err: Any, period: float) -> EclipseShape:
 
 
 def _parabola_minimum(phase, mag, err, centre: float, half_width: float):
-    """Phase of the faintest point of a parabola through the points near ``centre``."""
+    """The faintest point of a parabola through the points near ``centre``.
+
+    Returns ``(phase, phase_err, mag, mag_err)``, or None when the points do
+    not outline a minimum there (too few, no curvature, vertex outside).
+    """
     offset = (phase - centre + 0.5) % 1.0 - 0.5
     near = np.abs(offset) <= half_width
     if np.count_nonzero(near) < 5:
-        return None, None
+        return None
     x, y, w = offset[near], mag[near], 1.0 / err[near]
     design = np.column_stack([np.ones_like(x), x, x * x]) * w[:, None]
     try:
         coef, *_ = np.linalg.lstsq(design, y * w, rcond=None)
+        normal_inverse = np.linalg.inv(design.T @ design)
     except np.linalg.LinAlgError:
-        return None, None
+        return None
     c0, c1, c2 = coef
     if c2 >= 0:  # magnitudes: the minimum of light is a maximum of the parabola
-        return None, None
+        return None
     vertex = -c1 / (2 * c2)
     if abs(vertex) > half_width:
-        return None, None
+        return None
     resid = y - (c0 + c1 * x + c2 * x * x)
-    dof = max(x.size - 3, 1)
-    scale = float(np.sum((resid * w) ** 2) / dof)
-    try:
-        cov = np.linalg.inv(design.T @ design) * scale
-    except np.linalg.LinAlgError:
-        return None, None
-    grad = np.array([0.0, -1.0 / (2 * c2), c1 / (2 * c2 * c2)])
-    sigma = float(math.sqrt(max(grad @ cov @ grad, 0.0)))
-    return float((centre + vertex) % 1.0), sigma
+    scale = float(np.sum((resid * w) ** 2) / max(x.size - 3, 1))
+    cov = normal_inverse * scale
+    # first-order errors of the vertex position and height
+    grad_x = np.array([0.0, -1.0 / (2 * c2), c1 / (2 * c2 * c2)])
+    grad_y = np.array([1.0, -c1 / (2 * c2), c1 * c1 / (4 * c2 * c2)])
+    sigma_x = float(math.sqrt(max(grad_x @ cov @ grad_x, 0.0)))
+    sigma_y = float(math.sqrt(max(grad_y @ cov @ grad_y, 0.0)))
+    height = c0 - c1 * c1 / (4 * c2)
+    return float((centre + vertex) % 1.0), sigma_x, float(height), sigma_y
 
 
 # ------------------------------------------------------------------ helpers
@@ -279,19 +288,32 @@ def _settings(settings: AnalysisSettings | None) -> AnalysisSettings:
     return settings
 
 
-def _kept_points(lc: LightCurve, result: StarResult, settings: AnalysisSettings) -> LightCurve:
-    """The analysis's cleaned points without the set-aside ones (person's exclusions kept out)."""
+def _kept_points(
+    lc: LightCurve, result: StarResult, settings: AnalysisSettings, eclipsing: bool
+) -> tuple[LightCurve, tuple[str, ...]]:
+    """The analysis's cleaned points without the set-aside ones, and a flag why not.
+
+    The person's exclusions are always left out.  The points the analysis
+    set aside are left out too, except for an eclipsing class: they were set
+    aside by their residuals from a Fourier series, which cannot follow a
+    narrow eclipse, so they are mostly the eclipse itself.
+    """
     from .clean import clean
 
     cleaned, _ = clean(lc, settings.clean)
     if cleaned.n_points != lc.n_points:  # a cleaning rule that drops points: no index match
-        return cleaned
-    aside = result.set_aside_indices(lc.time)
+        return cleaned, ()
+    aside = [i for i in result.set_aside_indices(lc.time) if 0 <= i < lc.n_points]
     if not aside:
-        return cleaned
+        return cleaned, ()
+    if eclipsing:
+        return cleaned, (
+            f"{len(aside)} point(s) the analysis set aside kept: a Fourier residual rule "
+            "does not apply to eclipses",
+        )
     mask = cleaned.excluded.copy()
-    mask[[i for i in aside if 0 <= i < mask.size]] = True
-    return cleaned.with_excluded(mask)
+    mask[aside] = True
+    return cleaned.with_excluded(mask), ()
 
 
 def _aperiodic_bands(lc: LightCurve) -> dict[str, BandNumbers]:
@@ -385,7 +407,7 @@ def final_numbers(
         canonical_code(top.class_code) if top is not None and top.class_code else "UNKNOWN"
     )
     info = CLASSES[code]
-    kept = _kept_points(lc, result, settings)
+    kept, kept_flags = _kept_points(lc, result, settings, info.eclipsing)
     physics = settings.physics
     common = {
         "class_code": code,
@@ -400,7 +422,7 @@ def final_numbers(
         return _aperiodic(kept, common, asked=period)
 
     asked = number(period)
-    flags: list[str] = []
+    flags: list[str] = list(kept_flags)
     if asked is None:
         asked, source, why = _default_period(result, code)
         flags.extend(why)
