@@ -144,7 +144,7 @@ _TAIL = (
     _c(
         "period_ratio",
         None,
-        "arith.ratio",
+        "time.period;arith.ratio",
         "shorter over longer of period and period2 (period2/period or its inverse)",
     ),
     # [Fe/H] is a logarithmic ratio ("dex"), which neither FITS nor VOUnit knows
