@@ -75,7 +75,12 @@ def main() -> None:
     parser.add_argument("--stars", type=int, default=10_000)
     parser.add_argument("--points", type=int, default=700)
     parser.add_argument("--keep", type=Path, help="folder to keep the ledger in")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
+    if args.smoke:
+        args.stars, args.points = 20, 30
     folder = args.keep or Path(tempfile.mkdtemp(prefix="bench_ledger_"))
     path = folder / "bench.ledger.sqlite"
     for suffix in ("", "-wal", "-shm"):

@@ -19,9 +19,13 @@ One writer
 
 Damage
     On open the header is checked (magic, page size, stated length against
-    the file length) and then SQLite's ``quick_check`` runs on a read-only
-    connection.  A damaged file raises :class:`LedgerError` and is left
-    byte-for-byte as it was.
+    the file length, allowing for a live WAL); opening never reads the whole
+    file.  Every stored record (photometry, result, verdict, history entry,
+    setting) carries a seal, a checksum of its values, verified whenever it is
+    read: a damaged record is reported for its star and the rest of the
+    ledger stays usable.  :meth:`Ledger.check` (``phasewise ledger check``)
+    runs SQLite's ``integrity_check`` and verifies every seal.  A damaged file
+    raises :class:`LedgerError` and is left byte-for-byte as it was.
 
 Undo and redo
     Each user action is a row of ``actions`` (kind ``do``) with its changes in
@@ -45,10 +49,14 @@ import os
 import socket
 import sqlite3
 import struct
+import tempfile
 import threading
+import time
 import uuid
-from collections.abc import Callable, Iterable, Mapping
-from dataclasses import dataclass
+import zlib
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from contextlib import contextmanager
+from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
@@ -72,11 +80,13 @@ __all__ = [
     "Action",
     "Change",
     "LockHolder",
+    "Problem",
     "file_checksum",
+    "lock_holder_of",
 ]
 
 #: Version of the table layout written by this Phasewise.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 #: SQLite ``application_id`` of a Phasewise ledger ("PhWL").
 APPLICATION_ID = 0x5068574C
@@ -143,6 +153,7 @@ class StoredResult:
     stale: bool  # other settings than the ledger's current ones, or mask changed since
     failed: bool
     error: str | None
+    damaged: bool = False  # the stored record failed its checksum; analyse the star again
 
 
 @dataclass(frozen=True)
@@ -155,6 +166,7 @@ class Verdict:
     period: float | None = None
     note: str | None = None
     decided_at: str | None = None
+    final: dict[str, Any] | None = None  # the star's final numbers for this class and period
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -163,6 +175,7 @@ class Verdict:
             "period": self.period,
             "note": self.note,
             "decided_at": self.decided_at,
+            "final": self.final,
         }
 
 
@@ -183,6 +196,9 @@ class StarRow:
     analysed: bool
     failed: bool
     stale: bool
+    period_err: float | None = None  # of the analysis period
+    mean_mag: float | None = None  # in the primary band
+    primary_band: str | None = None
 
 
 @dataclass(frozen=True)
@@ -285,8 +301,178 @@ def _migrate_1_to_2(conn: sqlite3.Connection) -> None:
     conn.execute("CREATE INDEX IF NOT EXISTS actions_state ON actions(state)")
 
 
+# Version 3: a checksum ("seal") on every stored record, verified on read and
+# by ``ledger check``; the results table narrowed to the list's summary columns
+# (the full result, compressed, in ``result_data``); the verdict's final
+# numbers; an index of history rows by action (undo and redo cost the same at
+# any history length); and the content sum kept up to date with every write,
+# so the export's provenance checksum never reads the whole file.
+_SCHEMA_V3_TABLES = """
+CREATE TABLE results_v3 (
+    star INTEGER PRIMARY KEY REFERENCES stars(id),
+    settings_hash TEXT NOT NULL, computed_at TEXT NOT NULL,
+    failed INTEGER NOT NULL DEFAULT 0, outdated INTEGER NOT NULL DEFAULT 0,
+    status TEXT, suggested_class TEXT, suggested_score REAL, suggested_period REAL,
+    period REAL, period_err REAL, amplitude REAL, fap REAL, mean_mag REAL,
+    primary_band TEXT, flags TEXT, error TEXT, error_detail TEXT, seal BLOB
+);
+CREATE TABLE result_data (
+    star INTEGER PRIMARY KEY REFERENCES stars(id),
+    codec INTEGER, data BLOB NOT NULL
+);
+CREATE TABLE codecs (id INTEGER PRIMARY KEY, zdict BLOB NOT NULL);
+CREATE TABLE finals (
+    star INTEGER PRIMARY KEY REFERENCES stars(id),
+    codec INTEGER, data BLOB NOT NULL
+);
+"""
+
+#: Columns of ``results`` in the order they are sealed (after the star key).
+_RESULT_COLUMNS = (
+    "settings_hash, computed_at, failed, outdated, status, suggested_class, suggested_score, "
+    "suggested_period, period, period_err, amplitude, fap, mean_mag, primary_band, flags, "
+    "error, error_detail"
+)
+_PHOTOMETRY_SEALED = (
+    "s.id, s.star_id, s.ra, s.dec, s.source_file, s.source_checksum, s.time_scale, "
+    "s.has_errors, s.n_points, s.meta, p.time, p.mag, p.mag_err, p.bands, p.band_index, "
+    "p.excluded"
+)
+_CONTENT_TABLES = ("photometry", "results", "verdicts")
+
+
+def _migrate_2_to_3(conn: sqlite3.Connection) -> None:
+    # one statement at a time: executescript() would commit the migration's transaction
+    for statement in _SCHEMA_V3_TABLES.split(";"):
+        if statement.strip():
+            conn.execute(statement)
+    for table in ("photometry", "verdicts", "history", "actions", "meta"):
+        conn.execute(f"ALTER TABLE {table} ADD COLUMN seal BLOB")
+    codec = _Codec(conn)
+    rows = conn.execute(
+        "SELECT star, settings_hash, computed_at, failed, outdated, error, result FROM results"
+    ).fetchall()
+    for star, settings_hash, computed_at, failed, outdated, error, text in rows:
+        result = None if text is None else json.loads(text)
+        summary = _summary(result) if result is not None and not failed else _EMPTY_SUMMARY
+        values = (settings_hash, computed_at, failed, outdated, *summary, error, None)
+        conn.execute(
+            f"INSERT INTO results_v3(star, {_RESULT_COLUMNS}) VALUES ({', '.join('?' * 18)})",
+            (star, *values),
+        )
+        if result is not None and not failed:
+            text = _dumps(result)  # canonical form, as new results are written
+            conn.execute(
+                "INSERT INTO result_data(star, codec, data) VALUES (?, ?, ?)",
+                (star, *codec.pack(text)),
+            )
+        else:
+            text = None
+        conn.execute(
+            "UPDATE results_v3 SET seal = ? WHERE star = ?", (_seal(star, *values, text), star)
+        )
+    conn.execute("DROP TABLE results")
+    conn.execute("ALTER TABLE results_v3 RENAME TO results")
+    for key, *values in conn.execute(
+        f"SELECT {_PHOTOMETRY_SEALED} FROM stars s JOIN photometry p ON p.star = s.id"
+    ).fetchall():
+        conn.execute("UPDATE photometry SET seal = ? WHERE star = ?", (_seal(key, *values), key))
+    for row in conn.execute(
+        "SELECT star, status, class_code, period, note, decided_at FROM verdicts"
+    ).fetchall():
+        conn.execute("UPDATE verdicts SET seal = ? WHERE star = ?", (_seal(*row, None), row[0]))
+    for row in conn.execute(
+        "SELECT id, action, at, star_id, what, old, new FROM history"
+    ).fetchall():
+        conn.execute("UPDATE history SET seal = ? WHERE id = ?", (_seal(*row[1:]), row[0]))
+    for row in conn.execute("SELECT id, kind, label, at, target, state FROM actions").fetchall():
+        conn.execute("UPDATE actions SET seal = ? WHERE id = ?", (_seal(*row[1:]), row[0]))
+    conn.execute("CREATE INDEX history_action ON history(action)")
+    conn.execute("CREATE INDEX verdicts_status ON verdicts(status)")
+    total = 0
+    for table in _CONTENT_TABLES:
+        for star, seal in conn.execute(f"SELECT star, seal FROM {table}"):
+            total = (total + _share(table, star, seal)) % _SUM_MODULUS
+    conn.execute(
+        "INSERT OR REPLACE INTO meta(key, value) VALUES ('content_sum', ?)", (f"{total:064x}",)
+    )
+    for key, value in conn.execute("SELECT key, value FROM meta").fetchall():
+        conn.execute("UPDATE meta SET seal = ? WHERE key = ?", (_seal(key, value), key))
+
+
 #: Migration steps: ``MIGRATIONS[v]`` turns a version-``v`` file into ``v + 1``.
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _migrate_1_to_2}
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
+    1: _migrate_1_to_2,
+    2: _migrate_2_to_3,
+}
+
+_SUM_MODULUS = 1 << 256
+
+
+def _seal(*values: Any) -> bytes:
+    """A 16-byte checksum of one record's values, typed and length-prefixed.
+
+    Numbers are sealed as float64 whatever their Python type, and NaN as
+    NULL, because that is how SQLite gives them back.
+    """
+    digest = hashlib.blake2b(digest_size=16)
+    for value in values:
+        if value is None:
+            digest.update(b"N")
+        elif isinstance(value, (bytes, bytearray, memoryview)):
+            data = bytes(value)
+            digest.update(b"B" + len(data).to_bytes(8, "little") + data)
+        elif isinstance(value, str):
+            data = value.encode("utf-8", "surrogatepass")
+            digest.update(b"S" + len(data).to_bytes(8, "little") + data)
+        else:
+            number = float(value)
+            digest.update(b"N" if math.isnan(number) else b"F" + struct.pack("<d", number))
+    return digest.digest()
+
+
+def _share(table: str, star: int, seal: bytes | None) -> int:
+    """One record's share of the content sum."""
+    if seal is None:
+        return 0
+    data = table.encode() + int(star).to_bytes(8, "little", signed=True) + bytes(seal)
+    return int.from_bytes(hashlib.blake2b(data, digest_size=32).digest(), "little")
+
+
+class _Codec:
+    """zlib with a preset dictionary stored in the file (data only, no pickle).
+
+    The dictionary is the first result the ledger stores: every later result
+    repeats its keys, class names and reason sentences, which then cost a
+    few bytes each instead of their full text.
+    """
+
+    def __init__(self, conn: sqlite3.Connection) -> None:
+        self.conn = conn
+        self.zdicts: dict[int, bytes] = dict(conn.execute("SELECT id, zdict FROM codecs"))
+
+    def pack(self, text: str) -> tuple[int | None, bytes]:
+        data = text.encode("utf-8")
+        if not self.zdicts:
+            zdict = data[-32768:]
+            self.conn.execute("INSERT INTO codecs(id, zdict) VALUES (1, ?)", (zdict,))
+            self.zdicts[1] = zdict
+        codec = max(self.zdicts)
+        packer = zlib.compressobj(6, zdict=self.zdicts[codec])
+        return codec, packer.compress(data) + packer.flush()
+
+    def unpack(self, codec: int | None, data: bytes) -> str:
+        """The stored text; raises ``ValueError`` if the bytes are damaged."""
+        try:
+            if codec is None:
+                return zlib.decompress(data).decode("utf-8")
+            unpacker = zlib.decompressobj(zdict=self.zdicts[codec])
+            text = unpacker.decompress(data) + unpacker.flush()
+            if not unpacker.eof:
+                raise ValueError("truncated")
+            return text.decode("utf-8")
+        except (zlib.error, KeyError, UnicodeDecodeError) as exc:
+            raise ValueError(str(exc)) from exc
 
 
 def _header_problem(path: Path) -> str | None:
@@ -306,7 +492,11 @@ def _header_problem(path: Path) -> str | None:
     valid_for = struct.unpack(">I", header[92:96])[0]
     if size % page_size:
         return f"damaged: length {size} bytes is not a whole number of {page_size}-byte pages"
-    if n_pages and valid_for == change_counter and size < n_pages * page_size:
+    wal = Path(f"{path}-wal")
+    live_wal = wal.exists() and wal.stat().st_size > 0
+    # with a live WAL the pages beyond the file's end may still sit in the WAL
+    # (a checkpoint stopped by a full disk): SQLite reads them from there
+    if n_pages and valid_for == change_counter and size < n_pages * page_size and not live_wal:
         return f"damaged: truncated to {size} bytes; the header says {n_pages * page_size} bytes"
     return None
 
@@ -328,47 +518,144 @@ class Ledger:
         self._ids: dict[str, int] = {}
         self._order: list[str] = []
         self._listeners: list[Callable[[Change], None]] = []
-        self._load_ids()
+        self._sum_delta = 0  # change of the content sum in the open transaction
+        try:
+            self._codec = _Codec(conn)
+            self._load_ids()
+        except (sqlite3.DatabaseError, LedgerError, UnicodeDecodeError) as exc:
+            conn.close()
+            self._conn = None
+            if isinstance(exc, LedgerError):
+                raise
+            raise _damaged_file(exc, path) from None
 
     # ------------------------------------------------------------- opening
     @classmethod
     def create(cls, path: str | os.PathLike, *, overwrite: bool = False) -> Ledger:
-        """Make a new, empty ledger file and open it for writing."""
+        """Make a new, empty ledger file and open it for writing.
+
+        With ``overwrite``, an existing ledger (not held by another process)
+        is replaced by the new one only once the new one is complete.  To
+        import into a replacement before it takes the old one's place, use
+        :meth:`building`.
+        """
         path = Path(path)
-        if path.exists():
-            if not overwrite:
-                raise LedgerError("a file of that name exists; choose another name", file=path)
-            Ledger.open(path).close()  # refuses if another process holds it or it is damaged
-        # WAL/SHM files left beside a deleted ledger would be replayed into the new one
-        for suffix in ("", "-wal", "-shm"):
-            Path(f"{path}{suffix}").unlink(missing_ok=True)
-        # built under a temporary name and renamed, so a crash never leaves half a ledger
-        temp = path.with_name(f".{path.name}.{uuid.uuid4().hex[:8]}.tmp")
+        cls._check_target(path, overwrite)
+        temp = cls._new_file(path)
         try:
-            conn = sqlite3.connect(temp, isolation_level=None)
-            conn.execute(f"PRAGMA application_id={APPLICATION_ID}")
-            conn.executescript("BEGIN;" + _SCHEMA_V1 + "COMMIT;")
-            conn.execute("BEGIN IMMEDIATE")
-            for version in range(1, SCHEMA_VERSION):
-                MIGRATIONS[version](conn)
-            conn.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
-            conn.executemany(
-                "INSERT INTO meta(key, value) VALUES (?, ?)",
-                [("created_at", _now()), ("created_by", f"phasewise {__version__}")],
-            )
-            conn.execute("COMMIT")
-            conn.execute("PRAGMA journal_mode=WAL")
-            conn.close()
-            os.replace(temp, path)
-        except (sqlite3.Error, OSError) as exc:
-            for suffix in ("", "-wal", "-shm", "-journal"):
-                Path(f"{temp}{suffix}").unlink(missing_ok=True)
-            raise LedgerError(f"cannot create the ledger: {exc}", file=path) from exc
+            cls._swap_in(temp, path)
+        except BaseException:
+            _unlink_ledger_files(temp)
+            raise
         return cls.open(path)
 
     @classmethod
+    @contextmanager
+    def building(cls, path: str | os.PathLike, *, overwrite: bool = False) -> Iterator[Ledger]:
+        """A new ledger built beside ``path``, moved into place only if the block succeeds.
+
+        The block fills the ledger (an import, say).  If it raises, is
+        interrupted, or the disk fills, the new file is removed and an
+        existing ledger at ``path`` is left as it was, verdicts and all.  A
+        process killed during the block leaves a hidden ``.NAME.*.building``
+        file, which the next build of the same ledger removes.
+        """
+        path = Path(path)
+        cls._check_target(path, overwrite)
+        _remove_abandoned_builds(path)
+        temp = cls._new_file(path)
+        try:
+            ledger = cls.open(temp)
+        except BaseException:
+            _unlink_ledger_files(temp)
+            raise
+        try:
+            yield ledger
+            ledger.close()
+            if path.exists():
+                cls._check_target(path, overwrite)  # nobody took it meanwhile
+            cls._swap_in(temp, path)
+        except BaseException:
+            ledger.close()
+            _unlink_ledger_files(temp)
+            raise
+
+    @classmethod
+    def _check_target(cls, path: Path, overwrite: bool) -> None:
+        if not path.exists():
+            if not os.access(path.parent if str(path.parent) else ".", os.W_OK):
+                raise LedgerError("cannot create it: the folder is not writable", file=path)
+            return
+        if not overwrite:
+            raise LedgerError("a file of that name exists; choose another name", file=path)
+        # refuses if another process holds it, it is damaged or read-only;
+        # closing the last connection also folds its WAL into the file
+        cls.open(path).close()
+
+    @staticmethod
+    def _new_file(path: Path) -> Path:
+        """An empty ledger of the current schema under a hidden name beside ``path``."""
+        try:
+            handle, name = tempfile.mkstemp(
+                prefix=f".{path.name}.", suffix=".building", dir=path.parent
+            )
+            os.close(handle)
+            # mkstemp makes the file private; a ledger gets the usual mode
+            mask = os.umask(0)
+            os.umask(mask)
+            os.chmod(name, 0o666 & ~mask)
+        except OSError as exc:
+            raise LedgerError(
+                f"cannot create a file in its folder ({exc.strerror})", file=path
+            ) from None
+        temp = Path(name)
+        try:
+            conn = sqlite3.connect(temp, isolation_level=None)
+            try:
+                conn.execute(f"PRAGMA application_id={APPLICATION_ID}")
+                conn.executescript("BEGIN;" + _SCHEMA_V1 + "COMMIT;")
+                conn.execute("BEGIN IMMEDIATE")
+                for version in range(1, SCHEMA_VERSION):
+                    MIGRATIONS[version](conn)
+                conn.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
+                facts = [("created_at", _now()), ("created_by", f"phasewise {__version__}")]
+                conn.executemany(
+                    "INSERT INTO meta(key, value, seal) VALUES (?, ?, ?)",
+                    [(key, value, _seal(key, value)) for key, value in facts],
+                )
+                conn.execute("COMMIT")
+                conn.execute("PRAGMA journal_mode=WAL")
+            finally:
+                conn.close()
+        except (sqlite3.Error, OSError) as exc:
+            _unlink_ledger_files(temp)
+            raise LedgerError(
+                "cannot create the ledger: " + _write_error(exc, path).reason, file=path
+            ) from None
+        return temp
+
+    @staticmethod
+    def _swap_in(temp: Path, path: Path) -> None:
+        # side files of the old ledger must never meet the new one: a WAL
+        # left beside it would be replayed into it
+        try:
+            for suffix in ("-wal", "-shm"):
+                Path(f"{path}{suffix}").unlink(missing_ok=True)
+            os.replace(temp, path)
+        except OSError as exc:
+            raise LedgerError(
+                f"cannot put the new ledger in place ({exc.strerror})", file=path
+            ) from None
+        Path(f"{temp}-shm").unlink(missing_ok=True)
+
+    @classmethod
     def open(
-        cls, path: str | os.PathLike, readonly: bool = False, *, check: str = "quick"
+        cls,
+        path: str | os.PathLike,
+        readonly: bool = False,
+        *,
+        check: str = "none",
+        take_over: LockHolder | None = None,
     ) -> Ledger:
         """Open a ledger.
 
@@ -377,9 +664,16 @@ class Ledger:
         path : path
         readonly : bool
             Read-only opens are allowed while another process writes.
-        check : {"quick", "full", "none"}
-            SQLite ``quick_check`` (default), ``integrity_check``, or only the
-            header check.
+        check : {"none", "quick", "full"}
+            Only the header check (default: opening never reads the whole
+            file; :meth:`check` and ``phasewise ledger check`` do), or also
+            SQLite's ``quick_check`` or ``integrity_check``.
+        take_over : LockHolder, optional
+            Take the write lock from exactly this holder (as given by
+            :func:`lock_holder_of`), which the person has confirmed is gone:
+            a process on another machine (a crashed container, a copied
+            file) cannot be checked from here.  The take-over is written to
+            the history.  A live process on this machine is never overruled.
 
         Raises
         ------
@@ -410,16 +704,27 @@ class Ledger:
                     "for writing once to upgrade it",
                     file=path,
                 )
-            conn = sqlite3.connect(
-                f"{path.resolve().as_uri()}?mode=ro", uri=True, check_same_thread=False
-            )
+            try:
+                conn = _connect(_reader_uri(path), uri=True, check_same_thread=False)
+            except sqlite3.Error as exc:
+                raise LedgerError(f"cannot open it read-only: {exc}", file=path) from None
             conn.isolation_level = None
             return cls(path, conn, readonly=True)
-        conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False, timeout=10)
-        conn.execute("PRAGMA journal_mode=WAL")
-        conn.execute("PRAGMA synchronous=FULL")
-        conn.execute("PRAGMA foreign_keys=ON")
-        token = cls._take_lock(conn, path)
+        if not _writable(path):
+            raise LedgerError(
+                "the ledger is read-only here (the file or its folder is not writable): "
+                "it can be read (info, history, export) but not changed; copy it to a "
+                "writable folder to change it",
+                file=path,
+            )
+        try:
+            conn = _connect(path, isolation_level=None, check_same_thread=False, timeout=10)
+            conn.execute("PRAGMA journal_mode=WAL")
+            conn.execute("PRAGMA synchronous=FULL")
+            conn.execute("PRAGMA foreign_keys=ON")
+            token = cls._take_lock(conn, path, take_over)
+        except sqlite3.Error as exc:
+            raise _write_error(exc, path) from None
         try:
             if version < SCHEMA_VERSION:
                 cls._migrate(conn, path, version)
@@ -440,7 +745,7 @@ class Ledger:
         side_files = [Path(f"{path}{s}") for s in ("-wal", "-shm")]
         existed = [p.exists() for p in side_files]
         try:
-            conn = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+            conn = _connect(_reader_uri(path), uri=True)
         except sqlite3.Error as exc:
             raise LedgerError(f"cannot open: {exc}", file=path) from exc
         try:
@@ -453,10 +758,10 @@ class Ledger:
                     raise LedgerError(f"damaged: SQLite check failed: {detail}", file=path)
             if app_id != APPLICATION_ID:
                 raise LedgerError("an SQLite file, but not a Phasewise ledger", file=path)
-        except sqlite3.DatabaseError as exc:
+        except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
             conn.close()
             _remove_new_side_files(side_files, existed)
-            raise LedgerError(f"damaged or not a ledger: {exc}", file=path) from exc
+            raise _damaged_file(exc, path) from None
         except LedgerError:
             conn.close()
             _remove_new_side_files(side_files, existed)
@@ -465,21 +770,33 @@ class Ledger:
         return int(version)
 
     @staticmethod
-    def _live_holder(conn: sqlite3.Connection, path: Path) -> None:
-        """Raise :class:`LedgerLockedError` naming the holder if a live process holds the lock."""
+    def _live_holder(
+        conn: sqlite3.Connection, path: Path, take_over: LockHolder | None = None
+    ) -> LockHolder | None:
+        """Raise :class:`LedgerLockedError` naming the holder if a live process holds the lock.
+
+        Returns the holder whose lock is taken over (None if there was none
+        or it was a dead process of this host).
+        """
         row = conn.execute(
             "SELECT pid, host, since, program, token FROM lock WHERE id = 1"
         ).fetchone()
         if row is None:
-            return
+            return None
         holder = LockHolder(int(row[0]), row[1], row[2], row[3])
         started = row[4].partition("/")[2]
-        if holder.host != socket.gethostname() or _holder_alive(holder.pid, started):
+        here = holder.host == socket.gethostname()
+        if take_over is not None and holder == take_over and not here:
+            return holder
+        if not here or _holder_alive(holder.pid, started):
             if conn.in_transaction:
                 conn.execute("ROLLBACK")
             conn.close()
             where = (
-                "" if holder.host == socket.gethostname() else " (another machine: cannot check it)"
+                ""
+                if here
+                else " (another machine: cannot check it; if that process is gone, "
+                "take the lock over with 'phasewise ledger unlock')"
             )
             raise LedgerLockedError(
                 f"held for writing by {holder.describe()}{where}; "
@@ -487,15 +804,18 @@ class Ledger:
                 file=path,
             )
         # the holder died without closing: its lock is stale, to be taken over
+        return holder
 
     @staticmethod
-    def _take_lock(conn: sqlite3.Connection, path: Path) -> str:
+    def _take_lock(
+        conn: sqlite3.Connection, path: Path, take_over: LockHolder | None = None
+    ) -> str:
         # the token carries the process start time, so a reused pid is not mistaken
         # for the holder
         token = f"{uuid.uuid4().hex}/{_process_start(os.getpid()) or ''}"
         # a read first (in WAL mode it never waits for a writer): a live holder is
         # named at once, not after waiting for a write lock it keeps taking
-        Ledger._live_holder(conn, path)
+        Ledger._live_holder(conn, path, take_over)
         try:
             conn.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as exc:
@@ -504,13 +824,22 @@ class Ledger:
                 f"another process is writing to it and did not finish within 10 s ({exc})",
                 file=path,
             ) from exc
-        Ledger._live_holder(conn, path)  # again, inside the transaction: it may have changed
-        conn.execute(
-            "INSERT OR REPLACE INTO lock(id, token, pid, host, since, program) "
-            "VALUES (1, ?, ?, ?, ?, ?)",
-            (token, os.getpid(), socket.gethostname(), _now(), f"phasewise {__version__}"),
-        )
-        conn.execute("COMMIT")
+        try:
+            # again, inside the transaction: it may have changed
+            previous = Ledger._live_holder(conn, path, take_over)
+            mine = LockHolder(os.getpid(), socket.gethostname(), _now(), f"phasewise {__version__}")
+            conn.execute(
+                "INSERT OR REPLACE INTO lock(id, token, pid, host, since, program) "
+                "VALUES (1, ?, ?, ?, ?, ?)",
+                (token, mine.pid, mine.host, mine.since, mine.program),
+            )
+            if take_over is not None and previous == take_over:
+                _record_take_over(conn, previous, mine)
+            conn.execute("COMMIT")
+        except BaseException:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            raise
         return token
 
     @staticmethod
@@ -566,8 +895,13 @@ class Ledger:
         with self._mutex:
             if self._conn is None:
                 raise LedgerError("the ledger is closed", file=self.path)
-            cursor = self._conn.execute(sql, tuple(params))
-            return _Rows(cursor.fetchall(), cursor.lastrowid)
+            try:
+                cursor = self._conn.execute(sql, tuple(params))
+                return _Rows(cursor.fetchall(), cursor.lastrowid)
+            except sqlite3.OperationalError as exc:
+                raise _write_error(exc, self.path) from None
+            except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
+                raise _damaged_file(exc, self.path) from None
 
     def _stream(self, sql: str) -> Iterable[tuple[Any, ...]]:
         if self._conn is None:
@@ -584,6 +918,7 @@ class Ledger:
     def _load_ids(self) -> None:
         rows = self._query("SELECT id, star_id FROM stars ORDER BY id").fetchall()
         self._ids = {star_id: key for key, star_id in rows}
+        self._names = {key: star_id for key, star_id in rows}
         self._order = [star_id for _, star_id in rows]
 
     def _key(self, star_id: str) -> int:
@@ -596,17 +931,64 @@ class Ledger:
         state = "done" if kind == "do" else None
         if kind == "do":
             # a new action makes every undone action unreachable for redo
-            self._query("UPDATE actions SET state = 'dropped' WHERE state = 'undone'")
+            for (action_id,) in self._query("SELECT id FROM actions WHERE state = 'undone'"):
+                self._set_action_state(action_id, "dropped")
+        values = (kind, label, _now(), target, state)
         cursor = self._query(
-            "INSERT INTO actions(kind, label, at, target, state) VALUES (?, ?, ?, ?, ?)",
-            (kind, label, _now(), target, state),
+            "INSERT INTO actions(kind, label, at, target, state, seal) VALUES (?, ?, ?, ?, ?, ?)",
+            (*values, _seal(*values)),
         )
         return int(cursor.lastrowid)
 
-    def _log(self, action: int, star_id: str | None, what: str, old: Any, new: Any) -> None:
+    def _set_action_state(self, action_id: int, state: str) -> None:
+        kind, label, at, target = self._query(
+            "SELECT kind, label, at, target FROM actions WHERE id = ?", (action_id,)
+        ).fetchone()
         self._query(
-            "INSERT INTO history(action, at, star_id, what, old, new) VALUES (?, ?, ?, ?, ?, ?)",
-            (action, _now(), star_id, what, _dumps(old), _dumps(new)),
+            "UPDATE actions SET state = ?, seal = ? WHERE id = ?",
+            (state, _seal(kind, label, at, target, state), action_id),
+        )
+
+    def _log(self, action: int, star_id: str | None, what: str, old: Any, new: Any) -> None:
+        values = (action, _now(), star_id, what, _dumps(old), _dumps(new))
+        self._query(
+            "INSERT INTO history(action, at, star_id, what, old, new, seal) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?)",
+            (*values, _seal(*values)),
+        )
+
+    def _account(self, table: str, key: int, old: bytes | None, new: bytes | None) -> None:
+        """Keep the content sum up to date when a record's seal changes."""
+        self._sum_delta += _share(table, key, new) - _share(table, key, old)
+
+    def _flush_sum(self) -> None:
+        """Write the content sum changed by this transaction (called before COMMIT)."""
+        if not self._sum_delta:
+            return
+        total = (self._content_sum() + self._sum_delta) % _SUM_MODULUS
+        self._sum_delta = 0
+        self._put_meta("content_sum", f"{total:064x}")
+
+    def _content_sum(self) -> int:
+        row = self._query("SELECT value, seal FROM meta WHERE key = 'content_sum'").fetchone()
+        if row is None:
+            return 0
+        if _seal("content_sum", row[0]) != row[1]:
+            raise self._damaged(None, "content checksum")
+        return int(row[0], 16)
+
+    def _put_meta(self, key: str, value: str) -> None:
+        self._query(
+            "INSERT OR REPLACE INTO meta(key, value, seal) VALUES (?, ?, ?)",
+            (key, value, _seal(key, value)),
+        )
+
+    def _damaged(self, star_id: str | None, what: str) -> LedgerError:
+        where = f"star {star_id!r}: " if star_id is not None else ""
+        return LedgerError(
+            f"{where}the stored {what} is damaged (its checksum does not match); "
+            "run 'phasewise ledger check' on this ledger and restore it from a copy",
+            file=self.path,
         )
 
     # --------------------------------------------------------------- stars
@@ -703,34 +1085,39 @@ class Ledger:
             dtype = np.uint8 if names.size < 256 else np.uint32
             band_index = index.astype(dtype).tobytes()
         excluded = lc.excluded.astype(np.uint8).tobytes() if lc.excluded.any() else None
-        self._query(
-            "INSERT INTO photometry(star, time, mag, mag_err, bands, band_index, excluded) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?)",
-            (
-                key,
-                np.ascontiguousarray(lc.time, dtype="<f8").tobytes(),
-                np.ascontiguousarray(lc.mag, dtype="<f8").tobytes(),
-                np.ascontiguousarray(lc.mag_err, dtype="<f8").tobytes(),
-                json.dumps([str(n) for n in names]),
-                band_index,
-                excluded,
-            ),
+        arrays = (
+            np.ascontiguousarray(lc.time, dtype="<f8").tobytes(),
+            np.ascontiguousarray(lc.mag, dtype="<f8").tobytes(),
+            np.ascontiguousarray(lc.mag_err, dtype="<f8").tobytes(),
+            json.dumps([str(n) for n in names]),
+            band_index,
+            excluded,
+        )
+        seal = _seal(
+            key,
+            lc.star_id,
+            lc.meta.ra,
+            lc.meta.dec,
+            source or lc.meta.source_file,
+            checksum,
+            lc.time_scale,
+            int(lc.has_errors),
+            lc.n_points,
+            _dumps(meta),
+            *arrays,
         )
         self._query(
-            "INSERT INTO verdicts(star, status) VALUES (?, 'unreviewed')",
-            (key,),
+            "INSERT INTO photometry(star, time, mag, mag_err, bands, band_index, excluded, seal) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+            (key, *arrays, seal),
         )
+        self._account("photometry", key, None, seal)
+        self._apply_verdict(Verdict(lc.star_id, "unreviewed"), key=key, new=True)
 
     def lightcurve(self, star_id: str) -> LightCurve:
         """The star's photometry with its stored exclusion mask."""
-        key = self._key(star_id)
-        row = self._query(
-            "SELECT s.time_scale, s.has_errors, s.n_points, s.meta, p.time, p.mag, p.mag_err, "
-            "p.bands, p.band_index FROM stars s JOIN photometry p ON p.star = s.id "
-            "WHERE s.id = ?",
-            (key,),
-        ).fetchone()
-        time_scale, has_errors, n, meta, time, mag, err, bands, band_index = row
+        row = self._photometry_row(star_id)
+        time_scale, has_errors, n, meta, time, mag, err, bands, band_index, excluded = row[5:]
         names = json.loads(bands)
         if band_index is None:
             band: Any = names[0] if names else "V"
@@ -746,7 +1133,7 @@ class Ledger:
             mag_err=np.frombuffer(err, dtype="<f8", count=n) if has_errors else None,
             band=band,
             time_scale=time_scale,
-            excluded=self.excluded(star_id),
+            excluded=_mask(excluded, n),
             meta=StarMeta(
                 ra=meta.get("ra"),
                 dec=meta.get("dec"),
@@ -756,6 +1143,28 @@ class Ledger:
             ),
             has_errors=bool(has_errors),
         )
+
+    def _photometry_row(self, star_id: str) -> tuple[Any, ...]:
+        """The star's sealed photometry values (after the key), checked against the seal."""
+        key = self._key(star_id)
+        row = self._query(
+            f"SELECT {_PHOTOMETRY_SEALED}, p.seal FROM stars s JOIN photometry p "
+            "ON p.star = s.id WHERE s.id = ?",
+            (key,),
+        ).fetchone()
+        if row is None or _seal(*row[:-1]) != row[-1]:
+            raise self._damaged(star_id, "photometry")
+        return row[1:-1]
+
+    def _reseal_photometry(self, key: int) -> None:
+        row = self._query(
+            f"SELECT {_PHOTOMETRY_SEALED}, p.seal FROM stars s JOIN photometry p "
+            "ON p.star = s.id WHERE s.id = ?",
+            (key,),
+        ).fetchone()
+        seal = _seal(*row[:-1])
+        self._query("UPDATE photometry SET seal = ? WHERE star = ?", (seal, key))
+        self._account("photometry", key, row[-1], seal)
 
     def lightcurves(self, star_ids: Iterable[str] | None = None) -> Iterable[LightCurve]:
         """Light curves of the given stars (all, in import order, by default), one at a time."""
@@ -774,15 +1183,8 @@ class Ledger:
 
     def excluded(self, star_id: str) -> np.ndarray:
         """The stored exclusion mask (True = excluded)."""
-        key = self._key(star_id)
-        n, blob = self._query(
-            "SELECT s.n_points, p.excluded FROM stars s JOIN photometry p ON p.star = s.id "
-            "WHERE s.id = ?",
-            (key,),
-        ).fetchone()
-        if blob is None:
-            return np.zeros(n, dtype=bool)
-        return np.frombuffer(blob, dtype=np.uint8, count=n).astype(bool)
+        row = self._photometry_row(star_id)
+        return _mask(row[-1], row[7])
 
     def set_excluded(self, star_id: str, mask: Any, *, reason: str = "") -> None:
         """Store a new exclusion mask (one undoable action; results go stale)."""
@@ -813,7 +1215,11 @@ class Ledger:
     def _apply_excluded(self, key: int, mask: np.ndarray) -> None:
         blob = mask.astype(np.uint8).tobytes() if mask.any() else None
         self._query("UPDATE photometry SET excluded = ? WHERE star = ?", (blob, key))
-        self._query("UPDATE results SET outdated = 1 WHERE star = ?", (key,))
+        self._reseal_photometry(key)
+        if self._query("SELECT outdated FROM results WHERE star = ?", (key,)).fetchone() == (0,):
+            self._check_result(key)  # never seal over a damaged result
+            self._query("UPDATE results SET outdated = 1 WHERE star = ?", (key,))
+            self._reseal_result(key)
 
     # ------------------------------------------------------------ analysis
     def set_analysis_settings(self, settings: Mapping[str, Any], settings_hash: str) -> None:
@@ -823,10 +1229,7 @@ class Ledger:
         if old is not None and old[1] == str(settings_hash):
             return
         with self._mutex, self._write("settings"):
-            self._query(
-                "INSERT OR REPLACE INTO meta(key, value) VALUES ('analysis_settings', ?)",
-                (_dumps(new_value),),
-            )
+            self._put_meta("analysis_settings", _dumps(new_value))
             action = self._new_action("settings", "analysis settings")
             self._log(
                 action,
@@ -838,9 +1241,11 @@ class Ledger:
 
     def analysis_settings(self) -> tuple[dict[str, Any], str] | None:
         """``(settings_dict, settings_hash)`` last set, or None."""
-        row = self._query("SELECT value FROM meta WHERE key = 'analysis_settings'").fetchone()
+        row = self._query("SELECT value, seal FROM meta WHERE key = 'analysis_settings'").fetchone()
         if row is None:
             return None
+        if _seal("analysis_settings", row[0]) != row[1]:
+            raise self._damaged(None, "analysis settings")
         value = json.loads(row[0])
         return value["settings"], value["settings_hash"]
 
@@ -856,56 +1261,117 @@ class Ledger:
         ``items`` are ``(star_id, settings_hash, AnalysisResult.to_dict())``.
         A star's earlier result (any settings) is replaced.
         """
-        rows = []
         now = _now()
         items = list(items)
-        for star_id, settings_hash, result in items:
-            summary = _summary(result)
-            rows.append((self._key(star_id), str(settings_hash), now, _dumps(result), *summary))
         with self._mutex, self._write("results") as tx:
             tx.star_ids = [str(item[0]) for item in items]
-            self._conn.executemany(
-                "INSERT OR REPLACE INTO results(star, settings_hash, computed_at, failed, error, "
-                "result, status, suggested_class, suggested_score, suggested_period, period, "
-                "amplitude, fap, flags, outdated) "
-                "VALUES (?, ?, ?, 0, NULL, ?, ?, ?, ?, ?, ?, ?, ?, ?, 0)",
-                rows,
-            )
-        return len(rows)
+            for star_id, settings_hash, result in items:
+                values = (str(settings_hash), now, 0, 0, *_summary(result), None, None)
+                self._put_result(self._key(star_id), values, _dumps(result))
+        return len(items)
 
-    def store_failures(self, items: Iterable[tuple[str, str, str]]) -> int:
-        """Record failed analyses ``(star_id, settings_hash, message)`` in one transaction."""
+    def store_failures(self, items: Iterable[tuple[str, ...]]) -> int:
+        """Record failed analyses in one transaction; returns how many.
+
+        ``items`` are ``(star_id, settings_hash, message)`` or
+        ``(star_id, settings_hash, message, detail)``: the message is a
+        sentence for the person, the detail (raw error text) is kept for
+        debugging only.
+        """
         now = _now()
         items = list(items)
-        rows = [(self._key(s), str(h), now, str(m)) for s, h, m in items]
         with self._mutex, self._write("results") as tx:
             tx.star_ids = [str(item[0]) for item in items]
-            self._conn.executemany(
-                "INSERT OR REPLACE INTO results(star, settings_hash, computed_at, failed, error, "
-                "flags, outdated) VALUES (?, ?, ?, 1, ?, '[]', 0)",
-                rows,
-            )
-        return len(rows)
+            for star_id, settings_hash, message, *detail in items:
+                extra = str(detail[0]) if detail and detail[0] is not None else None
+                values = (str(settings_hash), now, 1, 0, *_EMPTY_SUMMARY, str(message), extra)
+                self._put_result(self._key(star_id), values, None)
+        return len(items)
 
-    def store_failure(self, star_id: str, settings_hash: str, message: str) -> None:
+    def store_failure(
+        self, star_id: str, settings_hash: str, message: str, detail: str | None = None
+    ) -> None:
         """Record that the analysis of a star failed, with its message."""
-        self.store_failures([(star_id, settings_hash, message)])
+        self.store_failures([(star_id, settings_hash, message, detail)])
 
-    def result(self, star_id: str) -> StoredResult | None:
-        """The stored result of a star (None if never analysed)."""
+    def _put_result(self, key: int, values: tuple[Any, ...], text: str | None) -> None:
+        old = self._query("SELECT seal FROM results WHERE star = ?", (key,)).fetchone()
+        seal = _seal(key, *values, text)
+        self._query(
+            f"INSERT OR REPLACE INTO results(star, {_RESULT_COLUMNS}, seal) "
+            f"VALUES ({', '.join('?' * 19)})",
+            (key, *values, seal),
+        )
+        if text is None:
+            self._query("DELETE FROM result_data WHERE star = ?", (key,))
+        else:
+            self._query(
+                "INSERT OR REPLACE INTO result_data(star, codec, data) VALUES (?, ?, ?)",
+                (key, *self._codec.pack(text)),
+            )
+        self._account("results", key, None if old is None else old[0], seal)
+
+    def _result_record(self, key: int) -> tuple[tuple[Any, ...], str | None, bool] | None:
+        """``(values, result_text, intact)`` of a stored result, or None."""
         row = self._query(
-            "SELECT settings_hash, computed_at, failed, error, result, outdated FROM results "
-            "WHERE star = ?",
-            (self._key(star_id),),
+            f"SELECT {_RESULT_COLUMNS}, r.seal, d.codec, d.data FROM results r "
+            "LEFT JOIN result_data d ON d.star = r.star WHERE r.star = ?",
+            (key,),
         ).fetchone()
         if row is None:
             return None
-        settings_hash, computed_at, failed, error, result, outdated = row
+        values, seal, codec, data = row[:17], row[17], row[18], row[19]
+        text = None
+        intact = True
+        if data is not None:
+            try:
+                text = self._codec.unpack(codec, data)
+            except ValueError:
+                intact = False
+        return values, text, intact and _seal(key, *values, text) == seal
+
+    def _check_result(self, key: int) -> None:
+        record = self._result_record(key)
+        if record is not None and not record[2]:
+            raise self._damaged(self._names.get(key), "result")
+
+    def _reseal_result(self, key: int) -> None:
+        record = self._result_record(key)
+        old = self._query("SELECT seal FROM results WHERE star = ?", (key,)).fetchone()[0]
+        seal = _seal(key, *record[0], record[1])
+        self._query("UPDATE results SET seal = ? WHERE star = ?", (seal, key))
+        self._account("results", key, old, seal)
+
+    def result(self, star_id: str) -> StoredResult | None:
+        """The stored result of a star (None if never analysed).
+
+        A record that fails its checksum comes back as a failed, damaged
+        result (``damaged=True``, no numbers): that star needs analysing
+        again, and the rest of the ledger is unaffected.
+        """
+        record = self._result_record(self._key(star_id))
+        if record is None:
+            return None
+        values, text, intact = record
+        settings_hash, computed_at, failed, outdated = values[:4]
+        error = values[15]
         current = self.settings_hash
         stale = bool(outdated) or (current is not None and settings_hash != current)
+        if not intact:
+            return StoredResult(
+                star_id=str(star_id),
+                result=None,
+                settings_hash=str(settings_hash),
+                computed_at=str(computed_at),
+                stale=True,
+                failed=True,
+                error="the stored result is damaged (its checksum does not match); "
+                "analyse this star again",
+                damaged=True,
+            )
         return StoredResult(
             star_id=str(star_id),
-            result=_loads(result),
+            result=_loads(text),
             settings_hash=settings_hash,
             computed_at=computed_at,
             stale=stale,
@@ -937,20 +1403,35 @@ class Ledger:
 
     # ------------------------------------------------------------ verdicts
     def verdict(self, star_id: str) -> Verdict:
-        """The star's current verdict."""
-        row = self._query(
-            "SELECT status, class_code, period, note, decided_at FROM verdicts WHERE star = ?",
-            (self._key(star_id),),
-        ).fetchone()
-        return Verdict(str(star_id), *row)
+        """The star's current verdict (checked against its seal)."""
+        return self._verdicts("WHERE v.star = ?", (self._key(star_id),))[0]
 
     def verdicts(self) -> list[Verdict]:
-        """Every star's verdict, in import order."""
+        """Every star's verdict, in import order.
+
+        Raises :class:`LedgerError` naming the star if a verdict record is
+        damaged: a decision is never guessed.
+        """
+        return self._verdicts("", ())
+
+    def _verdicts(self, where: str, params: tuple[Any, ...]) -> list[Verdict]:
         rows = self._query(
-            "SELECT s.star_id, v.status, v.class_code, v.period, v.note, v.decided_at "
-            "FROM stars s JOIN verdicts v ON v.star = s.id ORDER BY s.id"
+            "SELECT v.star, s.star_id, v.status, v.class_code, v.period, v.note, v.decided_at, "
+            "v.seal, f.codec, f.data FROM verdicts v JOIN stars s ON s.id = v.star "
+            f"LEFT JOIN finals f ON f.star = v.star {where} ORDER BY v.star",
+            params,
         )
-        return [Verdict(*row) for row in rows]
+        out = []
+        for key, star_id, status, class_code, period, note, decided_at, seal, codec, data in rows:
+            text = None
+            try:
+                text = None if data is None else self._codec.unpack(codec, data)
+            except ValueError:
+                raise self._damaged(star_id, "verdict") from None
+            if _seal(key, status, class_code, period, note, decided_at, text) != seal:
+                raise self._damaged(star_id, "verdict")
+            out.append(Verdict(star_id, status, class_code, period, note, decided_at, _loads(text)))
+        return out
 
     def set_verdict(
         self,
@@ -960,17 +1441,24 @@ class Ledger:
         class_code: str | None = None,
         period: float | None = None,
         note: str | None = None,
+        final: Mapping[str, Any] | None = None,
     ) -> Verdict:
-        """Record a verdict; committed before returning, undoable."""
-        return self.set_verdicts([(star_id, status, class_code, period, note)])[0]
+        """Record a verdict (with its final numbers, if given); committed, undoable."""
+        return self.set_verdicts([(star_id, status, class_code, period, note, final)])[0]
 
     def set_verdicts(
         self,
-        items: Iterable[tuple[str, str, str | None, float | None, str | None]],
+        items: Iterable[tuple[Any, ...]],
         *,
         label: str | None = None,
     ) -> list[Verdict]:
-        """Several verdicts ``(star_id, status, class_code, period, note)`` as one action."""
+        """Several verdicts as one action.
+
+        ``items`` are ``(star_id, status, class_code, period, note)`` or
+        ``(star_id, status, class_code, period, note, final)``; ``final`` is a
+        JSON-able dict of the star's final numbers, stored in the same
+        transaction and restored by undo and redo.
+        """
         checked = [self._checked_verdict(*item) for item in items]
         if not checked:
             return []
@@ -995,6 +1483,7 @@ class Ledger:
         class_code: str | None = None,
         period: float | None = None,
         note: str | None = None,
+        final: Mapping[str, Any] | None = None,
     ) -> Verdict:
         star_id = str(star_id)
         self._key(star_id)
@@ -1020,22 +1509,40 @@ class Ledger:
                     file=self.path,
                     field="period",
                 )
+        if final is not None and not isinstance(final, Mapping):
+            raise LedgerError(
+                f"star {star_id!r}: final numbers must be a mapping, got {type(final).__name__}",
+                file=self.path,
+                field="final",
+            )
+        final = None if final is None else _loads(_dumps(dict(final)))  # plain JSON data
         decided_at = None if status == "unreviewed" else _now()
-        return Verdict(star_id, status, class_code, period, note or None, decided_at)
+        return Verdict(star_id, status, class_code, period, note or None, decided_at, final)
 
-    def _apply_verdict(self, verdict: Verdict) -> None:
+    def _apply_verdict(
+        self, verdict: Verdict, *, key: int | None = None, new: bool = False
+    ) -> None:
+        key = self._key(verdict.star_id) if key is None else key
+        text = None if verdict.final is None else _dumps(verdict.final)
+        values = (verdict.status, verdict.class_code, verdict.period, verdict.note)
+        seal = _seal(key, *values, verdict.decided_at, text)
+        old = None
+        if not new:
+            old = self._query("SELECT seal FROM verdicts WHERE star = ?", (key,)).fetchone()[0]
         self._query(
-            "UPDATE verdicts SET status = ?, class_code = ?, period = ?, note = ?, "
-            "decided_at = ? WHERE star = ?",
-            (
-                verdict.status,
-                verdict.class_code,
-                verdict.period,
-                verdict.note,
-                verdict.decided_at,
-                self._key(verdict.star_id),
-            ),
+            "INSERT OR REPLACE INTO verdicts(star, status, class_code, period, note, decided_at, "
+            "seal) VALUES (?, ?, ?, ?, ?, ?, ?)",
+            (key, *values, verdict.decided_at, seal),
         )
+        if text is None:
+            if not new:
+                self._query("DELETE FROM finals WHERE star = ?", (key,))
+        else:
+            self._query(
+                "INSERT OR REPLACE INTO finals(star, codec, data) VALUES (?, ?, ?)",
+                (key, *self._codec.pack(text)),
+            )
+        self._account("verdicts", key, old, seal)
 
     def status_counts(self) -> dict[str, int]:
         """Number of stars in each verdict state."""
@@ -1061,7 +1568,8 @@ class Ledger:
             "SELECT s.star_id, v.status, r.suggested_class, r.suggested_score, "
             "r.suggested_period, v.class_code, COALESCE(v.period, r.period), r.amplitude, r.fap, "
             "r.flags, r.star IS NOT NULL, COALESCE(r.failed, 0), "
-            "r.star IS NOT NULL AND (r.outdated OR (? IS NOT NULL AND r.settings_hash != ?)) "
+            "r.star IS NOT NULL AND (r.outdated OR (? IS NOT NULL AND r.settings_hash != ?)), "
+            "r.period_err, r.mean_mag, r.primary_band "
             "FROM stars s JOIN verdicts v ON v.star = s.id LEFT JOIN results r ON r.star = s.id "
             f"{where} ORDER BY s.id",
             (current, current, *params),
@@ -1074,6 +1582,7 @@ class Ledger:
                 bool(row[10]),
                 bool(row[11]),
                 bool(row[12]),
+                *row[13:],
             )
             for row in rows
         ]
@@ -1092,7 +1601,7 @@ class Ledger:
     def history(self, star_id: str | None = None) -> list[HistoryEntry]:
         """Every recorded change, oldest first (of one star if given)."""
         sql = (
-            "SELECT h.id, h.action, a.kind, h.at, h.star_id, h.what, h.old, h.new "
+            "SELECT h.id, h.action, a.kind, h.at, h.star_id, h.what, h.old, h.new, h.seal "
             "FROM history h JOIN actions a ON a.id = h.action"
         )
         params: tuple[Any, ...] = ()
@@ -1101,10 +1610,23 @@ class Ledger:
             sql += " WHERE h.star_id = ?"
             params = (str(star_id),)
         rows = self._query(sql + " ORDER BY h.id", params)
-        return [
-            HistoryEntry(r[0], r[1], r[2], r[3], r[4], r[5], _loads(r[6]), _loads(r[7]))
-            for r in rows
-        ]
+        return [self._history_entry(r[:3], r[3:8], r[8]) for r in rows]
+
+    def _history_entry(
+        self, ids: tuple[Any, ...], values: tuple[Any, ...], seal: bytes | None
+    ) -> HistoryEntry:
+        """A history row, checked: ``ids`` = (id, action, kind), ``values`` = (at, star, what, old, new)."""
+        at, star_id, what, old, new = values
+        if _seal(ids[1], *values) != seal:
+            raise LedgerError(
+                f"history entry {ids[0]} is damaged (its checksum does not match); "
+                "run 'phasewise ledger check' on this ledger",
+                file=self.path,
+            )
+        try:
+            return HistoryEntry(*ids, at, star_id, what, _loads(old), _loads(new))
+        except ValueError:  # pragma: no cover - the seal matched, so the text is ours
+            raise LedgerError(f"history entry {ids[0]} cannot be read", file=self.path) from None
 
     def can_undo(self) -> bool:
         return self._next_action("undo") is not None
@@ -1124,10 +1646,21 @@ class Ledger:
 
     def _next_action(self, direction: str) -> tuple[int, str] | None:
         if direction == "undo":
-            sql = "SELECT id, label FROM actions WHERE state = 'done' ORDER BY id DESC LIMIT 1"
+            sql = "WHERE state = 'done' ORDER BY id DESC LIMIT 1"
         else:
-            sql = "SELECT id, label FROM actions WHERE state = 'undone' ORDER BY id LIMIT 1"
-        return self._query(sql).fetchone()
+            sql = "WHERE state = 'undone' ORDER BY id LIMIT 1"
+        row = self._query(
+            f"SELECT id, label, kind, at, target, state, seal FROM actions {sql}"
+        ).fetchone()
+        if row is None:
+            return None
+        if _seal(row[2], row[1], row[3], row[4], row[5]) != row[6]:
+            raise LedgerError(
+                f"action {row[0]} in the history is damaged (its checksum does not match); "
+                "run 'phasewise ledger check' on this ledger",
+                file=self.path,
+            )
+        return row[0], row[1]
 
     def undo(self) -> Action | None:
         """Undo the latest action still done; returns what changed (None if nothing)."""
@@ -1146,30 +1679,32 @@ class Ledger:
     def _walk_one(self, direction: str) -> Action:
         with self._write(direction) as tx:
             target_id, label = self._next_action(direction)
-            entries = self._query(
-                "SELECT star_id, what, old, new FROM history WHERE action = ? ORDER BY id",
+            rows = self._query(
+                "SELECT id, action, at, star_id, what, old, new, seal FROM history "
+                "WHERE action = ? ORDER BY id",
                 (target_id,),
             ).fetchall()
+            entries = [self._history_entry((r[0], r[1], "do"), r[2:7], r[7]) for r in rows]
             action = self._new_action(direction, f"{direction} {label}", target_id)
             if direction == "undo":
                 entries = entries[::-1]
-            for star_id, what, old, new in entries:
-                before, after = (_loads(new), _loads(old))
+            for entry in entries:
+                before, after = entry.new, entry.old
                 if direction == "redo":
                     before, after = after, before
-                self._restore(star_id, what, after)
-                self._log(action, star_id, what, before, after)
-                tx.star_ids.append(star_id)
-            state = "undone" if direction == "undo" else "done"
-            self._query("UPDATE actions SET state = ? WHERE id = ?", (state, target_id))
+                self._restore(entry.star_id, entry.what, after)
+                self._log(action, entry.star_id, entry.what, before, after)
+                tx.star_ids.append(entry.star_id)
+            self._set_action_state(target_id, "undone" if direction == "undo" else "done")
         return self._action(action)
 
     def _restore(self, star_id: str, what: str, value: Any) -> None:
         if what == "verdict":
+            self.verdict(star_id)  # a damaged record is reported, not sealed over
             self._apply_verdict(Verdict(star_id, **value))
         elif what == "excluded":
             key = self._key(star_id)
-            n = self._query("SELECT n_points FROM stars WHERE id = ?", (key,)).fetchone()[0]
+            n = self._photometry_row(star_id)[7]  # checked before it is changed
             mask = np.zeros(n, dtype=bool)
             mask[np.asarray(value["indices"], dtype=int)] = True
             self._apply_excluded(key, mask)
@@ -1181,14 +1716,11 @@ class Ledger:
             "SELECT kind, label, at, target FROM actions WHERE id = ?", (action_id,)
         ).fetchone()
         rows = self._query(
-            "SELECT id, action, ?, at, star_id, what, old, new FROM history WHERE action = ? "
-            "ORDER BY id",
+            "SELECT id, action, ?, at, star_id, what, old, new, seal FROM history "
+            "WHERE action = ? ORDER BY id",
             (kind, action_id),
         )
-        entries = tuple(
-            HistoryEntry(r[0], r[1], r[2], r[3], r[4], r[5], _loads(r[6]), _loads(r[7]))
-            for r in rows
-        )
+        entries = tuple(self._history_entry(r[:3], r[3:8], r[8]) for r in rows)
         return Action(action_id, kind, label, at, target, entries)
 
     # ---------------------------------------------------------- provenance
@@ -1197,31 +1729,107 @@ class Ledger:
         return dict(self._query("SELECT key, value FROM meta"))
 
     def checksum(self) -> str:
-        """SHA-256 of the ledger's content (stars, photometry, masks, results, verdicts).
+        """SHA-256 naming the ledger's content (stars, photometry, masks, results, verdicts).
 
-        Computed from the data in a fixed order, so it does not depend on
-        SQLite's page layout or on whether the WAL has been checkpointed.
+        Made from the content sum, which every write keeps up to date from the
+        records' seals, so it costs one read whatever the ledger's size, and
+        does not depend on SQLite's page layout or on the WAL.
+        :meth:`check` confirms that the sum matches the records.
         """
-        digest = hashlib.sha256()
-        queries = (
-            "SELECT s.star_id, s.ra, s.dec, s.time_scale, p.time, p.mag, p.mag_err, p.bands, "
-            "p.band_index, p.excluded FROM stars s JOIN photometry p ON p.star = s.id ORDER BY s.id",
-            "SELECT star, settings_hash, failed, error, result FROM results ORDER BY star",
-            "SELECT star, status, class_code, period, note, decided_at FROM verdicts ORDER BY star",
-        )
-        with self._mutex:
-            for sql in queries:
-                for row in self._stream(sql):
-                    for value in row:
-                        data = value if isinstance(value, bytes) else repr(value).encode()
-                        digest.update(len(data).to_bytes(8, "little"))
-                        digest.update(data)
-        return digest.hexdigest()
+        total = self._content_sum()
+        text = f"phasewise ledger content/{SCHEMA_VERSION}/{total:064x}"
+        return hashlib.sha256(text.encode()).hexdigest()
 
     def integrity_check(self) -> bool:
         """SQLite's full ``integrity_check`` of the open file."""
         rows = self._query("PRAGMA integrity_check").fetchall()
         return [r[0] for r in rows] == ["ok"]
+
+    def check(self) -> list[Problem]:
+        """Check the whole file: SQLite's ``integrity_check`` and every record's seal.
+
+        Returns the problems found (empty when all is well), each naming the
+        star or the history entry it concerns.  Reads the whole file: this is
+        what ``phasewise ledger check`` runs, never an ordinary open.
+        """
+        problems: list[Problem] = []
+        with self._mutex:
+            try:
+                rows = self._conn.execute("PRAGMA integrity_check").fetchall()
+            except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
+                return [Problem(None, "file", f"SQLite cannot check the file: {exc}")]
+            if [r[0] for r in rows] != ["ok"]:
+                detail = "; ".join(str(r[0]) for r in rows[:5])
+                problems.append(Problem(None, "file", f"SQLite integrity check: {detail}"))
+            try:
+                problems += self._check_records()
+            except (sqlite3.DatabaseError, LedgerError, ValueError) as exc:
+                problems.append(Problem(None, "file", f"cannot read every record: {exc}"))
+        return problems
+
+    def _check_records(self) -> list[Problem]:
+        problems: list[Problem] = []
+        names = dict(self._conn.execute("SELECT id, star_id FROM stars"))
+        total = 0
+        keys = set(names)
+        seen: set[int] = set()
+        for row in self._conn.execute(
+            f"SELECT {_PHOTOMETRY_SEALED}, p.seal FROM stars s LEFT JOIN photometry p "
+            "ON p.star = s.id"
+        ):
+            seen.add(row[0])
+            if _seal(*row[:-1]) != row[-1]:
+                problems.append(Problem(names.get(row[0]), "photometry", "checksum mismatch"))
+            total += _share("photometry", row[0], row[-1])
+        for (key,) in self._conn.execute("SELECT star FROM results"):
+            values_text_intact = self._result_record(key)
+            if not values_text_intact[2]:
+                problems.append(Problem(names.get(key), "result", "checksum mismatch"))
+            seal = self._conn.execute("SELECT seal FROM results WHERE star = ?", (key,))
+            total += _share("results", key, seal.fetchone()[0])
+        verdict_keys = set()
+        for key, seal in self._conn.execute("SELECT star, seal FROM verdicts"):
+            verdict_keys.add(key)
+            total += _share("verdicts", key, seal)
+            try:
+                self._verdicts("WHERE v.star = ?", (key,))
+            except LedgerError:
+                problems.append(Problem(names.get(key), "verdict", "checksum mismatch"))
+        for key in sorted(keys - verdict_keys):
+            problems.append(Problem(names.get(key), "verdict", "missing"))
+        for row in self._conn.execute(
+            "SELECT id, action, at, star_id, what, old, new, seal FROM history"
+        ):
+            if _seal(*row[1:7]) != row[7]:
+                problems.append(Problem(row[3], "history", f"entry {row[0]}: checksum mismatch"))
+        for row in self._conn.execute(
+            "SELECT id, kind, label, at, target, state, seal FROM actions"
+        ):
+            if _seal(*row[1:6]) != row[6]:
+                problems.append(Problem(None, "history", f"action {row[0]}: checksum mismatch"))
+        for key, value, seal in self._conn.execute("SELECT key, value, seal FROM meta"):
+            if _seal(key, value) != seal:
+                problems.append(Problem(None, "meta", f"{key!r}: checksum mismatch"))
+        stored = self._conn.execute("SELECT value FROM meta WHERE key = 'content_sum'").fetchone()
+        if stored is None or int(stored[0], 16) != total % _SUM_MODULUS:
+            problems.append(
+                Problem(None, "content", "the content checksum does not match the records")
+            )
+        return problems
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One thing :meth:`Ledger.check` found wrong."""
+
+    star_id: str | None  # the star concerned, if any
+    record: str  # file, photometry, result, verdict, history, meta, content
+    detail: str
+
+    def describe(self) -> str:
+        where = f"star {self.star_id!r}" if self.star_id is not None else self.record
+        what = self.record if self.star_id is not None else ""
+        return " ".join(p for p in (where, what, self.detail) if p)
 
 
 class _Rows:
@@ -1255,19 +1863,174 @@ class _Transaction:
         try:
             self.conn.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as exc:
-            raise LedgerError(f"cannot write: {exc}", file=self.path) from exc
+            raise _write_error(exc, self.path) from None
+        self.ledger._sum_delta = 0
         return self
 
     def __exit__(self, exc_type: Any, exc: Any, tb: Any) -> None:
         if exc_type is None:
             try:
+                self.ledger._flush_sum()
                 self.conn.execute("COMMIT")
-            except sqlite3.Error as error:
-                self.conn.execute("ROLLBACK")
-                raise LedgerError(f"cannot write: {error}", file=self.path) from error
+            except (sqlite3.Error, LedgerError) as error:
+                self._rollback()
+                if isinstance(error, LedgerError):
+                    raise
+                raise _write_error(error, self.path) from None
             self.ledger._notify(Change(self.what, tuple(self.star_ids)))
             return
-        self.conn.execute("ROLLBACK")
+        self._rollback()
+        if isinstance(exc, sqlite3.Error):
+            raise _write_error(exc, self.path) from None
+
+    def _rollback(self) -> None:
+        # SQLite may already have rolled back on its own (a full disk, an I/O
+        # error); a second ROLLBACK must not hide the first error
+        self.ledger._sum_delta = 0
+        try:
+            if self.conn.in_transaction:
+                self.conn.execute("ROLLBACK")
+        except sqlite3.Error:
+            pass
+        try:
+            self.ledger._codec = _Codec(self.conn)  # forget a dictionary not committed
+        except sqlite3.Error:
+            pass
+
+
+def _write_error(error: sqlite3.Error, path: Path) -> LedgerError:
+    """One plain sentence for a failed write; nothing of it was kept."""
+    text = str(error).lower()
+    if "malformed" in text or "not a database" in text or "corrupt" in text:
+        reason = (
+            f"damaged: SQLite cannot read part of the file ({error}); run "
+            "'phasewise ledger check' on it and restore it from a copy"
+        )
+    elif "full" in text:
+        reason = (
+            "the disk is full; nothing of this change was written and everything "
+            "committed before is safe. Free some space and try again"
+        )
+    elif "readonly" in text or "read-only" in text:
+        reason = "the ledger is read-only here (file or folder not writable); nothing was changed"
+    elif "locked" in text or "busy" in text:
+        reason = "another process is writing to it; nothing was changed, try again"
+    else:
+        reason = f"SQLite could not read or write it ({error}); nothing was changed"
+    return LedgerError(reason, file=path)
+
+
+def _damaged_file(error: Exception, path: Path) -> LedgerError:
+    if isinstance(error, sqlite3.OperationalError):
+        return _write_error(error, path)
+    return LedgerError(
+        f"damaged: SQLite cannot read part of the file ({error}); run "
+        "'phasewise ledger check' on it and restore it from a copy",
+        file=path,
+    )
+
+
+def _mask(blob: bytes | None, n: int) -> np.ndarray:
+    """The exclusion mask stored as one byte per point (None: nothing excluded)."""
+    if blob is None:
+        return np.zeros(n, dtype=bool)
+    return np.frombuffer(blob, dtype=np.uint8, count=n).astype(bool)
+
+
+def lock_holder_of(path: str | os.PathLike) -> LockHolder | None:
+    """Who holds a ledger file for writing (None if nobody), read without opening it."""
+    return _file_lock_holder(Path(path))
+
+
+def _record_take_over(conn: sqlite3.Connection, old: LockHolder, new: LockHolder) -> None:
+    """Write a lock take-over to the history (not undoable), inside the caller's transaction."""
+    at = _now()
+    values = ("lock", f"take over the lock from {old.host}", at, None, None)
+    action = conn.execute(
+        "INSERT INTO actions(kind, label, at, target, state, seal) VALUES (?, ?, ?, ?, ?, ?)",
+        (*values, _seal(*values)),
+    ).lastrowid
+    entry = (action, at, None, "lock", _dumps(asdict(old)), _dumps(asdict(new)))
+    conn.execute(
+        "INSERT INTO history(action, at, star_id, what, old, new, seal) "
+        "VALUES (?, ?, ?, ?, ?, ?, ?)",
+        (*entry, _seal(*entry)),
+    )
+
+
+def _connect(target: Any, **kwargs: Any) -> sqlite3.Connection:
+    conn = sqlite3.connect(target, **kwargs)
+    # a damaged byte in a stored text must not stop the reading: the text comes
+    # back with the byte escaped, and its record's seal then reports the damage
+    conn.text_factory = _text
+    return conn
+
+
+def _text(data: bytes) -> str:
+    return data.decode("utf-8", "surrogateescape")
+
+
+def _unlink_ledger_files(path: Path) -> None:
+    for suffix in ("", "-wal", "-shm", "-journal"):
+        try:
+            Path(f"{path}{suffix}").unlink(missing_ok=True)
+        except OSError:
+            pass
+
+
+def _remove_abandoned_builds(path: Path, *, grace: float = 60.0) -> None:
+    """Remove ``.NAME.*.building`` files of builds whose process died.
+
+    A build holds the lock of its file; a file whose lock names a dead
+    process of this host (or without a lock, older than ``grace`` seconds)
+    is what a killed ``ledger new`` left behind.
+    """
+    for temp in path.parent.glob(f".{path.name}.*.building"):
+        try:
+            holder = _file_lock_holder(temp)
+            if holder is None:
+                if time.time() - temp.stat().st_mtime < grace:
+                    continue  # being created right now
+            elif holder.host != socket.gethostname() or _pid_alive(holder.pid):
+                continue
+        except OSError:
+            continue
+        _unlink_ledger_files(temp)
+
+
+def _file_lock_holder(path: Path) -> LockHolder | None:
+    try:
+        conn = _connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+        try:
+            row = conn.execute("SELECT pid, host, since, program FROM lock").fetchone()
+        finally:
+            conn.close()
+    except sqlite3.Error:
+        return None
+    return None if row is None else LockHolder(int(row[0]), row[1], row[2], row[3])
+
+
+def _writable(path: Path) -> bool:
+    """Whether SQLite can write the file and make its side files beside it."""
+    return os.access(path, os.W_OK) and _folder_writable(path)
+
+
+def _folder_writable(path: Path) -> bool:
+    return os.access(path.parent, os.W_OK)
+
+
+def _reader_uri(path: Path) -> str:
+    """URI of a read-only connection that works where nothing may be written.
+
+    A read-only folder cannot hold the WAL index that a reader normally
+    creates; there, with no pending WAL, the file is opened ``immutable``.
+    """
+    uri = path.resolve().as_uri()
+    wal = Path(f"{path}-wal")
+    pending = wal.exists() and wal.stat().st_size > 0
+    if not _folder_writable(path) and not pending:
+        return f"{uri}?immutable=1"
+    return f"{uri}?mode=ro"
 
 
 def _remove_new_side_files(side_files: list[Path], existed: list[bool]) -> None:
@@ -1328,13 +2091,20 @@ def _summary(result: Mapping[str, Any]) -> tuple[Any, ...]:
     suggestions = result.get("suggestions") or []
     top = suggestions[0] if suggestions else {}
     flags = [str(f) for f in (result.get("flags") or [])]
+    band = result.get("primary_band")
     return (
         result.get("status"),
         top.get("class") or top.get("class_code"),
         _finite_or_none(top.get("score")),
         _finite_or_none(top.get("period")),
         _finite_or_none(result.get("period")),
+        _finite_or_none(result.get("period_err")),
         _finite_or_none(result.get("amplitude")),
         _finite_or_none(result.get("fap")),
+        _finite_or_none(result.get("mean_mag")),
+        None if band is None else str(band),
         json.dumps(flags),
     )
+
+
+_EMPTY_SUMMARY = (None,) * 10 + ("[]",)

@@ -48,7 +48,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except PhasewiseError as exc:
-        print(f"phasewise: error: {exc}", file=sys.stderr)
+        from phasewise.app.cli.terminal import terminal_text
+
+        print(f"phasewise: error: {terminal_text(exc, keep_newlines=True)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("phasewise: interrupted", file=sys.stderr)

@@ -12,6 +12,7 @@ import math
 from pathlib import Path
 from typing import Any
 
+from phasewise.app.cli.terminal import terminal_text
 from phasewise.core.errors import PhasewiseError
 from phasewise.core.ledger import VERDICT_STATUSES, Ledger, file_checksum
 
@@ -37,6 +38,25 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     info = actions.add_parser("info", help="stars, verdict counts and analysis state")
     info.add_argument("ledger", type=Path, metavar="LEDGER")
     info.set_defaults(func=run_info)
+    check = actions.add_parser(
+        "check",
+        help="check the whole file: SQLite's integrity check and every record's checksum",
+    )
+    check.add_argument("ledger", type=Path, metavar="LEDGER")
+    check.set_defaults(func=run_check)
+    unlock = actions.add_parser(
+        "unlock",
+        help="take over the write lock left by a process on another machine that is gone",
+        description=(
+            "Show who holds the ledger for writing. With --confirm-host HOST (the holder's "
+            "host, as a confirmation that its process is gone), take the lock over; the "
+            "take-over is written to the history. A live process on this machine is never "
+            "overruled."
+        ),
+    )
+    unlock.add_argument("ledger", type=Path, metavar="LEDGER")
+    unlock.add_argument("--confirm-host", metavar="HOST", help="the holder's host name")
+    unlock.set_defaults(func=run_unlock)
 
     verdict = subparsers.add_parser(
         "verdict",
@@ -104,10 +124,17 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 def run_new(args: argparse.Namespace) -> int:
     from phasewise.core.io import ColumnMapping, open_photometry
 
+    if args.ledger.exists() and not args.overwrite:
+        raise PhasewiseError(
+            "a file of that name exists; choose another name, or give --overwrite to "
+            "replace it (the old ledger stays until the new one is complete)",
+            file=args.ledger,
+        )
     mapping = ColumnMapping.parse(args.columns) if args.columns else None
     sources = [open_photometry(path, mapping) for path in args.files]  # all readable first
-    ledger = Ledger.create(args.ledger, overwrite=args.overwrite)
-    try:
+    # built beside the target and moved into place only when every import
+    # succeeded: an error, Ctrl-C or a full disk leaves an old ledger as it was
+    with Ledger.building(args.ledger, overwrite=args.overwrite) as ledger:
         for path, source in zip(args.files, sources, strict=True):
             checksum = file_checksum(path) if path.is_file() else None
             added = ledger.add_stars(
@@ -115,20 +142,68 @@ def run_new(args: argparse.Namespace) -> int:
             )
             report = source.report
             print(
-                f"{path}: {_stars(added)} imported; rows read {report.rows_read}, "
-                f"skipped {report.rows_skipped}"
+                f"{terminal_text(path)}: {_stars(added)} imported; rows read "
+                f"{report.rows_read}, skipped {report.rows_skipped}"
             )
             for reason, count in report.skip_counts.items():
-                print(f"  {count} x {reason}")
+                print(f"  {count} x {terminal_text(reason)}")
             for note in report.notes:
-                print(f"  note: {note}")
-    except BaseException:
-        ledger.close()
-        for suffix in ("", "-wal", "-shm"):
-            Path(f"{args.ledger}{suffix}").unlink(missing_ok=True)
-        raise
-    print(f"{args.ledger}: {_stars(ledger.n_stars)}")
-    ledger.close()
+                print(f"  note: {terminal_text(note)}")
+        n_stars = ledger.n_stars
+        if not n_stars:
+            raise PhasewiseError("no star was imported; the ledger was not made", file=args.ledger)
+    print(f"{terminal_text(args.ledger)}: {_stars(n_stars)}")
+    return 0
+
+
+def run_check(args: argparse.Namespace) -> int:
+    with Ledger.open(args.ledger, readonly=True) as ledger:
+        problems = ledger.check()
+        n = ledger.n_stars
+    if not problems:
+        print(
+            f"{terminal_text(args.ledger)}: ok ({_stars(n)}; SQLite check and every record checksum)"
+        )
+        return 0
+    stars = sorted({p.star_id for p in problems if p.star_id is not None})
+    print(f"{terminal_text(args.ledger)}: {len(problems)} problem(s) found")
+    for problem in problems:
+        print(f"  {terminal_text(problem.describe())}")
+    if stars:
+        shown = ", ".join(terminal_text(s) for s in stars[:20])
+        more = f" and {len(stars) - 20} more" if len(stars) > 20 else ""
+        print(f"  stars affected ({len(stars)}): {shown}{more}")
+    print("  restore the ledger from a copy, or re-import and re-analyse the stars named")
+    return 1
+
+
+def run_unlock(args: argparse.Namespace) -> int:
+    from phasewise.core.ledger import lock_holder_of
+
+    holder = lock_holder_of(args.ledger)
+    if holder is None:
+        print(f"{terminal_text(args.ledger)}: not held for writing; nothing to do")
+        return 0
+    print(f"{terminal_text(args.ledger)}: held by {terminal_text(holder.describe())}")
+    if args.confirm_host is None:
+        print(
+            "  if that process is gone (a crashed container, a copied file), take the lock "
+            f"over with: phasewise ledger unlock LEDGER --confirm-host {terminal_text(holder.host)}"
+        )
+        return 1
+    if args.confirm_host != holder.host:
+        raise PhasewiseError(
+            f"the lock is held from host {holder.host!r}, not {args.confirm_host!r}; "
+            "nothing was changed",
+            file=args.ledger,
+            field="confirm-host",
+        )
+    with Ledger.open(args.ledger, take_over=holder):
+        pass
+    print(
+        f"{terminal_text(args.ledger)}: lock taken over from {terminal_text(holder.describe())}; "
+        "recorded in the history"
+    )
     return 0
 
 
@@ -136,7 +211,7 @@ def run_info(args: argparse.Namespace) -> int:
     with Ledger.open(args.ledger, readonly=True) as ledger:
         rows = ledger.star_rows()
         counts = ledger.status_counts()
-        print(f"{args.ledger}: {_stars(ledger.n_stars)}")
+        print(f"{terminal_text(args.ledger)}: {_stars(ledger.n_stars)}")
         print("  " + ", ".join(f"{status} {n}" for status, n in counts.items()))
         analysed = sum(r.analysed for r in rows)
         print(
@@ -145,7 +220,7 @@ def run_info(args: argparse.Namespace) -> int:
         )
         holder = ledger.lock_holder()
         if holder:
-            print(f"  open for writing by {holder.describe()}")
+            print(f"  open for writing by {terminal_text(holder.describe())}")
     return 0
 
 
@@ -176,7 +251,7 @@ def run_verdict(args: argparse.Namespace) -> int:
             period=args.period,
             note=args.note,
         )
-    print(f"{args.ledger}: {verdict.star_id}: {_verdict_text(verdict.to_dict())}")
+    print(terminal_text(f"{args.ledger}: {verdict.star_id}: {_verdict_text(verdict.to_dict())}"))
     return 0
 
 
@@ -199,7 +274,10 @@ def _confirm_above(args: argparse.Namespace) -> int:
         for row in chosen:
             period = "" if row.suggested_period is None else f" P={row.suggested_period:.7g} d"
             print(
-                f"{verb} {row.star_id}: {row.suggested_class}{period} (score {row.suggested_score:.3f})"
+                terminal_text(
+                    f"{verb} {row.star_id}: {row.suggested_class}{period} "
+                    f"(score {row.suggested_score:.3f})"
+                )
             )
         if not args.dry_run and chosen:
             from phasewise.core.final import record_verdicts
@@ -240,6 +318,8 @@ def _value_text(what: str, value: Any) -> str:
         return f"{value['n_stars']} stars from {value.get('source_file') or 'memory'}"
     if what == "analysis_settings":
         return f"settings {value['settings_hash']}"
+    if what == "lock":
+        return f"lock of process {value.get('pid')} on {value.get('host')}"
     return str(value)
 
 
@@ -263,7 +343,7 @@ def run_history(args: argparse.Namespace) -> int:
     for e in entries:
         star = e.star_id or "-"
         change = f"{_value_text(e.what, e.old)} -> {_value_text(e.what, e.new)}"
-        print(f"{e.id:6d}  {e.at}  {e.kind:8s} {star:16s} {e.what}: {change}")
+        print(terminal_text(f"{e.id:6d}  {e.at}  {e.kind:8s} {star:16s} {e.what}: {change}"))
     return 0
 
 
@@ -273,9 +353,10 @@ def run_walk(args: argparse.Namespace) -> int:
     if action is None:
         print(f"{args.ledger}: nothing to {args.direction}")
         return 1
-    print(f"{args.ledger}: {action.label}")
+    print(terminal_text(f"{args.ledger}: {action.label}"))
     for e in action.entries:
-        print(f"  {e.star_id}: {_value_text(e.what, e.old)} -> {_value_text(e.what, e.new)}")
+        change = f"{_value_text(e.what, e.old)} -> {_value_text(e.what, e.new)}"
+        print(terminal_text(f"  {e.star_id}: {change}"))
     return 0
 
 
@@ -288,5 +369,5 @@ def run_export(args: argparse.Namespace) -> int:
         statuses = tuple(s.strip() for item in args.status for s in item.split(",") if s.strip())
     with Ledger.open(args.ledger, readonly=True) as ledger:
         n = write_catalogue(ledger, args.output, format=args.format, statuses=statuses)
-    print(f"{args.output}: {_stars(n)} ({', '.join(statuses)}) from {args.ledger}")
+    print(terminal_text(f"{args.output}: {_stars(n)} ({', '.join(statuses)}) from {args.ledger}"))
     return 0

@@ -172,7 +172,18 @@ def test_damaged_btree_page_is_found_by_the_check(path):
     data = bytearray(path.read_bytes())
     data[4096 + 8 : 4096 + 3000] = np.random.default_rng(2).bytes(3000 - 8)
     path.write_bytes(bytes(data))
-    _assert_refused_untouched(path, "damaged")
+    before = path.read_bytes()
+    # an ordinary open never reads the whole file; an open with a check does
+    with pytest.raises(LedgerError, match="damaged"):
+        Ledger.open(path, check="quick")
+    assert path.read_bytes() == before
+    try:
+        with Ledger.open(path, readonly=True) as ledger:
+            problems = ledger.check()  # what 'phasewise ledger check' runs
+        assert problems and problems[0].record == "file"
+    except LedgerError as exc:  # or the damaged page is met on the way in
+        assert "damaged" in str(exc)
+    assert path.read_bytes() == before
 
 
 def test_missing_file(tmp_path):
