@@ -297,7 +297,7 @@ def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, 
     """
     flags: list[str] = []
     decided = verdict.status in ("confirmed", "relabelled", "rejected")
-    stored = _verdict_final(verdict) if decided else None
+    stored = verdict.final if decided else None
     final = FinalNumbers.from_dict(stored) if stored else None
     if final is None and result is not None and isinstance(result.final, Mapping):
         if "error" in result.final:
@@ -313,11 +313,6 @@ def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, 
     if final is not None and result is not None and final.result_key != result_key(result):
         flags.append("final numbers from an earlier analysis; run 'phasewise finalise'")
     return final, flags
-
-
-def _verdict_final(verdict) -> dict[str, Any] | None:
-    # Verdict.final arrives with the ledger's schema migration; until then none is stored
-    return getattr(verdict, "final", None)
 
 
 def catalogue_row(

@@ -740,7 +740,7 @@ def record_verdicts(
             period = None
         final = finaliser.final(str(star_id), status, code, period)
         rows.append((str(star_id), status, code, period, note, final))
-    return _set_verdicts(ledger, rows, label)
+    return ledger.set_verdicts(rows, label=label)
 
 
 def finalise_stars(
@@ -779,15 +779,8 @@ def finalise_stars(
             )
         )
     if items:
-        _set_verdicts(ledger, items, f"final numbers of {len(items)} verdict(s) recomputed")
+        ledger.set_verdicts(items, label=f"final numbers of {len(items)} verdict(s) recomputed")
     return len(items)
-
-
-def _set_verdicts(ledger, rows, label):
-    try:
-        return ledger.set_verdicts(rows, label=label)
-    except TypeError:  # TEMPORARY: a ledger before the final-numbers migration reaches main
-        return ledger.set_verdicts([row[:5] for row in rows], label=label)
 
 
 def suggested_final_dict(

@@ -9,24 +9,14 @@ something else.
 
 from __future__ import annotations
 
-import dataclasses
 import json
 
 from phasewise.core.analysis import AnalysisSettings, analyse
-from phasewise.core.ledger import Ledger, Verdict
+from phasewise.core.ledger import Ledger
 from phasewise.core.synthetic import make_survey
 
 SEED = 7
 N_STARS = 40
-
-#: Whether the ledger stores final numbers with verdicts (the ledger's
-#: schema migration); the tests that need it are skipped as xfail before.
-LEDGER_STORES_FINALS = "final" in {f.name for f in dataclasses.fields(Verdict)}
-NEEDS_FINALS = dict(
-    condition=not LEDGER_STORES_FINALS,
-    reason="Verdict.final arrives with the ledger's schema migration",
-    strict=False,
-)
 
 
 def pick_stars(survey):

@@ -22,7 +22,7 @@ from phasewise.core.fourier import fit_fourier
 from phasewise.core.physics import RELATIONS
 from phasewise.core.results import StarResult
 
-from .catalogue_fixtures import NEEDS_FINALS, build
+from .catalogue_fixtures import build
 
 PHYSICS_COLUMNS = ("feh_jk", "feh_zw", "feh_c09", "abs_mag", "dist_mod", "distance")
 
@@ -135,7 +135,6 @@ def _refit_a(ledger, star, period):
     return fit.amplitudes[0], fit.amplitudes[1]
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_confirm_keeps_the_suggestion_numbers(field):
     ledger, roles, _ = field
     before = _rows(ledger)[roles["rrab"]]
@@ -148,7 +147,6 @@ def test_confirm_keeps_the_suggestion_numbers(field):
     assert "not stored" not in row["flags"]
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_relabel_pulsator_as_eclipsing(field):
     ledger, roles, truth = field
     star = roles["ew_as_rrc"]
@@ -167,7 +165,6 @@ def test_relabel_pulsator_as_eclipsing(field):
     assert _nan(row["feh_zw"]) and _nan(row["distance"])  # the RRc physics is gone
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_relabel_eclipsing_as_pulsator(field):
     ledger, roles, _ = field
     star = roles["ew"]
@@ -182,7 +179,6 @@ def test_relabel_eclipsing_as_pulsator(field):
     assert _nan(row["feh_jk"])
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_relabel_as_const_has_no_period(field):
     ledger, roles, _ = field
     star = roles["rrc"]
@@ -196,7 +192,6 @@ def test_relabel_as_const_has_no_period(field):
     )
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_persons_period_double_and_nudge(field):
     ledger, roles, _ = field
     star = roles["rrab"]
@@ -221,7 +216,6 @@ def test_persons_period_double_and_nudge(field):
     assert stored["fourier"]["period"] == pytest.approx(row["period"], rel=1e-12)
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_reject_and_defer(field):
     ledger, roles, _ = field
     record_verdict(ledger, roles["rrd"], "rejected", note="blend")
@@ -234,7 +228,6 @@ def test_reject_and_defer(field):
     assert deferred["class"] == "CONST" and deferred["suggested_class"] == "CONST"
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_undo_and_redo_restore_the_numbers(field):
     ledger, roles, _ = field
     star = roles["rrc"]
@@ -251,7 +244,6 @@ def test_undo_and_redo_restore_the_numbers(field):
     assert again["class"] == "DSCT" and again["abs_mag"] == relabelled["abs_mag"]
 
 
-@pytest.mark.xfail(**NEEDS_FINALS)
 def test_finalise_after_reanalysis(field):
     ledger, roles, _ = field
     star = roles["rrab"]
