@@ -36,6 +36,7 @@ import numpy as np
 from . import physics
 from .classes import CLASSES
 from .errors import PhasewiseError
+from .results import StarResult
 from .validation import require_int, require_positive
 
 __all__ = [
@@ -170,14 +171,15 @@ class StarPoint:
         period.  A missing or failed result gives a point with no coordinates
         (it is counted in the summary but drawn in no diagram).
         """
-        result = result or {}
-        code, source = class_used(status, verdict_class, result.get("suggestions"))
-        period = _finite(verdict_period) or _finite(result.get("period"))
-        fourier = result.get("fourier") or {}
-        shorter, longer = _double_mode(period, result)
-        amplitudes = _band_map(result.get("amplitude_by_band"))
-        means = _band_map(result.get("mean_mag_by_band"))
-        features = _features(result, period, amplitudes, means)
+        model = result if isinstance(result, StarResult) else StarResult.from_dict(result)
+        suggestions = [{"class": s.class_code} for s in model.suggestion_list]
+        code, source = class_used(status, verdict_class, suggestions)
+        period = _finite(verdict_period) or model.number("period")
+        fourier = model.primary_fourier
+        shorter, longer = _double_mode(period, model)
+        amplitudes = _band_map(model.band_numbers("amplitude_by_band"))
+        means = _band_map(model.band_numbers("mean_mag_by_band"))
+        features = _features(model, period, amplitudes, means)
         return cls(
             star_id=str(star_id),
             class_code=code,
@@ -186,11 +188,11 @@ class StarPoint:
             period=period,
             amplitude_by_band=amplitudes,
             mean_mag_by_band=means,
-            R21=_finite(fourier.get("R21")),
-            phi31=_sine_phi31(fourier),
+            R21=fourier.value("R21") if fourier else None,
+            phi31=fourier.sine_phi("phi31") if fourier else None,
             shorter_period=shorter,
             longer_period=longer,
-            primary_band=result.get("primary_band"),
+            primary_band=model.primary_band,
             features=features,
         )
 
@@ -233,25 +235,28 @@ def _band_map(values: Mapping[str, Any] | None) -> dict[str, float]:
 
 
 def _features(
-    result: Mapping[str, Any],
+    result: StarResult,
     period: float | None,
     amplitudes: Mapping[str, float],
     means: Mapping[str, float],
 ) -> dict[str, Any]:
     """The analysis features, filled from the result where the analysis left them out."""
-    fourier = result.get("fourier") or {}
-    features: dict[str, Any] = {"primary_band": result.get("primary_band")}
+    fourier = result.primary_fourier
+    features: dict[str, Any] = {"primary_band": result.primary_band}
     for band, value in amplitudes.items():
         features[f"amplitude_{band}"] = value
     for band, value in means.items():
         features[f"mean_mag_{band}"] = value
-    amps = fourier.get("amplitudes") or ()
-    for k, value in enumerate(amps[:3], start=1):
-        features[f"A{k}"] = _finite(value)
-    features["R21"] = _finite(fourier.get("R21"))
-    features["phi31"] = _sine_phi31(fourier)
-    features["period_err"] = _finite(result.get("period_err"))
-    features.update({k: v for k, v in (result.get("features") or {}).items() if v is not None})
+    if fourier is not None:
+        for k in (1, 2, 3):
+            if fourier.amplitude(k) is not None:
+                features[f"A{k}"] = fourier.amplitude(k)
+        features["R21"] = fourier.value("R21")
+        features["phi31"] = fourier.sine_phi("phi31")
+    else:
+        features["R21"] = features["phi31"] = None
+    features["period_err"] = result.number("period_err")
+    features.update({k: v for k, v in result.feature_map.items() if v is not None})
     if period is not None:
         # the verdict's period, when the person chose one, is the star's period
         features["period"] = period
@@ -259,17 +264,7 @@ def _features(
     return features
 
 
-def _sine_phi31(fourier: Mapping[str, Any]) -> float | None:
-    phi31 = _finite(fourier.get("phi31"))
-    if phi31 is None:
-        return None
-    if fourier.get("form", "sine") == "cosine":
-        # phi31(sin) = phi31(cos) - pi (mod 2 pi): cos x = sin(x + pi/2), see REFERENCES.md
-        phi31 = (phi31 - math.pi) % (2 * math.pi)
-    return phi31
-
-
-def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float | None, ...]:
+def _double_mode(period: float | None, result: StarResult) -> tuple[float | None, ...]:
     """Shorter and longer of the primary and the secondary period the ratio refers to.
 
     Only secondary periods of kind ``independent`` count (``core.prewhiten``).
@@ -277,16 +272,15 @@ def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float
     if period is None or period <= 0:
         return None, None
     seconds = []
-    for entry in result.get("secondary_periods") or ():
-        if isinstance(entry, Mapping) and entry.get("kind", "independent") != "independent":
+    for entry in result.secondary_list:
+        if (entry.kind or "independent") != "independent":
             continue  # harmonics, combinations and side peaks are not a second mode
-        value = entry.get("period") if isinstance(entry, Mapping) else entry
-        number = _finite(value)
+        number = _finite(entry.period)
         if number is not None and number > 0 and not math.isclose(number, period):
             seconds.append(number)
     if not seconds:
         return None, None
-    ratio = _finite(result.get("period_ratio"))
+    ratio = result.number("period_ratio")
     if ratio is not None and ratio > 0:
         ratio = min(ratio, 1 / ratio)
         # the secondary period whose ratio with the primary matches the stated one

@@ -23,6 +23,8 @@ __all__ = [
     "Suggestion",
     "PhysicsValue",
     "SecondaryPeriod",
+    "CandidatePeriod",
+    "EclipseTerms",
     "StarResult",
     "number",
 ]
@@ -192,6 +194,56 @@ class SecondaryPeriod(_Record):
     extra: dict[str, Any] = field(default_factory=dict)
 
 
+@dataclass(frozen=True)
+class CandidatePeriod(_Record):
+    """A periodogram candidate as stored."""
+
+    frequency: Any = None
+    period: Any = None
+    power: Any = None
+    fap: Any = None
+    snr: Any = None
+    marks: Any = None
+    mark_details: Any = None
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def mark_list(self) -> tuple[str, ...]:
+        return tuple(str(m) for m in self.marks or ())
+
+    def alias_period(self) -> float | None:
+        """The period the alias mark points to, if the mark details give it."""
+        details = self.mark_details
+        entry = details.get("alias") if isinstance(details, Mapping) else None
+        if isinstance(entry, Mapping):
+            for key in ("parent_period", "of_period", "period"):
+                if number(entry.get(key)):
+                    return number(entry.get(key))
+            for key in ("parent_frequency", "of_frequency", "of", "frequency"):
+                frequency = number(entry.get(key))
+                if frequency:
+                    return 1.0 / frequency
+        return None
+
+
+@dataclass(frozen=True)
+class EclipseTerms(_Record):
+    """The eclipse test's numbers as stored (``core.eclipse.EclipseTest.to_dict``)."""
+
+    depth_primary: Any = None
+    depth_secondary: Any = None
+    depth_difference: Any = None
+    depth_difference_err: Any = None
+    asymmetry: Any = None
+    odd_harmonic_fraction: Any = None
+    unequal_minima: Any = None
+    depth_secondary_at_p: Any = None
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def value(self, name: str) -> float | None:
+        return number(getattr(self, name))
+
+
 def _list_of(kind, values: Any) -> Any:
     if not isinstance(values, list | tuple):
         return values
@@ -223,6 +275,11 @@ _NESTED = {
     "suggestions": (lambda v: _list_of(Suggestion, v), _list_to),
     "physics": (lambda v: _list_of(PhysicsValue, v), _list_to),
     "secondary_periods": (lambda v: _list_of(SecondaryPeriod, v), _list_to),
+    "candidates": (lambda v: _list_of(CandidatePeriod, v), _list_to),
+    "eclipse": (
+        lambda v: EclipseTerms.from_dict(v) if isinstance(v, Mapping) else v,
+        lambda v: v.to_dict() if isinstance(v, _Record) else v,
+    ),
 }
 
 
@@ -358,6 +415,26 @@ class StarResult(_Record):
         t = np.asarray(times, dtype=float)
         wanted = np.asarray([s for s in stored if s is not None])
         return tuple(int(i) for i in np.flatnonzero(np.isin(t, wanted)))
+
+    @property
+    def candidate_list(self) -> tuple[CandidatePeriod, ...]:
+        return tuple(c for c in self.candidates or () if isinstance(c, CandidatePeriod))
+
+    def chosen_candidate(self) -> CandidatePeriod | None:
+        """The candidate at the analysed frequency (else the first), or None."""
+        candidates = self.candidate_list
+        if not candidates:
+            return None
+        frequency = self.number("frequency")
+        if frequency:
+            best = min(candidates, key=lambda c: abs((number(c.frequency) or 0) - frequency))
+            if abs((number(best.frequency) or 0) - frequency) <= 1e-6 * frequency + 1e-9:
+                return best
+        return candidates[0]
+
+    @property
+    def eclipse_terms(self) -> EclipseTerms | None:
+        return self.eclipse if isinstance(self.eclipse, EclipseTerms) else None
 
     @property
     def feature_map(self) -> dict[str, Any]:
