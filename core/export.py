@@ -333,7 +333,9 @@ def catalogue_row(
         flags = [*result.flag_list, *flags]
     if stored is not None and stored.stale:
         flags.append("stale_analysis")
-    if stored is not None and stored.failed:
+    if stored is not None and stored.damaged:
+        flags.append("the stored result is damaged; see 'phasewise ledger check'")
+    elif stored is not None and stored.failed:
         flags.append("analysis failed")
     if final is not None:
         flags.extend(final.flags)
