@@ -296,7 +296,7 @@ def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, 
     suggestion's when they are the ones it asks for.  Nothing is recomputed.
     """
     flags: list[str] = []
-    decided = verdict.status in ("confirmed", "relabelled", "rejected")
+    decided = verdict.status in _DECIDED
     stored = verdict.final if decided else None
     final = FinalNumbers.from_dict(stored) if stored else None
     if final is None and result is not None and isinstance(result.final, Mapping):
@@ -315,36 +315,34 @@ def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, 
     return final, flags
 
 
-def catalogue_row(
-    verdict, info: Mapping[str, Any], stored, bands: Iterable[str] | None = None
-) -> dict[str, Any]:
+def catalogue_row(verdict, info: Mapping[str, Any], summary, stored=None) -> dict[str, Any]:
     """One catalogue row (a dict keyed by column name) of one star.
 
-    ``stored`` is the ledger's ``StoredResult`` (or None); band columns are
-    added for every band the star's final numbers have (and NaN for the
-    other ``bands``).
+    ``summary`` is the ledger's ``StarRow`` (the suggestion, FAP, flags and
+    freshness, read without the full result); ``stored`` its ``StoredResult``,
+    read only when the row needs numbers stored with the result (an
+    undecided star, or a decision stored without its numbers).
     """
     result = None
     if stored is not None and stored.result and not stored.failed:
         result = StarResult.from_dict(stored.result)
     final, flags = _final_of(verdict, result)
-    top = result.top if result is not None else None
-    if result is not None:
-        flags = [*result.flag_list, *flags]
-    if stored is not None and stored.stale:
+    flags = [*summary.flags, *flags]
+    if summary.stale:
         flags.append("stale_analysis")
     if stored is not None and stored.damaged:
         flags.append("the stored result is damaged; see 'phasewise ledger check'")
-    elif stored is not None and stored.failed:
+    elif summary.failed:
         flags.append("analysis failed")
     if final is not None:
         flags.extend(final.flags)
+    suggested = summary.suggested_class or ""
     if verdict.status == "rejected":
         row_class = verdict.class_code or ""
     elif final is not None:
         row_class = final.class_code
     else:
-        row_class = verdict.class_code or (top.class_code if top is not None else "") or ""
+        row_class = verdict.class_code or suggested
     row: dict[str, Any] = {
         "star_id": str(verdict.star_id),
         "ra": _n(info.get("ra")),
@@ -352,13 +350,10 @@ def catalogue_row(
         "status": verdict.status,
         "class": row_class,
         "verdict_class": verdict.class_code or "",
-        "suggested_class": (top.class_code or "") if top is not None else "",
-        "suggested_score": _n(top.score) if top is not None else math.nan,
-        "time_scale": (final.time_scale if final else None)
-        or (result.time_scale if result else None)
-        or info.get("time_scale")
-        or "",
-        "fap": _n(result.fap) if result is not None else math.nan,
+        "suggested_class": suggested,
+        "suggested_score": _n(summary.suggested_score),
+        "time_scale": (final.time_scale if final else None) or info.get("time_scale") or "",
+        "fap": _n(summary.fap),
         "note": verdict.note or "",
         "verdict_time": verdict.decided_at or "",
         "fourier_order": -1,
@@ -457,13 +452,24 @@ def _check_statuses(statuses: Iterable[str]) -> tuple[str, ...]:
 def catalogue_rows(
     ledger: Ledger, statuses: Iterable[str] = DEFAULT_STATUSES
 ) -> Iterator[dict[str, Any]]:
-    """The catalogue's rows, one star at a time (only that star's result in memory)."""
+    """The catalogue's rows, one star at a time (one star's records in memory).
+
+    A decided star's row comes from its verdict (with the final numbers
+    stored with it) and its summary line; the full analysis result is read
+    only for undecided stars and decisions stored without numbers.
+    """
     statuses = _check_statuses(statuses)
-    for verdict in ledger.verdicts():
+    for star in ledger.star_ids():
+        verdict = ledger.verdict(star)
         if verdict.status not in statuses:
             continue
-        star = verdict.star_id
-        yield catalogue_row(verdict, ledger.star_info(star), ledger.result(star))
+        needs_result = not (verdict.status in _DECIDED and verdict.final)
+        stored = ledger.result(star) if needs_result else None
+        yield catalogue_row(verdict, ledger.star_info(star), ledger.star_row(star), stored)
+
+
+#: Verdict states whose row shows the numbers stored with the verdict.
+_DECIDED = ("confirmed", "relabelled", "rejected")
 
 
 # ------------------------------------------------------------------ the spool

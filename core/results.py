@@ -61,12 +61,21 @@ class _Record:
         return cls._KEYS.get(name, name)
 
     @classmethod
+    def _names(cls) -> tuple[tuple[str, str], ...]:
+        """(field name, stored key) pairs, worked out once per class."""
+        cached = cls.__dict__.get("_names_cache")
+        if cached is None:
+            cached = tuple(
+                (f.name, cls._key(f.name)) for f in fields(cls) if f.name not in ("extra",)
+            )
+            cls._names_cache = cached
+        return cached
+
+    @classmethod
     def from_dict(cls, data: Mapping[str, Any] | None):
         data = dict(data or {})
-        names = [f.name for f in fields(cls) if f.name not in ("extra", "_present")]
         values, present = {}, []
-        for name in names:
-            key = cls._key(name)
+        for name, key in cls._names():
             if key in data:
                 values[name] = data.pop(key)
                 present.append(key)

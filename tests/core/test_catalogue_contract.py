@@ -17,7 +17,7 @@ import pytest
 
 from phasewise.core.classes import CLASSES, EPOCH_MAXIMUM, EPOCH_PRIMARY_MINIMUM
 from phasewise.core.export import catalogue_table
-from phasewise.core.final import finalise_stars, record_verdict
+from phasewise.core.final import finalise_stars, record_verdict, result_key
 from phasewise.core.fourier import fit_fourier
 from phasewise.core.physics import RELATIONS
 from phasewise.core.results import StarResult
@@ -252,6 +252,8 @@ def test_finalise_after_reanalysis(field):
     stored = ledger.result(star).result
     changed = {**stored, "outlier_times": [*stored.get("outlier_times", []), -1.0]}
     ledger.store_results([(star, stored["settings_hash"], changed)])
-    assert "earlier analysis" in _rows(ledger)[star]["flags"]
+    # what 'phasewise analyse' does after a run: the numbers follow the new result
     assert finalise_stars(ledger, [star]) == 1
+    assert ledger.verdict(star).final["result_key"] == result_key(changed)
+    assert finalise_stars(ledger, [star]) == 0
     assert "earlier analysis" not in _rows(ledger)[star]["flags"]
