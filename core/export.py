@@ -273,12 +273,17 @@ def _relation(item: PhysicsValue | None) -> str:
     return name or citation
 
 
+_TO_PC: dict[str, float] = {}
+
+
 def _distance_pc(item: PhysicsValue | None, value: Any) -> float:
     value = number(value)
     if item is None or value is None:
         return math.nan
     if item.unit:
-        value = (value * u.Unit(item.unit)).to_value(u.pc)
+        if item.unit not in _TO_PC:  # astropy's conversion, worked out once per unit
+            _TO_PC[item.unit] = float(u.Unit(item.unit).to(u.pc))
+        value *= _TO_PC[item.unit]
     return value
 
 
@@ -454,18 +459,20 @@ def catalogue_rows(
 ) -> Iterator[dict[str, Any]]:
     """The catalogue's rows, one star at a time (one star's records in memory).
 
-    A decided star's row comes from its verdict (with the final numbers
-    stored with it) and its summary line; the full analysis result is read
-    only for undecided stars and decisions stored without numbers.
+    The stars are chosen from the ledger's narrow summary lines; a decided
+    star's row comes from its verdict (with the final numbers stored with
+    it) and its summary line; the full analysis result is read only for
+    undecided stars and decisions stored without numbers.
     """
     statuses = _check_statuses(statuses)
-    for star in ledger.star_ids():
-        verdict = ledger.verdict(star)
-        if verdict.status not in statuses:
+    for summary in ledger.star_rows():
+        if summary.status not in statuses:
             continue
+        star = summary.star_id
+        verdict = ledger.verdict(star)
         needs_result = not (verdict.status in _DECIDED and verdict.final)
         stored = ledger.result(star) if needs_result else None
-        yield catalogue_row(verdict, ledger.star_info(star), ledger.star_row(star), stored)
+        yield catalogue_row(verdict, ledger.star_info(star), summary, stored)
 
 
 #: Verdict states whose row shows the numbers stored with the verdict.
@@ -608,11 +615,30 @@ def _format_for(path: Path, format: str | None) -> str:
     )
 
 
-def _number_text(value: Any, kind: str, missing: str) -> str:
-    if kind == "int":
-        return str(int(value))
-    value = float(value)
-    return repr(value) if math.isfinite(value) else missing
+def _cell_writers(columns: list[Column], text, missing_number: str):
+    """One function per column turning a spooled row into the cell's text."""
+
+    def writer(c: Column):
+        name = c.name
+        if c.text:
+            return lambda row: text(row.get(name, ""))
+        if c.kind == "int":
+            return lambda row: str(int(row.get(name, -1)))
+
+        def number_cell(row):
+            value = row.get(name)
+            if value is None:
+                return missing_number
+            value = float(value)
+            return repr(value) if math.isfinite(value) else missing_number
+
+        return number_cell
+
+    return [writer(c) for c in columns]
+
+
+def _ecsv_text(value: str) -> str:
+    return '"' + value.replace('"', '""') + '"'
 
 
 def _write_ecsv(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path) -> None:
@@ -627,20 +653,11 @@ def _write_ecsv(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], p
     empty.meta.update(meta)
     header = io.StringIO()
     empty.write(header, format="ascii.ecsv")
+    cells = _cell_writers(columns, _ecsv_text, "nan")
     with open(path, "w", encoding="utf-8", newline="") as out:
         out.write(header.getvalue())
         for batch in spool.batches(2000):
-            lines = []
-            for row in batch:
-                cells = []
-                for c in columns:
-                    value = row.get(c.name, _missing(c))
-                    if c.text:
-                        cells.append('"' + str(value).replace('"', '""') + '"')
-                    else:
-                        cells.append(_number_text(value, c.kind, "nan"))
-                lines.append(" ".join(cells))
-            out.write("\n".join(lines) + "\n")
+            out.write("".join(" ".join([cell(row) for cell in cells]) + "\n" for row in batch))
 
 
 def sidecar_path(path: str | os.PathLike) -> Path:
@@ -651,21 +668,12 @@ def sidecar_path(path: str | os.PathLike) -> Path:
 
 def _write_csv(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path) -> None:
     """CSV: the header line, then the rows in batches; NaN as an empty cell."""
+    cells = _cell_writers(columns, neutralise_formula, "")
     with open(path, "w", encoding="utf-8", newline="") as out:
         writer = csv.writer(out, lineterminator="\n")
         writer.writerow([c.name for c in columns])
         for batch in spool.batches(2000):
-            rows = []
-            for row in batch:
-                cells = []
-                for c in columns:
-                    value = row.get(c.name, _missing(c))
-                    if c.text:
-                        cells.append(neutralise_formula(str(value)))
-                    else:
-                        cells.append(_number_text(value, c.kind, ""))
-                rows.append(cells)
-            writer.writerows(rows)
+            writer.writerows([[cell(row) for cell in cells] for row in batch])
 
 
 def _sidecar(columns: list[Column], meta: Mapping[str, Any], catalogue: Path) -> str:
