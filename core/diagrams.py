@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from dataclasses import fields as dataclass_fields
 from typing import Any
 
@@ -36,7 +36,7 @@ import numpy as np
 from . import physics
 from .classes import CLASSES
 from .errors import PhasewiseError
-from .results import StarResult
+from .results import FourierTerms, StarResult
 from .validation import require_int, require_positive
 
 __all__ = [
@@ -164,11 +164,13 @@ class StarPoint:
         verdict_class: str | None = None,
         status: str = "unreviewed",
         verdict_period: float | None = None,
+        final: Mapping[str, Any] | None = None,
     ) -> StarPoint:
         """Build a point from an ``AnalysisResult.to_dict()`` and the verdict.
 
         The verdict's period, when the person chose one, replaces the analysed
-        period.  A missing or failed result gives a point with no coordinates
+        period; the verdict's final numbers (``final``), when stored, replace
+        the analysed ones.  A missing or failed result gives a point with no coordinates
         (it is counted in the summary but drawn in no diagram).
         """
         model = result if isinstance(result, StarResult) else StarResult.from_dict(result)
@@ -180,7 +182,7 @@ class StarPoint:
         amplitudes = _band_map(model.band_numbers("amplitude_by_band"))
         means = _band_map(model.band_numbers("mean_mag_by_band"))
         features = _features(model, period, amplitudes, means)
-        return cls(
+        point = cls(
             star_id=str(star_id),
             class_code=code,
             class_source=source,
@@ -193,6 +195,46 @@ class StarPoint:
             shorter_period=shorter,
             longer_period=longer,
             primary_band=model.primary_band,
+            features=features,
+        )
+        return point.with_final(final) if final else point
+
+    def with_final(self, final: Mapping[str, Any]) -> StarPoint:
+        """This point with a verdict's final numbers (``core.final``): every
+        number then belongs to the verdict's class and period."""
+        from .final import FinalNumbers
+
+        numbers = FinalNumbers.from_dict(final)
+        if numbers.period is None:
+            return replace(self, period=None, shorter_period=None, longer_period=None)
+        terms = FourierTerms.from_dict(numbers.fourier or {})
+        amplitudes = {b: n.amplitude for b, n in numbers.bands.items() if n.amplitude is not None}
+        means = {b: n.mean_mag for b, n in numbers.bands.items() if n.mean_mag is not None}
+        features = dict(self.features)
+        features.update({f"amplitude_{b}": v for b, v in amplitudes.items()})
+        features.update({f"mean_mag_{b}": v for b, v in means.items()})
+        for k in (1, 2, 3):
+            features[f"A{k}"] = terms.amplitude(k)
+        features.update(
+            period=numbers.period,
+            period_err=numbers.period_err,
+            log_period=math.log10(numbers.period),
+            R21=terms.value("R21"),
+            phi31=terms.sine_phi("phi31"),
+            primary_band=numbers.fourier_band or self.primary_band,
+        )
+        shorter = longer = None
+        if numbers.period2 is not None:
+            shorter, longer = sorted((numbers.period, numbers.period2))
+        return replace(
+            self,
+            period=numbers.period,
+            amplitude_by_band=amplitudes,
+            mean_mag_by_band=means or self.mean_mag_by_band,
+            R21=terms.value("R21"),
+            phi31=terms.sine_phi("phi31"),
+            shorter_period=shorter,
+            longer_period=longer,
             features=features,
         )
 
@@ -314,6 +356,7 @@ def _point(ledger: Any, verdict: Any) -> StarPoint:
         verdict_class=verdict.class_code,
         status=verdict.status,
         verdict_period=verdict.period,
+        final=verdict.final if verdict.status in _DECIDED else None,
     )
 
 

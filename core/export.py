@@ -497,7 +497,9 @@ class _Spool:
                     if isinstance(value, str):
                         value = escape_controls(value)
                         row[key] = value
-                        self.widths[key] = max(self.widths.get(key, 1), len(value))
+                        # FITS transliterates to ASCII: at most three characters for one
+                        width = len(value) if value.isascii() else 3 * len(value)
+                        self.widths[key] = max(self.widths.get(key, 1), width)
                     if key.startswith("n_points_") and key not in fixed:
                         band = key[len("n_points_") :]
                         self.band_count[band] = self.band_count.get(band, 0) + 1
@@ -711,19 +713,30 @@ def _ascii(text: str) -> str:
     return bare.encode("ascii", "replace").decode("ascii")
 
 
+def _fits_dtype(columns: list[Column], widths: Mapping[str, int]) -> np.dtype:
+    return np.dtype(
+        [
+            (
+                c.name,
+                f"S{widths.get(c.name, 1)}" if c.text else (">i4" if c.kind == "int" else ">f8"),
+            )
+            for c in columns
+        ]
+    )
+
+
 def _write_fits(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path) -> None:
-    """FITS tables and headers hold ASCII only: texts are transliterated (the
-    ECSV, VOTable and CSV catalogues keep them as they are)."""
+    """FITS: the header from astropy, then the rows as binary records in batches.
+
+    FITS tables and headers hold ASCII only: texts are transliterated (the
+    ECSV, VOTable and CSV catalogues keep them as they are).
+    """
     from astropy.io import fits
 
-    table = _table(spool, columns, {})
-    for c in columns:
-        if c.text:
-            table[c.name] = np.array([_ascii(v) for v in table[c.name]], dtype=str)
-            if not len(table):
-                table[c.name] = np.zeros(0, dtype="U1")
-    hdu = fits.table_to_hdu(table)
+    dtype = _fits_dtype(columns, spool.widths)
+    hdu = fits.BinTableHDU(np.zeros(0, dtype=dtype))
     header = hdu.header
+    header["NAXIS2"] = spool.n
     header["EXTNAME"] = "VETTED"
     header["PROGRAM"] = _ascii(meta["program"])
     header["DATE"] = meta["date"]
@@ -732,6 +745,8 @@ def _write_fits(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], p
     header["SETHASH"] = meta["settings_hash"] or ""
     header["SETTINGS"] = json.dumps(meta["analysis_settings"], sort_keys=True)  # ASCII-escaped
     for index, c in enumerate(columns, start=1):
+        if c.unit is not None:
+            header[f"TUNIT{index}"] = c.unit.to_string(format="fits")
         header[f"TUCD{index}"] = c.ucd
         header[f"TCOMM{index}"] = _ascii(c.description)[:68]
     for relation in meta["relations"]:
@@ -739,26 +754,52 @@ def _write_fits(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], p
     header.add_comment(_ascii(meta["caution"]))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", fits.verify.VerifyWarning)
-        fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(path)
+        primary = fits.PrimaryHDU().header.tostring()
+        table_header = header.tostring()
+    written = 0
+    with open(path, "wb") as out:
+        out.write(primary.encode("ascii"))
+        out.write(table_header.encode("ascii"))
+        for batch in spool.batches(5000):
+            records = np.zeros(len(batch), dtype=dtype)
+            for c in columns:
+                name = c.name
+                if c.text:
+                    records[name] = [_ascii(row.get(name, "")).encode("ascii") for row in batch]
+                else:
+                    missing = -1 if c.kind == "int" else math.nan
+                    records[name] = [row.get(name, missing) for row in batch]
+            out.write(records.tobytes())
+            written += records.nbytes
+        out.write(b"\0" * (-written % 2880))  # FITS blocks are 2880 bytes
 
 
 def _write_votable(
     spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path
 ) -> None:
+    """VOTable: the document from astropy around one dummy row, whose place the
+    rows take, written in batches as TABLEDATA."""
+    from xml.sax.saxutils import escape
+
     from astropy.io.votable import from_table, writeto
     from astropy.io.votable.tree import Info
 
-    table = _table(spool, columns, {})
-    votable = from_table(table)
+    dummy = Table()
+    for c in columns:
+        if c.text:
+            dummy[c.name] = np.array([""], dtype=f"U{spool.widths.get(c.name, 1)}")
+        else:
+            dummy[c.name] = np.zeros(1, dtype=np.int32 if c.kind == "int" else np.float64)
+    votable = from_table(dummy)
     votable.version = "1.4"  # TIMESYS needs 1.4
     resource = votable.resources[0]
     vtable = resource.tables[0]
     vtable.name = "vetted_catalogue"
     vtable.description = "Vetted catalogue of variable stars written by Phasewise."
-    by_name = {c.name: c for c in columns}
-    for field in vtable.fields:
-        field.ucd = by_name[field.name].ucd
-        field.description = by_name[field.name].description
+    for field, c in zip(vtable.fields, columns, strict=True):
+        field.ucd = c.ucd
+        field.description = c.description
+        field.unit = c.unit
     _add_time_system(votable, vtable, spool.time_scales)
     for key in ("program", "date", "ledger", "ledger_checksum", "settings_hash"):
         resource.infos.append(Info(name=key, value=escape_controls(str(meta[key] or ""))))
@@ -768,7 +809,22 @@ def _write_votable(
     for relation in meta["relations"]:
         resource.infos.append(Info(name="relation", value=escape_controls(relation)))
     resource.infos.append(Info(name="caution", value=meta["caution"]))
-    writeto(votable, str(path))
+    document = io.BytesIO()
+    writeto(votable, document)
+    text = document.getvalue().decode("utf-8")
+    start = text.index("<TABLEDATA>") + len("<TABLEDATA>")
+    end = text.index("</TABLEDATA>")
+    cells = _cell_writers(columns, escape, "NaN")
+    with open(path, "w", encoding="utf-8") as out:
+        out.write(text[:start] + "\n")
+        for batch in spool.batches(2000):
+            out.write(
+                "".join(
+                    "<TR>" + "".join(["<TD>" + cell(row) + "</TD>" for cell in cells]) + "</TR>\n"
+                    for row in batch
+                )
+            )
+        out.write("    " + text[end:])
 
 
 # VOTable 1.4 TIMESYS for each Phasewise time scale: (time scale, reference position,

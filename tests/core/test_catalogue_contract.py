@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 
 from phasewise.core.classes import CLASSES, EPOCH_MAXIMUM, EPOCH_PRIMARY_MINIMUM
+from phasewise.core.diagrams import star_point
 from phasewise.core.export import catalogue_table
 from phasewise.core.final import finalise_stars, record_verdict, result_key
 from phasewise.core.fourier import fit_fourier
@@ -257,3 +258,16 @@ def test_finalise_after_reanalysis(field):
     assert ledger.verdict(star).final["result_key"] == result_key(changed)
     assert finalise_stars(ledger, [star]) == 0
     assert "earlier analysis" not in _rows(ledger)[star]["flags"]
+
+
+def test_population_points_use_the_verdicts_numbers(field):
+    ledger, roles, _ = field
+    star = roles["ew_as_rrc"]
+    record_verdict(ledger, star, "relabelled", class_code="EW")
+    point = star_point(ledger, star)
+    row = _rows(ledger)[star]
+    assert point.class_code == "EW" and point.period == row["period"]
+    assert point.R21 == row["R21"] > 1.0  # the orbital period's Fourier terms
+    assert point.features["period"] == row["period"]
+    record_verdict(ledger, star, "relabelled", class_code="CONST")
+    assert star_point(ledger, star).period is None
