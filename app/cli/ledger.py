@@ -252,6 +252,17 @@ def run_verdict(args: argparse.Namespace) -> int:
             note=args.note,
         )
     print(terminal_text(f"{args.ledger}: {verdict.star_id}: {_verdict_text(verdict.to_dict())}"))
+    if verdict.status in ("confirmed", "relabelled") and verdict.final is None:
+        print(
+            "  note: no final numbers (the star has no usable analysis); the catalogue "
+            "leaves its numbers blank until it is analysed"
+        )
+    elif verdict.final and verdict.final.get("period") is not None:
+        final = verdict.final
+        print(
+            f"  final numbers: {final['class']} P={final['period']:.7g} d "
+            f"(from the {final['period_source']}), epoch at {final['epoch_kind']}"
+        )
     return 0
 
 
