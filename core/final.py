@@ -32,7 +32,7 @@ import numpy as np
 
 from .classes import CLASSES, canonical_code, class_info
 from .errors import PhasewiseError
-from .results import StarResult, number
+from .results import FourierTerms, StarResult, number
 
 if TYPE_CHECKING:  # pragma: no cover
     from .analysis import AnalysisSettings
@@ -492,7 +492,13 @@ def _periodic(kept, result, code, asked, source, flags, common, settings) -> Fin
                     flags.append(f"period {asked:.8g} d refined locally to {1.0 / frequency:.8g} d")
             else:
                 flags.append(f"period not refined: {refined.message}")
-    fits = decompose(kept, frequency, settings.fourier)
+    fits = None
+    if _same(1.0 / frequency, analysed) and not info.eclipsing:
+        fits = _stored_fits(result)  # the analysis's own fits at this period
+        if fits and sum(f.n_points for f in fits.values()) != kept.n_good:
+            fits = None  # made from other points than these
+    if not fits:
+        fits = decompose(kept, frequency, settings.fourier)
     if not fits:
         return _aperiodic(
             kept, common, asked=asked, flags=(*flags, "no band supports a Fourier fit")
@@ -572,6 +578,40 @@ def _periodic(kept, result, code, asked, source, flags, common, settings) -> Fin
         flags=tuple(flags),
         **common,
     )
+
+
+class _StoredFit:
+    """A stored Fourier fit read like a ``FourierFit`` (the numbers the final ones use)."""
+
+    def __init__(self, terms: FourierTerms) -> None:
+        self.terms = terms
+        self.n_points = int(terms.n_points)
+        for name in (
+            "mean_mag",
+            "A0_err",
+            "intensity_mean_mag",
+            "peak_to_peak",
+            "peak_to_peak_err",
+            "epoch_max",
+            "epoch_max_err",
+        ):
+            setattr(self, name, terms.value(name))
+
+    def to_dict(self) -> dict[str, Any]:
+        return self.terms.to_dict()
+
+
+def _stored_fits(result: StarResult) -> dict[str, _StoredFit] | None:
+    """The analysis's per-band fits, when every band's is complete; else None."""
+    fits = {}
+    for band in result.band_list:
+        terms = result.band_fourier(band)
+        if terms is None:
+            continue
+        if terms.n_points is None or terms.value("mean_mag") is None:
+            return None
+        fits[band] = _StoredFit(terms)
+    return fits or None
 
 
 def _json_fit(fit) -> dict[str, Any]:
