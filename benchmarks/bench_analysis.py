@@ -72,7 +72,12 @@ def run(label: str, lcs, settings) -> None:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--stars", type=int, default=40)
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
+    if args.smoke:
+        args.stars = 2
     field = synthetic_field(args.stars, n_epochs=700, seed=3)
     lcs = field.lightcurves()
     baseline = float(np.median([lc.baseline for lc in lcs]))

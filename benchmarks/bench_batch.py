@@ -206,7 +206,12 @@ def main() -> None:
     parser.add_argument(
         "--compare-stars", type=int, default=200, help="for the one-core comparisons"
     )
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
+    if args.smoke:
+        args.field_stars, args.demo_stars, args.epochs, args.compare_stars = 8, 4, 120, 4
     print(f"cores available: {len(os.sched_getaffinity(0))}; load average {os.getloadavg()[0]:.1f}")
     print("(a shared machine: other jobs run beside this one; figures are of this run)\n")
 

@@ -208,8 +208,11 @@ def bench_first_star(tmp: Path, n_stars: int) -> tuple[float, str]:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer repeats, 2,000-star ledger")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
-    repeats = 10 if args.quick else 30
+    repeats = 2 if args.smoke else 10 if args.quick else 30
     with tempfile.TemporaryDirectory() as d:
         tmp = Path(d)
         load = os.getloadavg()[0]
@@ -230,7 +233,7 @@ def main() -> None:
             f"100 ms, ratio {shown / 100:.2f} wall, {cpu / 100:.2f} CPU); "
             f"with its periodogram computed: {full:.1f} ms"
         )
-        n_stars = 2_000 if args.quick else 10_000
+        n_stars = 50 if args.smoke else 2_000 if args.quick else 10_000
         ms, first = bench_first_star(tmp, n_stars)
         print(
             f"{n_stars:,}-star ledger, first star ({first}) shown: {ms:7.0f} ms after start "

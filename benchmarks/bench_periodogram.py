@@ -69,7 +69,12 @@ def invented_star(rng, n_points=700, baseline=400.0):
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer repeats")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
+    if args.smoke:
+        args.quick = True
     reps = 3 if args.quick else 15
 
     import nifty_ls

@@ -157,7 +157,12 @@ def main() -> None:
     parser.add_argument("--stars", type=int, default=1000)
     parser.add_argument("--repeat", type=int, default=3, help="best of this many runs")
     parser.add_argument("--gui", action="store_true", help="also time the view's redraw")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
+    if args.smoke:
+        args.stars, args.repeat = 20, 1
     small = invented_points(args.stars)
     large = [replace(p, star_id=f"{p.star_id}-{k}") for k in range(10) for p in small]
     time_core(small[:50])  # warm-up: imports and first calls

@@ -87,7 +87,12 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--n-stars", type=int, default=None)
     parser.add_argument("--seed", type=int, default=None, help="default: the demo seed")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args(argv)
+    if args.smoke:
+        args.n_stars = 6
 
     lightcurves, truth = _survey(args.n_stars, args.seed)
     truth_by_star = _true_classes(truth)

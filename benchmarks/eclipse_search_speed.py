@@ -152,7 +152,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--stars", type=int, default=8)
     parser.add_argument("--repeat", type=int, default=5)
     parser.add_argument("--seed", type=int, default=3)
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args(argv)
+    if args.smoke:
+        args.stars, args.repeat = 1, 1
     stars = synthetic_field(args.stars, n_epochs=700, seed=args.seed, shared_epochs=False)
     es.eclipse_search(stars.lightcurves()[0])  # compile or load the loop outside the timing
     rows = [_one_star(lc, args.repeat) for lc in stars.lightcurves()]

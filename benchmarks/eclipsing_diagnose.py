@@ -60,7 +60,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--classes", default="", help="comma list: only diagnose these")
     parser.add_argument("--quiet", action="store_true", help="accuracy table only")
     parser.add_argument("--json", default="", help="write per-star rows here")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args(argv)
+    if args.smoke:
+        args.n_stars, args.quiet = 12, True
 
     survey = make_survey(n_stars=args.n_stars, seed=args.seed, cadence=CADENCES[args.cadence])
     truth_code = _true_classes(survey.truth)

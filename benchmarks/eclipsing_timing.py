@@ -27,7 +27,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--n", type=int, default=30)
     parser.add_argument("--seed", type=int, default=20261201)
     parser.add_argument("--repeat", type=int, default=3)
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args(argv)
+    if args.smoke:
+        args.n, args.repeat = 2, 1
     survey = make_survey(n_stars=300, seed=args.seed)
     stars = survey.lightcurves[: args.n]
     settings = AnalysisSettings()

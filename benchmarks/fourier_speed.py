@@ -198,7 +198,12 @@ def main() -> None:
     parser.add_argument("--ref", default="main", help="git revision to compare with")
     parser.add_argument("--repeat", type=int, default=7)
     parser.add_argument("--analyse", action="store_true", help="also time analyse() per star")
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
     args = parser.parse_args()
+    if args.smoke:
+        args.stars, args.repeat, args.ref = 2, 1, "HEAD"
 
     reference = load_reference(args.ref)
     lightcurves, settings = field_and_settings(args.stars)

@@ -29,6 +29,8 @@ from phasewise.core.lightcurve import LightCurve  # noqa: E402
 from phasewise.core.prewhiten import PrewhitenSettings, prewhiten  # noqa: E402
 
 N_FREQ = 100_000
+#: repeats per timed step (1 with --smoke)
+REPEAT = 30
 
 
 def star():
@@ -51,7 +53,8 @@ def nifty_search(lc):
     return res.freq(), res.power
 
 
-def median_ms(fn, repeat=30):
+def median_ms(fn, repeat=None):
+    repeat = REPEAT if repeat is None else min(repeat, REPEAT)
     fn()
     times = []
     for _ in range(repeat):
@@ -62,6 +65,15 @@ def median_ms(fn, repeat=30):
 
 
 def main() -> None:
+    import argparse
+
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument(
+        "--smoke", action="store_true", help="a tiny run that only checks the script works"
+    )
+    global REPEAT
+    if parser.parse_args().smoke:
+        REPEAT = 1
     lc, f = star()
     t, m, e = lc.arrays()
     order = choose_order(t, m, e, f).order
@@ -75,7 +87,7 @@ def main() -> None:
     }
     settings = PrewhitenSettings(max_frequencies=5)
     total, own, n_search = [], [], []
-    for _ in range(11):
+    for _ in range(2 if REPEAT == 1 else 11):
         spent = []
 
         def timed(lc_, spent=spent):

@@ -33,6 +33,7 @@ from .classify import features_from_result, load_rulebook, suggest
 from .clean import CleanReport, CleanSettings, clean
 from .eclipse import EclipseSettings, EclipseTest, eclipse_test
 from .errors import PhasewiseError, plain_reason
+from .final import suggested_final_dict
 from .fourier import (
     FourierFit,
     FourierSettings,
@@ -165,6 +166,7 @@ class AnalysisResult:
     clean_report: CleanReport | None = None
     outlier_times: tuple[float, ...] = ()
     flags: tuple[str, ...] = ()
+    final: dict[str, Any] | None = None
 
     # ------------------------------------------------------------- numbers
     @property
@@ -230,6 +232,7 @@ class AnalysisResult:
             "clean": self.clean_report.to_dict() if self.clean_report else None,
             "outlier_times": [float(t) for t in self.outlier_times],
             "flags": list(self.flags),
+            "final": self.final,
         }
 
 
@@ -392,7 +395,10 @@ def _analyse(
     physics: tuple[PhysicalValue, ...] = ()
     if suggestions:
         physics = derive(suggestions[0].class_code, features, settings.physics)
-    return replace(measured, features=features, suggestions=suggestions, physics=physics)
+    result = replace(measured, features=features, suggestions=suggestions, physics=physics)
+    # the top suggestion's final numbers (class and period, e.g. an eclipsing
+    # binary at its orbital period): what an unreviewed row exports
+    return replace(result, final=suggested_final_dict(lc, result.to_dict(), settings))
 
 
 def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any, ...]:

@@ -27,14 +27,16 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from dataclasses import fields as dataclass_fields
 from typing import Any
 
 import numpy as np
 
 from . import physics
+from .classes import CLASSES
 from .errors import PhasewiseError
+from .results import FourierTerms, StarResult
 from .validation import require_int, require_positive
 
 __all__ = [
@@ -89,7 +91,9 @@ DIAGRAMS: dict[str, str] = {
 }
 
 #: Classes that have no locus to be far from: never used for the outlier rule.
-NO_LOCUS_CLASSES = frozenset({"UNKNOWN", "CONST", "REJECTED"})
+NO_LOCUS_CLASSES = frozenset(
+    {"UNKNOWN", "REJECTED"} | {c.code for c in CLASSES.values() if not c.periodic}
+)
 
 #: Verdict states whose class is the person's, not the machine's.
 _DECIDED = frozenset({"confirmed", "relabelled"})
@@ -160,22 +164,25 @@ class StarPoint:
         verdict_class: str | None = None,
         status: str = "unreviewed",
         verdict_period: float | None = None,
+        final: Mapping[str, Any] | None = None,
     ) -> StarPoint:
         """Build a point from an ``AnalysisResult.to_dict()`` and the verdict.
 
         The verdict's period, when the person chose one, replaces the analysed
-        period.  A missing or failed result gives a point with no coordinates
+        period; the verdict's final numbers (``final``), when stored, replace
+        the analysed ones.  A missing or failed result gives a point with no coordinates
         (it is counted in the summary but drawn in no diagram).
         """
-        result = result or {}
-        code, source = class_used(status, verdict_class, result.get("suggestions"))
-        period = _finite(verdict_period) or _finite(result.get("period"))
-        fourier = result.get("fourier") or {}
-        shorter, longer = _double_mode(period, result)
-        amplitudes = _band_map(result.get("amplitude_by_band"))
-        means = _band_map(result.get("mean_mag_by_band"))
-        features = _features(result, period, amplitudes, means)
-        return cls(
+        model = result if isinstance(result, StarResult) else StarResult.from_dict(result)
+        suggestions = [{"class": s.class_code} for s in model.suggestion_list]
+        code, source = class_used(status, verdict_class, suggestions)
+        period = _finite(verdict_period) or model.number("period")
+        fourier = model.primary_fourier
+        shorter, longer = _double_mode(period, model)
+        amplitudes = _band_map(model.band_numbers("amplitude_by_band"))
+        means = _band_map(model.band_numbers("mean_mag_by_band"))
+        features = _features(model, period, amplitudes, means)
+        point = cls(
             star_id=str(star_id),
             class_code=code,
             class_source=source,
@@ -183,11 +190,51 @@ class StarPoint:
             period=period,
             amplitude_by_band=amplitudes,
             mean_mag_by_band=means,
-            R21=_finite(fourier.get("R21")),
-            phi31=_sine_phi31(fourier),
+            R21=fourier.value("R21") if fourier else None,
+            phi31=fourier.sine_phi("phi31") if fourier else None,
             shorter_period=shorter,
             longer_period=longer,
-            primary_band=result.get("primary_band"),
+            primary_band=model.primary_band,
+            features=features,
+        )
+        return point.with_final(final) if final else point
+
+    def with_final(self, final: Mapping[str, Any]) -> StarPoint:
+        """This point with a verdict's final numbers (``core.final``): every
+        number then belongs to the verdict's class and period."""
+        from .final import FinalNumbers
+
+        numbers = FinalNumbers.from_dict(final)
+        if numbers.period is None:
+            return replace(self, period=None, shorter_period=None, longer_period=None)
+        terms = FourierTerms.from_dict(numbers.fourier or {})
+        amplitudes = {b: n.amplitude for b, n in numbers.bands.items() if n.amplitude is not None}
+        means = {b: n.mean_mag for b, n in numbers.bands.items() if n.mean_mag is not None}
+        features = dict(self.features)
+        features.update({f"amplitude_{b}": v for b, v in amplitudes.items()})
+        features.update({f"mean_mag_{b}": v for b, v in means.items()})
+        for k in (1, 2, 3):
+            features[f"A{k}"] = terms.amplitude(k)
+        features.update(
+            period=numbers.period,
+            period_err=numbers.period_err,
+            log_period=math.log10(numbers.period),
+            R21=terms.value("R21"),
+            phi31=terms.sine_phi("phi31"),
+            primary_band=numbers.fourier_band or self.primary_band,
+        )
+        shorter = longer = None
+        if numbers.period2 is not None:
+            shorter, longer = sorted((numbers.period, numbers.period2))
+        return replace(
+            self,
+            period=numbers.period,
+            amplitude_by_band=amplitudes,
+            mean_mag_by_band=means or self.mean_mag_by_band,
+            R21=terms.value("R21"),
+            phi31=terms.sine_phi("phi31"),
+            shorter_period=shorter,
+            longer_period=longer,
             features=features,
         )
 
@@ -230,25 +277,28 @@ def _band_map(values: Mapping[str, Any] | None) -> dict[str, float]:
 
 
 def _features(
-    result: Mapping[str, Any],
+    result: StarResult,
     period: float | None,
     amplitudes: Mapping[str, float],
     means: Mapping[str, float],
 ) -> dict[str, Any]:
     """The analysis features, filled from the result where the analysis left them out."""
-    fourier = result.get("fourier") or {}
-    features: dict[str, Any] = {"primary_band": result.get("primary_band")}
+    fourier = result.primary_fourier
+    features: dict[str, Any] = {"primary_band": result.primary_band}
     for band, value in amplitudes.items():
         features[f"amplitude_{band}"] = value
     for band, value in means.items():
         features[f"mean_mag_{band}"] = value
-    amps = fourier.get("amplitudes") or ()
-    for k, value in enumerate(amps[:3], start=1):
-        features[f"A{k}"] = _finite(value)
-    features["R21"] = _finite(fourier.get("R21"))
-    features["phi31"] = _sine_phi31(fourier)
-    features["period_err"] = _finite(result.get("period_err"))
-    features.update({k: v for k, v in (result.get("features") or {}).items() if v is not None})
+    if fourier is not None:
+        for k in (1, 2, 3):
+            if fourier.amplitude(k) is not None:
+                features[f"A{k}"] = fourier.amplitude(k)
+        features["R21"] = fourier.value("R21")
+        features["phi31"] = fourier.sine_phi("phi31")
+    else:
+        features["R21"] = features["phi31"] = None
+    features["period_err"] = result.number("period_err")
+    features.update({k: v for k, v in result.feature_map.items() if v is not None})
     if period is not None:
         # the verdict's period, when the person chose one, is the star's period
         features["period"] = period
@@ -256,17 +306,7 @@ def _features(
     return features
 
 
-def _sine_phi31(fourier: Mapping[str, Any]) -> float | None:
-    phi31 = _finite(fourier.get("phi31"))
-    if phi31 is None:
-        return None
-    if fourier.get("form", "sine") == "cosine":
-        # phi31(sin) = phi31(cos) - pi (mod 2 pi): cos x = sin(x + pi/2), see REFERENCES.md
-        phi31 = (phi31 - math.pi) % (2 * math.pi)
-    return phi31
-
-
-def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float | None, ...]:
+def _double_mode(period: float | None, result: StarResult) -> tuple[float | None, ...]:
     """Shorter and longer of the primary and the secondary period the ratio refers to.
 
     Only secondary periods of kind ``independent`` count (``core.prewhiten``).
@@ -274,16 +314,15 @@ def _double_mode(period: float | None, result: Mapping[str, Any]) -> tuple[float
     if period is None or period <= 0:
         return None, None
     seconds = []
-    for entry in result.get("secondary_periods") or ():
-        if isinstance(entry, Mapping) and entry.get("kind", "independent") != "independent":
+    for entry in result.secondary_list:
+        if (entry.kind or "independent") != "independent":
             continue  # harmonics, combinations and side peaks are not a second mode
-        value = entry.get("period") if isinstance(entry, Mapping) else entry
-        number = _finite(value)
+        number = _finite(entry.period)
         if number is not None and number > 0 and not math.isclose(number, period):
             seconds.append(number)
     if not seconds:
         return None, None
-    ratio = _finite(result.get("period_ratio"))
+    ratio = result.number("period_ratio")
     if ratio is not None and ratio > 0:
         ratio = min(ratio, 1 / ratio)
         # the secondary period whose ratio with the primary matches the stated one
@@ -317,6 +356,7 @@ def _point(ledger: Any, verdict: Any) -> StarPoint:
         verdict_class=verdict.class_code,
         status=verdict.status,
         verdict_period=verdict.period,
+        final=verdict.final if verdict.status in _DECIDED else None,
     )
 
 
@@ -501,7 +541,9 @@ RATIO_WINDOW = (0.60, 0.90)
 #: Classes with a locus in the period-ratio diagram (the outlier rule tests only these).
 DOUBLE_MODE_CLASSES = frozenset({"RRd"})
 
-_NOT_PULSATING = frozenset({"CONST", "REJECTED", "EA", "EB", "EW", "LPV"})
+_NOT_PULSATING = frozenset(
+    {"REJECTED", "LPV"} | {c.code for c in CLASSES.values() if not (c.pulsating and c.periodic)}
+) - {"UNKNOWN"}
 
 
 def period_ratio(points: Iterable[StarPoint]) -> Diagram:
@@ -824,7 +866,7 @@ def find_outliers(
 
 # --------------------------------------------------------------------------- field state
 #: Classes whose members give a distance modulus in the field summary.
-STANDARD_CANDLES = ("RRab", "RRc", "RRd", "DCEP", "DCEP(1O)", "T2CEP", "DSCT", "SXPHE")
+STANDARD_CANDLES = tuple(code for code, c in CLASSES.items() if c.relations)
 
 #: Relations that can be drawn on the period–luminosity diagram.
 _PL_KERNELS = frozenset({"pl", "pl_fundamental", "pl_plain"})

@@ -1,24 +1,40 @@
-"""The vetted catalogue: one row per decided star, in open standard formats.
+"""The vetted catalogue: one row per star, in open standard formats.
 
-:func:`catalogue_table` builds an astropy :class:`~astropy.table.Table` from a
-ledger (verdicts override the machine's suggestion); :func:`write_catalogue`
-writes it as ECSV, FITS, VOTable (with IVOA UCDs) or CSV, each with a
-provenance header: program version, date, analysis settings, the relations
-cited, and the ledger's checksum.  Files are written under a temporary name
-in the target folder and renamed, so an interrupted export never leaves half
-a file.
+Every number in a row belongs to the class and the period in that row: the
+row's numbers are the star's *final numbers* (:mod:`core.final`), stored with
+the verdict when the person decided, or with the analysis result for the
+top suggestion when nobody has yet.  The export reads them through the
+result model (:mod:`core.results`) and never recomputes or guesses.
 
-Missing numbers are NaN; missing text is the empty string.
+:func:`write_catalogue` writes ECSV, FITS, VOTable (with IVOA UCDs) or CSV.
+Rows are streamed: a first pass writes each row to a temporary spool file
+(one star's stored result in memory at a time) and learns the bands and text
+widths; the second pass writes the rows in batches.  Provenance (program,
+date, settings, relations cited, the ledger's checksum) goes in the headers
+of ECSV, FITS and VOTable, and next to a CSV in a sidecar file
+``NAME.csv.about.json`` (the CSV's first line is its header).  Files are
+written under a temporary name in the target folder and renamed.
+
+Texts: control characters are written as ``\\xNN`` in every format (so a
+star id with one still gives well-formed XML and one CSV line per row); in
+the CSV, a text cell that a spreadsheet would run as a formula (starting
+with ``=``, ``+``, ``@``, a tab, a carriage return, or ``-`` followed by a
+non-digit) is prefixed with ``'``.  FITS texts are transliterated to ASCII.
+
+Missing numbers are NaN (empty cells in the CSV); missing texts are empty.
 """
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import math
 import os
-import uuid
+import re
+import tempfile
 import warnings
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -26,14 +42,27 @@ from typing import Any
 
 import astropy.units as u
 import numpy as np
-from astropy.table import Column as TableColumn
-from astropy.table import MaskedColumn, Table
+from astropy.table import Table
 
 from . import __version__
 from .errors import PhasewiseError
+from .final import FinalNumbers, matches_verdict, result_key
 from .ledger import VERDICT_STATUSES, Ledger
+from .results import FourierTerms, PhysicsValue, StarResult, number
 
-__all__ = ["FORMATS", "COLUMNS", "catalogue_table", "provenance", "write_catalogue"]
+__all__ = [
+    "FORMATS",
+    "COLUMNS",
+    "BAND_COLUMNS",
+    "Column",
+    "catalogue_rows",
+    "catalogue_table",
+    "provenance",
+    "write_catalogue",
+    "sidecar_path",
+    "neutralise_formula",
+    "escape_controls",
+]
 
 #: Export formats and the file extensions that imply them.
 FORMATS = {
@@ -43,40 +72,61 @@ FORMATS = {
     "csv": (".csv",),
 }
 
+#: Verdict states exported by default.
+DEFAULT_STATUSES = ("confirmed", "relabelled")
+
 
 @dataclass(frozen=True)
 class Column:
-    """One catalogue column: name, unit, UCD and description."""
+    """One catalogue column: name, unit, UCD, description and kind (float, int, text)."""
 
     name: str
     unit: u.UnitBase | None
     ucd: str
     description: str
-    text: bool = False
+    kind: str = "float"
+
+    @property
+    def text(self) -> bool:
+        return self.kind == "text"
 
 
-def _c(name, unit, ucd, description, text=False):
-    return Column(name, unit, ucd, description, text)
+def _c(name, unit, ucd, description, kind="float"):
+    return Column(name, unit, ucd, description, kind)
 
 
-# Fixed columns; per-band columns are inserted after "time_scale".
+def _t(name, ucd, description):
+    return Column(name, None, ucd, description, "text")
+
+
+# Fixed columns; per-band columns come after "baseline".
 _HEAD = (
-    _c("star_id", None, "meta.id;meta.main", "star identifier", True),
+    _t("star_id", "meta.id;meta.main", "star identifier"),
     _c("ra", u.deg, "pos.eq.ra;meta.main", "right ascension (ICRS)"),
     _c("dec", u.deg, "pos.eq.dec;meta.main", "declination (ICRS)"),
-    _c("class", None, "src.class", "class (verdict, else top suggestion)", True),
-    _c("status", None, "meta.code.status", "verdict status", True),
-    _c("period", u.d, "time.period", "period"),
+    _t("status", "meta.code.status", "verdict status"),
+    _t("class", "src.class", "class the row's numbers belong to (verdict, else top suggestion)"),
+    _t("verdict_class", "src.class", "class of the person's verdict (empty: none)"),
+    _t("suggested_class", "src.class", "class of the top suggestion"),
+    _c("suggested_score", None, "stat.likelihood", "score of the top suggestion (0 to 1)"),
+    _c("period", u.d, "time.period", "period (none for a class without one)"),
     _c("period_err", u.d, "stat.error;time.period", "period error"),
-    _c("epoch_max", u.d, "time.epoch;stat.max", "epoch of maximum light"),
-    _c("time_scale", None, "time.scale", "time scale of epoch_max", True),
+    _t("period_source", "meta.code", "where the period came from: analysis, suggestion, person"),
+    _c("epoch", u.d, "time.epoch", "epoch of phase 0 (see epoch_kind)"),
+    _c("epoch_err", u.d, "stat.error;time.epoch", "error of the epoch"),
+    _t("epoch_kind", "meta.code", "phase 0 at: maximum light or primary minimum"),
+    _t("time_scale", "time.scale", "time scale of the epoch"),
+    _c("baseline", u.d, "time.duration", "time span of the points used"),
 )
 _TAIL = (
+    _t("fourier_band", "instr.bandpass", "band of the Fourier parameters"),
+    _t("fourier_form", "meta.code", "Fourier series form (sine or cosine)"),
     _c(
         "fourier_order",
         None,
         "meta.number;stat.fit.param",
         "order of the Fourier series (-1: no fit)",
+        "int",
     ),
     _c("A1", u.mag, "src.var.amplitude;stat.fit.param", "first Fourier amplitude"),
     _c("A1_err", u.mag, "stat.error;stat.fit.param", "error of A1"),
@@ -88,30 +138,55 @@ _TAIL = (
     _c("phi21_err", u.rad, "stat.error;stat.fit.param", "error of phi21"),
     _c("phi31", u.rad, "stat.fit.param", "Fourier phase difference phi3 - 3 phi1"),
     _c("phi31_err", u.rad, "stat.error;stat.fit.param", "error of phi31"),
-    _c("fourier_form", None, "meta.code", "Fourier series form (sine or cosine)", True),
-    _c("fap", None, "stat.probability", "false-alarm probability of the period"),
-    _c("period2", u.d, "time.period", "secondary period"),
-    _c("period_ratio", None, "time.period;arith.ratio", "period ratio"),
+    _c("fap", None, "stat.probability", "false-alarm probability of the analysed period"),
+    _c("period2", u.d, "time.period", "secondary period (an independent further frequency)"),
+    _c("period2_snr", None, "stat.snr", "signal-to-noise ratio of the secondary period"),
+    _c(
+        "period_ratio",
+        None,
+        "time.period;arith.ratio",
+        "shorter over longer of period and period2 (period2/period or its inverse)",
+    ),
     # [Fe/H] is a logarithmic ratio ("dex"), which neither FITS nor VOUnit knows
-    _c("feh", None, "phys.abund.Z", "photometric metallicity [Fe/H] in dex"),
-    _c("feh_err", None, "stat.error;phys.abund.Z", "error of [Fe/H] in dex"),
-    _c("feh_relation", None, "meta.ref", "relation used for [Fe/H]", True),
+    _c("feh_jk", None, "phys.abund.Fe", "photometric [Fe/H] in dex, Jurcsik-Kovacs scale"),
+    _c("feh_jk_err", None, "stat.error;phys.abund.Fe", "error of feh_jk in dex"),
+    _c("feh_zw", None, "phys.abund.Fe", "photometric [Fe/H] in dex, Zinn-West scale"),
+    _c("feh_zw_err", None, "stat.error;phys.abund.Fe", "error of feh_zw in dex"),
+    _c("feh_c09", None, "phys.abund.Fe", "photometric [Fe/H] in dex, Carretta et al. 2009 scale"),
+    _c("feh_c09_err", None, "stat.error;phys.abund.Fe", "error of feh_c09 in dex"),
+    _t("feh_relation", "meta.ref", "relations used for [Fe/H] (with their citations)"),
+    _c("ebv", u.mag, "phot.color.excess", "E(B-V) used for the extinction"),
+    _c("ebv_err", u.mag, "stat.error;phot.color.excess", "error of E(B-V)"),
+    _c("extinction_v", u.mag, "phys.absorption;em.opt.V", "extinction A_V used"),
+    _c("extinction_v_err", u.mag, "stat.error;phys.absorption;em.opt.V", "error of A_V"),
     _c("abs_mag", u.mag, "phys.magAbs", "absolute magnitude"),
     _c("abs_mag_err", u.mag, "stat.error;phys.magAbs", "error of the absolute magnitude"),
-    _c("abs_mag_band", None, "meta.code", "band of the absolute magnitude", True),
-    _c("abs_mag_relation", None, "meta.ref", "relation used for the absolute magnitude", True),
-    _c("dist_mod", u.mag, "phot.mag.distMod", "distance modulus"),
+    _t("abs_mag_band", "instr.bandpass", "band of the absolute magnitude"),
+    _t("abs_mag_relation", "meta.ref", "relation used for the absolute magnitude"),
+    _c("dist_mod", u.mag, "phot.mag.distMod", "distance modulus (extinction removed)"),
     _c("dist_mod_err", u.mag, "stat.error;phot.mag.distMod", "error of the distance modulus"),
     _c("distance", u.pc, "pos.distance", "distance"),
     _c("distance_err", u.pc, "stat.error;pos.distance", "error of the distance"),
-    _c("distance_relation", None, "meta.ref", "relations used for the distance", True),
-    _c("flags", None, "meta.code.qual", "flags (semicolon separated)", True),
-    _c("note", None, "meta.note", "note of the verdict", True),
-    _c("verdict_time", None, "time.creation", "when the verdict was made (UTC, ISO 8601)", True),
+    _t("distance_relation", "meta.ref", "relations used for the distance"),
+    _t("flags", "meta.code.qual", "flags (semicolon separated)"),
+    _t("note", "meta.note", "note of the verdict"),
+    _t("verdict_time", "time.creation", "when the verdict was made (UTC, ISO 8601)"),
 )
 
-#: Names of the fixed columns, in order (per-band columns come after ``time_scale``).
+#: Names of the fixed columns, in order (per-band columns come after ``baseline``).
 COLUMNS = tuple(c.name for c in _HEAD + _TAIL)
+#: Per-band columns, ``{band}`` replaced by the band's name.
+BAND_COLUMNS = (
+    "n_points_{band}",
+    "mean_mag_{band}",
+    "mean_mag_{band}_err",
+    "intensity_mean_mag_{band}",
+    "intensity_mean_mag_{band}_err",
+    "amplitude_{band}",
+    "amplitude_{band}_err",
+    "depth2_{band}",
+    "depth2_{band}_err",
+)
 
 _BAND_UCD = {
     "U": "em.opt.U",
@@ -126,123 +201,246 @@ _BAND_UCD = {
 }
 
 
-def _band_columns(band: str) -> tuple[Column, Column]:
-    suffix = f";{_BAND_UCD[band]}" if band in _BAND_UCD else ""
-    safe = "".join(ch if ch.isalnum() else "_" for ch in band)
+def _safe(band: str) -> str:
+    return "".join(ch if ch.isalnum() else "_" for ch in band)
+
+
+def _band_columns(band: str) -> tuple[Column, ...]:
+    em = f";{_BAND_UCD[band]}" if band in _BAND_UCD else ""
+    s = _safe(band)
     return (
-        _c(f"mean_mag_{safe}", u.mag, f"phot.mag{suffix}", f"mean magnitude in {band}"),
+        _c(f"n_points_{s}", None, f"meta.number{em}", f"points used in {band}", "int"),
+        _c(f"mean_mag_{s}", u.mag, f"phot.mag;stat.mean{em}", f"magnitude mean in {band}"),
+        _c(f"mean_mag_{s}_err", u.mag, f"stat.error;phot.mag{em}", f"error of mean_mag_{s}"),
         _c(
-            f"amplitude_{safe}",
+            f"intensity_mean_mag_{s}",
             u.mag,
-            f"src.var.amplitude{suffix}",
-            f"peak-to-peak amplitude in {band}",
+            f"phot.mag;stat.mean{em}",
+            f"intensity-mean magnitude in {band}",
         ),
+        _c(
+            f"intensity_mean_mag_{s}_err",
+            u.mag,
+            f"stat.error;phot.mag{em}",
+            f"error of intensity_mean_mag_{s}",
+        ),
+        _c(
+            f"amplitude_{s}",
+            u.mag,
+            f"src.var.amplitude{em}",
+            f"peak-to-peak amplitude in {band} (eclipsing: primary depth of the folded curve)",
+        ),
+        _c(f"amplitude_{s}_err", u.mag, f"stat.error;src.var.amplitude{em}", "amplitude error"),
+        _c(
+            f"depth2_{s}",
+            u.mag,
+            f"src.var.amplitude{em}",
+            f"secondary eclipse depth in {band} (eclipsing only)",
+        ),
+        _c(f"depth2_{s}_err", u.mag, f"stat.error;src.var.amplitude{em}", "error of depth2"),
     )
 
 
-def _number(value: Any) -> float:
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return math.nan
-    return number if math.isfinite(number) else math.nan
+# ------------------------------------------------------------------ texts
+_CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f]")
+_FORMULA = re.compile(r"^(?:[=+@\t\r]|-(?![0-9]))")
 
 
-def _first(sequence: Any, index: int = 0) -> Any:
-    if isinstance(sequence, Sequence) and not isinstance(sequence, str) and len(sequence) > index:
-        return sequence[index]
+def escape_controls(text: str) -> str:
+    """``text`` with control characters written as ``\\xNN`` (XML and line safe)."""
+    return _CONTROL.sub(lambda m: f"\\x{ord(m.group()):02x}", text)
+
+
+def neutralise_formula(text: str) -> str:
+    """A CSV cell a spreadsheet will show as text: ``'`` before a formula-like start."""
+    return "'" + text if _FORMULA.match(text) else text
+
+
+# ------------------------------------------------------------------ rows
+def _physics_pick(items: Iterable[PhysicsValue], prefix: str) -> PhysicsValue | None:
+    for item in items:
+        if str(item.quantity or "").startswith(prefix):
+            return item
     return None
 
 
-def _physics(result: Mapping[str, Any], prefix: str) -> dict[str, Any]:
-    for item in result.get("physics") or []:
-        quantity = str(item.get("quantity", ""))
-        if quantity == prefix or quantity.startswith(prefix):
-            return dict(item)
-    return {}
-
-
-def _relation(item: Mapping[str, Any]) -> str:
-    name = item.get("relation") or ""
-    citation = item.get("citation") or ""
+def _relation(item: PhysicsValue | None) -> str:
+    if item is None:
+        return ""
+    name, citation = str(item.relation or ""), str(item.citation or "")
     if name and citation and citation not in name:
         return f"{name} ({citation})"
-    return str(name or citation)
+    return name or citation
 
 
-def _distance_pc(item: Mapping[str, Any], key: str) -> float:
-    value = _number(item.get(key))
-    unit = item.get("unit")
-    if unit and math.isfinite(value):
-        value = (value * u.Unit(unit)).to_value(u.pc)
+_TO_PC: dict[str, float] = {}
+
+
+def _distance_pc(item: PhysicsValue | None, value: Any) -> float:
+    value = number(value)
+    if item is None or value is None:
+        return math.nan
+    if item.unit:
+        if item.unit not in _TO_PC:  # astropy's conversion, worked out once per unit
+            _TO_PC[item.unit] = float(u.Unit(item.unit).to(u.pc))
+        value *= _TO_PC[item.unit]
     return value
 
 
-def _row(star: str, info, verdict, stored, bands) -> dict[str, Any]:
-    result = (stored.result if stored is not None and stored.result else None) or {}
-    suggestions = result.get("suggestions") or []
-    top = suggestions[0] if suggestions else {}
-    flags = [str(f) for f in (result.get("flags") or [])]
-    period = _number(result.get("period"))
-    period_err = _number(result.get("period_err"))
-    if verdict.period is not None:
-        if not (math.isfinite(period) and math.isclose(verdict.period, period, rel_tol=1e-9)):
-            period_err = math.nan  # the analysis error belongs to another period
-            flags.append("period_from_verdict")
-        period = verdict.period
-    if stored is not None and stored.stale:
+def _n(value: Any) -> float:
+    out = number(value)
+    return math.nan if out is None else out
+
+
+def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, list[str]]:
+    """The final numbers a row shows, and flags about where they come from.
+
+    A decided verdict (confirmed, relabelled, rejected) shows the numbers
+    stored with it; an undecided one the top suggestion's, stored with the
+    analysis result.  A confirmation stored without numbers shows the
+    suggestion's when they are the ones it asks for.  Nothing is recomputed.
+    """
+    flags: list[str] = []
+    decided = verdict.status in _DECIDED
+    stored = verdict.final if decided else None
+    final = FinalNumbers.from_dict(stored) if stored else None
+    if final is None and result is not None and isinstance(result.final, Mapping):
+        if "error" in result.final:
+            flags.append(str(result.final["error"]))
+        else:
+            suggested = FinalNumbers.from_dict(result.final)
+            if not decided or matches_verdict(
+                suggested, verdict.status, verdict.class_code, verdict.period
+            ):
+                final = suggested
+    if decided and final is None and verdict.status != "rejected":
+        flags.append("final numbers of this verdict not stored; run 'phasewise finalise'")
+    if final is not None and result is not None and final.result_key != result_key(result):
+        flags.append("final numbers from an earlier analysis; run 'phasewise finalise'")
+    return final, flags
+
+
+def catalogue_row(verdict, info: Mapping[str, Any], summary, stored=None) -> dict[str, Any]:
+    """One catalogue row (a dict keyed by column name) of one star.
+
+    ``summary`` is the ledger's ``StarRow`` (the suggestion, FAP, flags and
+    freshness, read without the full result); ``stored`` its ``StoredResult``,
+    read only when the row needs numbers stored with the result (an
+    undecided star, or a decision stored without its numbers).
+    """
+    result = None
+    if stored is not None and stored.result and not stored.failed:
+        result = StarResult.from_dict(stored.result)
+    final, flags = _final_of(verdict, result)
+    flags = [*summary.flags, *flags]
+    if summary.stale:
         flags.append("stale_analysis")
-    fourier = result.get("fourier") or {}
-    feh = _physics(result, "feh")
-    absolute = _physics(result, "M_")
-    modulus = _physics(result, "mu")
-    distance = _physics(result, "distance")
-    secondary = _first(result.get("secondary_periods"))
-    row = {
-        "star_id": star,
-        "ra": _number(info["ra"]),
-        "dec": _number(info["dec"]),
-        "class": verdict.class_code or top.get("class") or top.get("class_code") or "",
+    if stored is not None and stored.damaged:
+        flags.append("the stored result is damaged; see 'phasewise ledger check'")
+    elif summary.failed:
+        flags.append("analysis failed")
+    if final is not None:
+        flags.extend(final.flags)
+    suggested = summary.suggested_class or ""
+    if verdict.status == "rejected":
+        row_class = verdict.class_code or ""
+    elif final is not None:
+        row_class = final.class_code
+    else:
+        row_class = verdict.class_code or suggested
+    row: dict[str, Any] = {
+        "star_id": str(verdict.star_id),
+        "ra": _n(info.get("ra")),
+        "dec": _n(info.get("dec")),
         "status": verdict.status,
-        "period": period,
-        "period_err": period_err,
-        "epoch_max": _number(result.get("epoch_max")),
-        "time_scale": result.get("time_scale") or info["time_scale"] or "",
-        "fourier_order": int(fourier["order"]) if fourier.get("order") is not None else -1,
-        "A1": _number(_first(fourier.get("amplitudes"))),
-        "A1_err": _number(_first(fourier.get("amplitudes_err"))),
-        "fourier_form": fourier.get("form") or "",
-        "fap": _number(result.get("fap")),
-        "period2": _number(secondary.get("period") if isinstance(secondary, dict) else secondary),
-        "period_ratio": _number(result.get("period_ratio")),
-        "feh": _number(feh.get("value")),
-        "feh_err": _number(feh.get("err")),
-        "feh_relation": _relation(feh),
-        "abs_mag": _number(absolute.get("value")),
-        "abs_mag_err": _number(absolute.get("err")),
-        "abs_mag_band": str(absolute.get("quantity", ""))[2:],
-        "abs_mag_relation": _relation(absolute),
-        "dist_mod": _number(modulus.get("value")),
-        "dist_mod_err": _number(modulus.get("err")),
-        "distance": _distance_pc(distance, "value"),
-        "distance_err": _distance_pc(distance, "err"),
-        "distance_relation": _relation(distance) or _relation(modulus),
+        "class": row_class,
+        "verdict_class": verdict.class_code or "",
+        "suggested_class": suggested,
+        "suggested_score": _n(summary.suggested_score),
+        "time_scale": (final.time_scale if final else None) or info.get("time_scale") or "",
+        "fap": _n(summary.fap),
         "note": verdict.note or "",
         "verdict_time": verdict.decided_at or "",
+        "fourier_order": -1,
     }
-    for name in ("R21", "R31", "phi21", "phi31"):
-        row[name] = _number(fourier.get(name))
-        row[f"{name}_err"] = _number(fourier.get(f"{name}_err"))
-    for item in (feh, absolute, modulus, distance):
-        flags.extend(str(f) for f in (item.get("flags") or []))
-    row["flags"] = ";".join(dict.fromkeys(flags))
-    means = result.get("mean_mag_by_band") or {}
-    amplitudes = result.get("amplitude_by_band") or {}
-    for band in bands:
-        mean_column, amplitude_column = _band_columns(band)
-        row[mean_column.name] = _number(means.get(band))
-        row[amplitude_column.name] = _number(amplitudes.get(band))
+    _final_columns(row, final, flags)
+    row["flags"] = ";".join(dict.fromkeys(f for f in flags if f))
     return row
+
+
+def _final_columns(row: dict[str, Any], final: FinalNumbers | None, flags: list[str]) -> None:
+    f = final
+    row.update(
+        period=_n(f.period) if f else math.nan,
+        period_err=_n(f.period_err) if f else math.nan,
+        period_source=(f.period_source or "") if f else "",
+        epoch=_n(f.epoch) if f else math.nan,
+        epoch_err=_n(f.epoch_err) if f else math.nan,
+        epoch_kind=(f.epoch_kind or "") if f else "",
+        baseline=_n(f.baseline) if f else math.nan,
+        period2=_n(f.period2) if f else math.nan,
+        period2_snr=_n(f.period2_snr) if f else math.nan,
+        period_ratio=_n(f.period_ratio) if f else math.nan,
+    )
+    fourier = (f.fourier if f else None) or {}
+    terms = FourierTerms.from_dict(fourier)
+    row["fourier_band"] = (f.fourier_band or "") if f and fourier else ""
+    row["fourier_form"] = str(terms.form or "")
+    row["fourier_order"] = int(terms.order) if terms.order is not None else -1
+    row["A1"], row["A1_err"] = _n(terms.amplitude(1)), _n(terms.amplitude_err(1))
+    for name in ("R21", "R31", "phi21", "phi31"):
+        row[name] = _n(terms.value(name))
+        row[f"{name}_err"] = _n(terms.value(f"{name}_err"))
+    for band, numbers in (f.bands if f else {}).items():
+        s = _safe(band)
+        row[f"n_points_{s}"] = int(numbers.n_points)
+        row[f"mean_mag_{s}"] = _n(numbers.mean_mag)
+        row[f"mean_mag_{s}_err"] = _n(numbers.mean_mag_err)
+        row[f"intensity_mean_mag_{s}"] = _n(numbers.intensity_mean_mag)
+        row[f"intensity_mean_mag_{s}_err"] = _n(numbers.intensity_mean_mag_err)
+        row[f"amplitude_{s}"] = _n(numbers.amplitude)
+        row[f"amplitude_{s}_err"] = _n(numbers.amplitude_err)
+        row[f"depth2_{s}"] = _n(numbers.depth_secondary)
+        row[f"depth2_{s}_err"] = _n(numbers.depth_secondary_err)
+    physics = [PhysicsValue.from_dict(p) for p in (f.physics if f else ())]
+    scales = {"feh_jk": "[Fe/H]_JK", "feh_zw": "[Fe/H]_ZW", "feh_c09": "[Fe/H]_C09"}
+    feh_relations = []
+    for column, quantity in scales.items():
+        item = next((p for p in physics if p.quantity == quantity), None)
+        row[column] = _n(item.value) if item else math.nan
+        row[f"{column}_err"] = _n(item.err) if item else math.nan
+        if item is not None:
+            feh_relations.append(_relation(item))
+    row["feh_relation"] = " + ".join(feh_relations)
+    absolute = _physics_pick(physics, "M_")
+    extinction = _physics_pick(physics, "A_V")
+    modulus = distance = None
+    if absolute is not None:  # the distance that follows this absolute magnitude
+        for item in physics[physics.index(absolute) + 1 :]:
+            if item.quantity == "mu0" and modulus is None:
+                modulus = item
+            elif item.quantity == "distance" and distance is None:
+                distance = item
+            elif str(item.quantity).startswith("M_"):
+                break
+    row.update(
+        abs_mag=_n(absolute.value) if absolute else math.nan,
+        abs_mag_err=_n(absolute.err) if absolute else math.nan,
+        abs_mag_band=str(absolute.quantity)[2:] if absolute else "",
+        abs_mag_relation=_relation(absolute),
+        dist_mod=_n(modulus.value) if modulus else math.nan,
+        dist_mod_err=_n(modulus.err) if modulus else math.nan,
+        distance=_distance_pc(distance, distance.value) if distance else math.nan,
+        distance_err=_distance_pc(distance, distance.err) if distance else math.nan,
+        distance_relation=_relation(distance) or _relation(modulus),
+        extinction_v=_n(extinction.value) if extinction else math.nan,
+        extinction_v_err=_n(extinction.err) if extinction else math.nan,
+        ebv=_n(f.ebv) if f and physics else math.nan,
+        ebv_err=_n(f.ebv_err) if f and physics else math.nan,
+    )
+    for item in physics:
+        if item in (absolute, modulus, distance, extinction) or item.quantity in scales.values():
+            flags.extend(str(x) for x in item.flags or ())
 
 
 def _check_statuses(statuses: Iterable[str]) -> tuple[str, ...]:
@@ -256,49 +454,132 @@ def _check_statuses(statuses: Iterable[str]) -> tuple[str, ...]:
     return statuses
 
 
-def catalogue_table(ledger: Ledger, statuses: Iterable[str] = ("confirmed", "relabelled")) -> Table:
-    """The vetted catalogue as an astropy Table (units, UCDs in ``col.meta``)."""
+def catalogue_rows(
+    ledger: Ledger, statuses: Iterable[str] = DEFAULT_STATUSES
+) -> Iterator[dict[str, Any]]:
+    """The catalogue's rows, one star at a time (one star's records in memory).
+
+    The stars are chosen from the ledger's narrow summary lines; a decided
+    star's row comes from its verdict (with the final numbers stored with
+    it) and its summary line; the full analysis result is read only for
+    undecided stars and decisions stored without numbers.
+    """
     statuses = _check_statuses(statuses)
-    chosen = [v for v in ledger.verdicts() if v.status in statuses]
-    stored = {v.star_id: ledger.result(v.star_id) for v in chosen}
-    band_count: dict[str, int] = {}
-    for item in stored.values():
-        if item is not None and item.result:
-            for band in item.result.get("mean_mag_by_band") or {}:
-                band_count[band] = band_count.get(band, 0) + 1
-    bands = sorted(band_count, key=lambda b: (-band_count[b], b))
-    columns = list(_HEAD) + [c for b in bands for c in _band_columns(b)] + list(_TAIL)
-    rows = [
-        _row(v.star_id, ledger.star_info(v.star_id), v, stored[v.star_id], bands) for v in chosen
-    ]
-    table = Table()
-    for column in columns:
-        values = [row[column.name] for row in rows]
-        if column.text:
-            data = np.array([str(v) for v in values], dtype=str) if values else np.array([], "U1")
-        elif column.name == "fourier_order":
-            data = np.array(values, dtype=np.int32)
+    for summary in ledger.star_rows():
+        if summary.status not in statuses:
+            continue
+        star = summary.star_id
+        verdict = ledger.verdict(star)
+        needs_result = not (verdict.status in _DECIDED and verdict.final)
+        stored = ledger.result(star) if needs_result else None
+        yield catalogue_row(verdict, ledger.star_info(star), summary, stored)
+
+
+#: Verdict states whose row shows the numbers stored with the verdict.
+_DECIDED = ("confirmed", "relabelled", "rejected")
+
+
+# ------------------------------------------------------------------ the spool
+class _Spool:
+    """Rows written once to a temporary file (JSON lines), with what the writers need."""
+
+    def __init__(self, rows: Iterable[dict[str, Any]], folder: Path) -> None:
+        self.file = tempfile.TemporaryFile("w+", encoding="utf-8", dir=folder, suffix=".rows")
+        self.n = 0
+        self.band_count: dict[str, int] = {}
+        self.widths: dict[str, int] = {}
+        self.relations: set[str] = set()
+        self.time_scales: set[str] = set()
+        fixed = set(COLUMNS)
+        try:
+            for row in rows:
+                for key, value in row.items():
+                    if isinstance(value, str):
+                        value = escape_controls(value)
+                        row[key] = value
+                        # FITS transliterates to ASCII: at most three characters for one
+                        width = len(value) if value.isascii() else 3 * len(value)
+                        self.widths[key] = max(self.widths.get(key, 1), width)
+                    if key.startswith("n_points_") and key not in fixed:
+                        band = key[len("n_points_") :]
+                        self.band_count[band] = self.band_count.get(band, 0) + 1
+                for key in ("feh_relation", "abs_mag_relation", "distance_relation"):
+                    self.relations.update(r for r in row[key].split(" + ") if r)
+                if row["time_scale"]:
+                    self.time_scales.add(row["time_scale"])
+                self.file.write(json.dumps(row, ensure_ascii=False) + "\n")
+                self.n += 1
+        except BaseException:
+            self.file.close()
+            raise
+        self.file.seek(0)
+
+    @property
+    def bands(self) -> list[str]:
+        return sorted(self.band_count, key=lambda b: (-self.band_count[b], b))
+
+    def columns(self) -> list[Column]:
+        # band names in rows are already "safe"; the UCD needs the name as given
+        return list(_HEAD) + [c for b in self.bands for c in _band_columns(b)] + list(_TAIL)
+
+    def batches(self, size: int) -> Iterator[list[dict[str, Any]]]:
+        self.file.seek(0)
+        batch = []
+        for line in self.file:
+            batch.append(json.loads(line))
+            if len(batch) >= size:
+                yield batch
+                batch = []
+        if batch:
+            yield batch
+
+    def close(self) -> None:
+        self.file.close()
+
+
+def _missing(column: Column) -> Any:
+    return "" if column.text else (-1 if column.kind == "int" else math.nan)
+
+
+def _table(spool: _Spool, columns: list[Column], meta: Mapping[str, Any]) -> Table:
+    """The spool as an astropy Table (column arrays; no row objects kept)."""
+    arrays = {}
+    for c in columns:
+        if c.text:
+            arrays[c.name] = np.zeros(spool.n, dtype=f"U{spool.widths.get(c.name, 1)}")
+        elif c.kind == "int":
+            arrays[c.name] = np.full(spool.n, -1, dtype=np.int32)
         else:
-            data = np.array(values, dtype=np.float64)
-        table[column.name] = data
-        table[column.name].unit = column.unit
-        table[column.name].description = column.description
-        table[column.name].meta["ucd"] = column.ucd
-    table.meta.update(provenance(ledger, rows_relations=rows))
+            arrays[c.name] = np.full(spool.n, np.nan)
+    start = 0
+    for batch in spool.batches(5000):
+        for c in columns:
+            arrays[c.name][start : start + len(batch)] = [
+                row.get(c.name, _missing(c)) for row in batch
+            ]
+        start += len(batch)
+    table = Table()
+    for c in columns:
+        table[c.name] = arrays[c.name]
+        table[c.name].unit = c.unit
+        table[c.name].description = c.description
+        table[c.name].meta["ucd"] = c.ucd
+    table.meta.update(meta)
     return table
 
 
-def provenance(ledger: Ledger, rows_relations: list[dict[str, Any]] | None = None) -> dict:
+def catalogue_table(ledger: Ledger, statuses: Iterable[str] = DEFAULT_STATUSES) -> Table:
+    """The vetted catalogue as an astropy Table (units, UCDs in ``col.meta``), in memory."""
+    spool = _Spool(catalogue_rows(ledger, statuses), Path(tempfile.gettempdir()))
+    try:
+        return _table(spool, spool.columns(), provenance(ledger, sorted(spool.relations)))
+    finally:
+        spool.close()
+
+
+def provenance(ledger: Ledger, relations: Iterable[str] = ()) -> dict[str, Any]:
     """The provenance header: program, date, settings, relations cited, ledger checksum."""
     settings = ledger.analysis_settings()
-    relations = sorted(
-        {
-            row[key]
-            for row in rows_relations or []
-            for key in ("feh_relation", "abs_mag_relation", "distance_relation")
-            if row[key]
-        }
-    )
     return {
         "program": f"phasewise {__version__}",
         "date": datetime.now(UTC).isoformat(timespec="seconds"),
@@ -306,7 +587,7 @@ def provenance(ledger: Ledger, rows_relations: list[dict[str, Any]] | None = Non
         "ledger_checksum": f"sha256:{ledger.checksum()}",
         "settings_hash": None if settings is None else settings[1],
         "analysis_settings": None if settings is None else settings[0],
-        "relations": relations,
+        "relations": sorted(relations),
         "caution": (
             "Classes are suggestions checked by a person; [Fe/H], absolute magnitudes and "
             "distances come from published empirical relations with known scatter and "
@@ -315,6 +596,7 @@ def provenance(ledger: Ledger, rows_relations: list[dict[str, Any]] | None = Non
     }
 
 
+# ------------------------------------------------------------------ writers
 def _format_for(path: Path, format: str | None) -> str:
     if format is not None:
         if format not in FORMATS:
@@ -335,19 +617,85 @@ def _format_for(path: Path, format: str | None) -> str:
     )
 
 
-def _write_ecsv(table: Table, path: Path) -> None:
-    table.write(path, format="ascii.ecsv")
+def _cell_writers(columns: list[Column], text, missing_number: str):
+    """One function per column turning a spooled row into the cell's text."""
+
+    def writer(c: Column):
+        name = c.name
+        if c.text:
+            return lambda row: text(row.get(name, ""))
+        if c.kind == "int":
+            return lambda row: str(int(row.get(name, -1)))
+
+        def number_cell(row):
+            value = row.get(name)
+            if value is None:
+                return missing_number
+            value = float(value)
+            return repr(value) if math.isfinite(value) else missing_number
+
+        return number_cell
+
+    return [writer(c) for c in columns]
 
 
-def _write_csv(table: Table, path: Path) -> None:
-    out = table.copy(copy_data=False)
-    lines = [f"{key}: {json.dumps(value)}" for key, value in table.meta.items()]
-    lines += [
-        f"column {c}: unit={out[c].unit or ''}; ucd={out[c].meta['ucd']}; {out[c].description}"
-        for c in out.colnames
-    ]
-    out.meta = {"comments": lines}
-    out.write(path, format="ascii.csv", comment="# ")
+def _ecsv_text(value: str) -> str:
+    return '"' + value.replace('"', '""') + '"'
+
+
+def _write_ecsv(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path) -> None:
+    """ECSV: the header from astropy (an empty table), then the rows in batches."""
+    empty = Table()
+    for c in columns:
+        dtype = str if c.text else (np.int32 if c.kind == "int" else np.float64)
+        empty[c.name] = np.zeros(0, dtype=dtype)
+        empty[c.name].unit = c.unit
+        empty[c.name].description = c.description
+        empty[c.name].meta["ucd"] = c.ucd
+    empty.meta.update(meta)
+    header = io.StringIO()
+    empty.write(header, format="ascii.ecsv")
+    cells = _cell_writers(columns, _ecsv_text, "nan")
+    with open(path, "w", encoding="utf-8", newline="") as out:
+        out.write(header.getvalue())
+        for batch in spool.batches(2000):
+            out.write("".join(" ".join([cell(row) for cell in cells]) + "\n" for row in batch))
+
+
+def sidecar_path(path: str | os.PathLike) -> Path:
+    """Where the provenance of a CSV catalogue is written: ``NAME.csv.about.json``."""
+    path = Path(path)
+    return path.with_name(path.name + ".about.json")
+
+
+def _write_csv(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path) -> None:
+    """CSV: the header line, then the rows in batches; NaN as an empty cell."""
+    cells = _cell_writers(columns, neutralise_formula, "")
+    with open(path, "w", encoding="utf-8", newline="") as out:
+        writer = csv.writer(out, lineterminator="\n")
+        writer.writerow([c.name for c in columns])
+        for batch in spool.batches(2000):
+            writer.writerows([[cell(row) for cell in cells] for row in batch])
+
+
+def _sidecar(columns: list[Column], meta: Mapping[str, Any], catalogue: Path) -> str:
+    about = {
+        "catalogue": catalogue.name,
+        **meta,
+        "columns": [
+            {
+                "name": c.name,
+                "unit": "" if c.unit is None else c.unit.to_string(),
+                "ucd": c.ucd,
+                "description": c.description,
+            }
+            for c in columns
+        ],
+        "missing_values": "empty cell",
+        "texts": "control characters as \\xNN; a leading ' marks a cell that began like a "
+        "spreadsheet formula",
+    }
+    return json.dumps(about, indent=1, ensure_ascii=False) + "\n"
 
 
 #: Typographic characters our texts use, as FITS (ASCII only) writes them.
@@ -365,23 +713,30 @@ def _ascii(text: str) -> str:
     return bare.encode("ascii", "replace").decode("ascii")
 
 
-def _write_fits(table: Table, path: Path) -> None:
-    """FITS tables and headers hold ASCII only: texts are transliterated (the
-    ECSV, VOTable and CSV catalogues keep them as they are)."""
+def _fits_dtype(columns: list[Column], widths: Mapping[str, int]) -> np.dtype:
+    return np.dtype(
+        [
+            (
+                c.name,
+                f"S{widths.get(c.name, 1)}" if c.text else (">i4" if c.kind == "int" else ">f8"),
+            )
+            for c in columns
+        ]
+    )
+
+
+def _write_fits(spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path) -> None:
+    """FITS: the header from astropy, then the rows as binary records in batches.
+
+    FITS tables and headers hold ASCII only: texts are transliterated (the
+    ECSV, VOTable and CSV catalogues keep them as they are).
+    """
     from astropy.io import fits
 
-    out = table.copy(copy_data=False)
-    meta = table.meta
-    out.meta = {}
-    for name in out.colnames:
-        column = out[name]
-        if column.dtype.kind != "U":
-            continue
-        mask = np.ma.getmaskarray(column)
-        texts = [_ascii(v) for v in np.ma.filled(column, "")]
-        out[name] = MaskedColumn(texts, mask=mask) if mask.any() else TableColumn(texts)
-    hdu = fits.table_to_hdu(out)
+    dtype = _fits_dtype(columns, spool.widths)
+    hdu = fits.BinTableHDU(np.zeros(0, dtype=dtype))
     header = hdu.header
+    header["NAXIS2"] = spool.n
     header["EXTNAME"] = "VETTED"
     header["PROGRAM"] = _ascii(meta["program"])
     header["DATE"] = meta["date"]
@@ -389,44 +744,87 @@ def _write_fits(table: Table, path: Path) -> None:
     header["LEDGSUM"] = meta["ledger_checksum"]
     header["SETHASH"] = meta["settings_hash"] or ""
     header["SETTINGS"] = json.dumps(meta["analysis_settings"], sort_keys=True)  # ASCII-escaped
-    for index, name in enumerate(out.colnames, start=1):
-        column = table[name]
-        header[f"TUCD{index}"] = column.meta["ucd"]
-        header[f"TCOMM{index}"] = _ascii(column.description)[:68]
+    for index, c in enumerate(columns, start=1):
+        if c.unit is not None:
+            header[f"TUNIT{index}"] = c.unit.to_string(format="fits")
+        header[f"TUCD{index}"] = c.ucd
+        header[f"TCOMM{index}"] = _ascii(c.description)[:68]
     for relation in meta["relations"]:
         header.add_history(_ascii(f"relation cited: {relation}"))
     header.add_comment(_ascii(meta["caution"]))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", fits.verify.VerifyWarning)
-        fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(path)
+        primary = fits.PrimaryHDU().header.tostring()
+        table_header = header.tostring()
+    written = 0
+    with open(path, "wb") as out:
+        out.write(primary.encode("ascii"))
+        out.write(table_header.encode("ascii"))
+        for batch in spool.batches(5000):
+            records = np.zeros(len(batch), dtype=dtype)
+            for c in columns:
+                name = c.name
+                if c.text:
+                    records[name] = [_ascii(row.get(name, "")).encode("ascii") for row in batch]
+                else:
+                    missing = -1 if c.kind == "int" else math.nan
+                    records[name] = [row.get(name, missing) for row in batch]
+            out.write(records.tobytes())
+            written += records.nbytes
+        out.write(b"\0" * (-written % 2880))  # FITS blocks are 2880 bytes
 
 
-def _write_votable(table: Table, path: Path) -> None:
+def _write_votable(
+    spool: _Spool, columns: list[Column], meta: Mapping[str, Any], path: Path
+) -> None:
+    """VOTable: the document from astropy around one dummy row, whose place the
+    rows take, written in batches as TABLEDATA."""
+    from xml.sax.saxutils import escape
+
     from astropy.io.votable import from_table, writeto
     from astropy.io.votable.tree import Info
 
-    out = table.copy(copy_data=False)
-    meta = table.meta
-    out.meta = {}
-    votable = from_table(out)
+    dummy = Table()
+    for c in columns:
+        if c.text:
+            dummy[c.name] = np.array([""], dtype=f"U{spool.widths.get(c.name, 1)}")
+        else:
+            dummy[c.name] = np.zeros(1, dtype=np.int32 if c.kind == "int" else np.float64)
+    votable = from_table(dummy)
     votable.version = "1.4"  # TIMESYS needs 1.4
     resource = votable.resources[0]
     vtable = resource.tables[0]
     vtable.name = "vetted_catalogue"
     vtable.description = "Vetted catalogue of variable stars written by Phasewise."
-    for field in vtable.fields:
-        field.ucd = table[field.name].meta["ucd"]
-        field.description = table[field.name].description
-    _add_time_system(votable, vtable, table)
+    for field, c in zip(vtable.fields, columns, strict=True):
+        field.ucd = c.ucd
+        field.description = c.description
+        field.unit = c.unit
+    _add_time_system(votable, vtable, spool.time_scales)
     for key in ("program", "date", "ledger", "ledger_checksum", "settings_hash"):
-        resource.infos.append(Info(name=key, value=str(meta[key] or "")))
+        resource.infos.append(Info(name=key, value=escape_controls(str(meta[key] or ""))))
     resource.infos.append(
         Info(name="analysis_settings", value=json.dumps(meta["analysis_settings"], sort_keys=True))
     )
     for relation in meta["relations"]:
-        resource.infos.append(Info(name="relation", value=relation))
+        resource.infos.append(Info(name="relation", value=escape_controls(relation)))
     resource.infos.append(Info(name="caution", value=meta["caution"]))
-    writeto(votable, str(path))
+    document = io.BytesIO()
+    writeto(votable, document)
+    text = document.getvalue().decode("utf-8")
+    start = text.index("<TABLEDATA>") + len("<TABLEDATA>")
+    end = text.index("</TABLEDATA>")
+    cells = _cell_writers(columns, escape, "NaN")
+    with open(path, "w", encoding="utf-8") as out:
+        out.write(text[:start] + "\n")
+        for batch in spool.batches(2000):
+            out.write(
+                "".join(
+                    "<TR>" + "".join(["<TD>" + cell(row) + "</TD>" for cell in cells]) + "</TR>\n"
+                    for row in batch
+                )
+            )
+        out.write("    " + text[end:])
 
 
 # VOTable 1.4 TIMESYS for each Phasewise time scale: (time scale, reference position,
@@ -439,11 +837,10 @@ _TIMESYS = {
 }
 
 
-def _add_time_system(votable, vtable, table: Table) -> None:
-    """Tie epoch_max to a TIMESYS element when every row has the same time scale."""
+def _add_time_system(votable, vtable, scales: set[str]) -> None:
+    """Tie the epoch to a TIMESYS element when every row has the same time scale."""
     from astropy.io.votable.tree import TimeSys
 
-    scales = set(table["time_scale"]) - {""}
     if len(scales) != 1 or next(iter(scales)) not in _TIMESYS:
         return
     timescale, refposition, origin = _TIMESYS[next(iter(scales))]
@@ -457,18 +854,32 @@ def _add_time_system(votable, vtable, table: Table) -> None:
         )
     )
     for field in vtable.fields:
-        if field.name == "epoch_max":
+        if field.name == "epoch":
             field.ref = "epoch_system"
 
 
 _WRITERS = {"ecsv": _write_ecsv, "csv": _write_csv, "fits": _write_fits, "votable": _write_votable}
 
 
+def _replace_atomically(path: Path, write) -> None:
+    """Write with ``write(temp_path)`` beside ``path``, then rename over it."""
+    handle, name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".partial", dir=path.parent)
+    os.close(handle)
+    temp = Path(name)
+    try:
+        temp.unlink()  # astropy's FITS writer refuses an existing file
+        write(temp)
+        os.replace(temp, path)
+    except BaseException:
+        temp.unlink(missing_ok=True)
+        raise
+
+
 def write_catalogue(
     ledger: Ledger,
     path: str | os.PathLike,
     format: str | None = None,
-    statuses: Iterable[str] = ("confirmed", "relabelled"),
+    statuses: Iterable[str] = DEFAULT_STATUSES,
 ) -> int:
     """Write the vetted catalogue; returns the number of stars written.
 
@@ -476,22 +887,30 @@ def write_catalogue(
     ----------
     ledger : Ledger
     path : path
-        Target file; replaced atomically if it exists.
+        Target file; replaced atomically if it exists.  A CSV gets its
+        provenance and column descriptions in :func:`sidecar_path`.
     format : {"ecsv", "fits", "votable", "csv"}, optional
         Default: from the extension.
     statuses : iterable of str
-        Verdict states to include.
+        Verdict states to include (default confirmed and relabelled).
     """
     path = Path(path)
     format = _format_for(path, format)
+    statuses = _check_statuses(statuses)
     if not path.parent.is_dir():
         raise PhasewiseError("the folder does not exist", file=path.parent)
-    table = catalogue_table(ledger, statuses)
-    temp = path.with_name(f".{path.name}.{uuid.uuid4().hex[:8]}.partial")
+    if path.is_dir():
+        raise PhasewiseError("is a folder; give a file name for the catalogue", file=path)
+    spool = _Spool(catalogue_rows(ledger, statuses), path.parent)
     try:
-        _WRITERS[format](table, temp)
-        os.replace(temp, path)
-    except BaseException:
-        temp.unlink(missing_ok=True)
-        raise
-    return len(table)
+        columns = spool.columns()
+        meta = provenance(ledger, spool.relations)
+        _replace_atomically(path, lambda temp: _WRITERS[format](spool, columns, meta, temp))
+        if format == "csv":
+            text = _sidecar(columns, meta, path)
+            _replace_atomically(
+                sidecar_path(path), lambda temp: temp.write_text(text, encoding="utf-8")
+            )
+    finally:
+        spool.close()
+    return spool.n

@@ -103,7 +103,8 @@ class LightCurve:
         else:
             err = as_float_array("mag_err", self.mag_err, length=n, error=PhasewiseError)
         if isinstance(self.band, str):
-            band = np.full(n, self.band, dtype=object)
+            band = np.full(n, self.band.strip(), dtype=object)
+            band_names, band_index = [self.band.strip()], np.zeros(n, dtype=np.intp)
         else:
             band = np.asarray(self.band, dtype=object)
             if band.shape != (n,):
@@ -112,7 +113,12 @@ class LightCurve:
                 )
             # strip each distinct label once (a curve has a few bands, many points)
             labels, inverse = np.unique(band.astype(str), return_inverse=True)
-            band = np.array([label.strip() for label in labels], dtype=object)[inverse]
+            stripped = [label.strip() for label in labels]
+            band = np.array(stripped, dtype=object)[inverse]
+            # two labels may strip to one name: index by the distinct stripped names
+            band_names = sorted(set(stripped))
+            position = {name: k for k, name in enumerate(band_names)}
+            band_index = np.array([position[name] for name in stripped], dtype=np.intp)[inverse]
         if self.excluded is None:
             excluded = np.zeros(n, dtype=bool)
         else:
@@ -137,6 +143,18 @@ class LightCurve:
         set_(self, "band", _readonly(band))
         set_(self, "excluded", _readonly(excluded))
         set_(self, "has_errors", bool(has_errors))
+        # The arrays are read-only, so what is derived from them is computed once
+        # (bands, masks and band masks are asked for many times per analysis).
+        good = ~excluded & np.isfinite(time) & np.isfinite(mag) & np.isfinite(err) & (err > 0)
+        set_(self, "_good", _readonly(good))
+        set_(self, "_band_names", tuple(band_names))
+        set_(self, "_band_index", _readonly(np.asarray(band_index, dtype=np.intp).reshape(n)))
+        counts = np.bincount(band_index[good], minlength=len(band_names)) if n else np.zeros(0)
+        order = sorted(
+            (k for k in range(len(band_names)) if counts[k] > 0),
+            key=lambda k: (-counts[k], band_names[k]),
+        )
+        set_(self, "_bands", tuple(band_names[k] for k in order))
 
     # ------------------------------------------------------------------ views
     @property
@@ -147,13 +165,7 @@ class LightCurve:
     @property
     def good(self) -> np.ndarray:
         """Boolean array: points used for analysis (finite and not excluded)."""
-        return (
-            ~self.excluded
-            & np.isfinite(self.time)
-            & np.isfinite(self.mag)
-            & np.isfinite(self.mag_err)
-            & (self.mag_err > 0)
-        )
+        return self._good
 
     @property
     def n_good(self) -> int:
@@ -166,12 +178,7 @@ class LightCurve:
     @property
     def bands(self) -> tuple[str, ...]:
         """Bands present among the good points, most points first."""
-        labels = self.band[self.good]
-        if labels.size == 0:
-            return ()
-        names, counts = np.unique(labels.astype(str), return_counts=True)
-        order = np.lexsort((names, -counts))
-        return tuple(str(names[i]) for i in order)
+        return self._bands
 
     @property
     def baseline(self) -> float:
@@ -181,7 +188,11 @@ class LightCurve:
 
     def band_mask(self, band: str) -> np.ndarray:
         """Good points of one band."""
-        return self.good & (self.band == band)
+        try:
+            k = self._band_names.index(band)
+        except ValueError:
+            return np.zeros(self.n_points, dtype=bool)
+        return self._good & (self._band_index == k)
 
     def arrays(self, band: str | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(time, mag, mag_err) of the good points, of one band if given."""

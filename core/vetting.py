@@ -20,6 +20,7 @@ import math
 from collections import defaultdict
 from collections.abc import Callable, Sequence
 
+from .classes import ALIASES, CLASSES
 from .errors import PhasewiseError
 from .folding import period_step
 
@@ -37,9 +38,13 @@ SMALL_STEP_CYCLES = 0.005
 LARGE_STEP_CYCLES = 0.05
 #: Classes whose true period is often twice the periodogram's best period
 #: (two similar minima per cycle; common practice, no source).
-ECLIPSING_CLASSES = frozenset({"EA", "EB", "EW"})
-#: Classes a verdict records without a period (a constant star has none).
-NON_PERIODIC_CLASSES = frozenset({"CONST", "NONVAR"})
+ECLIPSING_CLASSES = frozenset(c.code for c in CLASSES.values() if c.eclipsing)
+#: Classes a verdict records without a period (a constant star has none);
+#: the registry's aliases included.
+NON_PERIODIC_CLASSES = frozenset(
+    [c.code for c in CLASSES.values() if not c.periodic]
+    + [alias for alias, code in ALIASES.items() if not CLASSES[code].periodic]
+)
 
 
 class VettingSession:

@@ -104,11 +104,23 @@ def run(args: argparse.Namespace) -> int:
     )
     if bar is not None:
         bar.close()
+    finalised = 0 if summary.interrupted else _finalise(ledger_path)
     if args.json:
         print(json.dumps(summary.to_dict(), indent=2))
     elif not args.quiet:
         print(summary_text(summary))
+        if finalised:
+            print(f"  final numbers of {finalised} decided star(s) follow the new results")
     return 130 if summary.interrupted else 0
+
+
+def _finalise(ledger_path: Path) -> int:
+    """Recompute the final numbers of verdicts whose star was analysed again."""
+    from phasewise.core.final import finalise_stars
+    from phasewise.core.ledger import Ledger
+
+    with Ledger.open(ledger_path) as ledger:
+        return finalise_stars(ledger)
 
 
 def _import(files: list[Path], ledger_path: Path, columns: str | None, *, quiet: bool) -> None:

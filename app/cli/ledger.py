@@ -1,4 +1,5 @@
-"""Ledger commands: ``ledger new``/``ledger info``, ``verdict``, ``history``, ``undo``, ``redo``, ``export``.
+"""Ledger commands: ``ledger new``/``ledger info``, ``verdict``, ``finalise``, ``history``,
+``undo``, ``redo``, ``export``.
 
 Every change is one committed transaction in the ledger; these commands only
 parse, call :mod:`core.ledger` / :mod:`core.export` and print.
@@ -80,6 +81,22 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     verdict.add_argument("--dry-run", action="store_true", help="list what would be confirmed")
     verdict.set_defaults(func=run_verdict)
+
+    finalise = subparsers.add_parser(
+        "finalise",
+        help="compute the final numbers (for the verdict's class and period) of decided stars",
+        description=(
+            "Compute and store the final numbers of decided stars: the Fourier terms, epoch, "
+            "amplitudes and physics for the class and period of each verdict.  By default only "
+            "verdicts whose numbers are missing or come from an earlier analysis."
+        ),
+    )
+    finalise.add_argument("ledger", type=Path, metavar="LEDGER")
+    finalise.add_argument("star_ids", nargs="*", metavar="STAR_ID", help="only these stars")
+    finalise.add_argument(
+        "--all", action="store_true", help="recompute every decided star's numbers"
+    )
+    finalise.set_defaults(func=run_finalise)
 
     history = subparsers.add_parser("history", help="print the history of changes")
     history.add_argument("ledger", type=Path, metavar="LEDGER")
@@ -223,8 +240,11 @@ def run_verdict(args: argparse.Namespace) -> int:
         )
     if args.dry_run:
         raise PhasewiseError("--dry-run goes with --confirm-above", field="dry-run")
+    from phasewise.core.final import record_verdict
+
     with Ledger.open(args.ledger) as ledger:
-        verdict = ledger.set_verdict(
+        verdict = record_verdict(
+            ledger,
             args.star_id,
             args.status,
             class_code=args.class_code,
@@ -232,6 +252,17 @@ def run_verdict(args: argparse.Namespace) -> int:
             note=args.note,
         )
     print(terminal_text(f"{args.ledger}: {verdict.star_id}: {_verdict_text(verdict.to_dict())}"))
+    if verdict.status in ("confirmed", "relabelled") and verdict.final is None:
+        print(
+            "  note: no final numbers (the star has no usable analysis); the catalogue "
+            "leaves its numbers blank until it is analysed"
+        )
+    elif verdict.final and verdict.final.get("period") is not None:
+        final = verdict.final
+        print(
+            f"  final numbers: {final['class']} P={final['period']:.7g} d "
+            f"(from the {final['period_source']}), epoch at {final['epoch_kind']}"
+        )
     return 0
 
 
@@ -260,7 +291,10 @@ def _confirm_above(args: argparse.Namespace) -> int:
                 )
             )
         if not args.dry_run and chosen:
-            ledger.set_verdicts(
+            from phasewise.core.final import record_verdicts
+
+            record_verdicts(
+                ledger,
                 [
                     (r.star_id, "confirmed", r.suggested_class, r.suggested_period, None)
                     for r in chosen
@@ -270,6 +304,15 @@ def _confirm_above(args: argparse.Namespace) -> int:
     print(f"{args.ledger}: {_stars(len(chosen))} {verb} with top score >= {score:g}")
     if stale:
         print(f"  skipped {_stars(stale)} whose analysis is stale; analyse them again first")
+    return 0
+
+
+def run_finalise(args: argparse.Namespace) -> int:
+    from phasewise.core.final import finalise_stars
+
+    with Ledger.open(args.ledger) as ledger:
+        n = finalise_stars(ledger, args.star_ids or None, only_stale=not args.all)
+    print(f"{args.ledger}: final numbers of {_stars(n)} computed")
     return 0
 
 

@@ -18,14 +18,16 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from phasewise.core.results import StarResult, Suggestion
+
 from .style import STATUS_COLOURS, fmt, fmt_period, fmt_pm
 
 __all__ = ["StarSheet", "CLASS_CODES", "CAUTION"]
 
 
 def _class_codes() -> tuple[str, ...]:
-    """The rulebook's class codes (core.classify), in its order."""
-    from phasewise.core.classify import CLASS_CODES
+    """The registry's class codes (core.classes), in its order."""
+    from phasewise.core.classes import CLASS_CODES
 
     return tuple(CLASS_CODES)
 
@@ -35,8 +37,8 @@ CLASS_CODES = _class_codes()
 
 
 def suggestion_class(suggestion: dict) -> str | None:
-    """The class code of a suggestion dict (core writes it under ``class``)."""
-    return suggestion.get("class") or suggestion.get("class_code")
+    """The class code of a stored suggestion dict (read through core's result model)."""
+    return Suggestion.from_dict(suggestion).class_code
 
 
 CAUTION = (
@@ -115,8 +117,8 @@ class StarSheet(QWidget):
 
     # ------------------------------------------------------------ verdicts
     def top_suggestion(self) -> str | None:
-        suggestions = (self.result or {}).get("suggestions") or []
-        return suggestion_class(suggestions[0]) if suggestions else None
+        top = StarResult.from_dict(self.result or {}).top
+        return top.class_code if top is not None else None
 
     def confirm(self) -> None:
         code = self.top_suggestion()
@@ -175,13 +177,10 @@ class StarSheet(QWidget):
         self.confirm_button.setEnabled(bool(top))
 
     def render(self, trial_period=None) -> None:
-        r = self.result or {}
+        r = StarResult.from_dict(self.result or {})
         out = [f"<h3 style='margin:0'>{_e(self.star_id)}</h3>"]
-        status = r.get("status")
-        if status and status != "ok":
-            out.append(
-                f"<p style='color:#B03000'><b>{_e(status)}</b>: {_e(r.get('reason', ''))}</p>"
-            )
+        if r.status and r.status != "ok":
+            out.append(f"<p style='color:#B03000'><b>{_e(r.status)}</b>: {_e(r.reason or '')}</p>")
         rows = []
 
         def add(name, value, unit=""):
@@ -190,44 +189,39 @@ class StarSheet(QWidget):
                 f"<td>{value}{(' ' + unit) if unit and value != '–' else ''}</td></tr>"
             )
 
-        add("Period", _e(fmt_pm(r.get("period"), r.get("period_err"), 7)), "d")
-        if trial_period and r.get("period") and not math.isclose(trial_period, r["period"]):
+        period = r.number("period")
+        add("Period", _e(fmt_pm(period, r.number("period_err"), 7)), "d")
+        if trial_period and period and not math.isclose(trial_period, period):
             add("<b>Trial period</b>", f"<b>{fmt_period(trial_period)}</b>", "d")
-        add("Frequency", _e(fmt_pm(r.get("frequency"), r.get("frequency_err"), 6)), "c/d")
-        add("FAP", _e(fmt(r.get("fap"), 2)))
-        add("Method", _e(r.get("method") or "–"))
-        scale = r.get("time_scale") or ""
-        epoch = _num(r.get("epoch_max"))
+        add("Frequency", _e(fmt_pm(r.number("frequency"), r.number("frequency_err"), 6)), "c/d")
+        add("FAP", _e(fmt(r.number("fap"), 2)))
+        add("Method", _e(r.method or "–"))
+        scale = r.time_scale or ""
+        epoch = r.number("epoch_max")
         add("Epoch of max.", f"{epoch:.5f}" if epoch is not None else "–", f"{scale} d".strip())
-        add("Points", f"{r.get('n_good', '–')} good of {r.get('n_points', '–')}")
-        bands = r.get("bands") or []
-        means = r.get("mean_mag_by_band") or {}
-        imeans = r.get("intensity_mean_mag_by_band") or {}
-        amps = r.get("amplitude_by_band") or {}
-        add("Rise time", _e(fmt(r.get("rise_time"), 3)), "phase")
-        add("O − C rms", _e(fmt(r.get("residual_std"), 3)), "mag")
-        four = r.get("fourier") or {}
-        if four:
-            add("Fourier", f"order {four.get('order', '–')}, {_e(four.get('form', ''))} series")
-            amps_f = four.get("amplitudes") or []
-            amps_e = four.get("amplitudes_err") or [None] * len(amps_f)
-            for i, (a, ae) in enumerate(zip(amps_f, amps_e, strict=False)):
-                if i >= 4:
-                    break
-                add(f"A{i + 1}", _e(fmt_pm(a, ae)), "mag")
+        n_good = "–" if r.n_good is None else r.n_good
+        n_points = "–" if r.n_points is None else r.n_points
+        add("Points", f"{n_good} good of {n_points}")
+        bands = r.band_list
+        means = r.band_numbers("mean_mag_by_band")
+        imeans = r.band_numbers("intensity_mean_mag_by_band")
+        amps = r.band_numbers("amplitude_by_band")
+        add("Rise time", _e(fmt(r.number("rise_time"), 3)), "phase")
+        add("O − C rms", _e(fmt(r.number("residual_std"), 3)), "mag")
+        four = r.primary_fourier
+        if four is not None and four.to_dict():
+            order = "–" if four.order is None else four.order
+            add("Fourier", f"order {order}, {_e(four.form or '')} series")
+            for k in range(1, min(len(four.amplitudes or ()), 4) + 1):
+                add(f"A{k}", _e(fmt_pm(four.amplitude(k), four.amplitude_err(k))), "mag")
             for key in ("R21", "R31"):
-                add(key, _e(fmt_pm(four.get(key), four.get(f"{key}_err"))))
+                add(key, _e(fmt_pm(four.value(key), four.value(f"{key}_err"))))
             for key, name in (("phi21", "φ21"), ("phi31", "φ31")):
-                add(name, _e(fmt_pm(four.get(key), four.get(f"{key}_err"))), "rad")
-        secondary = r.get("secondary_periods") or []
-        for s in secondary[:3]:
-            if isinstance(s, dict):
-                kind = s.get("kind", "")
-                add("Secondary", f"{fmt_period(_num(s.get('period')))} d {_e(kind)}")
-            else:
-                add("Secondary", f"{fmt_period(_num(s))} d")
-        if r.get("period_ratio") is not None:
-            add("Period ratio", _e(fmt(r.get("period_ratio"), 4)))
+                add(name, _e(fmt_pm(four.value(key), four.value(f"{key}_err"))), "rad")
+        for second in r.secondary_list[:3]:
+            add("Secondary", f"{fmt_period(_num(second.period))} d {_e(second.kind or '')}")
+        if r.number("period_ratio") is not None:
+            add("Period ratio", _e(fmt(r.number("period_ratio"), 4)))
         out.append("<table cellspacing=0 cellpadding=1>" + "".join(rows) + "</table>")
         if bands:
             head = "".join(
@@ -245,26 +239,23 @@ class StarSheet(QWidget):
                 f"<table cellspacing=0 cellpadding=1><tr>{head}</tr>{body}</table>"
             )
 
-        physics = r.get("physics") or []
+        physics = r.physics_list
         out.append("<h4 style='margin-bottom:2px'>Physical values</h4>")
         out.append(f"<p style='color:#8A4B00;margin-top:0'><i>{_e(CAUTION)}</i></p>")
         if physics:
             prow = []
             for p in physics:
-                if not isinstance(p, dict):
-                    continue
-                name = p.get("quantity") or p.get("name") or "?"
-                value = fmt_pm(p.get("value"), p.get("error", p.get("err")))
-                unit = p.get("unit") or ""
-                relation = " — ".join(str(x) for x in (p.get("relation"), p.get("citation")) if x)
-                flags = p.get("flags") or []
+                value = fmt_pm(p.number(), p.error())
+                relation = " — ".join(str(x) for x in (p.relation, p.citation) if x)
+                flags = p.flags or []
                 flag_text = (
                     f" <span style='color:#B03000'>[{_e(', '.join(map(str, flags)))}]</span>"
                     if flags
                     else ""
                 )
                 prow.append(
-                    f"<tr><td style='padding-right:8px'>{_e(name)}</td><td>{_e(value)} {_e(unit)}"
+                    f"<tr><td style='padding-right:8px'>{_e(p.quantity or '?')}</td>"
+                    f"<td>{_e(value)} {_e(p.unit or '')}"
                     f"{flag_text}<br><span style='color:#666;font-size:small'>{_e(relation)}</span>"
                     "</td></tr>"
                 )
@@ -272,30 +263,29 @@ class StarSheet(QWidget):
         else:
             out.append("<p>None for this class.</p>")
 
-        suggestions = r.get("suggestions") or []
+        suggestions = r.suggestion_list
         out.append("<h4 style='margin-bottom:2px'>Suggestions</h4>")
         if not suggestions:
             out.append("<p>No suggestion.</p>")
         out.append("<ol style='margin-top:0'>")
         for s in suggestions:
-            reasons = "".join(f"<li>{_e(x)}</li>" for x in (s.get("reasons") or []))
+            reasons = "".join(f"<li>{_e(x)}</li>" for x in (s.reasons or []))
             against = "".join(
-                f"<li style='color:#B03000'>against: {_e(x)}</li>" for x in (s.get("against") or [])
+                f"<li style='color:#B03000'>against: {_e(x)}</li>" for x in (s.against or [])
             )
             missing = "".join(
-                f"<li style='color:#666'>not measured: {_e(x)}</li>"
-                for x in (s.get("missing") or [])
+                f"<li style='color:#666'>not measured: {_e(x)}</li>" for x in (s.missing or [])
             )
-            note = f"<br><i>{_e(s.get('note'))}</i>" if s.get("note") else ""
-            subtype = f" ({_e(s.get('subtype'))})" if s.get("subtype") else ""
+            note = f"<br><i>{_e(s.note)}</i>" if s.note else ""
+            subtype = f" ({_e(s.subtype)})" if s.subtype else ""
             out.append(
-                f"<li><b>{_e(suggestion_class(s))}</b>{subtype} score {fmt(s.get('score'), 2)}"
+                f"<li><b>{_e(s.class_code)}</b>{subtype} score {fmt(_num(s.score), 2)}"
                 f"{note}<ul>{reasons}{against}{missing}</ul></li>"
             )
         out.append("</ol>")
-        flags = r.get("flags") or []
+        flags = r.flag_list
         if flags:
-            out.append(f"<p><b>Flags:</b> {_e(', '.join(map(str, flags)))}</p>")
+            out.append(f"<p><b>Flags:</b> {_e(', '.join(flags))}</p>")
         self.browser.setHtml("".join(out))
 
 

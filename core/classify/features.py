@@ -31,6 +31,7 @@ from typing import Any
 
 import numpy as np
 
+from ..results import FourierTerms, StarResult, number
 from ..validation import finite_or_none
 
 __all__ = ["Feature", "FEATURES", "feature_info", "is_known_feature", "features_from_result"]
@@ -164,27 +165,6 @@ def is_known_feature(name: str) -> bool:
 _float = finite_or_none
 
 
-def _item(sequence: Any, index: int) -> float | None:
-    if isinstance(sequence, (list, tuple)) and len(sequence) > index:
-        return _float(sequence[index])
-    return None
-
-
-def _alias_period(candidate: Mapping[str, Any]) -> float | None:
-    """The period the alias mark points to, if the mark details give it."""
-    details = candidate.get("mark_details")
-    entry = details.get("alias") if isinstance(details, Mapping) else None
-    if isinstance(entry, Mapping):
-        for key in ("parent_period", "of_period", "period"):
-            if _float(entry.get(key)):
-                return _float(entry.get(key))
-        for key in ("parent_frequency", "of_frequency", "of", "frequency"):
-            frequency = _float(entry.get(key))
-            if frequency:
-                return 1.0 / frequency
-    return None
-
-
 def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
     """The feature mapping from an ``AnalysisResult.to_dict()``-shaped dict.
 
@@ -199,74 +179,73 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
     0 (no significant harmonic; an upper limit).  Entries already in
     ``result["features"]`` win.  Anything absent is None.
     """
+    model = result if isinstance(result, StarResult) else StarResult.from_dict(result)
     out: dict[str, Any] = {name: None for name in FEATURES}
-    out["period"] = _float(result.get("period"))
-    out["period_err"] = _float(result.get("period_err"))
+    out["period"] = model.number("period")
+    out["period_err"] = model.number("period_err")
     if out["period"] and out["period"] > 0:
         out["log_period"] = math.log10(out["period"])
-    out["fap"] = _float(result.get("fap"))
-    out["n_points"] = _float(result.get("n_good", result.get("n_points")))
-    out["residual_std"] = _float(result.get("residual_std"))
-    out["rise_time"] = _float(result.get("rise_time"))
-    out["period_ratio"] = _float(result.get("period_ratio"))
-    band = result.get("primary_band")
+    out["fap"] = model.number("fap")
+    out["n_points"] = model.number("n_good" if model.n_good is not None else "n_points")
+    out["residual_std"] = model.number("residual_std")
+    out["rise_time"] = model.number("rise_time")
+    out["period_ratio"] = model.number("period_ratio")
+    band = model.primary_band
     out["primary_band"] = band if isinstance(band, str) else None
-    out["amplitude"] = _float(result.get("amplitude"))
-    for name, value in (result.get("amplitude_by_band") or {}).items():
-        out[f"amplitude_{name}"] = _float(value)
-    means = dict(result.get("mean_mag_by_band") or {})
+    out["amplitude"] = model.number("amplitude")
+    for name, value in model.band_numbers("amplitude_by_band").items():
+        out[f"amplitude_{name}"] = value
+    means = model.band_numbers("mean_mag_by_band")
     means.update(
-        {k: v for k, v in (result.get("intensity_mean_mag_by_band") or {}).items() if v is not None}
+        {k: v for k, v in model.band_numbers("intensity_mean_mag_by_band").items() if v is not None}
     )
     for name, value in means.items():
-        out[f"mean_mag_{name}"] = _float(value)
+        out[f"mean_mag_{name}"] = value
     if out.get("mean_mag_V") is not None and out.get("mean_mag_I") is not None:
         out["colour_VI"] = out["mean_mag_V"] - out["mean_mag_I"]
 
-    fourier = result.get("fourier") or {}
-    shift = {"phi21": 0.0, "phi31": 0.0}
-    if fourier.get("form") == "cosine":  # phi_k1(sin) = phi_k1(cos) - (k - 1) pi / 2
-        shift = {"phi21": -math.pi / 2, "phi31": -math.pi}
-    for index, name in enumerate(("A1", "A2", "A3")):
-        out[name] = _item(fourier.get("amplitudes"), index)
-        out[f"{name}_err"] = _item(fourier.get("amplitudes_err"), index)
-    for name in ("R21", "R31", "phi21", "phi31"):
-        out[name] = _float(fourier.get(name))
-        out[f"{name}_err"] = _float(fourier.get(f"{name}_err"))
-        if name in shift and out[name] is not None:
-            out[name] = (out[name] + shift[name]) % (2 * math.pi)
-    if fourier.get("order") == 1:
+    fourier = model.primary_fourier or FourierTerms()
+    for k, name in enumerate(("A1", "A2", "A3"), start=1):
+        out[name] = fourier.amplitude(k)
+        out[f"{name}_err"] = fourier.amplitude_err(k)
+    for name in ("R21", "R31"):
+        out[name] = fourier.value(name)
+        out[f"{name}_err"] = fourier.value(f"{name}_err")
+    for name in ("phi21", "phi31"):  # the sine form (converted when stored as cosine)
+        out[name] = fourier.sine_phi(name)
+        out[f"{name}_err"] = fourier.value(f"{name}_err")
+    if fourier.order == 1:
         # The order choice found no significant second or third harmonic:
         # R21 and R31 are taken as 0 (an upper limit, not a measurement).
         out["R21"] = 0.0 if out["R21"] is None else out["R21"]
         out["R31"] = 0.0 if out["R31"] is None else out["R31"]
 
-    model = _model_shape(fourier)
-    if model is not None:
-        out["skewness"] = model[0]
+    model_shape = _model_shape(fourier)
+    if model_shape is not None:
+        out["skewness"] = model_shape[0]
         if out["rise_time"] is None:
-            out["rise_time"] = model[1]
+            out["rise_time"] = model_shape[1]
 
-    secondary = result.get("secondary_periods") or []
+    secondary = model.secondary_list
     if secondary:
-        first = secondary[0]
-        out["secondary_period"] = _float(
-            first.get("period") if isinstance(first, Mapping) else first
-        )
+        out["secondary_period"] = number(secondary[0].period)
+    elif isinstance(model.secondary_periods, list | tuple) and model.secondary_periods:
+        out["secondary_period"] = number(model.secondary_periods[0])  # a bare period
 
-    eclipse = result.get("eclipse") or {}
-    out["depth_difference"] = _float(eclipse.get("depth_difference"))
-    out["depth_difference_err"] = _float(eclipse.get("depth_difference_err"))
-    out["asymmetry"] = _float(eclipse.get("asymmetry"))
-    if fourier.get("order") == 1:
+    eclipse = model.eclipse_terms
+    if eclipse is not None:
+        out["depth_difference"] = eclipse.value("depth_difference")
+        out["depth_difference_err"] = eclipse.value("depth_difference_err")
+        out["asymmetry"] = eclipse.value("asymmetry")
+    if fourier.order == 1:
         # a single sinusoid is symmetric by construction: asymmetry not measured
         out["asymmetry"] = None
-    odd = _float(eclipse.get("odd_harmonic_fraction"))
+    odd = eclipse.value("odd_harmonic_fraction") if eclipse is not None else None
     out["second_harmonic_weight"] = None if odd is None else 1.0 - odd
-    if eclipse:
-        unequal = eclipse.get("unequal_minima")
+    if eclipse is not None and eclipse.to_dict():
+        unequal = eclipse.unequal_minima
         out["unequal_minima"] = None if unequal is None else float(bool(unequal))
-        out["depth_secondary_at_p"] = _float(eclipse.get("depth_secondary_at_p"))
+        out["depth_secondary_at_p"] = eclipse.value("depth_secondary_at_p")
         out["two_minima_at_p"] = 0.0 if out["depth_secondary_at_p"] is None else 1.0
         amplitude = out.get("amplitude")
         if out["depth_secondary_at_p"] is not None and amplitude:
@@ -276,35 +255,23 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
                 0.0, (amplitude - out["depth_secondary_at_p"]) / amplitude
             )
 
-    chosen = _chosen_candidate(result)
+    chosen = model.chosen_candidate()
     if chosen is not None:
-        out["snr"] = _float(chosen.get("snr"))
-        marks = chosen.get("marks") or ()
+        out["snr"] = number(chosen.snr)
+        marks = chosen.mark_list
         out["is_alias"] = 1.0 if "alias" in marks else 0.0
-        out["alias_period"] = _alias_period(chosen) if "alias" in marks else None
+        out["alias_period"] = chosen.alias_period() if "alias" in marks else None
 
-    for name, value in (result.get("features") or {}).items():
+    for name, value in model.feature_map.items():
         if value is not None:
             out[name] = value
     return out
 
 
-def _chosen_candidate(result: Mapping[str, Any]) -> Mapping[str, Any] | None:
-    candidates = [c for c in result.get("candidates") or () if isinstance(c, Mapping)]
-    if not candidates:
-        return None
-    frequency = _float(result.get("frequency"))
-    if frequency:
-        best = min(candidates, key=lambda c: abs((_float(c.get("frequency")) or 0) - frequency))
-        if abs((_float(best.get("frequency")) or 0) - frequency) <= 1e-6 * frequency + 1e-9:
-            return best
-    return candidates[0]
-
-
-def _model_shape(fourier: Mapping[str, Any]) -> tuple[float, float] | None:
+def _model_shape(fourier: FourierTerms) -> tuple[float, float] | None:
     """(skewness, rise time) of the Fourier model over one cycle, or None."""
-    amplitudes = fourier.get("amplitudes")
-    phases = fourier.get("phases")
+    amplitudes = fourier.amplitudes
+    phases = fourier.phases
     if not amplitudes or not phases or len(amplitudes) != len(phases):
         return None
     try:
@@ -317,7 +284,7 @@ def _model_shape(fourier: Mapping[str, Any]) -> tuple[float, float] | None:
     phase = np.arange(2000) / 2000.0
     order = np.arange(1, len(amp) + 1)[:, None]
     angle = 2 * np.pi * order * phase + pha[:, None]
-    terms = np.sin(angle) if fourier.get("form", "sine") == "sine" else np.cos(angle)
+    terms = np.sin(angle) if (fourier.form or "sine") == "sine" else np.cos(angle)
     curve = (amp[:, None] * terms).sum(axis=0)
     spread = curve.std()
     if spread == 0:

@@ -48,6 +48,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from ..classes import CLASS_CODES as _REGISTRY_CODES
 from ..errors import RulebookError
 from .features import feature_info
 
@@ -63,26 +64,8 @@ __all__ = [
     "user_rulebook_path",
 ]
 
-#: Class codes the rulebook may use.  Classical Cepheids: "DCEP" is the
-#: fundamental mode and "DCEP(1O)" the first overtone, in the designation
-#: style of the large variable-star surveys (common practice, no source).
-CLASS_CODES = (
-    "RRab",
-    "RRc",
-    "RRd",
-    "DCEP",
-    "DCEP(1O)",
-    "T2CEP",
-    "ACEP",
-    "DSCT",
-    "SXPHE",
-    "EA",
-    "EB",
-    "EW",
-    "LPV",
-    "CONST",
-    "UNKNOWN",
-)
+#: Class codes the rulebook may use: the registry's (``core.classes``).
+CLASS_CODES = _REGISTRY_CODES
 
 _RULE_KEYS = {"range", "margin", "weight", "source", "says", "required", "gate"}
 _RULE_REQUIRED = ("range", "margin", "weight", "source")

@@ -182,3 +182,27 @@ def test_subprocess_exit_code_and_message_when_locked(ledger_path):
         )
     assert proc.returncode == 2
     assert f"phasewise: error: {ledger_path}: held for writing by process" in proc.stderr
+
+
+def test_verdict_stores_final_numbers_and_finalise(tmp_path, capsys):
+    import csv
+
+    from tests.core.catalogue_fixtures import build
+
+    path = tmp_path / "seeded.ledger.sqlite"
+    ledger, roles, _ = build(path)
+    ledger.close()
+    star = roles["ew_as_rrc"]
+    code, out, _ = run(capsys, "verdict", path, star, "--status", "relabelled", "--class", "EW")
+    assert code == 0 and "final numbers: EW P=" in out and "primary minimum" in out
+    code, out, _ = run(capsys, "finalise", path)
+    assert code == 0 and "final numbers of 0 stars computed" in out
+    code, out, _ = run(capsys, "finalise", path, "--all")
+    assert code == 0 and "final numbers of 1 star computed" in out
+    target = tmp_path / "vetted.csv"
+    code, out, _ = run(capsys, "export", path, "-o", target)
+    assert code == 0
+    with open(target, newline="", encoding="utf-8") as handle:
+        (row,) = list(csv.DictReader(handle))
+    assert (row["star_id"], row["class"], row["suggested_class"]) == (star, "EW", "RRc")
+    assert float(row["R21"]) > 1.0 and row["feh_zw"] == ""

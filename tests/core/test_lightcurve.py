@@ -59,3 +59,16 @@ def test_bad_construction_names_the_field():
         make(time_scale="GPS")
     with pytest.raises(PhasewiseError, match=r"stars\.csv: field 'star_id'"):
         LightCurve(" ", [1.0], [1.0], meta=StarMeta(source_file="stars.csv"))
+
+
+def test_band_labels_that_strip_to_one_name_are_one_band():
+    # " V" and "V" are the same filter; the derived band views are computed once
+    lc = LightCurve(
+        "s", np.arange(6.0), np.ones(6), np.full(6, 0.01), band=[" V", "V", "I", "V ", "I", "B"]
+    )
+    assert lc.bands == ("V", "I", "B")
+    assert lc.band_mask("V").tolist() == [True, True, False, True, False, False]
+    assert not lc.band_mask("R").any()
+    excluded = lc.with_excluded(np.array([True, True, True, True, False, False]))
+    assert excluded.bands == ("B", "I")  # one point each: ties go by name
+    assert not excluded.good.flags.writeable
