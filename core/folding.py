@@ -8,6 +8,9 @@ days (times, periods) and cycles per day (frequencies).
 
 from __future__ import annotations
 
+from collections import OrderedDict
+from dataclasses import dataclass, replace
+
 import numpy as np
 
 from .errors import PhasewiseError
@@ -19,6 +22,9 @@ __all__ = [
     "snap_to_peak",
     "phase_grid_times",
     "power_at_fap",
+    "FoldModel",
+    "fold_model",
+    "FoldModelCache",
 ]
 
 
@@ -166,3 +172,183 @@ def power_at_fap(fap_of_power, fap: float, lo: float = 0.0, hi: float = 1.0, tol
         else:
             hi = mid
     return 0.5 * (lo + hi)
+
+
+@dataclass(frozen=True)
+class FoldModel:
+    """The analysis model of one band at one trial period, ready to draw.
+
+    Attributes
+    ----------
+    period, epoch : float
+        Trial period and the time of phase zero (days).
+    epoch_kind : str
+        ``"maximum"`` (maximum light of the model) or ``"primary_minimum"``
+        (eclipsing classes, measured from the points as the final numbers are).
+    phase_grid, model_grid : ndarray
+        The model over phase 0–2 (for the line).
+    time, mag, err : ndarray
+        The band's points with a finite time and magnitude, time-sorted.
+    index : ndarray of int
+        Index of each of those points in the full light curve.
+    excluded, set_aside : ndarray of bool
+        Excluded by the user; set aside by the analysis (cleaning rules and
+        residual outliers of the Fourier fit).  Disjoint.
+    residual : ndarray
+        ``mag - model`` at every point (nan without a model).
+    rms : float or None
+        The fit's residual standard deviation (``FourierFit.residual_std``,
+        over the points it was fitted to: neither excluded nor set aside).
+    order : int or None
+        Fourier order chosen at this period (None: no fit possible).
+    """
+
+    period: float
+    epoch: float
+    epoch_kind: str
+    phase_grid: np.ndarray
+    model_grid: np.ndarray
+    time: np.ndarray
+    mag: np.ndarray
+    err: np.ndarray
+    index: np.ndarray
+    excluded: np.ndarray
+    set_aside: np.ndarray
+    residual: np.ndarray
+    rms: float | None
+    order: int | None
+
+    @property
+    def used(self) -> np.ndarray:
+        """Points the model was fitted to."""
+        return ~(self.excluded | self.set_aside)
+
+
+def fold_model(
+    lc,
+    period: float,
+    settings=None,
+    band: str | None = None,
+    eclipsing: bool = False,
+    n_grid: int = 400,
+) -> FoldModel:
+    """Fit the analysis model of ``band`` at a trial period, with the analysis's rules.
+
+    The same steps as ``core.analysis.analyse`` after its period choice:
+    the cleaning rules, the per-band Fourier order choice and the
+    residual-outlier set-aside (``settings.outlier_sigma``).  At the
+    analysed period the line is therefore the analysis's own fit.
+
+    Parameters
+    ----------
+    lc : LightCurve
+    period : float
+        Trial period in days.
+    settings : AnalysisSettings, optional
+    band : str, optional
+        Default: the light curve's band with most points.
+    eclipsing : bool
+        Put phase 0 at primary minimum (``core.final.eclipse_shape``, as the
+        final numbers do) instead of the model's maximum light, and set no
+        residual outliers aside (they would be the eclipse).
+    """
+    # imported here: the analysis pulls in scipy.stats, not needed to open the window
+    from .analysis import AnalysisSettings, _decompose_with_outliers
+    from .clean import clean
+
+    if not np.isfinite(period) or period <= 0:
+        raise PhasewiseError(f"a period must be positive, got {period!r}", field="period")
+    settings = settings or AnalysisSettings()
+    band = band if band is not None else (lc.bands[0] if lc.bands else None)
+    if band is None:
+        raise PhasewiseError("the light curve has no good point to fold", field=lc.star_id)
+    if eclipsing:
+        # as the final numbers do (core.final): a Fourier residual rule cannot follow
+        # a narrow eclipse, so the points it would set aside are mostly the eclipse
+        settings = replace(settings, outlier_sigma=None)
+    cleaned, _report = clean(lc, settings.clean)
+    fit = None
+    kept = cleaned
+    if cleaned.n_good >= 3:
+        fits, _times, kept = _decompose_with_outliers(cleaned, 1.0 / period, settings)
+        fit = fits.get(band)
+    if kept.n_points != lc.n_points:  # a cleaning rule that drops points: no index match
+        kept = lc
+    # every point of the band, excluded ones too (``band_mask`` holds good points only)
+    in_band = (np.asarray(lc.band) == band) & np.isfinite(lc.time) & np.isfinite(lc.mag)
+    index = np.flatnonzero(in_band)
+    index = index[np.argsort(np.asarray(lc.time)[index], kind="stable")]
+    time = np.asarray(lc.time, dtype=float)[index]
+    mag = np.asarray(lc.mag, dtype=float)[index]
+    err = np.asarray(lc.mag_err, dtype=float)[index]
+    excluded = np.asarray(lc.excluded, dtype=bool)[index]
+    set_aside = np.asarray(kept.excluded, dtype=bool)[index] & ~excluded
+    used = ~(excluded | set_aside)
+    if fit is not None:
+        residual = mag - np.asarray(fit.model(time))
+        epoch = float(fit.epoch_max)
+        rms = float(fit.residual_std)  # the same number the star sheet shows as O − C
+    else:
+        residual = np.full(mag.shape, np.nan)
+        epoch = float(time[used][0]) if used.any() else float(time[0]) if time.size else 0.0
+        rms = None
+    kind = "maximum"
+    if eclipsing and used.sum() >= 8:
+        from .final import eclipse_shape
+
+        epoch = eclipse_shape(time[used], mag[used], err[used], period).epoch
+        kind = "primary_minimum"
+    phase_grid, grid_times = phase_grid_times(period, epoch, n_grid)
+    model_grid = (
+        np.asarray(fit.model(grid_times)) if fit is not None else np.full(phase_grid.shape, np.nan)
+    )
+    return FoldModel(
+        period=float(period),
+        epoch=epoch,
+        epoch_kind=kind,
+        phase_grid=phase_grid,
+        model_grid=model_grid,
+        time=time,
+        mag=mag,
+        err=err,
+        index=index,
+        excluded=excluded,
+        set_aside=set_aside,
+        residual=residual,
+        rms=rms,
+        order=None if fit is None else int(fit.order),
+    )
+
+
+class FoldModelCache:
+    """The last few :func:`fold_model` results, so going back to a period is free.
+
+    The key is the star, its exclusion mask, the period, the settings hash,
+    the band and the epoch kind.
+    """
+
+    def __init__(self, size: int = 64) -> None:
+        self.size = int(size)
+        self._items: OrderedDict = OrderedDict()
+
+    def get(self, lc, period, settings=None, band=None, eclipsing=False) -> FoldModel:
+        digest = getattr(settings, "hash", None) if settings is not None else None
+        key = (
+            lc.star_id,
+            np.asarray(lc.excluded, dtype=bool).tobytes(),
+            float(period),
+            digest,
+            band,
+            bool(eclipsing),
+        )
+        if key in self._items:
+            self._items.move_to_end(key)
+            return self._items[key]
+        model = fold_model(lc, period, settings, band, eclipsing)
+        self._items[key] = model
+        while len(self._items) > self.size:
+            self._items.popitem(last=False)
+        return model
+
+    def clear(self) -> None:
+        self._items.clear()

@@ -18,24 +18,24 @@ from PySide6.QtWidgets import (
 )
 
 from phasewise.core.errors import PhasewiseError
-from phasewise.core.folding import phase_fold, phase_grid_times
+from phasewise.core.folding import phase_fold, two_cycles
 
-from .plots import FastPoints, cache_axes
+from .plots import FastPoints, cache_axes, full_range
 from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_colours
 
 __all__ = ["FoldView", "FoldPanel"]
 
-MODEL_POINTS = 400
-#: Above this many points the fit and residuals of a nudge use a fixed sample
-#: of the points (all points are still drawn), so a redraw stays quick.
-MAX_FIT_POINTS = 8000
+SET_ASIDE_COLOUR = "#D62728"
 
 
 class FoldView(pg.GraphicsLayoutWidget):
     """One folded curve over phase 0–2 with its residuals below.
 
-    Keeps a fixed set of items (one scatter per time bin, the model curve,
-    the residual scatter) and only calls ``setData`` when the period moves.
+    Draws :class:`phasewise.core.folding.FoldModel` (the analysis's model at
+    the trial period, from ``services.fold_model``): points used by the fit
+    coloured by time, points the analysis set aside as red open circles,
+    points excluded by the user as grey crosses.  Items are created once and
+    updated with ``setData``.
     """
 
     def __init__(self, services, title: str = "", parent=None) -> None:
@@ -71,114 +71,156 @@ class FoldView(pg.GraphicsLayoutWidget):
         label.setMinimumHeight(18)
         label.setMaximumHeight(18)
         self.title = title
+        self.error_bars = pg.ErrorBarItem(pen=pg.mkPen("#b0b0b0", width=1), beam=0)
+        self.error_bars.setVisible(False)
+        self.fold.addItem(self.error_bars)
         self.bins = []
         for colour in time_colours(TIME_BINS):
             s = FastPoints(colour, size=4.5, square=True, repeat_x=1.0)
             self.fold.addItem(s)
             self.bins.append(s)
+        self.set_aside = pg.ScatterPlotItem(
+            size=8, symbol="o", pen=pg.mkPen(SET_ASIDE_COLOUR, width=1.5), brush=None
+        )
+        self.excluded = pg.ScatterPlotItem(
+            size=7, symbol="x", pen=pg.mkPen(EXCLUDED_COLOUR, width=1), brush=None
+        )
+        self.fold.addItem(self.set_aside)
+        self.fold.addItem(self.excluded)
         self.model_curve = pg.PlotCurveItem(pen=pg.mkPen(MODEL_COLOUR, width=2))
         self.fold.addItem(self.model_curve)
         self.resid_points = FastPoints("#444444", size=3.0, square=True, repeat_x=1.0)
+        self.resid_set_aside = pg.ScatterPlotItem(
+            size=6, symbol="o", pen=pg.mkPen(SET_ASIDE_COLOUR, width=1), brush=None
+        )
         self.resid.addItem(self.resid_points)
+        self.resid.addItem(self.resid_set_aside)
         self.zero = pg.InfiniteLine(angle=0, pos=0.0, pen=pg.mkPen(EXCLUDED_COLOUR))
         self.resid.addItem(self.zero, ignoreBounds=True)
-        self.t = self.m = self.e = None
-        self.slices: list[slice] = []
-        self.sample = slice(None)
-        self.order = 4
-        self.form = "sine"
+        self.lc = None
+        self.band: str | None = None
+        self.settings = None
+        self.eclipsing = False
+        self.show_errors = False
+        self.model = None
         self.period = None
-        self.epoch = None
-        self.fit = None
-        self._range_set = False
+        self._range_key = None
         self._drawn = None
+
+    # kept for callers that read these
+    @property
+    def epoch(self) -> float | None:
+        return None if self.model is None else self.model.epoch
+
+    @property
+    def fit(self):
+        return None if self.model is None or self.model.order is None else self.model
 
     def _set_title(self, text: str) -> None:
         self.fold.setTitle(text, size="9pt")
 
-    def set_data(self, time, mag, err, order: int = 4, form: str = "sine") -> None:
-        """New points (one band): sort by time bin once, so a nudge only folds."""
-        t = np.asarray(time, dtype=float)
-        keep = np.isfinite(t) & np.isfinite(mag)
-        t, m, e = t[keep], np.asarray(mag, float)[keep], np.asarray(err, float)[keep]
-        order_idx = np.argsort(t, kind="stable")
-        self.t, self.m, self.e = t[order_idx], m[order_idx], e[order_idx]
-        self._drawn = None
-        n = self.t.size
-        edges = np.linspace(0, n, TIME_BINS + 1).astype(int)  # equal-count time bins
-        self.slices = [slice(edges[i], edges[i + 1]) for i in range(TIME_BINS)]
-        self.order = max(1, int(order or 4))
-        self.form = form or "sine"
+    def set_star(self, lc, band: str | None, settings=None, eclipsing: bool = False) -> None:
+        """New star, band, settings or epoch rule: the next ``set_period`` redraws."""
+        self.lc, self.band, self.settings = lc, band, settings
+        self.eclipsing = bool(eclipsing)
         self.period = None
-        self._range_set = False
         self._drawn = None
-        if n > MAX_FIT_POINTS:
-            rng = np.random.default_rng(n)  # the same sample at every nudge
-            self.sample = np.sort(rng.choice(n, MAX_FIT_POINTS, replace=False))
-        else:
-            self.sample = slice(None)
+        self._range_key = None
+        self.resid.setLabel(
+            "bottom", "Phase (0 = primary minimum)" if eclipsing else "Phase (0 = maximum light)"
+        )
+
+    def set_errors_visible(self, on: bool) -> None:
+        self.show_errors = bool(on)
+        self._draw_errors()
 
     def clear(self) -> None:
-        self.t = None
+        self.model = None
         self._drawn = None
         for s in self.bins:
             s.setData([], [])
+        for item in (self.set_aside, self.excluded, self.resid_set_aside):
+            item.setData([], [])
         self.model_curve.setData([], [])
         self.resid_points.setData([], [])
+        self.error_bars.setVisible(False)
         self._set_title(self.title)
 
     def set_period(self, period: float | None, epoch_hint: float | None = None) -> None:
-        """Fold at ``period``; fit the Fourier series there and draw."""
-        if self.t is None or self.t.size == 0 or period is None or period <= 0:
+        """Fold at ``period`` and draw the core model there."""
+        lc = self.lc
+        if lc is None or self.band is None or period is None or period <= 0:
             self.clear()
             return
-        if self._drawn == (float(period), id(self.t)):
+        key = (float(period), id(lc), self.band, id(self.settings), self.eclipsing)
+        if self._drawn == key:
             return  # nothing moved (the other fold's period did)
-        self._drawn = (float(period), id(self.t))
-        self.period = float(period)
-        self.fit = None
-        ts, ms, es = self.t[self.sample], self.m[self.sample], self.e[self.sample]
         try:
-            self.fit = self.services.fit_fourier(
-                ts, ms, es, 1.0 / self.period, self.order, form=self.form
+            model = self.services.fold_model(
+                lc, float(period), self.settings, self.band, self.eclipsing
             )
-            epoch = float(self.fit.epoch_max)
-        except (PhasewiseError, np.linalg.LinAlgError, ValueError):
-            # too few points for the order, a singular fit: show the fold without a model
-            epoch = epoch_hint if epoch_hint is not None else float(self.t[0])
-        self.epoch = epoch
-        phase = phase_fold(self.t, self.period, epoch)
-        for s, sl in zip(self.bins, self.slices, strict=True):
-            s.setData(phase[sl], self.m[sl])  # drawn again at phase + 1 by the item
-        if self.fit is not None:
-            grid_phase, grid_t = phase_grid_times(self.period, epoch, MODEL_POINTS)
-            self.model_curve.setData(grid_phase, np.asarray(self.fit.model(grid_t)))
-            resid = ms - np.asarray(self.fit.model(ts))
-            self.resid_points.setData(phase[self.sample], resid)
+        except PhasewiseError as exc:
+            self.clear()
+            self._set_title(f"{self.title}no fold: {exc}")
+            return
+        self._drawn = key
+        self.period = float(period)
+        self.model = model
+        self._draw(model)
+
+    def _draw(self, model) -> None:
+        phase = phase_fold(model.time, model.period, model.epoch)
+        used = model.used
+        p_used, m_used = phase[used], model.mag[used]
+        edges = np.linspace(0, p_used.size, TIME_BINS + 1).astype(int)  # equal-count time bins
+        for i, s in enumerate(self.bins):
+            s.setData(p_used[edges[i] : edges[i + 1]], m_used[edges[i] : edges[i + 1]])
+        aside, excl = model.set_aside, model.excluded
+        self.set_aside.setData(*two_cycles(phase[aside], model.mag[aside]))
+        self.excluded.setData(*two_cycles(phase[excl], model.mag[excl]))
+        has_model = model.order is not None
+        if has_model:
+            self.model_curve.setData(model.phase_grid, model.model_grid)
+            self.resid_points.setData(p_used, model.residual[used])
+            self.resid_set_aside.setData(*two_cycles(phase[aside], model.residual[aside]))
         else:
             self.model_curve.setData([], [])
             self.resid_points.setData([], [])
-        rms = ""
-        if self.fit is not None:
-            rms = f" · rms {float(self.fit.residual_std):.3f} mag"
-            if isinstance(self.sample, np.ndarray):
-                rms += f" (fit on {self.sample.size:,} of {self.t.size:,} points)"
-        self._set_title(f"{self.title}P = {fmt_period(self.period)} d{rms}")
-        if not self._range_set:
-            self._set_range()
+            self.resid_set_aside.setData([], [])
+        self._draw_errors(phase)
+        text = f"{self.title}P = {fmt_period(model.period)} d"
+        if model.rms is not None:
+            text += f" · rms {model.rms:.3f} mag (order {model.order})"
+        if aside.any():
+            text += f" · {int(aside.sum())} set aside"
+        self._set_title(text)
+        self._set_range(model)
 
-    def _set_range(self) -> None:
-        lo, hi = np.nanpercentile(self.m, [0.5, 99.5]) if self.m.size else (0, 1)
-        pad = 0.08 * (hi - lo if hi > lo else 1.0)
-        self.fold.setRange(xRange=(0.0, 2.0), yRange=(lo - pad, hi + pad), padding=0.01)
-        self.fold.getViewBox().disableAutoRange()
-        if self.fit is not None:
-            r = self.m[self.sample] - np.asarray(self.fit.model(self.t[self.sample]))
-            s = float(np.nanpercentile(np.abs(r), 99.5)) if r.size else 0.1
-            s = s if s > 0 else 0.1
-            self.resid.setYRange(-1.15 * s, 1.15 * s, padding=0)
+    def _draw_errors(self, phase=None) -> None:
+        model = self.model
+        if not self.show_errors or model is None or model.time.size == 0:
+            self.error_bars.setVisible(False)
+            return
+        if phase is None:
+            phase = phase_fold(model.time, model.period, model.epoch)
+        x, y, e = two_cycles(phase, model.mag, model.err)
+        self.error_bars.setData(x=x, y=y, height=2 * e)
+        self.error_bars.setVisible(True)
+
+    def _set_range(self, model) -> None:
+        """Cover every point (a new star); the residual panel follows every period."""
+        key = (id(self.lc), self.band)
+        if self._range_key != key:
+            y = full_range(model.mag)
+            if y is not None:
+                self.fold.setRange(xRange=(0.0, 2.0), yRange=y, padding=0.01)
+            self.fold.getViewBox().disableAutoRange()
+            self._range_key = key
+        r = full_range(model.residual)
+        if r is not None:
+            s = max(abs(r[0]), abs(r[1]), 1e-3)
+            self.resid.setYRange(-s, s, padding=0)
         self.resid.getViewBox().disableAutoRange()
-        self._range_set = True
 
 
 class FoldPanel(QWidget):
@@ -240,7 +282,8 @@ class FoldPanel(QWidget):
         buttons_row.addStretch(1)
         self.legend_text = (
             "Points coloured by time of observation: dark purple = earliest, yellow = latest. "
-            "Line: Fourier fit."
+            "Red circles: set aside by the analysis; grey crosses: excluded by you. "
+            "Line: the analysis model at this period."
         )
         self.legend = QLabel(self.legend_text)
         self.legend.setStyleSheet("color: #444;")
@@ -270,9 +313,13 @@ class FoldPanel(QWidget):
             self.band_box.setCurrentText(current)
         self.band_box.blockSignals(False)
 
-    def set_data(self, time, mag, err, order=4, form="sine") -> None:
-        self.main.set_data(time, mag, err, order, form)
-        self.alt.set_data(time, mag, err, order, form)
+    def set_star(self, lc, band, settings=None, eclipsing: bool = False) -> None:
+        self.main.set_star(lc, band, settings, eclipsing)
+        self.alt.set_star(lc, band, settings, eclipsing)
+
+    def set_errors_visible(self, on: bool) -> None:
+        self.main.set_errors_visible(on)
+        self.alt.set_errors_visible(on)
 
     def show_period(self, period: float | None, step: float, epoch_hint=None) -> None:
         self._updating = True

@@ -7,7 +7,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Signal
 from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
 
-from .plots import make_plot, points_in_polygon, set_labels
+from .plots import full_range, make_plot, points_in_polygon, set_labels
 from .style import EXCLUDED_COLOUR, band_style
 
 __all__ = ["LightCurvePanel"]
@@ -151,13 +151,8 @@ class LightCurvePanel(QWidget):
     def _set_range(self, x, mag, sel) -> None:
         if not sel.any():
             return
-        x0, x1 = float(x[sel].min()), float(x[sel].max())
-        lo, hi = np.percentile(mag[sel], [0.2, 99.8])
-        pad_x = 0.02 * (x1 - x0 if x1 > x0 else 1.0)
-        pad_y = 0.08 * (hi - lo if hi > lo else 1.0)
-        self.vb.setRange(
-            xRange=(x0 - pad_x, x1 + pad_x), yRange=(lo - pad_y, hi + pad_y), padding=0
-        )
+        # every point inside, excluded ones too: an outlier off-scale is a hidden decision
+        self.vb.setRange(xRange=full_range(x[sel], 0.02), yRange=full_range(mag[sel]), padding=0)
         self.vb.disableAutoRange()
 
     def _toggle_errors(self, _on: bool) -> None:

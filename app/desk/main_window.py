@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from phasewise.core.classes import is_eclipsing
 from phasewise.core.errors import PhasewiseError
 from phasewise.core.vetting import NON_PERIODIC_CLASSES, VettingSession
 
@@ -356,6 +357,7 @@ class MainWindow(QMainWindow):
         self.lightcurve.show_errors.toggled.connect(
             lambda on: self._sync_check(self.act_errors, on)
         )
+        self.lightcurve.show_errors.toggled.connect(self.fold.set_errors_visible)
         self.lightcurve.select_box.toggled.connect(lambda on: self._sync_check(self.act_select, on))
         self.lightcurve.exclusionRequested.connect(self.exclude_points)
         self.fold.periodEntered.connect(lambda p: self.session.set_period(p, "entry"))
@@ -471,6 +473,8 @@ class MainWindow(QMainWindow):
             self.analysis_settings = settings
             if message:
                 self.statusBar().showMessage(message)
+            if self.lc is not None:  # the folds drew with the defaults until now
+                self._band_changed(self.fold.band_box.currentText())
 
     def settings(self):
         """The analysis settings in use: the ledger's own until changed here."""
@@ -548,13 +552,9 @@ class MainWindow(QMainWindow):
 
     def _set_fold_band(self, band: str | None) -> None:
         if self.lc is None or band is None:
-            self.fold.set_data([], [], [])
+            self.fold.set_star(None, None)
             return
-        t, m, e = self.lc.arrays(band)
-        four = (self.result or {}).get("fourier") or {}
-        by_band = (self.result or {}).get("fourier_by_band") or {}
-        four = by_band.get(band, four) or four
-        self.fold.set_data(t, m, e, four.get("order") or 4, four.get("form") or "sine")
+        self.fold.set_star(self.lc, band, self.analysis_settings, is_eclipsing(self._class_code()))
 
     def _band_changed(self, band: str) -> None:
         self._set_fold_band(band)
@@ -565,8 +565,7 @@ class MainWindow(QMainWindow):
         self.fold.show_period(period, step, (self.result or {}).get("epoch_max"))
         self.fold.show_alternative(self.session.alternative_period(self._class_code()))
         self.periodogram.set_frequency(1.0 / period if period else None)
-        if source not in ("analysis", "band"):
-            self._update_trial_label()
+        self._update_trial_label()
 
     def step_star(self, step: int) -> None:
         sid = self.star_list.neighbour(self.session.star_id, step)

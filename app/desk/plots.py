@@ -16,7 +16,22 @@ __all__ = [
     "set_labels",
     "cache_axes",
     "points_in_polygon",
+    "full_range",
 ]
+
+#: Share of the data range added above and below the points.
+RANGE_PAD = 0.06
+
+
+def full_range(values, pad: float = RANGE_PAD) -> tuple[float, float] | None:
+    """(low, high) covering every finite value, padded: no point is ever off-scale."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return None
+    lo, hi = float(v.min()), float(v.max())
+    span = hi - lo if hi > lo else max(abs(lo) * 1e-3, 0.05)
+    return lo - pad * span, hi + pad * span
 
 
 def points_in_polygon(x, y, polygon) -> np.ndarray:
@@ -44,7 +59,7 @@ def points_in_polygon(x, y, polygon) -> np.ndarray:
 class SelectViewBox(pg.ViewBox):
     """A view box whose left-drag selects a rectangle or a lasso when selection is on.
 
-    Drag with Shift held (or with selection mode on) to select; hold Ctrl
+    Drag with Shift held (or with selection mode or the lasso on) to select; hold Ctrl
     as well to restore instead of exclude.  The shape is emitted in data
     coordinates: a rectangle, or the lasso's vertices when ``lasso`` is set.
     """
@@ -68,7 +83,12 @@ class SelectViewBox(pg.ViewBox):
         self.addItem(self._band, ignoreBounds=True)
 
     def mouseDragEvent(self, ev, axis=None) -> None:
-        selecting = self.select_mode or bool(ev.modifiers() & Qt.KeyboardModifier.ShiftModifier)
+        # the lasso is a selection tool by itself: ticking it needs no Select as well
+        selecting = (
+            self.select_mode
+            or self.lasso
+            or bool(ev.modifiers() & Qt.KeyboardModifier.ShiftModifier)
+        )
         if ev.button() != Qt.MouseButton.LeftButton or not selecting:
             super().mouseDragEvent(ev, axis)
             return

@@ -32,6 +32,9 @@ class PeriodogramView:
 class CoreServices:
     """Calls into core used by the desk (real science, no Qt)."""
 
+    def __init__(self) -> None:
+        self._fold_cache = None
+
     # ------------------------------------------------------------ settings
     def default_settings(self):
         from phasewise.core.analysis import AnalysisSettings
@@ -103,10 +106,13 @@ class CoreServices:
 
         return np.asarray(spectral_window(time, frequency), dtype=float)
 
-    def fit_fourier(self, time, mag, err, frequency, order, form="sine"):
-        from phasewise.core.fourier import fit_fourier
+    def fold_model(self, lc, period, settings=None, band=None, eclipsing=False):
+        """The analysis model at a trial period (``core.folding.fold_model``), cached."""
+        if self._fold_cache is None:
+            from phasewise.core.folding import FoldModelCache
 
-        return fit_fourier(time, mag, err, frequency, order, form=form)
+            self._fold_cache = FoldModelCache()
+        return self._fold_cache.get(lc, period, settings, band, eclipsing)
 
     # -------------------------------------------------------------- ledger
     def open_ledger(self, path, readonly: bool = False):

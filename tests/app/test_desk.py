@@ -16,14 +16,7 @@ from phasewise.app.desk.star_list import StarTableModel
 from .conftest import dispose
 
 
-@pytest.fixture
-def desk(qtbot, qsettings, subset_copy):
-    window = MainWindow(settings=qsettings)
-    window.open_ledger(subset_copy)
-    window.show()
-    qtbot.waitUntil(lambda: window.periodogram.view is not None, timeout=10000)
-    yield window
-    dispose(window)
+from .desk_fixtures import desk  # noqa: F401  (a fixture)
 
 
 def _click_row(qtbot, window, row):
@@ -380,10 +373,12 @@ def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
     from phasewise.app.desk.fold_panel import FoldView
     from phasewise.app.desk.services import CoreServices
 
+    from phasewise.core.lightcurve import LightCurve
+
     view = FoldView(CoreServices())
     qtbot.addWidget(view)
     t = np.array([0.0, 0.3, 0.7, 1.1, 1.6])
-    view.set_data(t, np.full(5, 15.0), np.full(5, 0.02), order=4)
+    view.set_star(LightCurve("X", t, np.full(5, 15.0), np.full(5, 0.02)), "V")
     view.set_period(0.5)
     assert sum(len(b.getData()[0]) for b in view.bins) == 5
     x_model, _ = view.model_curve.getData()

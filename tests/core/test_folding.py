@@ -88,3 +88,59 @@ def test_power_at_fap_inverts_the_single_frequency_fap():
     assert power_at_fap(lambda z: np.full_like(z, 0.5), 0.01) is None
     with pytest.raises(PhasewiseError, match="field 'fap'"):
         power_at_fap(fap_single, 1.5)
+
+
+# ------------------------------------------------------------- fold_model
+@pytest.fixture(scope="module")
+def analysed_rrab():
+    """An invented RRab of the demo survey with the analysis run on it."""
+    from pathlib import Path
+
+    from phasewise.core.analysis import AnalysisSettings, analyse
+    from phasewise.core.io import open_photometry
+
+    root = Path(__file__).resolve().parents[2]
+    lc = open_photometry(root / "demo_data" / "stars").star("CAL-V001")
+    settings = AnalysisSettings()
+    return lc, settings, analyse(lc, settings)
+
+
+def test_fold_model_at_the_analysed_period_is_the_analysis_fit(analysed_rrab):
+    from phasewise.core.folding import fold_model
+
+    lc, settings, result = analysed_rrab
+    model = fold_model(lc, result.period, settings, result.primary_band)
+    fit = result.primary_fit
+    assert model.order == fit.order
+    np.testing.assert_allclose(
+        model.model_grid, fit.model(model.epoch + model.phase_grid * model.period), atol=1e-9
+    )
+    assert model.epoch == pytest.approx(fit.epoch_max)
+    assert model.rms == pytest.approx(fit.residual_std)
+    # the points the analysis set aside are the ones marked here
+    aside_times = set(np.round(model.time[model.set_aside], 9))
+    in_band = {round(t, 9) for t in result.outlier_times} & set(np.round(model.time, 9))
+    assert aside_times == in_band and aside_times
+
+
+def test_fold_model_marks_user_exclusions_apart_and_is_cached(analysed_rrab):
+    from phasewise.core.folding import FoldModelCache
+
+    lc, settings, result = analysed_rrab
+    band = result.primary_band
+    idx = np.flatnonzero(lc.good & (np.asarray(lc.band) == band))[:4]
+    excluded = lc.exclude(idx)
+    cache = FoldModelCache(size=2)
+    model = cache.get(excluded, result.period, settings, band)
+    assert set(model.index[model.excluded]) == set(idx)
+    assert not (model.excluded & model.set_aside).any()
+    assert cache.get(excluded, result.period, settings, band) is model
+    assert cache.get(lc, result.period, settings, band) is not model  # other exclusions
+
+
+def test_fold_model_refuses_a_bad_period(analysed_rrab):
+    from phasewise.core.folding import fold_model
+
+    lc, settings, _ = analysed_rrab
+    with pytest.raises(PhasewiseError, match="period must be positive"):
+        fold_model(lc, -1.0, settings)
