@@ -7,8 +7,8 @@ import pytest
 from .conftest import dispose
 
 
-@pytest.fixture
-def desk(qtbot, qsettings, subset_copy):
+@pytest.fixture(name="desk")
+def desk_window(qtbot, qsettings, subset_copy):
     """The window on a copy of the six analysed demo stars, first periodogram drawn."""
     from phasewise.app.desk import MainWindow
 

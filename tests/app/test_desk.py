@@ -14,9 +14,7 @@ from phasewise.app.desk import MainWindow
 from phasewise.app.desk.star_list import StarTableModel
 
 from .conftest import dispose
-
-
-from .desk_fixtures import desk  # noqa: F401  (a fixture)
+from .desk_fixtures import desk_window  # noqa: F401  (the "desk" fixture)
 
 
 def _click_row(qtbot, window, row):
@@ -372,7 +370,6 @@ def test_a_constant_star_gets_no_period(desk, qtbot):
 def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
     from phasewise.app.desk.fold_panel import FoldView
     from phasewise.app.desk.services import CoreServices
-
     from phasewise.core.lightcurve import LightCurve
 
     view = FoldView(CoreServices())

@@ -13,7 +13,7 @@ from PySide6.QtCore import QRectF
 from phasewise.app.desk import MainWindow
 
 from .conftest import ROOT, dispose
-from .desk_fixtures import desk  # noqa: F401  (a fixture)
+from .desk_fixtures import desk_window  # noqa: F401  (the "desk" fixture)
 
 OUTLIER_STAR = "CAL-V003"
 #: Magnitudes added to one point: far beyond the star's ~0.5 mag amplitude.
