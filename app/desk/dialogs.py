@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import re
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import (
     QComboBox,
@@ -15,6 +15,8 @@ from PySide6.QtWidgets import (
     QGridLayout,
     QLabel,
     QLineEdit,
+    QListWidget,
+    QListWidgetItem,
     QSpinBox,
     QTableWidget,
     QTableWidgetItem,
@@ -23,7 +25,13 @@ from PySide6.QtWidgets import (
 
 from .periodogram_panel import METHODS
 
-__all__ = ["ColumnMappingDialog", "AnalysisSettingsDialog", "ShortcutSheet", "preview_rows"]
+__all__ = [
+    "ColumnMappingDialog",
+    "AnalysisSettingsDialog",
+    "ShortcutSheet",
+    "ClassPicker",
+    "preview_rows",
+]
 
 #: Roles of a ColumnMapping, with the text shown in the dialog.
 ROLES = (
@@ -237,3 +245,75 @@ def _shown_keys(sequences) -> list[str]:
         ):
             out.append(text)
     return out
+
+
+class ClassPicker(QDialog):
+    """Pick any class from the keyboard: type to narrow the list, Enter records it.
+
+    ``classes`` is a sequence of ``(code, label)``.  Up/Down move in the
+    list while the typing box keeps the focus; Escape closes without a verdict.
+
+    Signals
+    -------
+    picked(str)
+        The chosen class code.
+    """
+
+    picked = Signal(str)
+
+    def __init__(self, classes, parent=None) -> None:
+        super().__init__(parent)
+        self.setWindowTitle("Relabel as")
+        self.typed = QLineEdit(placeholderText="Type a class code or name, then Enter")
+        self.list = QListWidget()
+        for code, label in classes:
+            item = QListWidgetItem(f"{code}  —  {label}")
+            item.setData(Qt.ItemDataRole.UserRole, code)
+            self.list.addItem(item)
+        self.list.setCurrentRow(0)
+        layout = QVBoxLayout(self)
+        layout.addWidget(self.typed)
+        layout.addWidget(self.list)
+        self.typed.textChanged.connect(self._narrow)
+        self.typed.installEventFilter(self)
+        self.typed.returnPressed.connect(self.accept)
+        self.list.itemActivated.connect(lambda _item: self.accept())
+
+    def _narrow(self, text: str) -> None:
+        """Show the classes whose code starts with, or whose name holds, the text."""
+        text = text.strip().lower()
+        first = None
+        for row in range(self.list.count()):
+            item = self.list.item(row)
+            code = str(item.data(Qt.ItemDataRole.UserRole)).lower()
+            shown = not text or code.startswith(text) or text in item.text().lower()
+            item.setHidden(not shown)
+            if shown and (first is None or code == text):
+                first = row
+        if first is not None:
+            self.list.setCurrentRow(first)
+
+    def eventFilter(self, obj, event) -> bool:
+        if obj is self.typed and event.type() == QEvent.Type.KeyPress:
+            if event.key() in (Qt.Key.Key_Up, Qt.Key.Key_Down):
+                step = -1 if event.key() == Qt.Key.Key_Up else 1
+                row = self.list.currentRow()
+                while 0 <= row + step < self.list.count():
+                    row += step
+                    if not self.list.item(row).isHidden():
+                        self.list.setCurrentRow(row)
+                        break
+                return True
+        return super().eventFilter(obj, event)
+
+    def current_code(self) -> str | None:
+        item = self.list.currentItem()
+        if item is None or item.isHidden():
+            return None
+        return str(item.data(Qt.ItemDataRole.UserRole))
+
+    def accept(self) -> None:
+        code = self.current_code()
+        super().accept()
+        if code:
+            self.picked.emit(code)

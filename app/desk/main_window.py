@@ -24,7 +24,7 @@ from phasewise.core.classes import is_eclipsing
 from phasewise.core.errors import PhasewiseError
 from phasewise.core.vetting import NON_PERIODIC_CLASSES, VettingSession
 
-from .dialogs import AnalysisSettingsDialog, ColumnMappingDialog, ShortcutSheet
+from .dialogs import AnalysisSettingsDialog, ClassPicker, ColumnMappingDialog, ShortcutSheet
 from .fold_panel import FoldPanel
 from .icons import icon
 from .lightcurve_panel import LightCurvePanel
@@ -229,7 +229,7 @@ class MainWindow(QMainWindow):
         )
         self.act_reject = a("&Reject", lambda: self.set_verdict("rejected"), "X", "reject")
         self.act_defer = a("&Defer", lambda: self.set_verdict("deferred"), "D", "defer")
-        self.act_relabel = a("Re&label (pick a class)…", self.pick_class, "L")
+        self.act_relabel = a("Re&label as any class…", self.pick_class, "L")
         self.act_note = a("Edit &note", self.focus_note, "N")
         self.class_actions = []
         for i, code in enumerate(CLASS_CODES[:10]):
@@ -344,6 +344,7 @@ class MainWindow(QMainWindow):
     def _connect(self) -> None:
         self.star_list.currentStarChanged.connect(self.load_star)
         self.star_list.filterChanged.connect(self.filterChanged)
+        self.star_list.filterDone.connect(self.focus_plots)
         self.periodogram.peakPicked.connect(lambda f: self.session.set_period(1.0 / f, "peak"))
         self.periodogram.methodChanged.connect(self._method_changed)
         self.periodogram.windowRequested.connect(self._compute_window)
@@ -451,6 +452,7 @@ class MainWindow(QMainWindow):
             self.statusBar().showMessage(f"No star {first_star!r} in this ledger.")
         if target:
             self.select_star(target)
+        self.focus_plots()  # one-key vetting works at once (not typing into the filter)
         if self.analysis_settings is None:
             # core.analysis (and scipy.stats) load after the first star is on screen
             self.workers.start(
@@ -720,9 +722,18 @@ class MainWindow(QMainWindow):
         if status == "confirmed" and not class_code:
             class_code = self.sheet.top_suggestion()
         period = self.verdict_period(status, class_code)
+        from phasewise.core.final import record_verdict
+
         try:
-            self.ledger.set_verdict(
-                star_id, status, class_code=class_code, period=period, note=note or None
+            # the catalogue's verdict policy: the final numbers are stored with the verdict
+            record_verdict(
+                self.ledger,
+                star_id,
+                status,
+                class_code=class_code,
+                period=period,
+                note=note or None,
+                settings=self.settings(),
             )
         except PhasewiseError as exc:
             QMessageBox.warning(self, "Verdict not saved", str(exc))
@@ -746,8 +757,18 @@ class MainWindow(QMainWindow):
         self.sheet.relabel(class_code)
 
     def pick_class(self) -> None:
-        self.sheet.class_box.setFocus()
-        self.sheet.class_box.showPopup()
+        """Pick any class from the keyboard and record a relabel verdict with it."""
+        from phasewise.core.classes import CLASSES
+
+        self.class_picker = ClassPicker([(c.code, c.label) for c in CLASSES.values()], self)
+        self.class_picker.picked.connect(self.relabel)
+        self.class_picker.finished.connect(lambda _r: self.focus_plots())
+        self.class_picker.open()
+        self.class_picker.typed.setFocus()
+
+    def focus_plots(self) -> None:
+        """Give the keyboard back to the plots (the one-key actions work there)."""
+        self.fold.main.setFocus()
 
     def focus_note(self) -> None:
         self.sheet.note_edit.setFocus()
@@ -760,7 +781,7 @@ class MainWindow(QMainWindow):
             self.act_advance.setChecked(False)
             self.set_verdict(status, _get(self.verdict, "class_code"))
             self.act_advance.setChecked(advance)
-        self.star_list.view.setFocus()
+        self.focus_plots()
 
     def focus_filter(self) -> None:
         self.star_list.filter_edit.setFocus()

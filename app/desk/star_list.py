@@ -7,6 +7,7 @@ from collections.abc import Iterable, Sequence
 
 from PySide6.QtCore import (
     QAbstractTableModel,
+    QEvent,
     QModelIndex,
     QSortFilterProxyModel,
     Qt,
@@ -316,6 +317,8 @@ class StarListWidget(QWidget):
 
     currentStarChanged = Signal(str)
     filterChanged = Signal()
+    #: Enter or Escape in the filter box: the typing is done, the keys go back to vetting.
+    filterDone = Signal()
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
@@ -364,9 +367,21 @@ class StarListWidget(QWidget):
         layout.addWidget(self.view, 1)
 
         self.filter_edit.textChanged.connect(self._text_changed)
+        self.filter_edit.returnPressed.connect(self.filterDone)
+        self.filter_edit.installEventFilter(self)
         self.status_box.currentIndexChanged.connect(self._status_changed)
         self.view.selectionModel().currentRowChanged.connect(self._row_changed)
         self._sort_order = {}
+
+    def eventFilter(self, obj, event) -> bool:
+        if (
+            obj is self.filter_edit
+            and event.type() == QEvent.Type.KeyPress
+            and event.key() == Qt.Key.Key_Escape
+        ):
+            self.filterDone.emit()
+            return True
+        return super().eventFilter(obj, event)
 
     # ------------------------------------------------------------- actions
     def set_rows(self, rows) -> None:
