@@ -32,7 +32,7 @@ from . import __version__
 from .classify import features_from_result, load_rulebook, suggest
 from .clean import CleanReport, CleanSettings, clean
 from .eclipse import EclipseSettings, EclipseTest, eclipse_test
-from .errors import PhasewiseError
+from .errors import PhasewiseError, plain_reason
 from .final import suggested_final_dict
 from .fourier import (
     FourierFit,
@@ -279,7 +279,7 @@ def analyse(
     except (PhasewiseError, ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
         return AnalysisResult(
             status="failed",
-            reason=f"{type(exc).__name__}: {exc}",
+            reason=plain_reason(exc),  # our own sentence, never the raw exception text
             n_good=lc.n_good,
             bands=lc.bands,
             **base,

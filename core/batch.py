@@ -40,7 +40,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import PhasewiseError
+from .errors import PhasewiseError, plain_reason
 from .threads import limit_blas_threads
 
 __all__ = [
@@ -184,8 +184,9 @@ class StarOutcome:
 
     star_id: str
     result: dict[str, Any] | None = None
-    error: str | None = None
+    error: str | None = None  # our own sentence for the person
     shared_epochs: bool = False
+    detail: str | None = None  # the raw exception text, kept for debugging only
 
     @property
     def failed(self) -> bool:
@@ -264,7 +265,7 @@ def analyse_chunk(
     lightcurves: Sequence,
     settings=None,
     analyse_fn: str | Callable = DEFAULT_ANALYSE,
-    shared_epochs: bool = True,
+    shared_epochs: bool = False,
 ) -> list[StarOutcome]:
     """Analyse a chunk of stars; the pure worker function of every engine.
 
@@ -276,7 +277,10 @@ def analyse_chunk(
         ``"module:function"`` with the signature of
         :func:`core.analysis.analyse` (``fn(lc, settings, periodogram=None)``).
     shared_epochs : bool
-        Batch the periodograms of stars that share their epochs.
+        Batch the periodograms of stars that share their epochs.  Off by
+        default: exact, but measured no faster than star by star once
+        transform plans are reused (0.98x whole analysis, 0.97x periodogram
+        stage, ``benchmarks/bench_batch.py``) and it raises worker memory.
 
     Returns
     -------
@@ -302,7 +306,9 @@ def analyse_chunk(
                 result = fn(lc, settings, periodogram=pgram)
             outcomes.append(_outcome(lc.star_id, result, pgram is not None))
         except Exception as exc:  # noqa: BLE001 - one star's bug must not stop the run
-            outcomes.append(StarOutcome(lc.star_id, error=_error_text(exc)))
+            outcomes.append(
+                StarOutcome(lc.star_id, error=plain_reason(exc), detail=_error_text(exc))
+            )
     return outcomes
 
 
@@ -527,6 +533,12 @@ class _DaskEngine(_Engine):
             raise PhasewiseError(
                 f"cannot reach the Dask scheduler at {scheduler}: {exc}", field="scheduler"
             ) from exc
+        except (ValueError, TypeError) as exc:  # a malformed address
+            raise PhasewiseError(
+                f"not a scheduler address: {scheduler!r}; expected tcp://HOST:PORT "
+                f"(or tls://HOST:PORT) ({exc})",
+                field="scheduler",
+            ) from None
         threads = sum(self._client.nthreads().values())
         self.workers = workers or max(1, threads)
 
@@ -611,7 +623,7 @@ def analyse_ledger(
     progress: Callable[[Progress], None] | None = None,
     stop: threading.Event | Callable[[], bool] | None = None,
     analyse_fn: str | Callable | None = None,
-    shared_epochs: bool = True,
+    shared_epochs: bool = False,
     max_in_flight: int | None = None,
 ) -> BatchSummary:
     """Analyse the stars of a ledger and store the results in it.
@@ -643,7 +655,8 @@ def analyse_ledger(
         The per-star analysis, ``"module:function"`` importable by the
         workers (default :data:`DEFAULT_ANALYSE`); tests pass their own.
     shared_epochs : bool
-        Batch the periodograms of stars sharing their epochs.
+        Batch the periodograms of stars sharing their epochs (off by
+        default; see :func:`analyse_chunk`).
     max_in_flight : int, optional
         Chunks sent but not yet written (default: twice the workers).
 
@@ -777,13 +790,18 @@ class _Run:
             if not retried:
                 self.retry.extend([star_id] for star_id in ids)
                 return
-            message = f"the worker analysing this star was lost: {_error_text(exc)}"
-            outcomes = [StarOutcome(ids[0], error=message)]
+            message = (
+                "the process analysing this star stopped (killed, out of memory, or a crash "
+                "in compiled code) twice; it is recorded as failed"
+            )
+            outcomes = [StarOutcome(ids[0], error=message, detail=_error_text(exc))]
         self._write(outcomes)
 
     def _write(self, outcomes: list[StarOutcome]) -> None:
         results = [(o.star_id, self.settings.hash, o.result) for o in outcomes if not o.failed]
-        failures = [(o.star_id, self.settings.hash, o.error) for o in outcomes if o.failed]
+        failures = [
+            (o.star_id, self.settings.hash, o.error, o.detail) for o in outcomes if o.failed
+        ]
         if results:
             self.ledger.store_results(results)
         if failures:
@@ -792,7 +810,7 @@ class _Run:
         self.failed += len(failures)
         self.shared += sum(o.shared_epochs for o in outcomes)
         room = KEPT_FAILURES - len(self.failures)
-        self.failures.extend((s, m) for s, _, m in failures[: max(0, room)])
+        self.failures.extend((s, m) for s, _, m, _ in failures[: max(0, room)])
         self._report()
 
     def _report(self) -> None:

@@ -18,6 +18,7 @@ __all__ = [
     "LedgerLockedError",
     "LedgerVersionError",
     "GridTooLargeError",
+    "plain_reason",
 ]
 
 
@@ -90,3 +91,32 @@ class LedgerLockedError(LedgerError):
 
 class LedgerVersionError(LedgerError):
     """The ledger was written by a newer Phasewise."""
+
+
+def plain_reason(exc: BaseException) -> str:
+    """Our own sentence for why a computation on one star stopped.
+
+    Stored for the star and shown to the person instead of the raw exception
+    text (which names internals, or may carry bytes from the input); the raw
+    text belongs in a debug field or log only.
+    """
+    if isinstance(exc, PhasewiseError):
+        return str(exc)
+    if isinstance(exc, (ZeroDivisionError, OverflowError, FloatingPointError)):
+        return (
+            "a computation overflowed or divided by zero: the magnitudes or their errors "
+            "may lie outside any physical range"
+        )
+    if type(exc).__name__ == "LinAlgError":
+        return (
+            "a fit had no unique solution: too few distinct points, or errors that are "
+            "zero or enormous"
+        )
+    if isinstance(exc, MemoryError):
+        return "there was not enough memory to analyse this star"
+    if isinstance(exc, (ValueError, TypeError, IndexError, KeyError)):
+        return "the analysis met values it cannot use (for example too few distinct times)"
+    return (
+        f"an unexpected error ({type(exc).__name__}) stopped the analysis of this star; "
+        "please report it with the ledger's failure details"
+    )

@@ -88,6 +88,9 @@ __all__ = [
 #: Version of the table layout written by this Phasewise.
 SCHEMA_VERSION = 3
 
+#: Page size of new ledgers (older files keep theirs).
+PAGE_SIZE = 8192
+
 #: SQLite ``application_id`` of a Phasewise ledger ("PhWL").
 APPLICATION_ID = 0x5068574C
 
@@ -154,6 +157,7 @@ class StoredResult:
     failed: bool
     error: str | None
     damaged: bool = False  # the stored record failed its checksum; analyse the star again
+    error_detail: str | None = None  # raw text of a failure, for debugging only
 
 
 @dataclass(frozen=True)
@@ -583,7 +587,9 @@ class Ledger:
     @classmethod
     def _check_target(cls, path: Path, overwrite: bool) -> None:
         if not path.exists():
-            if not os.access(path.parent if str(path.parent) else ".", os.W_OK):
+            if not path.parent.is_dir():
+                raise LedgerError("cannot create it: no such folder", file=path)
+            if not os.access(path.parent, os.W_OK):
                 raise LedgerError("cannot create it: the folder is not writable", file=path)
             return
         if not overwrite:
@@ -612,6 +618,9 @@ class Ledger:
         try:
             conn = sqlite3.connect(temp, isolation_level=None)
             try:
+                # 8 KiB pages: a star's photometry row (2.5 KB at 100 points) leaves
+                # little of a page unused, where 4 KiB pages hold one row each
+                conn.execute(f"PRAGMA page_size={PAGE_SIZE}")
                 conn.execute(f"PRAGMA application_id={APPLICATION_ID}")
                 conn.executescript("BEGIN;" + _SCHEMA_V1 + "COMMIT;")
                 conn.execute("BEGIN IMMEDIATE")
@@ -1217,9 +1226,10 @@ class Ledger:
         self._query("UPDATE photometry SET excluded = ? WHERE star = ?", (blob, key))
         self._reseal_photometry(key)
         if self._query("SELECT outdated FROM results WHERE star = ?", (key,)).fetchone() == (0,):
-            self._check_result(key)  # never seal over a damaged result
-            self._query("UPDATE results SET outdated = 1 WHERE star = ?", (key,))
-            self._reseal_result(key)
+            record = self._result_record(key)
+            if record is not None and record[2]:  # a damaged result is never sealed over
+                self._query("UPDATE results SET outdated = 1 WHERE star = ?", (key,))
+                self._reseal_result(key)
 
     # ------------------------------------------------------------ analysis
     def set_analysis_settings(self, settings: Mapping[str, Any], settings_hash: str) -> None:
@@ -1330,11 +1340,6 @@ class Ledger:
                 intact = False
         return values, text, intact and _seal(key, *values, text) == seal
 
-    def _check_result(self, key: int) -> None:
-        record = self._result_record(key)
-        if record is not None and not record[2]:
-            raise self._damaged(self._names.get(key), "result")
-
     def _reseal_result(self, key: int) -> None:
         record = self._result_record(key)
         old = self._query("SELECT seal FROM results WHERE star = ?", (key,)).fetchone()[0]
@@ -1377,6 +1382,7 @@ class Ledger:
             stale=stale,
             failed=bool(failed),
             error=error,
+            error_detail=values[16],
         )
 
     def stars_needing_analysis(self, settings_hash: str, only: str = "unanalysed") -> list[str]:

@@ -14,6 +14,7 @@ import sys
 import time
 from pathlib import Path
 
+from phasewise.app.cli.terminal import terminal_text
 from phasewise.core.batch import ONLY_CHOICES, BatchSummary, Progress
 
 #: Seconds between plain progress lines when stderr is not a terminal.
@@ -53,7 +54,11 @@ def register(subparsers) -> None:
     parser.add_argument(
         "--scheduler",
         metavar="tcp://HOST:PORT",
-        help="run on the Dask cluster of this scheduler (needs phasewise[dask])",
+        help="run on the Dask cluster of this scheduler (needs phasewise[dask]). Light "
+        "curves, settings and results travel to and from the scheduler and workers as "
+        "pickles, which can run code when loaded: use only machines you trust. On a shared "
+        "network use tls://HOST:PORT with distributed's TLS settings (CA file, certificate "
+        "and key under distributed.comm.tls in the dask configuration)",
     )
     parser.add_argument("--settings", type=Path, metavar="FILE", help="analysis settings (TOML)")
     parser.add_argument(
@@ -64,6 +69,12 @@ def register(subparsers) -> None:
     )
     parser.add_argument(
         "--chunk-size", type=int, metavar="N", help="stars sent to a worker at once"
+    )
+    parser.add_argument(
+        "--shared-epochs",
+        action="store_true",
+        help="batch the periodograms of single-band stars observed at the same epochs "
+        "(exact; measured no faster than star by star, so off by default)",
     )
     parser.add_argument("--quiet", action="store_true", help="no progress and no summary")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
@@ -96,6 +107,7 @@ def run(args: argparse.Namespace) -> int:
         only=args.only,
         chunk_size=args.chunk_size,
         progress=bar,
+        shared_epochs=args.shared_epochs,
     )
     if bar is not None:
         bar.close()
@@ -119,13 +131,21 @@ def _finalise(ledger_path: Path) -> int:
 
 
 def _import(files: list[Path], ledger_path: Path, columns: str | None, *, quiet: bool) -> None:
+    from phasewise.core.errors import PhasewiseError
     from phasewise.core.io import ColumnMapping, open_photometry
     from phasewise.core.ledger import Ledger, file_checksum
 
+    if ledger_path.exists():
+        raise PhasewiseError(
+            "a file of that name exists; choose another name for the new ledger, or "
+            "analyse the existing one without --ledger",
+            file=ledger_path,
+        )
     mapping = ColumnMapping.parse(columns) if columns else None
     sources = [open_photometry(path, mapping) for path in files]  # all readable before writing
-    ledger = Ledger.create(ledger_path)
-    try:
+    # built beside and moved into place only when complete: a half import is no ledger,
+    # and a killed import leaves nothing that blocks the rerun
+    with Ledger.building(ledger_path) as ledger:
         for path, source in zip(files, sources, strict=True):
             checksum = file_checksum(path) if path.is_file() else None
             added = ledger.add_stars(
@@ -134,15 +154,11 @@ def _import(files: list[Path], ledger_path: Path, columns: str | None, *, quiet:
             report = source.report
             if not quiet:
                 print(
-                    f"{path}: {added} stars imported; rows read {report.rows_read}, "
-                    f"skipped {report.rows_skipped}"
+                    terminal_text(
+                        f"{path}: {added} stars imported; rows read {report.rows_read}, "
+                        f"skipped {report.rows_skipped}"
+                    )
                 )
-    except BaseException:
-        ledger.close()
-        for suffix in ("", "-wal", "-shm"):  # a half import is no ledger
-            Path(f"{ledger_path}{suffix}").unlink(missing_ok=True)
-        raise
-    ledger.close()
 
 
 def _clock(seconds: float | None) -> str:
@@ -208,7 +224,7 @@ def summary_text(summary: BatchSummary) -> str:
             "since); --only stale analyses them again"
         )
     for star_id, message in summary.failures[:SHOWN_FAILURES]:
-        lines.append(f"  failed {star_id}: {message}")
+        lines.append(terminal_text(f"  failed {star_id}: {message}"))
     if summary.failed > SHOWN_FAILURES:
         lines.append(f"  ... and {summary.failed - SHOWN_FAILURES} more (stored in the ledger)")
     return "\n".join(lines)

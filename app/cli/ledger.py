@@ -374,6 +374,9 @@ def run_walk(args: argparse.Namespace) -> int:
 # --------------------------------------------------------------------- export
 def run_export(args: argparse.Namespace) -> int:
     from phasewise.core.export import write_catalogue
+    from phasewise.core.io.writers import remove_abandoned_temps
+
+    remove_abandoned_temps(args.output, ".partial")  # left by killed exports
 
     statuses = ("confirmed", "relabelled")
     if args.status:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from collections import Counter
 
+from phasewise.app.cli.terminal import terminal_text
 from phasewise.core.io import ColumnMapping, open_photometry
 
 #: Skipped rows printed one by one (all are counted).
@@ -61,29 +62,34 @@ def _count(labels):
 
 
 def _print(summary: dict) -> None:
-    print(f"{summary['source']}  ({summary['format']}, {summary['shape']})")
-    print(f"  stars: {summary['n_stars']}")
+    for line in _lines(summary):
+        print(terminal_text(line))
+
+
+def _lines(summary: dict):
+    yield f"{summary['source']}  ({summary['format']}, {summary['shape']})"
+    yield f"  stars: {summary['n_stars']}"
     bands = ", ".join(f"{b} {n}" for b, n in summary["points_per_band"].items())
-    print(f"  points per band: {bands}")
-    print(f"  time scale: {summary['time_scale']}")
+    yield f"  points per band: {bands}"
+    yield f"  time scale: {summary['time_scale']}"
     used = ", ".join(f"{role}={name}" for role, name in summary["columns_used"].items())
-    print(f"  columns used: {used}")
+    yield f"  columns used: {used}"
     if summary["table"]:
-        print(f"  table: {summary['table']}")
-    print(f"  rows read: {summary['rows_read']}, skipped: {summary['rows_skipped']}")
+        yield f"  table: {summary['table']}"
+    yield f"  rows read: {summary['rows_read']}, skipped: {summary['rows_skipped']}"
     for reason, count in summary["skip_counts"].items():
-        print(f"    {count} x {reason}")
+        yield f"    {count} x {reason}"
     for entry in summary["skipped"][:SHOWN_SKIPS]:
-        print(f"    row {entry['row']}: {entry['reason']}")
+        yield f"    row {entry['row']}: {entry['reason']}"
     if summary["too_few_points"]:
         shown = ", ".join(summary["too_few_points"][:10])
         more = len(summary["too_few_points"]) - 10
-        print(
+        yield (
             f"  too few points: {len(summary['too_few_points'])} star(s): {shown}"
             + (f" and {more} more" if more > 0 else "")
         )
     for note in summary["notes"]:
-        print(f"  note: {note}")
+        yield f"  note: {note}"
 
 
 def run(args) -> int:

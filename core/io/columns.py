@@ -22,6 +22,9 @@ __all__ = [
     "ResolvedColumns",
     "resolve_columns",
     "time_scale_of_name",
+    "UNKNOWN_BAND",
+    "ONE_STAR",
+    "id_like",
 ]
 
 #: Column roles a mapping may name (``id`` is accepted as a synonym of ``star_id``).
@@ -29,7 +32,23 @@ ROLES = ("star_id", "time", "mag", "err", "band", "flux", "flux_err", "ra", "dec
 
 #: Names recognised per role, lower case, in order of preference.
 ACCEPTED_NAMES: dict[str, tuple[str, ...]] = {
-    "star_id": ("star_id", "starid", "id", "star", "name", "object", "source_id", "obj_id"),
+    "star_id": (
+        "star_id",
+        "starid",
+        "id",
+        "star",
+        "name",
+        "object",
+        "source_id",
+        "sourceid",
+        "obj_id",
+        "objid",
+        "object_id",
+        "objectid",
+        "oid",
+        "target",
+        "designation",
+    ),
     "time": ("time", "t", "date", "jd", "mjd", "hjd", "bjd", "bjd_tdb", "hjd_utc"),
     "mag": ("mag", "magnitude", "mags"),
     "err": ("mag_err", "magerr", "err", "error", "e_mag", "emag", "sigma", "mag_error", "sig"),
@@ -55,6 +74,22 @@ _SCALE_WORDS = {
     "bjd_tdb": "BJD_TDB",
     "bjdtdb": "BJD_TDB",
 }
+#: Mapping value of ``star_id`` saying the file holds one star (no id column).
+ONE_STAR = "-"
+
+#: Band label of points whose band neither a column nor the mapping gives: no
+#: relation calibrated in a band applies to them.
+UNKNOWN_BAND = "unknown"
+
+# A magnitude column that names its band: "V", "Ks", "Vmag", "mag_I", "g_mag".
+_BAND_NAME = re.compile(
+    r"^(?:mag_?)?(u|b|v|r|i|j|h|k|ks|g|z|y|bp|rp|w1|w2)(?:_?mag)?$", re.IGNORECASE
+)
+# Names that suggest a star id although they are not among the accepted ones.
+_ID_LIKE_NAME = re.compile(
+    r"(^|[_\s])(id|name|obj|object|source|src|target|star)([_\s]|$)|(id|name)$"
+)
+
 # "hjd-2400000", "HJD - 2450000", "rjd" style names of reduced dates.
 _OFFSET_NAME = re.compile(r"^(jd|mjd|hjd|bjd|bjd_tdb)\s*-\s*(24\d{5}(?:\.5)?)$")
 
@@ -177,8 +212,9 @@ class ResolvedColumns:
     zero_point: float | None = None
     scale_column: str | None = None
     excluded_column: str | None = None
-    default_band: str = "V"
+    default_band: str = UNKNOWN_BAND
     notes: tuple[str, ...] = ()
+    one_star: bool = False  # the mapping says: no star-id column, the file is one star
 
     @property
     def uses_flux(self) -> bool:
@@ -212,8 +248,11 @@ def resolve_columns(
     found = ", ".join(repr(c) for c in columns) or "none"
     roles: dict[str, str] = {}
     notes: list[str] = []
+    one_star = mapping.star_id == ONE_STAR
     for role in ROLES:
         wanted = getattr(mapping, role)
+        if role == "star_id" and one_star:
+            continue
         if wanted is not None:
             actual = lookup.get(_norm(wanted))
             if actual is None:
@@ -255,12 +294,23 @@ def resolve_columns(
             "the mapping wins"
         )
     for role in ("star_id", "mag", "err", "band", "flux", "flux_err", "ra", "dec"):
-        if role in roles:
+        if role in roles or (role == "star_id" and one_star):
             continue
         for name in ACCEPTED_NAMES[role]:
             if name in lookup and lookup[name] not in roles.values():
                 roles[role] = lookup[name]
                 break
+    if "mag" not in roles and "flux" not in roles:
+        banded = [c for c in columns if _BAND_NAME.match(_norm(c)) and "mag" in _norm(c)]
+        if len(banded) == 1:
+            roles["mag"] = banded[0]  # "Vmag": the one magnitude column, and its band
+        elif len(banded) > 1:
+            raise ReadError(
+                "several magnitude columns: "
+                + ", ".join(repr(c) for c in banded)
+                + "; choose one with mag=COLUMN (and band= or default_band=)",
+                file=file,
+            )
     if "mag" not in roles and "flux" not in roles:
         raise ReadError(
             f"no magnitude column; columns found: {found}; names accepted: {_accepted('mag')}"
@@ -281,12 +331,17 @@ def resolve_columns(
     excluded_column = next((lookup[n] for n in EXCLUDED_COLUMN_NAMES if n in lookup), None)
     band = mapping.default_band
     if band is None and "band" not in roles:
-        mag_name = roles.get("mag", "")
-        if 0 < len(mag_name) <= 2 and _norm(mag_name) not in ACCEPTED_NAMES["mag"]:
-            band = mag_name  # a magnitude column named "V" or "Ks" names its band
+        match = _BAND_NAME.match(_norm(roles.get("mag", "")))
+        if match and _norm(roles["mag"]) not in ACCEPTED_NAMES["mag"]:
+            # a magnitude column named "V", "Ks" or "Imag" names its band
+            band = _band_label(match.group(1))
         else:
-            band = "V"
-            notes.append("no band column; every point is labelled band 'V'")
+            band = UNKNOWN_BAND
+            notes.append(
+                f"no band column and the mapping gives none: every point is labelled band "
+                f"'{UNKNOWN_BAND}', so no relation calibrated in a band applies; give "
+                "default_band= (e.g. V) in the mapping if you know it"
+            )
     return ResolvedColumns(
         roles=roles,
         time_scale=time_scale or "",
@@ -294,6 +349,20 @@ def resolve_columns(
         zero_point=mapping.zero_point,
         scale_column=scale_column,
         excluded_column=excluded_column,
-        default_band=band or "V",
+        default_band=band or UNKNOWN_BAND,
         notes=tuple(notes),
+        one_star=one_star,
     )
+
+
+def _band_label(text: str) -> str:
+    """The usual spelling of a band named in a column name ("ks" -> "Ks", "bp" -> "BP")."""
+    key = text.lower()
+    if key in ("u", "b", "v", "r", "i", "j", "h", "k"):
+        return key.upper()
+    return {"ks": "Ks", "bp": "BP", "rp": "RP", "w1": "W1", "w2": "W2"}.get(key, key)
+
+
+def id_like(name: str) -> bool:
+    """Whether a column name suggests a star id (``OBJID``, ``src_name``...)."""
+    return bool(_ID_LIKE_NAME.search(_norm(name)))

@@ -19,9 +19,15 @@ ECSV, FITS and VOTable.
 
 from __future__ import annotations
 
+import bz2
 import csv
+import gzip
 import os
+import re
+import stat
+import tempfile
 import warnings
+import zipfile
 from collections import Counter
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -32,7 +38,14 @@ import numpy as np
 
 from ..errors import PhasewiseError, ReadError
 from ..lightcurve import LightCurve, StarMeta
-from .columns import ColumnMapping, ResolvedColumns, normalise_scale, resolve_columns
+from .columns import (
+    ACCEPTED_NAMES,
+    ColumnMapping,
+    ResolvedColumns,
+    id_like,
+    normalise_scale,
+    resolve_columns,
+)
 
 __all__ = ["FORMATS", "ReadReport", "PhotometrySource", "open_photometry", "detect_format"]
 
@@ -50,6 +63,18 @@ _DELIMITERS = {"csv": ",", "tsv": "\t", "ascii": None}
 MAX_LISTED_SKIPS = 200
 #: Pogson: 2.5 / ln(10), the factor between a relative flux error and a magnitude error.
 POGSON_ERR = 2.5 / np.log(10.0)
+#: Magnitudes outside this range are no star's (the Sun is -26.7; the faintest
+#: objects measured are near 32): such points are skipped as invalid.
+MAG_RANGE = (-30.0, 40.0)
+#: Largest magnitude error accepted; larger ones are invalid (zero and negative
+#: errors are left to the cleaning rules, which report them).
+MAX_MAG_ERR = 10.0
+#: A time column spanning more days than this (about 270 years) mixes scales or units.
+MAX_TIME_SPAN = 1.0e5
+#: Largest size a compressed file may inflate to before it is read.
+MAX_INFLATED_BYTES = 256 * 2**20
+# "15,234" or "-0,5e3": a number written with a decimal comma
+_DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+(?:[eE][+-]?\d+)?$")
 
 
 def detect_format(path: str | os.PathLike, format: str | None = None) -> str:
@@ -153,26 +178,60 @@ class _DelimitedTable:
         self.delimiter = _DELIMITERS[fmt]
         self.header_end = 0
         self.header_line = 0
-        self.columns = self._read_header()
         self.table_note = None
+        self._spool = None
+        self._translate_cr_only()
+        self.columns = self._read_header()
         self.meta: dict[str, Any] = {}
 
-    def _split(self, text: str) -> list[str]:
-        if self.delimiter is None:
+    def _open(self):
+        """The file's bytes (with CR-only line ends turned into LF)."""
+        if self._spool is not None:
+            return os.fdopen(os.dup(self._spool.fileno()), "rb")
+        try:
+            return open(self.path, "rb")
+        except OSError as exc:
+            raise ReadError(f"cannot open: {exc.strerror or exc}", file=self.file) from None
+
+    def _translate_cr_only(self) -> None:
+        # Files from old Mac software end lines with CR alone; the line reader
+        # splits on LF, so such a file is read through a translated copy.
+        with self._open() as handle:
+            head = handle.read(1 << 16)
+        if b"\r" not in head or b"\n" in head:
+            return
+        spool = tempfile.TemporaryFile()
+        with self._open() as handle:
+            while block := handle.read(1 << 20):
+                spool.write(block.replace(b"\r", b"\n"))
+        spool.seek(0)
+        self._spool = spool
+        self.table_note = "lines end with CR alone (old Mac style); read as ordinary lines"
+
+    def _split(self, text: str, line: int) -> list[str]:
+        if text.count('"') % 2:
+            raise ReadError(
+                "a quoted field runs over a line break (or a quote is not closed); "
+                "line breaks inside quoted fields are not read: remove them",
+                file=self.file,
+                row=line,
+            )
+        try:
+            if self.delimiter is None:
+                if '"' in text:
+                    reader = csv.reader([text], delimiter=" ", skipinitialspace=True)
+                    return [p for p in next(reader) if p]
+                return text.split()
             if '"' in text:
-                return [
-                    p for p in next(csv.reader([text], delimiter=" ", skipinitialspace=True)) if p
-                ]
-            return text.split()
-        if '"' in text:
-            return next(csv.reader([text], delimiter=self.delimiter))
+                return next(csv.reader([text], delimiter=self.delimiter))
+        except csv.Error as exc:
+            raise ReadError(
+                f"cannot split the line into fields ({exc})", file=self.file, row=line
+            ) from None
         return text.split(self.delimiter)
 
     def _read_header(self) -> list[str]:
-        try:
-            handle = open(self.path, "rb")
-        except OSError as exc:
-            raise ReadError(f"cannot open: {exc.strerror or exc}", file=self.file) from None
+        handle = self._open()
         with handle:
             offset = 0
             for number, raw in enumerate(handle, start=1):
@@ -182,7 +241,7 @@ class _DelimitedTable:
                     continue
                 if self.delimiter == "," and "," not in text and ";" in text:
                     self.delimiter = ";"  # European spreadsheets write semicolons
-                names = [c.strip() for c in self._split(text)]
+                names = [c.strip() for c in self._split(text, number)]
                 # a trailing delimiter (spreadsheet exports) leaves unnamed columns
                 names = [n or f"column {i + 1}" for i, n in enumerate(names)]
                 if len(set(n.lower() for n in names)) < len(names):
@@ -200,7 +259,7 @@ class _DelimitedTable:
         self.runs: dict[str, list[list[int]]] = {}
         index = self.columns.index(id_column) if id_column else None
         current = None
-        with open(self.path, "rb") as handle:
+        with self._open() as handle:
             handle.seek(self.header_end)
             offset, number = self.header_end, self.header_line
             for raw in handle:
@@ -213,7 +272,7 @@ class _DelimitedTable:
                 if index is None:
                     star = default_id
                 else:
-                    parts = self._split(_decode(stripped, self.file, number))
+                    parts = self._split(_decode(stripped, self.file, number), number)
                     star = parts[index].strip() if index < len(parts) else ""
                     if not star:
                         tally.skip(self.file, number, "empty star id", "empty star id")
@@ -233,7 +292,7 @@ class _DelimitedTable:
         width = len(self.columns)
         cells: dict[str, list[str]] = {c: [] for c in needed}
         rows: list[int] = []
-        with open(self.path, "rb") as handle:
+        with self._open() as handle:
             for start, end, first in self.runs.get(star, []):
                 handle.seek(start)
                 chunk = handle.read(end - start)
@@ -241,7 +300,7 @@ class _DelimitedTable:
                     stripped = raw.strip()
                     if not stripped or stripped.startswith(b"#"):
                         continue
-                    parts = self._split(_decode(stripped, self.file, number))
+                    parts = self._split(_decode(stripped, self.file, number), number)
                     if len(parts) != width:
                         tally.skip(
                             self.file,
@@ -255,15 +314,32 @@ class _DelimitedTable:
                         cells[column].append(parts[pos].strip())
         return _Rows(cells=cells, masks={}, rows=np.asarray(rows, dtype=np.int64))
 
-    def preview(self, n: int) -> list[dict[str, str]]:
-        out: list[dict[str, str]] = []
-        with open(self.path, "rb") as handle:
+    def column_text(self, name: str, limit: int = 200_000) -> list[str] | None:
+        """The first ``limit`` cells of a column as text (for checks on whole columns)."""
+        position = self.columns.index(name)
+        out: list[str] = []
+        with self._open() as handle:
             handle.seek(self.header_end)
             for number, raw in enumerate(handle, start=self.header_line + 1):
                 stripped = raw.strip()
                 if not stripped or stripped.startswith(b"#"):
                     continue
-                parts = self._split(_decode(stripped, self.file, number))
+                parts = self._split(_decode(stripped, self.file, number), number)
+                if position < len(parts):
+                    out.append(parts[position].strip())
+                if len(out) >= limit:
+                    break
+        return out
+
+    def preview(self, n: int) -> list[dict[str, str]]:
+        out: list[dict[str, str]] = []
+        with self._open() as handle:
+            handle.seek(self.header_end)
+            for number, raw in enumerate(handle, start=self.header_line + 1):
+                stripped = raw.strip()
+                if not stripped or stripped.startswith(b"#"):
+                    continue
+                parts = self._split(_decode(stripped, self.file, number), number)
                 out.append(dict(zip(self.columns, (p.strip() for p in parts), strict=False)))
                 if len(out) >= n:
                     break
@@ -419,6 +495,14 @@ class _AstropyTable:
             cells[name], masks[name] = values[index], mask[index]
         return _Rows(cells=cells, masks=masks, rows=index + 1)
 
+    def column_text(self, name: str, limit: int = 200_000) -> list[str] | None:
+        """The first ``limit`` cells of a column as text (for checks on whole columns)."""
+        values, mask = self._column(name)
+        if values.dtype.kind not in "USOiub":
+            return None  # floats are measurements, not ids
+        cells = values[:limit].astype(str)
+        return ["" if m else str(v).strip() for v, m in zip(cells, mask[:limit], strict=True)]
+
     def preview(self, n: int) -> list[dict[str, str]]:
         return [
             {c: str(self.table[c][i]) for c in self.columns} for i in range(min(n, len(self.table)))
@@ -446,8 +530,44 @@ def _to_float(values, mask) -> tuple[np.ndarray, np.ndarray, dict[int, str]]:
     for i in np.flatnonzero(mask):
         text = str(values[i]).strip()
         empty = blank[i] or text in ("", "--")
-        reasons[int(i)] = "empty cell" if empty else f"not a number: {text[:40]!r}"
+        if empty:
+            reasons[int(i)] = "empty cell"
+        elif _DECIMAL_COMMA.match(text):
+            reasons[int(i)] = f"decimal comma: {text[:40]!r}"
+        else:
+            reasons[int(i)] = f"not a number: {text[:40]!r}"
     return out, mask, reasons
+
+
+def _check_time_span(time, rows, column: str, file: str, star: str) -> None:
+    """Refuse a star whose times cannot all be days of one scale (JD with MJD, seconds)."""
+    finite = np.isfinite(time)
+    if np.count_nonzero(finite) < 2:
+        return
+    t, r = time[finite], rows[finite]
+    first, last = int(np.argmin(t)), int(np.argmax(t))
+    span = float(t[last] - t[first])
+    if span <= MAX_TIME_SPAN:
+        return
+    ordered = np.sort(t)
+    cut = int(np.argmax(np.diff(ordered)))
+    gap = float(ordered[cut + 1] - ordered[cut])
+    low, high = np.median(ordered[: cut + 1]), np.median(ordered[cut + 1 :])
+    if 2.3e6 < gap < 2.5e6 or 2.3e6 < high - low < 2.5e6:
+        cause = (
+            "Julian dates mixed with modified or reduced dates (they differ by about 2,400,000 d)"
+        )
+    elif low > 0 and 4.3e4 * low < high < 1.7e5 * low:  # a ratio, without overflow
+        cause = "seconds mixed with days (values differ by about 86,400 times)"
+    else:
+        cause = "these cannot all be days of one time scale (seconds, or mixed scales?)"
+    raise ReadError(
+        f"star {star!r}: the times span {span:,.0f} days (row {int(r[first])}: {t[first]:.10g}, "
+        f"row {int(r[last])}: {t[last]:.10g}): {cause}; one column must hold days of one "
+        "time scale",
+        file=file,
+        column=column,
+    )
 
 
 def _to_bool(values) -> np.ndarray:
@@ -458,6 +578,50 @@ def _to_bool(values) -> np.ndarray:
         return np.nan_to_num(array.astype(float)) != 0
     text = np.char.lower(np.char.strip(array.astype(str)))
     return np.isin(text, ("true", "t", "1", "yes", "y"))
+
+
+def _refuse_hidden_ids(part) -> None:
+    """Stop when no id column was found but one looks like it (by name or values).
+
+    Reading such a file as one star would merge many stars into one.
+    """
+    res, table = part.resolved, part.table
+    used = set(res.roles.values()) | {res.scale_column, res.excluded_column}
+    for name in table.columns:
+        if name in used:
+            continue
+        values = table.column_text(name)
+        if values is None or len(values) < 2:
+            continue
+        distinct = set(values)
+        distinct.discard("")
+        if len(distinct) < 2:
+            continue
+        looks = id_like(name)
+        if not looks and _all_text(distinct) and np.median([len(v) for v in distinct]) >= 3:
+            runs = 1 + sum(1 for a, b in zip(values, values[1:], strict=False) if a != b)
+            looks = runs == len(distinct) and len(values) >= 3 * len(distinct)
+        if looks:
+            examples = ", ".join(repr(v) for v in sorted(distinct)[:3])
+            raise ReadError(
+                f"no star-id column was recognised, but column {name!r} looks like one "
+                f"({len(distinct)} different values, e.g. {examples}); reading the file as "
+                f"one star would merge them. Map it with id={name}, or give id=- if the "
+                f"file really holds one star (names accepted for ids: "
+                f"{', '.join(ACCEPTED_NAMES['star_id'])})",
+                file=table.file,
+                column=name,
+            )
+
+
+def _all_text(values) -> bool:
+    for value in values:
+        try:
+            float(value)
+            return False
+        except ValueError:
+            continue
+    return True
 
 
 # ---------------------------------------------------------------- the source
@@ -490,6 +654,8 @@ class PhotometrySource:
 
     def _index(self) -> None:
         for i, part in enumerate(self._parts):
+            if "star_id" not in part.resolved.roles and not part.resolved.one_star:
+                _refuse_hidden_ids(part)
             default = part.table.path.stem.split(".")[0]
             part.stars = part.table.build_index(
                 part.resolved.roles.get("star_id"), self._tally, default
@@ -527,9 +693,23 @@ class PhotometrySource:
         return len(self._where)
 
     def stars(self) -> Iterator[LightCurve]:
-        """Every star, read one at a time."""
+        """Every star, read one at a time.
+
+        Raises :class:`ReadError` at the end if no row at all was usable.
+        """
+        usable = 0
         for star in self._where:
-            yield self.star(star)
+            lc = self.star(star)
+            usable += lc.n_points
+            yield lc
+        if not usable:
+            counts = self._tally.counts
+            why = "; ".join(f"{n} x {kind}" for kind, n in counts.most_common(5)) or "none read"
+            raise ReadError(
+                f"no usable row: every one of the {self._tally.rows_read} data rows was "
+                f"skipped ({why})",
+                file=str(self.path),
+            )
 
     def star(self, star_id: str) -> LightCurve:
         """One star's light curve (all its files joined, all bands)."""
@@ -609,23 +789,38 @@ class PhotometrySource:
             bad |= fail
         for i in sorted(why):  # one entry per skipped row, naming the first bad cell
             name, reason = why[i]
+            if reason.startswith("decimal comma"):
+                raise ReadError(
+                    f"{reason}: numbers must use a decimal point; save the file with "
+                    "decimal points (in a spreadsheet: the English number format)",
+                    file=file,
+                    row=int(rows[i]),
+                    column=name,
+                )
             kind = "empty cell" if reason == "empty cell" else "not a number"
             tally.skip(file, rows[i], f"column '{name}': {kind}", f"column '{name}': {reason}")
         keep = ~bad
         notes: list[str] = []
-        time = values["time"][keep] + res.time_offset
         if res.uses_flux:
-            flux = values["flux"][keep]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                mag = res.zero_point - 2.5 * np.log10(flux)
-                err = POGSON_ERR * values["flux_err"][keep] / flux if "flux_err" in values else None
-            nonpositive = int(np.count_nonzero(flux <= 0))
-            if nonpositive:
-                notes.append(f"{nonpositive} point(s) with flux <= 0 have no magnitude (NaN)")
-                mag = np.where(flux > 0, mag, np.nan)
-        else:
-            mag = values["mag"][keep]
-            err = values["err"][keep] if "err" in values else None
+            flux = values["flux"]
+            nonpositive = keep & ~(flux > 0) & np.isfinite(flux)
+            for i in np.flatnonzero(nonpositive):
+                tally.skip(
+                    file,
+                    rows[i],
+                    f"column '{roles['flux']}': flux <= 0",
+                    f"column '{roles['flux']}': flux {flux[i]:g} <= 0 has no magnitude",
+                )
+            keep &= ~nonpositive
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                values["mag"] = res.zero_point - 2.5 * np.log10(flux)
+                if "flux_err" in values:
+                    values["err"] = POGSON_ERR * values["flux_err"] / flux
+        keep &= self._in_range(values, keep, rows, part, tally)
+        time = values["time"][keep] + res.time_offset
+        _check_time_span(time, rows[keep], roles["time"], file, star)
+        mag = values["mag"][keep]
+        err = values["err"][keep] if "err" in values else None
         if "band" in roles:
             band = np.asarray(raw.cells[roles["band"]]).astype(str)[keep]
             band = np.char.strip(band)
@@ -661,6 +856,38 @@ class PhotometrySource:
             "columns": {r: c for r, c in roles.items()},
             "notes": notes,
         }
+
+    @staticmethod
+    def _in_range(values, keep, rows, part: _FilePart, tally: _Tally) -> np.ndarray:
+        """Rows whose magnitude and error lie in physical ranges (others are skipped, counted)."""
+        roles, file = part.resolved.roles, part.table.file
+        mag_name = roles.get("mag") or f"{roles.get('flux')} (as magnitude)"
+        err_name = roles.get("err") or f"{roles.get('flux_err')} (as magnitude error)"
+        low, high = MAG_RANGE
+        mag = values["mag"]
+        with np.errstate(invalid="ignore"):
+            bad_mag = keep & np.isfinite(mag) & ((mag < low) | (mag > high))
+            bad_mag |= keep & np.isinf(mag)
+            bad_err = np.zeros_like(keep)
+            if "err" in values:
+                err = values["err"]
+                # zero and negative errors are left to the cleaning rules, which report them
+                bad_err = keep & ~bad_mag & ((err > MAX_MAG_ERR) | np.isinf(err))
+        for i in np.flatnonzero(bad_mag):
+            tally.skip(
+                file,
+                rows[i],
+                f"column '{mag_name}': outside {low:g} to {high:g} mag",
+                f"column '{mag_name}': {mag[i]:g} is outside {low:g} to {high:g} mag",
+            )
+        for i in np.flatnonzero(bad_err):
+            tally.skip(
+                file,
+                rows[i],
+                f"column '{err_name}': above {MAX_MAG_ERR:g} mag",
+                f"column '{err_name}': {values['err'][i]:g} is above {MAX_MAG_ERR:g} mag",
+            )
+        return ~(bad_mag | bad_err)
 
     def _scale_of(self, part: _FilePart, raw: _Rows, keep: np.ndarray, file: str) -> str:
         res = part.resolved
@@ -722,7 +949,60 @@ class PhotometrySource:
         )
 
 
+def _check_regular(path: Path) -> None:
+    """Refuse pipes, devices and sockets: reading one could wait forever."""
+    try:
+        mode = path.stat().st_mode
+    except OSError as exc:
+        raise ReadError(f"cannot open: {exc.strerror or exc}", file=str(path)) from None
+    if not stat.S_ISREG(mode):
+        raise ReadError(
+            "not a regular file (a pipe, device or socket); save the data to a file first",
+            file=str(path),
+        )
+
+
+def _check_inflated_size(path: Path) -> None:
+    """Refuse a compressed file that would inflate beyond :data:`MAX_INFLATED_BYTES`."""
+    with open(path, "rb") as handle:
+        magic = handle.read(4)
+    if magic[:2] == b"\x1f\x8b":
+        opener, kind = gzip.open, "gzip"
+    elif magic[:3] == b"BZh":
+        opener, kind = bz2.open, "bzip2"
+    elif magic == b"PK\x03\x04":
+        try:
+            with zipfile.ZipFile(path) as archive:
+                size = sum(info.file_size for info in archive.infolist())
+        except (zipfile.BadZipFile, OSError) as exc:
+            raise ReadError(f"a damaged zip archive ({exc})", file=str(path)) from None
+        if size > MAX_INFLATED_BYTES:
+            _too_large(path, "zip", size)
+        return
+    else:
+        return
+    total = 0
+    try:
+        with opener(path, "rb") as stream:
+            while block := stream.read(1 << 20):
+                total += len(block)
+                if total > MAX_INFLATED_BYTES:
+                    _too_large(path, kind, total)
+    except (OSError, EOFError, ValueError) as exc:
+        raise ReadError(f"a damaged {kind} file ({exc})", file=str(path)) from None
+
+
+def _too_large(path: Path, kind: str, size: int) -> None:
+    raise ReadError(
+        f"the {kind}-compressed file inflates to more than {MAX_INFLATED_BYTES // 2**20} MB "
+        f"(at least {size // 2**20} MB); it is not read, to keep memory safe. If you trust "
+        "it, decompress it yourself and read the plain file",
+        file=str(path),
+    )
+
+
 def _open_table(path: Path, fmt: str | None, table):
+    _check_regular(path)
     fmt = detect_format(path, fmt)
     if fmt in _DELIMITERS:
         try:
@@ -737,6 +1017,7 @@ def _open_table(path: Path, fmt: str | None, table):
         raise ReadError("cannot open: no such file", file=str(path))
     if path.stat().st_size == 0:
         raise ReadError("empty file", file=str(path))
+    _check_inflated_size(path)
     try:
         return _AstropyTable(path, fmt, table), fmt
     except ReadError as exc:
@@ -855,6 +1136,7 @@ def open_photometry(
     else:
         if not path.exists():
             raise ReadError("cannot open: no such file or folder", file=str(path))
+        _check_regular(path)
         tab, fmt = _open_table(path, format, table)
         parts = [_FilePart(tab, _resolve(tab, mapping, str(path)), [])]
         source = PhotometrySource(path, "long table", fmt, parts, mapping)

@@ -4,13 +4,18 @@ The table has one row per point: ``star_id``, the time in a column named by
 its scale (``jd``, ``mjd``, ``hjd`` or ``bjd_tdb``, so a reader never has
 to guess), ``mag``, ``mag_err`` (when errors are known), ``band``,
 ``excluded`` (the mask, so exclusions survive a round trip) and ``ra``/``dec``
-when any star has coordinates.  The file is written to a temporary name and
-renamed, so a reader never sees half a file.
+when any star has coordinates.  The file is written to a temporary file made
+with :mod:`tempfile` in the target folder (never a predictable name, never
+through a planted symlink) and renamed, so a reader never sees half a file;
+the temporary file is removed on any failure, and ones left by a killed
+process are removed by the next write to the same target.
 """
 
 from __future__ import annotations
 
 import os
+import tempfile
+import time
 import warnings
 from collections.abc import Iterable
 from pathlib import Path
@@ -21,7 +26,10 @@ from ..errors import PhasewiseError
 from ..lightcurve import LightCurve
 from .readers import detect_format
 
-__all__ = ["write_stars"]
+__all__ = ["write_stars", "remove_abandoned_temps"]
+
+#: Age after which a temporary file beside a target is taken as abandoned.
+ABANDONED_AFTER = 600.0
 
 _ASTROPY_FORMATS = {
     "csv": "ascii.csv",
@@ -99,15 +107,43 @@ def write_stars(
         table["mag_err"].unit = "mag"
     table[_time_column(scales[0])].unit = "d"
     table.meta["time_scale"] = scales[0]
-    temporary = path.with_name(f".{path.name}.part")
+    if path.is_dir():
+        raise PhasewiseError("is a folder; give a file name to write", file=str(path))
+    remove_abandoned_temps(path, ".part")
+    temporary = None
     try:
+        handle, name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+        os.close(handle)
+        temporary = Path(name)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # FITS warns about the long meta key; it goes HIERARCH
             table.write(temporary, format=_ASTROPY_FORMATS[fmt], overwrite=True)
         os.replace(temporary, path)
+        temporary = None
     except OSError as exc:
         raise PhasewiseError(f"cannot write: {exc.strerror or exc}", file=str(path)) from None
     finally:
-        if temporary.exists():
-            temporary.unlink()
+        if temporary is not None:
+            temporary.unlink(missing_ok=True)
     return path
+
+
+def remove_abandoned_temps(
+    path: str | os.PathLike, suffix: str, *, older_than: float = ABANDONED_AFTER
+) -> int:
+    """Remove ``.NAME.*SUFFIX`` files beside ``path`` left by killed writers; returns how many.
+
+    Only files untouched for ``older_than`` seconds are removed, so a write
+    in progress elsewhere keeps its file.
+    """
+    path = Path(path)
+    removed = 0
+    cutoff = time.time() - older_than
+    for temp in path.parent.glob(f".{path.name}.*{suffix}"):
+        try:
+            if temp.is_file() and not temp.is_symlink() and temp.stat().st_mtime < cutoff:
+                temp.unlink()
+                removed += 1
+        except OSError:
+            continue
+    return removed

@@ -63,3 +63,10 @@ def dying_analyse(lc, settings, *, periodogram=None):
     if lc.star_id.endswith("7"):
         os._exit(3)
     return quick_analyse(lc, settings, periodogram=periodogram)
+
+
+def dividing_analyse(lc, settings, *, periodogram=None):
+    """Divides by zero for stars whose id ends in 2 (a failure inside the analysis)."""
+    if lc.star_id.endswith("2"):
+        return 1 / 0
+    return quick_analyse(lc, settings, periodogram=periodogram)

@@ -33,6 +33,7 @@ QUICK = "tests.core.batch_helpers:quick_analyse"
 RAISING = "tests.core.batch_helpers:raising_analyse"
 FAILING = "tests.core.batch_helpers:failing_status_analyse"
 DYING = "tests.core.batch_helpers:dying_analyse"
+DIVIDING = "tests.core.batch_helpers:dividing_analyse"
 
 #: A small grid keeps the real analysis quick in tests (about 13,000 frequencies).
 FAST = AnalysisSettings(periodogram=PeriodogramSettings(fmax=3.0, oversampling=3))
@@ -111,7 +112,7 @@ def test_shared_periodograms_equal_star_by_star(field):
 @pytest.mark.slow
 def test_chunk_results_equal_star_by_star(field):
     lcs = field.lightcurves()
-    outcomes = analyse_chunk(lcs, FAST)
+    outcomes = analyse_chunk(lcs, FAST, shared_epochs=True)
     assert sum(o.shared_epochs for o in outcomes) >= 5
     for lc, outcome in zip(lcs, outcomes, strict=True):
         alone = analyse(lc, FAST).to_dict()
@@ -201,9 +202,11 @@ def test_star_that_raises_in_a_worker_is_recorded_and_the_run_goes_on(quick_ledg
         for star_id in ledger.star_ids():
             stored = ledger.result(star_id)
             if star_id in bad:
-                assert stored.failed
-                assert f"RuntimeError: injected failure for {star_id}" in stored.error
-                assert "batch_helpers.py" in stored.error  # where the bug is
+                # our sentence for the person; the raw text only in the debug field
+                assert stored.failed and "injected" not in stored.error
+                assert "unexpected error (RuntimeError)" in stored.error
+                assert f"RuntimeError: injected failure for {star_id}" in stored.error_detail
+                assert "batch_helpers.py" in stored.error_detail  # where the bug is
             else:
                 assert not stored.failed and stored.result["status"] == "ok"
     assert dict(summary.failures).keys() == set(bad)
@@ -217,7 +220,7 @@ def test_star_that_kills_its_worker_is_isolated_and_recorded(quick_ledger):
         assert bad and summary.failed == len(bad) and summary.analysed == 23 - len(bad)
         for star_id in bad:
             stored = ledger.result(star_id)
-            assert stored.failed and "the worker analysing this star was lost" in stored.error
+            assert stored.failed and "the process analysing this star stopped" in stored.error
         good = [s for s in ledger.star_ids() if s not in bad]
         assert all(not ledger.result(s).failed for s in good)  # chunk-mates are retried
 
@@ -287,3 +290,16 @@ def test_locked_ledger_is_refused(quick_ledger):
     with Ledger.open(quick_ledger):
         with pytest.raises(PhasewiseError, match="quick.ledger.sqlite"):
             analyse_ledger(quick_ledger, FAST, workers=0, analyse_fn=QUICK)
+
+
+def test_failure_reasons_are_our_sentences(quick_ledger):
+    # an analysis that divides by zero on a star (as 1e308 magnitudes once did):
+    # the stored reason is our sentence, the raw text is kept only as detail
+    summary = analyse_ledger(quick_ledger, FAST, workers=0, analyse_fn=DIVIDING)
+    with Ledger.open(quick_ledger, readonly=True) as ledger:
+        bad = [s for s in ledger.star_ids() if s.endswith("2")]
+        assert summary.failed == len(bad) > 0
+        stored = ledger.result(bad[0])
+        assert stored.failed and "overflowed or divided by zero" in stored.error
+        assert "division by zero" not in stored.error
+        assert "ZeroDivisionError" in stored.error_detail

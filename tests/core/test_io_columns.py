@@ -114,6 +114,10 @@ def test_flux_needs_a_zero_point():
 
 def test_band_from_a_magnitude_column_named_by_band():
     assert resolve_columns(["hjd", "I", "err"], ColumnMapping(mag="I")).default_band == "I"
+    assert resolve_columns(["hjd", "Ks"], ColumnMapping(mag="Ks")).default_band == "Ks"
+    assert resolve_columns(["hjd", "Imag", "err"], None).default_band == "I"
+    # no band from a column or the mapping: "unknown", never a silent "V"
     res = resolve_columns(["hjd", "mag"], None)
-    assert res.default_band == "V"
-    assert any("no band column" in n for n in res.notes)
+    assert res.default_band == "unknown"
+    assert any("no band column" in n and "'unknown'" in n for n in res.notes)
+    assert resolve_columns(["hjd", "mag"], ColumnMapping(default_band="R")).default_band == "R"

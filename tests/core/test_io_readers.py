@@ -110,11 +110,15 @@ def test_flux_becomes_magnitude_by_the_pogson_relation(tmp_path):
     assert lc.mag_err == pytest.approx([1.0857 * 0.01, 1.0857 * 0.05], rel=1e-4)
 
 
-def test_non_positive_flux_has_no_magnitude(tmp_path):
-    text = "jd,flux\n2460000.0,1000.0\n2460001.0,-3.0\n"
-    lc = open_photometry(_file(tmp_path, "f.csv", text), ColumnMapping(zero_point=20.0)).star("f")
-    assert np.isnan(lc.mag[1]) and lc.n_good == 1
-    assert any("flux <= 0" in note for note in lc.meta.notes)
+def test_non_positive_flux_is_reported_and_skipped(tmp_path):
+    text = "jd,flux,flux_err\n2460000.0,1000.0,10.0\n2460001.0,-3.0,1.0\n2460002.0,0,1.0\n"
+    source = open_photometry(_file(tmp_path, "f.csv", text), ColumnMapping(zero_point=20.0))
+    lc = source.star("f")
+    assert lc.n_points == 1 and lc.mag[0] == pytest.approx(20.0 - 2.5 * 3)
+    assert lc.mag_err[0] > 0
+    report = source.report
+    assert report.skip_counts == {"column 'flux': flux <= 0": 2}
+    assert [s["row"] for s in report.skipped] == [3, 4]
 
 
 # --------------------------------------------------------------- bad input
@@ -200,10 +204,13 @@ def test_reading_a_star_twice_does_not_count_twice(tmp_path):
     assert source.report.rows_skipped == 1
 
 
-def test_nan_inf_and_non_positive_errors_are_kept_for_cleaning(tmp_path):
+def test_nan_and_non_positive_errors_are_kept_for_cleaning(tmp_path):
     text = "id,jd,mag,err\nS,1,nan,0.1\nS,2,inf,0.1\nS,3,15,0\nS,4,15,-1\nS,5,15,0.1\n"
-    lc = open_photometry(_file(tmp_path, "n.csv", text)).star("S")
-    assert lc.n_points == 5 and lc.n_good == 1  # the mask decides, nothing is dropped
+    source = open_photometry(_file(tmp_path, "n.csv", text))
+    lc = source.star("S")
+    assert lc.n_points == 4 and lc.n_good == 1  # the mask decides for these
+    # an infinite magnitude is outside any physical range: skipped and counted
+    assert source.report.skip_counts == {"column 'mag': outside -30 to 40 mag": 1}
 
 
 def test_empty_star_id_rows_are_skipped(tmp_path):
@@ -447,3 +454,44 @@ def test_ecsv_with_a_bad_cell_is_read_row_by_row(tmp_path):
     assert source.report.skipped[0]["row"] == data_start + 5  # a line number of the file
     assert source.report.skipped[0]["reason"] == "column 'mag': not a number: 'oops'"
     assert "astropy could not read the ECSV file" in source.report.table
+
+
+def test_write_stars_ignores_a_planted_symlink_and_cleans_up(tmp_path):
+    # a symlink at the old predictable temporary name must not be followed
+    victim = tmp_path / "victim.txt"
+    victim.write_text("keep me")
+    (tmp_path / ".out.csv.part").symlink_to(victim)
+    lc = LightCurve("KRN-1", np.arange(5.0) + 2460000, np.full(5, 15.0), time_scale="HJD")
+    write_stars([lc], tmp_path / "out.csv")
+    assert victim.read_text() == "keep me"
+    assert open_photometry(tmp_path / "out.csv").star("KRN-1").n_points == 5
+    assert [p.name for p in tmp_path.glob(".out.csv.*.part")] == []
+
+
+def test_write_stars_removes_its_temporary_file_on_failure(tmp_path, monkeypatch):
+    from astropy.table import Table
+
+    def broken(self, *args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(Table, "write", broken)
+    lc = LightCurve("KRN-1", np.arange(5.0) + 2460000, np.full(5, 15.0), time_scale="HJD")
+    with pytest.raises(PhasewiseError, match="out.ecsv: cannot write: No space left"):
+        write_stars([lc], tmp_path / "out.ecsv")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_abandoned_temporary_files_are_removed_by_the_next_write(tmp_path):
+    import os
+    import time
+
+    from phasewise.core.io.writers import remove_abandoned_temps
+
+    old = tmp_path / ".vetted.ecsv.k3j2h1.partial"  # what a killed export leaves
+    old.write_bytes(b"x" * 1000)
+    fresh = tmp_path / ".vetted.ecsv.a1b2c3.partial"  # an export still running
+    fresh.write_bytes(b"y")
+    hour_ago = time.time() - 3600
+    os.utime(old, (hour_ago, hour_ago))
+    assert remove_abandoned_temps(tmp_path / "vetted.ecsv", ".partial") == 1
+    assert not old.exists() and fresh.exists()

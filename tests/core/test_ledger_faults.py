@@ -312,3 +312,40 @@ def test_header_check_allows_for_a_live_wal(path):
     wal.write_bytes(b"\0" * 32)  # pages may still sit in a live WAL: SQLite decides
     assert ledger_module._header_problem(path) is None
     wal.unlink()
+
+
+def test_cli_analyse_on_a_full_disk_is_one_sentence(path, monkeypatch, capsys):
+    real_open = Ledger.open.__func__
+
+    def full_open(cls, *args, **kwargs):
+        ledger = real_open(cls, *args, **kwargs)
+        if not ledger.readonly:
+            ledger._conn.execute("PRAGMA max_page_count=1")  # nothing more fits
+        return ledger
+
+    before = _decisions(path)
+    monkeypatch.setattr(Ledger, "open", classmethod(full_open))
+    code = main(["analyse", str(path), "--workers", "0", "--quiet"])
+    _, err = capsys.readouterr()
+    assert code == 2 and "disk is full" in err and "Traceback" not in err
+    assert "cannot rollback" not in err and err.count("\n") == 1
+    monkeypatch.undo()
+    assert _decisions(path) == before
+
+
+def test_cli_prints_control_characters_escaped(tmp_path, capsys):
+    csv = tmp_path / "ansi.csv"
+    star = "KRN\x1b[2J-1\x07"
+    csv.write_text(
+        "star_id,hjd,mag\n" + "".join(f'"{star}",{2460000 + t},15.{t}\n' for t in range(9))
+    )
+    ledger = tmp_path / "ansi.ledger.sqlite"
+    assert main(["ledger", "new", str(ledger), str(csv)]) == 0
+    assert main(["read", str(csv)]) == 0
+    with Ledger.open(ledger) as led:
+        assert led.star_ids() == [star]  # the id itself is kept as it is
+    assert main(["verdict", str(ledger), star, "--status", "deferred"]) == 0
+    assert main(["history", str(ledger)]) == 0
+    out, err = capsys.readouterr()
+    assert "\x1b" not in out + err and "\x07" not in out + err
+    assert "KRN\\x1b[2J-1\\x07" in out
