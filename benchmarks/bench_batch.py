@@ -68,7 +68,7 @@ def make_ledger(folder: Path, name: str, lightcurves) -> Path:
     return path
 
 
-def rate_of(path: Path, settings, workers: int, shared: bool = True) -> tuple[float, float, int]:
+def rate_of(path: Path, settings, workers: int, shared: bool = False) -> tuple[float, float, int]:
     """Stars/s of a full run (start-up included, as a user sees it) and once running.
 
     The second figure counts from the first chunk written to the last, so

@@ -265,7 +265,7 @@ def analyse_chunk(
     lightcurves: Sequence,
     settings=None,
     analyse_fn: str | Callable = DEFAULT_ANALYSE,
-    shared_epochs: bool = True,
+    shared_epochs: bool = False,
 ) -> list[StarOutcome]:
     """Analyse a chunk of stars; the pure worker function of every engine.
 
@@ -277,7 +277,10 @@ def analyse_chunk(
         ``"module:function"`` with the signature of
         :func:`core.analysis.analyse` (``fn(lc, settings, periodogram=None)``).
     shared_epochs : bool
-        Batch the periodograms of stars that share their epochs.
+        Batch the periodograms of stars that share their epochs.  Off by
+        default: exact, but measured no faster than star by star once
+        transform plans are reused (0.98x whole analysis, 0.97x periodogram
+        stage, ``benchmarks/bench_batch.py``) and it raises worker memory.
 
     Returns
     -------
@@ -620,7 +623,7 @@ def analyse_ledger(
     progress: Callable[[Progress], None] | None = None,
     stop: threading.Event | Callable[[], bool] | None = None,
     analyse_fn: str | Callable | None = None,
-    shared_epochs: bool = True,
+    shared_epochs: bool = False,
     max_in_flight: int | None = None,
 ) -> BatchSummary:
     """Analyse the stars of a ledger and store the results in it.
@@ -652,7 +655,8 @@ def analyse_ledger(
         The per-star analysis, ``"module:function"`` importable by the
         workers (default :data:`DEFAULT_ANALYSE`); tests pass their own.
     shared_epochs : bool
-        Batch the periodograms of stars sharing their epochs.
+        Batch the periodograms of stars sharing their epochs (off by
+        default; see :func:`analyse_chunk`).
     max_in_flight : int, optional
         Chunks sent but not yet written (default: twice the workers).
 

@@ -175,6 +175,9 @@ _TAIL = (
 
 #: Names of the fixed columns, in order (per-band columns come after ``baseline``).
 COLUMNS = tuple(c.name for c in _HEAD + _TAIL)
+_TEXT_NAMES = tuple(c.name for c in _HEAD + _TAIL if c.text)
+#: Key of a row's list of bands while it is built (not a column).
+_BANDS_KEY = "__bands__"
 #: Per-band columns, ``{band}`` replaced by the band's name.
 BAND_COLUMNS = (
     "n_points_{band}",
@@ -323,6 +326,9 @@ def _final_of(verdict, result: StarResult | None) -> tuple[FinalNumbers | None, 
 def catalogue_row(verdict, info: Mapping[str, Any], summary, stored=None) -> dict[str, Any]:
     """One catalogue row (a dict keyed by column name) of one star.
 
+    The row also lists its bands under ``"__bands__"`` (taken out when the
+    row is written).
+
     ``summary`` is the ledger's ``StarRow`` (the suggestion, FAP, flags and
     freshness, read without the full result); ``stored`` its ``StoredResult``,
     read only when the row needs numbers stored with the result (an
@@ -391,6 +397,7 @@ def _final_columns(row: dict[str, Any], final: FinalNumbers | None, flags: list[
     for name in ("R21", "R31", "phi21", "phi31"):
         row[name] = _n(terms.value(name))
         row[f"{name}_err"] = _n(terms.value(f"{name}_err"))
+    row[_BANDS_KEY] = [_safe(band) for band in (f.bands if f else ())]
     for band, numbers in (f.bands if f else {}).items():
         s = _safe(band)
         row[f"n_points_{s}"] = int(numbers.n_points)
@@ -490,24 +497,26 @@ class _Spool:
         self.widths: dict[str, int] = {}
         self.relations: set[str] = set()
         self.time_scales: set[str] = set()
-        fixed = set(COLUMNS)
+        widths = self.widths
+        encode = json.JSONEncoder(ensure_ascii=False, check_circular=False).encode
         try:
             for row in rows:
-                for key, value in row.items():
-                    if isinstance(value, str):
-                        value = escape_controls(value)
-                        row[key] = value
-                        # FITS transliterates to ASCII: at most three characters for one
-                        width = len(value) if value.isascii() else 3 * len(value)
-                        self.widths[key] = max(self.widths.get(key, 1), width)
-                    if key.startswith("n_points_") and key not in fixed:
-                        band = key[len("n_points_") :]
-                        self.band_count[band] = self.band_count.get(band, 0) + 1
+                for band in row.pop(_BANDS_KEY):
+                    self.band_count[band] = self.band_count.get(band, 0) + 1
+                for key in _TEXT_NAMES:
+                    value = row[key]
+                    if _CONTROL.search(value):
+                        value = row[key] = escape_controls(value)
+                    # FITS transliterates to ASCII: at most three characters for one
+                    width = len(value) if value.isascii() else 3 * len(value)
+                    if width > widths.get(key, 1):
+                        widths[key] = width
                 for key in ("feh_relation", "abs_mag_relation", "distance_relation"):
-                    self.relations.update(r for r in row[key].split(" + ") if r)
+                    if row[key]:
+                        self.relations.update(r for r in row[key].split(" + ") if r)
                 if row["time_scale"]:
                     self.time_scales.add(row["time_scale"])
-                self.file.write(json.dumps(row, ensure_ascii=False) + "\n")
+                self.file.write(encode(row) + "\n")
                 self.n += 1
         except BaseException:
             self.file.close()

@@ -345,10 +345,15 @@ class StarResult(_Record):
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any] | None) -> StarResult:
-        record = super().from_dict(data)
-        for name, (read, _) in _NESTED.items():
-            object.__setattr__(record, name, read(getattr(record, name)))
-        return record
+        # nested records are built when first read (most readers need few of them)
+        return super().from_dict(data)
+
+    def _typed(self, name: str) -> Any:
+        """Field ``name`` as records (see ``_NESTED``), built once and kept."""
+        cache = self.__dict__.setdefault("_typed_cache", {})
+        if name not in cache:
+            cache[name] = _NESTED[name][0](getattr(self, name))
+        return cache[name]
 
     def to_dict(self) -> dict[str, Any]:
         out = super().to_dict()
@@ -379,16 +384,18 @@ class StarResult(_Record):
 
     @property
     def primary_fourier(self) -> FourierTerms | None:
-        return self.fourier if isinstance(self.fourier, FourierTerms) else None
+        fourier = self._typed("fourier")
+        return fourier if isinstance(fourier, FourierTerms) else None
 
     def band_fourier(self, band: str) -> FourierTerms | None:
-        fits = self.fourier_by_band if isinstance(self.fourier_by_band, Mapping) else {}
+        fits = self._typed("fourier_by_band")
+        fits = fits if isinstance(fits, Mapping) else {}
         fit = fits.get(band)
         return fit if isinstance(fit, FourierTerms) else None
 
     @property
     def suggestion_list(self) -> tuple[Suggestion, ...]:
-        return tuple(s for s in self.suggestions or () if isinstance(s, Suggestion))
+        return tuple(s for s in self._typed("suggestions") or () if isinstance(s, Suggestion))
 
     @property
     def top(self) -> Suggestion | None:
@@ -398,11 +405,12 @@ class StarResult(_Record):
 
     @property
     def physics_list(self) -> tuple[PhysicsValue, ...]:
-        return tuple(p for p in self.physics or () if isinstance(p, PhysicsValue))
+        return tuple(p for p in self._typed("physics") or () if isinstance(p, PhysicsValue))
 
     @property
     def secondary_list(self) -> tuple[SecondaryPeriod, ...]:
-        return tuple(s for s in self.secondary_periods or () if isinstance(s, SecondaryPeriod))
+        items = self._typed("secondary_periods") or ()
+        return tuple(s for s in items if isinstance(s, SecondaryPeriod))
 
     @property
     def flag_list(self) -> tuple[str, ...]:
@@ -427,7 +435,7 @@ class StarResult(_Record):
 
     @property
     def candidate_list(self) -> tuple[CandidatePeriod, ...]:
-        return tuple(c for c in self.candidates or () if isinstance(c, CandidatePeriod))
+        return tuple(c for c in self._typed("candidates") or () if isinstance(c, CandidatePeriod))
 
     def chosen_candidate(self) -> CandidatePeriod | None:
         """The candidate at the analysed frequency (else the first), or None."""
@@ -443,7 +451,8 @@ class StarResult(_Record):
 
     @property
     def eclipse_terms(self) -> EclipseTerms | None:
-        return self.eclipse if isinstance(self.eclipse, EclipseTerms) else None
+        eclipse = self._typed("eclipse")
+        return eclipse if isinstance(eclipse, EclipseTerms) else None
 
     @property
     def feature_map(self) -> dict[str, Any]:

@@ -70,6 +70,12 @@ def register(subparsers) -> None:
     parser.add_argument(
         "--chunk-size", type=int, metavar="N", help="stars sent to a worker at once"
     )
+    parser.add_argument(
+        "--shared-epochs",
+        action="store_true",
+        help="batch the periodograms of single-band stars observed at the same epochs "
+        "(exact; measured no faster than star by star, so off by default)",
+    )
     parser.add_argument("--quiet", action="store_true", help="no progress and no summary")
     parser.add_argument("--json", action="store_true", help="print the summary as JSON")
     parser.set_defaults(func=run)
@@ -101,6 +107,7 @@ def run(args: argparse.Namespace) -> int:
         only=args.only,
         chunk_size=args.chunk_size,
         progress=bar,
+        shared_epochs=args.shared_epochs,
     )
     if bar is not None:
         bar.close()

@@ -557,7 +557,7 @@ def _check_time_span(time, rows, column: str, file: str, star: str) -> None:
         cause = (
             "Julian dates mixed with modified or reduced dates (they differ by about 2,400,000 d)"
         )
-    elif low > 0 and 4.3e4 < high / low < 1.7e5:
+    elif low > 0 and 4.3e4 * low < high < 1.7e5 * low:  # a ratio, without overflow
         cause = "seconds mixed with days (values differ by about 86,400 times)"
     else:
         cause = "these cannot all be days of one time scale (seconds, or mixed scales?)"

@@ -112,7 +112,7 @@ def test_shared_periodograms_equal_star_by_star(field):
 @pytest.mark.slow
 def test_chunk_results_equal_star_by_star(field):
     lcs = field.lightcurves()
-    outcomes = analyse_chunk(lcs, FAST)
+    outcomes = analyse_chunk(lcs, FAST, shared_epochs=True)
     assert sum(o.shared_epochs for o in outcomes) >= 5
     for lc, outcome in zip(lcs, outcomes, strict=True):
         alone = analyse(lc, FAST).to_dict()
