@@ -41,6 +41,9 @@ MAX_RECENT = 8
 STAR_CACHE = 256
 PERIODOGRAM_CACHE = 64
 PERIODOGRAM_DELAY_MS = 60
+#: Heights (px) below which the plots never shrink, whatever is docked beside them.
+MIN_TOP_HEIGHT = 180
+MIN_FOLD_HEIGHT = 260
 EXPORT_FORMATS = (
     ("ecsv", "ECSV (*.ecsv)"),
     ("fits", "FITS (*.fits)"),
@@ -143,6 +146,10 @@ class MainWindow(QMainWindow):
         self.centre_splitter.addWidget(self.top_splitter)
         self.centre_splitter.addWidget(self.fold)
         self.centre_splitter.setSizes([420, 560])
+        # no view docked below may squeeze the plots away
+        self.centre_splitter.setChildrenCollapsible(False)
+        self.top_splitter.setMinimumHeight(MIN_TOP_HEIGHT)
+        self.fold.setMinimumHeight(MIN_FOLD_HEIGHT)
         self.main_splitter = QSplitter(Qt.Orientation.Horizontal)
         self.main_splitter.addWidget(self.star_list)
         self.main_splitter.addWidget(self.centre_splitter)

@@ -14,6 +14,8 @@ from typing import Any
 
 from PySide6 import QtCore
 
+from phasewise.core.errors import LedgerError
+
 from .view import PopulationView
 
 __all__ = ["attach", "VIEW_NAME", "OUTLIER_FLAG", "PopulationLink"]
@@ -30,7 +32,15 @@ OUTLIER_FLAG = "diagram outlier"
 
 
 class PopulationLink(QtCore.QObject):
-    """Keeps a :class:`PopulationView` and the desk window in step."""
+    """Keeps a :class:`PopulationView` and the desk window in step.
+
+    The ledger is the one source of change events: the link subscribes to
+    :meth:`Ledger.subscribe`, so the diagrams follow every committed write,
+    by this window, a re-analysis in a worker thread or an undo.
+    """
+
+    #: A ledger change, delivered in the GUI thread (writes may come from workers).
+    ledgerChangedIn = QtCore.Signal(object)
 
     def __init__(self, window: Any, view: PopulationView) -> None:
         super().__init__(view)
@@ -40,6 +50,8 @@ class PopulationLink(QtCore.QObject):
         self._flagged: set[str] = set()
         self._timer = QtCore.QTimer(self, singleShot=True, interval=VERDICT_DELAY_MS)
         self._timer.timeout.connect(self._apply_verdicts)
+        self._unsubscribe = None
+        self.ledgerChangedIn.connect(self.ledger_change, QtCore.Qt.ConnectionType.QueuedConnection)
         window.ledgerChanged.connect(self.ledger_changed)
         window.starChanged.connect(view.set_current_star)
         window.verdictChanged.connect(self.verdict_changed)
@@ -77,7 +89,38 @@ class PopulationLink(QtCore.QObject):
                 model.update_star(star_id, flags=text)
         self._flagged = flagged
 
+    def _subscribe(self, ledger) -> None:
+        if self._unsubscribe is not None:
+            self._unsubscribe()
+            self._unsubscribe = None
+        subscribe = getattr(ledger, "subscribe", None)
+        if subscribe is not None:
+            relay = self.ledgerChangedIn
+
+            def deliver(change) -> None:
+                try:
+                    relay.emit(change)
+                except RuntimeError:  # the view was closed: a write must not fail for it
+                    pass
+
+            self._unsubscribe = subscribe(deliver)
+
+    def ledger_change(self, change) -> None:
+        """A committed write: redraw the stars it touched (all for an import)."""
+        if change.what == "settings":
+            return
+        ids = set(change.star_ids)
+        if change.what == "import" or not ids:
+            try:
+                self.ledger_changed()
+            except LedgerError:
+                pass  # closed since the change was queued
+            return
+        self._pending |= ids
+        self._timer.start()
+
     def ledger_changed(self) -> None:
+        self._subscribe(self.window.ledger)
         self._pending.clear()
         self._flagged.clear()  # the desk re-read its rows from the ledger
         self.view.set_ledger(self.window.ledger)
@@ -91,7 +134,10 @@ class PopulationLink(QtCore.QObject):
     def _apply_verdicts(self) -> None:
         ids, self._pending = self._pending, set()
         if self.window.ledger is not None and ids:
-            self.view.update_stars(ids)
+            try:
+                self.view.update_stars(ids)
+            except LedgerError:
+                pass  # closed since the change was queued: the next ledger redraws all
 
     def flush(self) -> None:
         """Apply waiting verdicts now (for tests and screenshots)."""
@@ -116,13 +162,19 @@ def attach(window: Any, *, visible: bool = False) -> PopulationView:
         visible=visible,
     )
 
-    def give_room(shown: bool) -> None:
-        # the diagrams need most of the window's height when the dock opens
-        if shown:
-            height = int(window.height() * 0.62)
-            window.resizeDocks([dock], [height], QtCore.Qt.Orientation.Vertical)
+    # its own window by default: docked under the plots it took their height (the
+    # desk keeps minimum heights for the folds if the person docks it anyway)
+    dock.setFloating(True)
+    placed = []
 
-    dock.visibilityChanged.connect(give_room)
+    def place(shown: bool) -> None:
+        if shown and dock.isFloating() and not placed:
+            geometry = window.geometry()
+            dock.resize(int(geometry.width() * 0.8), int(geometry.height() * 0.85))
+            dock.move(geometry.x() + geometry.width() // 10, geometry.y() + 40)
+            placed.append(True)
+
+    dock.visibilityChanged.connect(place)
     if getattr(window, "ledger", None) is not None:
         link.ledger_changed()
 

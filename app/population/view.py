@@ -312,6 +312,7 @@ class PopulationView(QtWidgets.QWidget):
         self._visible = None if star_ids is None else {str(s) for s in star_ids}
         for plot in self.plots.values():
             plot.set_visible(self._visible)
+            plot.auto_range()  # the ranges follow the filter: no stale, empty frame
         self._update_legend()
 
     def set_selected_stars(self, star_ids: Iterable[str]) -> None:
