@@ -64,9 +64,15 @@ def preview_rows(preview, columns) -> tuple[list[str], list[list[str]]]:
 class ColumnMappingDialog(QDialog):
     """Choose which column plays which role, looking at the first rows."""
 
-    def __init__(self, columns, preview, guessed=None, parent=None, title="Map columns") -> None:
+    def __init__(
+        self, columns, preview, guessed=None, parent=None, title="Map columns", note=""
+    ) -> None:
         super().__init__(parent)
         self.setWindowTitle(title)
+        self.note = QLabel(note)
+        self.note.setWordWrap(True)
+        self.note.setStyleSheet("color: #B03000;")
+        self.note.setVisible(bool(note))
         names, rows = preview_rows(preview, columns)
         self.columns = list(columns) if columns else names
         table = QTableWidget(len(rows), len(names))
@@ -114,6 +120,7 @@ class ColumnMappingDialog(QDialog):
         buttons.accepted.connect(self.accept)
         buttons.rejected.connect(self.reject)
         layout = QVBoxLayout(self)
+        layout.addWidget(self.note)
         layout.addWidget(QLabel(f"First {len(rows)} rows of the table:"))
         layout.addWidget(table, 1)
         layout.addLayout(form)

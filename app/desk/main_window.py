@@ -1009,18 +1009,7 @@ class MainWindow(QMainWindow):
         )
         if not files:
             return
-        source = self._try(lambda: self.services.open_photometry(files[0]), "Read photometry")
-        if source is None:
-            return
-        dialog = ColumnMappingDialog(
-            list(source.columns),
-            source.preview(20),
-            parent=self,
-            title=f"Map columns of {Path(files[0]).name}",
-        )
-        if not dialog.exec():
-            return
-        mapping = self._try(lambda: self.services.column_mapping(**dialog.roles()), "Columns")
+        mapping = self.choose_mapping(files[0])
         if mapping is None:
             return
         target, _ = QFileDialog.getSaveFileName(
@@ -1031,6 +1020,38 @@ class MainWindow(QMainWindow):
         )
         if target:
             self.build_ledger(files, mapping, target)
+
+    def choose_mapping(self, path):
+        """The column mapping for ``path`` from the mapping dialog, or None if cancelled.
+
+        A file whose columns are not recognised opens the dialog too, with the
+        reader's reason and a preview of its rows; the dialog comes back until
+        the mapping reads the file (or the person cancels).
+        """
+        from phasewise.core.errors import ReadError
+
+        note, mapping = "", None
+        try:
+            source = self.services.open_photometry(path)
+            columns, preview = list(source.columns), source.preview(20)
+        except ReadError as exc:
+            note = f"The columns were not recognised: {exc}. Say which column is which."
+            raw = self._try(lambda: self.services.raw_preview(path), "Read photometry")
+            if raw is None:
+                return None
+            columns, preview = raw
+        while True:
+            self.mapping_dialog = ColumnMappingDialog(
+                columns, preview, parent=self, title=f"Map columns of {Path(path).name}", note=note
+            )
+            if not self.mapping_dialog.exec():
+                return None
+            try:
+                mapping = self.services.column_mapping(**self.mapping_dialog.roles())
+                self.services.open_photometry(path, mapping)  # the mapping must read the file
+                return mapping
+            except PhasewiseError as exc:
+                note = f"This mapping does not read the file: {exc}"
 
     def build_ledger(self, files, mapping, target, on_done=None):
         """Import ``files`` into a new ledger and analyse every star, in a worker."""

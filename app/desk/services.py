@@ -125,10 +125,27 @@ class CoreServices:
 
         return Ledger.create(Path(path))
 
+    def building_ledger(self, path):
+        """``Ledger.building``: a new ledger moved into place only if the block succeeds."""
+        from phasewise.core.ledger import Ledger
+
+        return Ledger.building(Path(path))
+
     def open_photometry(self, path, mapping=None):
         from phasewise.core.io import open_photometry
 
         return open_photometry(Path(path), mapping)
+
+    def raw_preview(self, path, n: int = 20) -> tuple[list[str], list[dict[str, str]]]:
+        """Column names and first rows of a table, read with no column roles at all.
+
+        For files whose columns were not recognised: the mapping dialog shows
+        them so the person can say which column is which.
+        """
+        from phasewise.core.io.readers import _open_table
+
+        table, _fmt = _open_table(Path(path), None, None)
+        return list(table.columns), table.preview(n)
 
     def column_mapping(self, **roles):
         from phasewise.core.io import ColumnMapping
