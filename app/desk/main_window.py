@@ -21,7 +21,7 @@ from PySide6.QtWidgets import (
 )
 
 from phasewise.core.classes import is_eclipsing
-from phasewise.core.errors import PhasewiseError
+from phasewise.core.errors import LedgerError, PhasewiseError
 from phasewise.core.vetting import NON_PERIODIC_CLASSES, VettingSession
 
 from .dialogs import AnalysisSettingsDialog, ClassPicker, ColumnMappingDialog, ShortcutSheet
@@ -168,6 +168,16 @@ class MainWindow(QMainWindow):
         )
         self.progress_label = QLabel()
         self.statusBar().addPermanentWidget(self.progress_label)
+        self.read_only_label = QLabel(
+            "<b style='color:#B03000'>Read-only ledger: verdicts cannot be recorded</b>"
+        )
+        self.read_only_label.setToolTip(
+            "The ledger's file or folder is not writable here. Copy it to a writable folder "
+            "to record verdicts."
+        )
+        self.read_only_label.setVisible(False)
+        self.statusBar().addPermanentWidget(self.read_only_label)
+        self.read_only = False
 
     def _action(self, text, slot, keys=(), icon_name=None, checkable=False, tip=None) -> QAction:
         action = QAction(text, self)
@@ -448,7 +458,9 @@ class MainWindow(QMainWindow):
         self.ledger_path = Path(path) if path else None
         self.refresh_rows()
         name = self.ledger_path.name if self.ledger_path else "ledger"
-        self.setWindowTitle(f"Phasewise — {name}")
+        self.read_only = bool(ledger is not None and ledger.readonly)
+        self.setWindowTitle(f"Phasewise — {name}" + (" (read-only)" if self.read_only else ""))
+        self._enable_writes(not self.read_only)
         if self.ledger_path:
             self._add_recent(str(self.ledger_path))
         self._update_undo_labels()
@@ -466,6 +478,34 @@ class MainWindow(QMainWindow):
                 lambda: self._settings_of(ledger),
                 on_result=lambda settings: self._settings_ready(ledger, settings),
             )
+
+    def _enable_writes(self, on: bool) -> None:
+        """Verdicts, exclusions and analyses need a writable ledger."""
+        for action in (
+            self.act_confirm,
+            self.act_reject,
+            self.act_defer,
+            self.act_relabel,
+            self.act_note,
+            self.act_select,
+            self.act_reanalyse,
+            self.act_analyse_stale,
+            self.act_reanalyse_all,
+            *self.class_actions,
+        ):
+            action.setEnabled(on)
+        self.sheet.setEnabled(True)
+        for button in (
+            self.sheet.confirm_button,
+            self.sheet.relabel_button,
+            self.sheet.reject_button,
+            self.sheet.defer_button,
+        ):
+            button.setEnabled(on)
+        self.sheet.note_edit.setReadOnly(not on)
+        self.lightcurve.select_box.setEnabled(on)
+        self.lightcurve.lasso_box.setEnabled(on)
+        self.read_only_label.setVisible(not on)
 
     def _settings_of(self, ledger):
         """The ledger's own settings; the defaults (and a message) if they no longer fit."""
@@ -499,7 +539,13 @@ class MainWindow(QMainWindow):
             self.star_list.scroll_to(current)
 
     def open_ledger(self, path) -> None:
-        ledger = self.services.open_ledger(path)
+        """Open a ledger; one on read-only storage opens read-only (verdicts off)."""
+        try:
+            ledger = self.services.open_ledger(path)
+        except LedgerError as exc:
+            if "read-only here" not in exc.reason:
+                raise
+            ledger = self.services.open_ledger(path, readonly=True)
         self.close_ledger()
         self.set_ledger(ledger, path)
 
@@ -551,6 +597,8 @@ class MainWindow(QMainWindow):
         period = _get(self.verdict, "period") or result.get("period")
         self.session.load_star(star_id, period, candidates, lc.baseline)
         self.sheet.set_star(star_id, result, self.verdict, self.session.period)
+        if self.read_only:
+            self._enable_writes(False)  # the sheet enables its buttons per star
         self._update_trial_label()
         message = f"{star_id}: {result.get('status', 'not analysed')}"
         if stale:
@@ -724,6 +772,9 @@ class MainWindow(QMainWindow):
         star_id = self.session.star_id
         if self.ledger is None or star_id is None:
             return
+        if self.read_only:
+            self.statusBar().showMessage("Read-only ledger: no verdict recorded.")
+            return
         if note is None:
             note = self.sheet.note_edit.text().strip()
         if status == "confirmed" and not class_code:
@@ -849,18 +900,15 @@ class MainWindow(QMainWindow):
         redo = getattr(ledger, "redo_label", lambda: None)() if ledger is not None else None
         self.act_undo.setText(f"&Undo {undo}" if undo else "&Undo")
         self.act_redo.setText(f"&Redo {redo}" if redo else "&Redo")
-        self.act_undo.setEnabled(
-            ledger is not None and bool(undo or not hasattr(ledger, "undo_label"))
-        )
-        self.act_redo.setEnabled(
-            ledger is not None and bool(redo or not hasattr(ledger, "redo_label"))
-        )
+        writable = ledger is not None and not self.read_only
+        self.act_undo.setEnabled(writable and bool(undo or not hasattr(ledger, "undo_label")))
+        self.act_redo.setEnabled(writable and bool(redo or not hasattr(ledger, "redo_label")))
 
     # ============================================================= exclusion
     def exclude_points(self, indices, exclude: bool) -> None:
         """Exclude (or restore) points of the current star; re-analyse off the GUI thread."""
         star_id, lc = self.session.star_id, self.lc
-        if lc is None or self.ledger is None:
+        if lc is None or self.ledger is None or self.read_only:
             return
         mask = np.array(lc.excluded, dtype=bool)
         mask[np.asarray(indices, dtype=int)] = bool(exclude)

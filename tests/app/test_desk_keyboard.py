@@ -130,3 +130,38 @@ def test_verdict_label_follows_the_trial_period_and_reset(desk, qtbot, back):
     assert desk.session.period == analysed
     label = desk.sheet.trial_label.text()
     assert f"{analysed:.7f}" in label and "changed by hand" not in label
+
+
+def test_a_read_only_ledger_opens_read_only_with_verdicts_off(
+    qtbot, qsettings, subset_copy, monkeypatch
+):
+    """Storage that cannot be written (as a root test cannot make a folder read-only, the
+    ledger's own writability check says so): the desk opens it read-only and says so."""
+    from phasewise.app.desk import MainWindow
+    from phasewise.core import ledger as ledger_module
+
+    from .conftest import dispose
+
+    monkeypatch.setattr(ledger_module, "_writable", lambda path: False)
+    window = MainWindow(settings=qsettings)
+    try:
+        window.open_ledger(subset_copy)
+        window.show()
+        assert window.ledger.readonly and "read-only" in window.windowTitle()
+        assert window.read_only_label.isVisible()
+        for action in (
+            window.act_confirm,
+            window.act_relabel,
+            window.act_reject,
+            window.act_undo,
+            *window.class_actions,
+        ):
+            assert not action.isEnabled()
+        assert not window.sheet.confirm_button.isEnabled()
+        star = window.current_star
+        window.set_verdict("rejected")  # even if asked directly, nothing is written
+        assert window.ledger.verdict(star).status == "unreviewed"
+        assert "Read-only" in window.statusBar().currentMessage()
+    finally:
+        window.close_ledger()
+        dispose(window)
