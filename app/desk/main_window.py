@@ -236,6 +236,12 @@ class MainWindow(QMainWindow):
         self.act_window = a(
             "Spectral window", self.periodogram.window_box.setChecked, "W", checkable=True
         )
+        self.act_pg_range = a(
+            "Periodogram: whole grid / candidates",
+            self.periodogram.toggle_full_range,
+            "Z",
+            tip="Switch the periodogram between the candidates' zoom and the whole grid",
+        )
         self.act_advance = a("Go to next star after a verdict", lambda _on: None, checkable=True)
         self.act_advance.setChecked(True)
         self.act_next = a("&Next star", lambda: self.step_star(+1), ("J", "Ctrl+Down"), "next")
@@ -299,7 +305,14 @@ class MainWindow(QMainWindow):
         m.addAction(self.act_find)
         self.view_menu = m = bar.addMenu("&View")
         m.addActions(
-            [self.act_errors, self.act_select, self.act_period_axis, self.act_log, self.act_window]
+            [
+                self.act_errors,
+                self.act_select,
+                self.act_period_axis,
+                self.act_log,
+                self.act_window,
+                self.act_pg_range,
+            ]
         )
         m.addSeparator()
         m.addAction(self.act_advance)
@@ -1246,7 +1259,8 @@ class MainWindow(QMainWindow):
 
     def _default_sizes(self) -> None:
         width = max(self.main_splitter.width(), self.width() - 8)
-        self.main_splitter.setSizes([int(0.24 * width), int(0.52 * width), int(0.24 * width)])
+        # the list wide enough for its key columns (tests/app/test_desk_layout.py)
+        self.main_splitter.setSizes([int(0.31 * width), int(0.47 * width), int(0.22 * width)])
 
     def _restore_layout(self) -> bool:
         geometry = self.qsettings.value("window/geometry")

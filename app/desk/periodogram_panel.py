@@ -63,7 +63,7 @@ class PeriodogramPanel(QWidget):
             downsampleMethod="peak",
         )
         self.window_curve = pg.PlotDataItem(
-            pen=pg.mkPen(150, 150, 150, 110, width=1),
+            pen=pg.mkPen(110, 110, 110, 200, width=1),
             clipToView=True,
             autoDownsample=True,
             downsampleMethod="peak",
@@ -85,17 +85,11 @@ class PeriodogramPanel(QWidget):
             self.item.addItem(text, ignoreBounds=True)
             self.labels.append(text)
         self.fap_lines = []
-        for k, (fap, colour) in enumerate(FAP_STYLES):
+        # the lines are named in the status line, not on the plot: labels on three
+        # close lines overlapped each other and the candidates' numbers
+        for _fap, colour in FAP_STYLES:
             line = pg.InfiniteLine(
-                angle=0,
-                movable=False,
-                pen=pg.mkPen(colour, style=Qt.PenStyle.DotLine),
-                label=f"FAP {fap:g}",
-                labelOpts={
-                    "position": 0.3 + 0.25 * k,
-                    "color": colour,
-                    "anchors": [(1, 1), (1, 1)],
-                },
+                angle=0, movable=False, pen=pg.mkPen(colour, style=Qt.PenStyle.DotLine)
             )
             line.setVisible(False)
             self.item.addItem(line, ignoreBounds=True)
@@ -117,7 +111,11 @@ class PeriodogramPanel(QWidget):
         self.log_box = QCheckBox("Log")
         self.log_box.setToolTip("Logarithmic frequency/period axis")
         self.window_box = QCheckBox("Window")
-        self.window_box.setToolTip("Show the spectral window (where aliases fall)")
+        self.window_box.setToolTip(
+            "Show the spectral window centred on the trial period: its side peaks are where "
+            "aliases of that period fall (W)"
+        )
+        self.full_range = False  # False: zoomed on the candidates
         self.status = QLabel()
         self.status.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.candidate_list = QLabel()
@@ -205,8 +203,11 @@ class PeriodogramPanel(QWidget):
             self.method_box.blockSignals(True)
             self.method_box.setCurrentIndex(index)
             self.method_box.blockSignals(False)
+        faps = [f"{fap:g}" for fap, _level in view.fap_levels]
         self.status.setText(
             f"{len(view.frequency):,} frequencies, {len(self.candidates)} candidates"
+            + (f" · dotted: FAP {', '.join(faps)} (low to high)" if faps else "")
+            + " · Z: whole grid / candidates"
         )
         self._redraw(reset_range=True)
         if self.window_box.isChecked():
@@ -223,6 +224,8 @@ class PeriodogramPanel(QWidget):
             return
         self.marker.setVisible(True)
         self.marker.setValue(float(self._x(frequency)))
+        if self.window_power is not None and self.window_box.isChecked():
+            self._draw_window()
 
     def _redraw(self, reset_range: bool) -> None:
         self._update_labels()
@@ -241,35 +244,19 @@ class PeriodogramPanel(QWidget):
         else:
             p_draw = p
         self.curve.setData(lin, p_draw)
-        if self.window_power is not None and self.window_box.isChecked():
-            w = self.window_power[positive]
-            w = w[::-1] if self.period_axis else w
-            top = float(np.nanmax(p)) if p.size else 1.0
-            wmax = float(np.nanmax(w)) if w.size else 1.0
-            # drawn behind, scaled to half the highest peak: it shows where aliases fall
-            self.window_curve.setData(lin, w * (0.5 * top / wmax if wmax > 0 else 1.0))
-            self.window_curve.setVisible(True)
-        else:
-            self.window_curve.setVisible(False)
+        self._draw_window()
         cf = np.array([c["frequency"] for c in self.candidates], dtype=float)
         cp = np.array([c["power"] for c in self.candidates], dtype=float)
         self.cand_points.setData(self._x(cf), cp)
         listing, details = [], []
-        for i, text in enumerate(self.labels):
-            if i < len(self.candidates):
-                c = self.candidates[i]
-                marks = ", ".join(str(m) for m in (c.get("marks") or ()))
-                listing.append(
-                    f"<b>{i + 1}</b>: {fmt_period(c['period'])} d"
-                    + (f" <i>({marks})</i>" if marks else "")
-                )
-                for d in _mark_text(c):
-                    details.append(f"{i + 1}: {d}")
-                text.setText(str(i + 1))
-                text.setPos(float(self._x(c["frequency"])), float(c["power"]))
-                text.setVisible(True)
-            else:
-                text.setVisible(False)
+        for i, c in enumerate(self.candidates):
+            marks = ", ".join(str(m) for m in (c.get("marks") or ()))
+            listing.append(
+                f"<b>{i + 1}</b>: {fmt_period(c['period'])} d"
+                + (f" <i>({marks})</i>" if marks else "")
+            )
+            details.extend(f"{i + 1}: {d}" for d in _mark_text(c))
+        self._place_labels()
         self.candidate_list.setText(" · ".join(listing) if listing else "no candidates")
         self.candidate_list.setToolTip("\n".join(details) or "no marks")
         levels = dict(view.fap_levels)
@@ -281,14 +268,91 @@ class PeriodogramPanel(QWidget):
                 line.setVisible(False)
         self.set_frequency(self.frequency)
         if reset_range and x.size:
-            finite = np.isfinite(x)
             top = float(np.nanmax(p)) if p.size else 1.0
             self.vb.setRange(
-                xRange=(float(x[finite].min()), float(x[finite].max())),
+                xRange=self._x_range(x),
                 yRange=(min(0.0, float(np.nanmin(p))), top * 1.18),
                 padding=0.02,
             )
             self.vb.disableAutoRange()
+            self._place_labels()
+
+    def _x_range(self, x) -> tuple[float, float]:
+        """The whole grid, or (by default) the candidates and the trial period with room."""
+        finite = x[np.isfinite(x)]
+        lo, hi = float(finite.min()), float(finite.max())
+        if self.full_range or not self.candidates:
+            return lo, hi
+        freqs = [c["frequency"] for c in self.candidates]
+        if self.frequency:
+            freqs.append(self.frequency)
+        cx = self._x(np.asarray(freqs, dtype=float))
+        cx = cx[np.isfinite(cx)]
+        if cx.size == 0:
+            return lo, hi
+        c0, c1 = float(cx.min()), float(cx.max())
+        # room for the peaks' flanks and the nearest aliases
+        pad = max(0.25 * (c1 - c0), 0.05 * (hi - lo))
+        return max(lo, c0 - pad), min(hi, c1 + pad)
+
+    def toggle_full_range(self) -> None:
+        """Switch between the candidates' zoom and the whole frequency grid."""
+        self.full_range = not self.full_range
+        self._redraw(reset_range=True)
+
+    def _draw_window(self) -> None:
+        """The spectral window shifted to the trial frequency (both sides), half-height.
+
+        ``W(f - f0)`` is where a pure signal at ``f0`` leaks power: its side
+        peaks are the aliases of ``f0``.  Drawn in frequency and in period alike.
+        """
+        view = self.view
+        if view is None or self.window_power is None or not self.window_box.isChecked():
+            self.window_curve.setVisible(False)
+            return
+        f, w = np.asarray(view.frequency, float), self.window_power
+        f0 = self.frequency or (self.candidates[0]["frequency"] if self.candidates else None)
+        if f0 is None or f.size != w.size:
+            self.window_curve.setVisible(False)
+            return
+        fx = np.concatenate([f0 - f[::-1], f0 + f])
+        wy = np.concatenate([w[::-1], w])
+        keep = (fx > 0) & np.isfinite(wy)
+        fx, wy = fx[keep], wy[keep]
+        top = float(np.nanmax(view.power)) if view.power.size else 1.0
+        wmax = float(np.nanmax(wy)) if wy.size else 1.0
+        wy = wy * (0.5 * top / wmax if wmax > 0 else 1.0)
+        if self.period_axis:  # keep x increasing for clip-to-view
+            fx, wy = (1.0 / fx)[::-1], wy[::-1]
+        self.window_curve.setData(fx, wy)
+        self.window_curve.setVisible(True)
+
+    def _place_labels(self) -> None:
+        """Candidate numbers over their peaks, raised a line where they would overlap."""
+        shown = self.candidates[: len(self.labels)]
+        (x0, x1), (y0, y1) = self.vb.viewRange()
+        width_px, height_px = max(self.vb.width(), 1.0), max(self.vb.height(), 1.0)
+        placed: list[tuple[float, float]] = []  # label centres (pixels)
+        for i, text in enumerate(self.labels):
+            if i >= len(shown):
+                text.setVisible(False)
+                continue
+            c = shown[i]
+            x, power = float(self._x(c["frequency"])), float(c["power"])
+            px = (x - x0) / (x1 - x0) * width_px if x1 > x0 else 0.0
+            py = (y1 - power) / (y1 - y0) * height_px if y1 > y0 else 0.0
+            text.setText(str(i + 1))
+            box = text.boundingRect()  # pixels: the text item does not scale with the view
+            gap_x, gap_y = box.width() + 2.0, box.height() + 1.0
+            line = 0
+            while any(
+                abs(px - qx) < gap_x and abs(py - line * gap_y - qy) < gap_y for qx, qy in placed
+            ):
+                line += 1
+            placed.append((px, py - line * gap_y))
+            text.setAnchor((0.5, 1.2))
+            text.setPos(x, power + line * gap_y * (y1 - y0) / height_px)
+            text.setVisible(True)
 
     def _log_toggled(self, on: bool) -> None:
         self.item.setLogMode(x=on, y=False)

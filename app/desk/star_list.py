@@ -44,15 +44,31 @@ STATUSES = ("unreviewed", "confirmed", "relabelled", "rejected", "deferred")
 COLUMNS = (
     ("star_id", "Star", "Star identifier"),
     ("status", "Verdict", "Verdict status"),
-    ("suggested_class", "Suggested", "Top suggested class"),
+    ("suggested_class", "Sugg.", "Top suggested class"),
     ("suggested_score", "Score", "Score of the top suggestion (0–1)"),
     ("verdict_class", "Class", "Class given in the verdict"),
     ("period", "Period (d)", "Period in days (verdict period if set, else analysed)"),
-    ("amplitude", "Amp. (mag)", "Peak-to-peak amplitude in magnitudes"),
+    ("amplitude", "Amp", "Peak-to-peak amplitude in magnitudes"),
     ("fap", "FAP", "False-alarm probability of the period"),
     ("flags", "Flags", "Flags from analysis; 'stale' when settings changed"),
 )
 FIELDS = tuple(c[0] for c in COLUMNS)
+#: Columns from left to right on screen (the model keeps ``COLUMNS`` order).
+VISUAL_ORDER = (
+    "star_id",
+    "verdict_class",
+    "period",
+    "amplitude",
+    "fap",
+    "flags",
+    "status",
+    "suggested_class",
+    "suggested_score",
+)
+#: The longest star id the list shows whole at its default width (13 digits).
+ID_SAMPLE = "0000000000000"
+CELL_PADDING_PX = 14
+SORT_ARROW_PX = 10
 _ALIASES = {
     "star_id": ("star_id", "id"),
     "status": ("status", "verdict_status"),
@@ -351,10 +367,11 @@ class StarListWidget(QWidget):
         vheader.setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
         vheader.setDefaultSectionSize(self.fontMetrics().height() + 6)
         self.view.setWordWrap(False)
-        for col, width in enumerate((80, 80, 72, 42, 62, 80, 66, 56, 60)):
-            self.view.setColumnWidth(col, width)
-        # show the period before the (often still empty) verdict class
-        header.moveSection(5, 4)
+        self._set_column_widths()
+        # the key columns first, so the default width shows them: id, class, period,
+        # amplitude, FAP, flags; then verdict state and suggestion (scroll or widen)
+        for visual, field in enumerate(VISUAL_ORDER):
+            header.moveSection(header.visualIndex(FIELDS.index(field)), visual)
         self.view.setAlternatingRowColors(True)
 
         top = QHBoxLayout()
@@ -372,6 +389,27 @@ class StarListWidget(QWidget):
         self.status_box.currentIndexChanged.connect(self._status_changed)
         self.view.selectionModel().currentRowChanged.connect(self._row_changed)
         self._sort_order = {}
+
+    def _set_column_widths(self) -> None:
+        """Columns as wide as their header or a typical value, ids of 13 digits whole."""
+        metrics = self.view.fontMetrics()
+        samples = {
+            "star_id": ID_SAMPLE,
+            "status": "deferred",
+            "suggested_class": "RRab",
+            "suggested_score": "0.00",
+            "verdict_class": "RRab",
+            "period": "0.0000000",
+            "amplitude": "0.000",
+            "fap": "1.3e-28",
+            "flags": "stale",
+        }
+        for col, (field, header, _tip) in enumerate(COLUMNS):
+            text_width = max(
+                metrics.horizontalAdvance(samples.get(field, "")),
+                metrics.horizontalAdvance(header) + SORT_ARROW_PX,
+            )
+            self.view.setColumnWidth(col, text_width + CELL_PADDING_PX)
 
     def eventFilter(self, obj, event) -> bool:
         if (

@@ -1,0 +1,84 @@
+"""What the desk shows at its default size: the periodogram's zoom, the spectral window,
+labels apart, the star list's key columns (pytest-qt, offscreen, demo stars)."""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QSettings
+
+from phasewise.app.desk import MainWindow
+from phasewise.app.desk.star_list import FIELDS, ID_SAMPLE, VISUAL_ORDER
+
+from .conftest import dispose
+from .desk_fixtures import desk_window  # noqa: F401  (the "desk" fixture)
+
+
+def test_periodogram_zooms_to_the_candidates_and_z_shows_the_grid(desk, qtbot):
+    panel = desk.periodogram
+    qtbot.waitUntil(lambda: bool(panel.candidates), timeout=10000)
+    f = panel.view.frequency
+    (x0, x1), _ = panel.vb.viewRange()
+    cand = np.array([c["frequency"] for c in panel.candidates])
+    assert x0 <= cand.min() and cand.max() <= x1
+    assert (x1 - x0) < 0.5 * (f.max() - f.min())  # zoomed in, not the whole grid
+    desk.act_pg_range.trigger()
+    (g0, g1), _ = panel.vb.viewRange()
+    assert g0 <= f[f > 0].min() + 1e-9 and g1 >= 0.99 * f.max()
+    desk.act_pg_range.trigger()
+    assert panel.vb.viewRange()[0][1] == pytest.approx(x1)
+
+
+@pytest.mark.parametrize("period_axis", [False, True])
+def test_spectral_window_is_drawn_on_both_axes(desk, qtbot, period_axis):
+    panel = desk.periodogram
+    qtbot.waitUntil(lambda: bool(panel.candidates), timeout=10000)
+    desk.act_period_axis.setChecked(period_axis)
+    desk.act_window.setChecked(True)
+    qtbot.waitUntil(lambda: panel.window_power is not None, timeout=20000)
+    assert panel.window_curve.isVisible()
+    x, y = panel.window_curve.getData()
+    (v0, v1), _ = panel.vb.viewRange()
+    inside = (x >= v0) & (x <= v1)
+    assert inside.sum() > 10 and np.nanmax(y[inside]) > 0
+    # centred on the trial period (W(f - f0), both sides): drawn right up to it
+    trial = desk.session.period if period_axis else 1.0 / desk.session.period
+    assert np.min(np.abs(x - trial)) < 0.01 * trial
+    assert (x < trial).any() and (x > trial).any()
+
+
+def test_candidate_numbers_do_not_overlap(desk, qtbot):
+    panel = desk.periodogram
+    for star in ("CAL-V001", "CAL-V002", "CAL-V003"):
+        desk.select_star(star)
+        qtbot.waitUntil(lambda: bool(panel.candidates), timeout=20000)
+        desk.wait_idle()
+        rects = [t.sceneBoundingRect() for t in panel.labels if t.isVisible()]
+        assert len(rects) == min(len(panel.candidates), len(panel.labels))
+        for a, b in itertools.combinations(rects, 2):
+            assert not a.intersects(b), star
+
+
+def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_copy):
+    window = MainWindow(settings=QSettings(str(tmp_path / "l.ini"), QSettings.Format.IniFormat))
+    try:
+        window.resize(1600, 1000)
+        window.show()
+        window.open_ledger(subset_copy)
+        qtbot.wait(50)
+        view = window.star_list.view
+        metrics = view.fontMetrics()
+        assert view.columnWidth(0) > metrics.horizontalAdvance(ID_SAMPLE)
+        visible = view.viewport().width()
+        header = view.horizontalHeader()
+        for field in ("star_id", "verdict_class", "period", "amplitude", "fap", "flags"):
+            col = FIELDS.index(field)
+            right = header.sectionViewportPosition(col) + header.sectionSize(col)
+            assert right <= visible, field
+        assert [header.logicalIndex(v) for v in range(len(VISUAL_ORDER))] == [
+            FIELDS.index(f) for f in VISUAL_ORDER
+        ]
+    finally:
+        dispose(window)
