@@ -60,6 +60,18 @@ def _get(obj, name, default=None):
     return getattr(obj, name, default)
 
 
+def _leaf_actions(menu) -> list:
+    """A menu's actions with its submenus' actions in their place (the F1 sheet lists
+    the digit keys of *Relabel as*)."""
+    out = []
+    for action in menu.actions():
+        if action.isSeparator():
+            continue
+        sub = action.menu()
+        out.extend(_leaf_actions(sub) if sub is not None else [action])
+    return out
+
+
 def _preload_science() -> None:
     """Import the core modules the first star needs, in the background.
 
@@ -348,7 +360,7 @@ class MainWindow(QMainWindow):
         m = bar.addMenu("&Help")
         m.addActions([self.act_shortcuts, self.act_about])
         self.menu_groups = [
-            (menu.title().replace("&", ""), [x for x in menu.actions() if not x.isSeparator()])
+            (menu.title().replace("&", ""), _leaf_actions(menu))
             for menu in bar.findChildren(type(m))
             if menu.title() and menu.parent() is bar
         ]

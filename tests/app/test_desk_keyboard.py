@@ -99,8 +99,10 @@ def test_lasso_works_without_the_select_toggle(desk, qtbot):
     assert not lcp.select_box.isChecked()
     lcp.lasso_box.setChecked(True)
     x, y = np.asarray(desk.lc.time) - lcp.t0, np.asarray(desk.lc.mag)
+    # a faint point mid-plot: off the axes and away from the legend (top right)
     good = np.flatnonzero(desk.lc.good)
-    i = int(good[np.argmin(np.abs(x[good] - np.median(x[good])))])  # mid-plot, off the axes
+    good = good[y[good] > np.median(y[good])]
+    i = int(good[np.argmin(np.abs(x[good] - np.median(x[good])))])
     vb = lcp.vb
     (x0, x1), (y0, y1) = vb.viewRange()
     dx, dy = 0.03 * (x1 - x0), 0.03 * (y1 - y0)
@@ -108,6 +110,7 @@ def test_lasso_works_without_the_select_toggle(desk, qtbot):
     corners.append((x[i] - dx, y[i] + dy))
     view = lcp.plot
     positions = [view.mapFromScene(vb.mapViewToScene(QPointF(*c))) for c in corners]
+    view.scene().minDragTime = 0  # a drag from the first move, however fast the machine
     with qtbot.waitSignal(lcp.exclusionRequested, timeout=3000) as signal:
         _drag(view.viewport(), positions + positions[:1])
     assert i in set(signal.args[0]) and signal.args[1]
@@ -165,3 +168,13 @@ def test_a_read_only_ledger_opens_read_only_with_verdicts_off(
     finally:
         window.close_ledger()
         dispose(window)
+
+
+def test_the_shortcut_sheet_lists_the_digit_keys(desk):
+    desk.show_shortcuts()
+    table = desk.shortcut_sheet.table
+    keys = {table.item(r, 2).text() for r in range(table.rowCount())}
+    texts = {table.item(r, 1).text() for r in range(table.rowCount())}
+    assert {str(d) for d in range(10)} <= keys
+    assert "Relabel as RRab" in texts and "Periodogram: whole grid / candidates" in texts
+    desk.shortcut_sheet.close()
