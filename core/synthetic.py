@@ -42,6 +42,7 @@ import numpy as np
 
 from .errors import SettingsError
 from .lightcurve import LightCurve, StarMeta
+from .periodogram.grid import sampling_step
 
 __all__ = [
     "SITE",
@@ -68,7 +69,6 @@ __all__ = [
     "SPACE_NOISE",
     "battery_cadence",
     "battery_star",
-    "sampling_step",
     "period_determinable",
     "DETECTION_SNR",
 ]
@@ -1322,25 +1322,6 @@ def battery_star(
 
 def _class_key(class_code: str) -> int:
     return sum(ord(c) * 31**k for k, c in enumerate(class_code)) % 2**31
-
-
-def sampling_step(time: np.ndarray) -> tuple[float, bool]:
-    """The typical sampling step of ``time`` (days) and whether sampling is regular.
-
-    Regular: at least 80% of the consecutive time differences lie within
-    10% of their median (our rule).  The step is then the median difference;
-    for irregular sampling it is the 5th percentile of the differences (the
-    shortest spacing the data use often).  Only for regular sampling do
-    peaks reflect about a pseudo-Nyquist frequency 1/(2 step) (Eyer &
-    Bartholdi 1999, from memory).
-    """
-    t = np.unique(np.asarray(time, dtype=float))
-    if t.size < 3:
-        return float("nan"), False
-    dt = np.diff(t)
-    median = float(np.median(dt))
-    regular = bool(np.mean(np.abs(dt - median) <= 0.1 * median) >= 0.8)
-    return (median if regular else float(np.percentile(dt, 5))), regular
 
 
 #: Detection floor of :func:`period_determinable`: half the peak-to-peak

@@ -12,7 +12,16 @@ from .candidates import Candidate, candidate_marks, find_candidates
 from .compute import MIN_POINTS, compute_periodogram, search_bands
 from .eclipse_search import EclipseSearch, EclipseSearchSettings, eclipse_search
 from .fap import baluev_fap, f_test_fap
-from .grid import RegularGrid, frequency_grid, grid_parameters, grid_size, regular_grid_of
+from .grid import (
+    RegularGrid,
+    Sampling,
+    default_fmax,
+    frequency_grid,
+    grid_parameters,
+    grid_size,
+    regular_grid_of,
+    sampling_of,
+)
 from .kernels import KERNELS, METHOD_KERNELS, REFERENCE_KERNELS, Kernel
 from .result import Periodogram
 from .settings import DEFAULT_FMAX, METHODS, PeriodogramSettings
@@ -26,6 +35,9 @@ __all__ = [
     "MIN_POINTS",
     "GridTooLargeError",
     "RegularGrid",
+    "Sampling",
+    "sampling_of",
+    "default_fmax",
     "grid_parameters",
     "grid_size",
     "frequency_grid",
