@@ -37,34 +37,34 @@ from .fourier import (
     FourierFit,
     FourierSettings,
     RefinedFrequency,
-    choose_order,
     decompose,
-    fit_fourier,
     refine_frequency,
 )
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
+from .period_choice import ECLIPSE_FAP_METHOD, MAD_TO_SIGMA, choose_period
 from .periodogram import (
     Candidate,
     EclipseSearch,
     EclipseSearchSettings,
     Periodogram,
     PeriodogramSettings,
-    compute_periodogram,
-    eclipse_search,
-    find_candidates,
 )
 from .physics import PhysicalValue, PhysicsSettings, derive
 from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten, residual_search
 from .settings import settings_hash, settings_to_dict
-from .validation import finite_or_none, require_int, require_positive, require_range
+from .validation import (
+    finite_or_none,
+    require_choice,
+    require_int,
+    require_positive,
+    require_range,
+)
 
 __all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
 
 #: Result states. ``ok``: a significant period was found and measured.
 STATUSES = ("ok", "no_significant_period", "no_variability", "too_few_points", "failed")
 
-#: Median absolute deviation to Gaussian sigma (common practice, no source).
-MAD_TO_SIGMA = 1.4826
 
 
 @dataclass(frozen=True)
@@ -101,6 +101,24 @@ class AnalysisSettings:
         Skewness of the primary band's magnitudes above which the eclipse
         search also runs for a significant periodogram peak (its best
         period then competes with the periodogram's candidates).
+    set_aside_sigma : float or None
+        Before candidates compete, points further than this many robust
+        sigmas from the Fourier model at the current choice are set aside
+        (recorded, never deleted) and the search repeated; None switches it
+        off.  See :mod:`core.period_choice`.
+    set_aside_max_share : float
+        A band with more than this share of its points beyond the limit
+        sets none aside in that round (the model is wrong, not the points).
+    set_aside_rounds : int
+        Most rounds of setting aside and searching again.
+    trend : {"auto", "none"}
+        ``"auto"``: a polynomial in time (degree 1-3) or a floating mean per
+        season is fitted where the data call for it (scaled BIC lower by
+        ``trend_min_delta_bic``; see :mod:`core.period_choice`).
+    trend_min_delta_bic : float
+        Smallest drop in the scaled BIC that calls for and adopts a trend
+        (10: "very strong" evidence on the scale of Kass & Raftery 1995,
+        from memory).
     """
 
     clean: CleanSettings = field(default_factory=CleanSettings)
@@ -115,9 +133,20 @@ class AnalysisSettings:
     rulebook: str | None = None
     eclipse_search: EclipseSearchSettings | None = field(default_factory=EclipseSearchSettings)
     eclipse_skewness: float = 1.0
+    set_aside_sigma: float | None = 5.0
+    set_aside_max_share: float = 0.03
+    set_aside_rounds: int = 3
+    trend: str = "auto"
+    trend_min_delta_bic: float = 10.0
 
     def __post_init__(self) -> None:
         require_range("fap_threshold", self.fap_threshold, 0.0, 1.0)
+        if self.set_aside_sigma is not None:
+            require_positive("set_aside_sigma", self.set_aside_sigma)
+        require_range("set_aside_max_share", self.set_aside_max_share, 0.0, 0.5)
+        require_int("set_aside_rounds", self.set_aside_rounds, 0, 10)
+        require_choice("trend", self.trend, ("auto", "none"))
+        require_positive("trend_min_delta_bic", self.trend_min_delta_bic)
         require_int("compare_candidates", self.compare_candidates, 1, 20)
         if self.outlier_sigma is not None:
             require_positive("outlier_sigma", self.outlier_sigma)
@@ -164,6 +193,8 @@ class AnalysisResult:
     physics: tuple[PhysicalValue, ...] = ()
     clean_report: CleanReport | None = None
     outlier_times: tuple[float, ...] = ()
+    set_aside: tuple[int, ...] = ()
+    trend: dict[str, Any] | None = None
     flags: tuple[str, ...] = ()
 
     # ------------------------------------------------------------- numbers
@@ -229,6 +260,8 @@ class AnalysisResult:
             "physics": [p.to_dict() for p in self.physics],
             "clean": self.clean_report.to_dict() if self.clean_report else None,
             "outlier_times": [float(t) for t in self.outlier_times],
+            "set_aside": [int(i) for i in self.set_aside],
+            "trend": self.trend,
             "flags": list(self.flags),
         }
 
@@ -305,9 +338,13 @@ def _analyse(
             **common,
         )
 
-    if pgram is None:
-        pgram = compute_periodogram(cleaned, settings.periodogram)
-    candidates = find_candidates(pgram, cleaned, settings.periodogram)
+    choice = choose_period(cleaned, settings, pgram)
+    pgram, candidates, chosen, search = (
+        choice.periodogram,
+        choice.candidates,
+        choice.chosen,
+        choice.search,
+    )
     if not candidates:
         return AnalysisResult(
             status="no_significant_period",
@@ -315,21 +352,11 @@ def _analyse(
             method=pgram.method,
             **common,
         )
-    chosen = _choose_candidate(cleaned, candidates, settings)
-    candidates, chosen, search = _with_eclipse_search(cleaned, candidates, chosen, settings)
-    if candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
-        flags.append(
-            f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
-            "the periodogram's peaks were weaker; no residual outliers set aside"
-        )
-    elif chosen != 0:
-        flags.append(
-            f"period from candidate {chosen + 1} (multi-harmonic fit preferred it "
-            "over the highest peak)"
-        )
+    flags.extend(choice.reasons)
+    working = choice.lc
     f0 = candidates[chosen].frequency
 
-    refined = refine_frequency(cleaned, f0, settings=settings.fourier)
+    refined = refine_frequency(working, f0, settings=settings.fourier)
     frequency = refined.frequency if refined.converged else f0
     if not refined.converged:
         flags.append(f"period refinement did not converge: {refined.message}")
@@ -337,9 +364,10 @@ def _analyse(
     # a Fourier series cannot follow a narrow eclipse: its residuals would set
     # the eclipse points aside as outliers
     decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
-    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, decompose_settings)
+    fits, outlier_times, analysed = _decompose_with_outliers(working, frequency, decompose_settings)
     if not fits:
         raise PhasewiseError("no band supports even a first-order Fourier fit", field=lc.star_id)
+    set_aside = sorted(set(choice.set_aside) | set(np.flatnonzero(analysed.excluded & cleaned.good)))
     if outlier_times:
         flags.append(f"{len(outlier_times)} outlier(s) set aside for the Fourier fit")
     primary = "V" if "V" in fits else next(iter(fits))
@@ -383,6 +411,8 @@ def _analyse(
         eclipse=ecl,
         features=_extra_features(analysed, primary),
         outlier_times=outlier_times,
+        set_aside=tuple(int(i) for i in set_aside),
+        trend=choice.trend,
         flags=tuple(flags),
         **common,
     )
@@ -398,129 +428,6 @@ def _analyse(
 def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any, ...]:
     rulebook = load_rulebook(settings.rulebook) if settings.rulebook else None
     return suggest(features, rulebook)
-
-
-#: ``fap_method`` of a candidate that comes from the eclipse search.
-ECLIPSE_FAP_METHOD = "aov_binned"
-
-
-def _with_eclipse_search(
-    lc: LightCurve, candidates: tuple[Candidate, ...], chosen: int, settings: AnalysisSettings
-) -> tuple[tuple[Candidate, ...], int, EclipseSearch | None]:
-    """Run the eclipse search where it matters; its best period may take over.
-
-    * The periodogram's chosen peak is not significant: the search's best
-      peak is taken when it is significant.
-    * The magnitudes are strongly skewed to the faint side (most of the time
-      at maximum light, short fadings): the search's best peak joins the
-      multi-harmonic competition of :func:`_choose_candidate`, unless it is
-      the chosen peak, its harmonic or its subharmonic.
-
-    Two searches were made, so the search's false-alarm probability is
-    doubled (Bonferroni) before it is compared or reported.
-    """
-    if settings.eclipse_search is None:
-        return candidates, chosen, None
-    weak = not _significant(candidates[chosen].fap, settings.fap_threshold)
-    _, mag, _ = lc.arrays(lc.bands[0])
-    skewed = mag.size > 2 and float(stats.skew(mag)) >= settings.eclipse_skewness
-    if not (weak or skewed):
-        return candidates, chosen, None
-    search = eclipse_search(lc, settings.eclipse_search)
-    if search is None or not search.frequencies:
-        return candidates, chosen, search
-    fap = min(1.0, 2.0 * search.faps[0])
-    if not _significant(fap, settings.fap_threshold):
-        return candidates, chosen, search
-    f = search.frequencies[0]
-    extra = Candidate(
-        frequency=f,
-        period=1.0 / f,
-        power=search.f_values[0],
-        fap=fap,
-        snr=search.snrs[0],
-        marks=(),
-        mark_details=(
-            f"phase-binned eclipse search: F = {search.f_values[0]:.3g} with "
-            f"{search.n_bins} bins; FAP doubled for the two searches",
-        ),
-        rank=len(candidates) + 1,
-        fap_method=ECLIPSE_FAP_METHOD,
-    )
-    joined = (*candidates, extra)
-    if weak:
-        return joined, len(joined) - 1, search
-    if _harmonically_related(f, candidates[chosen].frequency, lc.baseline, settings):
-        # at f/2 a curve fits as well with twice the parameters: the choice
-        # between P and 2P is the eclipse test's and the classifier's
-        return joined, chosen, search
-    best = _best_by_bic(lc, joined, (chosen, len(joined) - 1), settings)
-    return joined, best, search
-
-
-def _harmonically_related(f: float, other: float, baseline: float, settings) -> bool:
-    """Whether ``f`` is n or 1/n times ``other`` (n = 1 .. max_harmonic) within
-    the candidates' mark tolerance."""
-    pg = settings.periodogram
-    tol = pg.mark_tolerance / baseline if baseline > 0 else 0.0
-    for n in range(1, pg.max_harmonic + 1):
-        if abs(f - n * other) <= tol or abs(n * f - other) <= tol:
-            return True
-    return False
-
-
-def _significant(fap: float | None, threshold: float) -> bool:
-    return fap is not None and bool(np.isfinite(fap)) and fap <= threshold
-
-
-def _choose_candidate(
-    lc: LightCurve, candidates: tuple[Candidate, ...], settings: AnalysisSettings
-) -> int:
-    """Index of the candidate whose multi-harmonic fit has the lowest BIC.
-
-    Each band gets its own mean and harmonics (order chosen per band and
-    frequency); the information criterion adds them up over the bands.
-    Harmonic and subharmonic candidates of a stronger peak do not compete:
-    at f/2 a curve fits as well with twice the parameters, and the choice
-    between P and 2P for eclipsing binaries is the classifier's.
-    """
-    n = min(settings.compare_candidates, len(candidates))
-    if n == 1:
-        return 0
-    competing = [
-        i
-        for i in range(n)
-        if i == 0 or not ({"harmonic", "subharmonic"} & set(candidates[i].marks))
-    ]
-    return _best_by_bic(lc, candidates, competing, settings)
-
-
-def _best_by_bic(
-    lc: LightCurve,
-    candidates: tuple[Candidate, ...],
-    competing: Any,
-    settings: AnalysisSettings,
-) -> int:
-    """The competing candidate whose multi-harmonic fit has the lowest BIC."""
-    competing = list(competing)
-    best, best_bic = competing[0], np.inf
-    for index in competing:
-        cand = candidates[index]
-        bic = 0.0
-        for band in lc.bands:
-            t, m, e = lc.arrays(band)
-            try:
-                order = choose_order(t, m, e, cand.frequency, settings.fourier).order
-                fit = fit_fourier(t, m, e, cand.frequency, order, form=settings.fourier.form)
-            except PhasewiseError:
-                bic = np.inf
-                break
-            chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
-            bic += chi2 + (2 * order + 1) * np.log(t.size)
-        # the frequency itself is one more parameter, the same for every candidate
-        if bic < best_bic:
-            best, best_bic = index, bic
-    return best
 
 
 def _decompose_with_outliers(
