@@ -134,7 +134,7 @@ def grid_parameters(
     if settings.fmax is None and settings.fmin is None and n > settings.max_frequencies:
         # a long series on the default range: sample each peak less finely
         # (down to MIN_DEFAULT_OVERSAMPLING) before refusing it
-        coarse = settings.max_frequencies / ((fmax - fmin) * baseline)
+        coarse = (settings.max_frequencies - 1) / ((fmax - fmin) * baseline)
         oversampling = max(MIN_DEFAULT_OVERSAMPLING, min(oversampling, coarse))
     df = 1.0 / (oversampling * baseline)
     n = int(np.floor((fmax - fmin) / df)) + 1
