@@ -38,6 +38,7 @@ from .fourier import (
     FourierSettings,
     RefinedFrequency,
     decompose,
+    fit_fourier,
     refine_frequency,
 )
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
@@ -64,7 +65,6 @@ __all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
 
 #: Result states. ``ok``: a significant period was found and measured.
 STATUSES = ("ok", "no_significant_period", "no_variability", "too_few_points", "failed")
-
 
 
 @dataclass(frozen=True)
@@ -195,6 +195,8 @@ class AnalysisResult:
     outlier_times: tuple[float, ...] = ()
     set_aside: tuple[int, ...] = ()
     trend: dict[str, Any] | None = None
+    modulation: dict[str, Any] | None = None
+    relation_band_reason: str = ""
     flags: tuple[str, ...] = ()
 
     # ------------------------------------------------------------- numbers
@@ -217,7 +219,8 @@ class AnalysisResult:
         fit = self.primary_fit
         fits = {band: _fit_dict(f) for band, f in self.fits.items()}
         pw = self.prewhitening
-        secondary = [] if pw is None else [f.to_dict() for f in pw.frequencies[1:]]
+        # only secondaries that are reported: independent, significant, strongest first
+        secondary = [] if pw is None else [f.to_dict() for f in pw.secondaries]
         return {
             "star_id": self.star_id,
             "phasewise_version": __version__,
@@ -262,6 +265,9 @@ class AnalysisResult:
             "outlier_times": [float(t) for t in self.outlier_times],
             "set_aside": [int(i) for i in self.set_aside],
             "trend": self.trend,
+            "modulation": self.modulation,
+            "relation_band": self.primary_band if fit is not None else None,
+            "relation_band_reason": self.relation_band_reason or None,
             "flags": list(self.flags),
         }
 
@@ -356,21 +362,28 @@ def _analyse(
     working = choice.lc
     f0 = candidates[chosen].frequency
 
-    refined = refine_frequency(working, f0, settings=settings.fourier)
+    measured = _measure(working, f0, candidates[chosen].fap_method, settings)
+    if not measured[1] and candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
+        # never fail where a plainer answer exists: the periodogram's best peak
+        flags.append(
+            "the eclipse search's period supports no Fourier fit; "
+            "the periodogram's best candidate is used instead"
+        )
+        chosen = 0
+        f0 = candidates[0].frequency
+        measured = _measure(working, f0, candidates[0].fap_method, settings)
+    refined, fits, outlier_times, analysed = measured
     frequency = refined.frequency if refined.converged else f0
     if not refined.converged:
         flags.append(f"period refinement did not converge: {refined.message}")
-    from_search = candidates[chosen].fap_method == ECLIPSE_FAP_METHOD
-    # a Fourier series cannot follow a narrow eclipse: its residuals would set
-    # the eclipse points aside as outliers
-    decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
-    fits, outlier_times, analysed = _decompose_with_outliers(working, frequency, decompose_settings)
     if not fits:
         raise PhasewiseError("no band supports even a first-order Fourier fit", field=lc.star_id)
-    set_aside = sorted(set(choice.set_aside) | set(np.flatnonzero(analysed.excluded & cleaned.good)))
+    set_aside = sorted(
+        set(choice.set_aside) | set(np.flatnonzero(analysed.excluded & cleaned.good))
+    )
     if outlier_times:
         flags.append(f"{len(outlier_times)} outlier(s) set aside for the Fourier fit")
-    primary = "V" if "V" in fits else next(iter(fits))
+    primary, band_reason = relation_band(fits, settings)
 
     # reuse the decomposition: its order for prewhitening, its fit for the eclipse test
     pw_settings = settings.prewhiten
@@ -378,7 +391,10 @@ def _analyse(
         pw_settings = replace(pw_settings, main_order=fits[primary].order)
     # the residuals are searched on the main search's range
     residuals = residual_search(pw_settings.search_oversampling, settings.periodogram)
-    pw = prewhiten(analysed, frequency, pw_settings, search=residuals)
+    pw = prewhiten(analysed, frequency, pw_settings, search=residuals, windows=choice.windows)
+    modulation = find_modulation(analysed, frequency, pw, primary)
+    if modulation is not None:
+        flags.append(f"modulated: {modulation['description']}")
     try:
         ecl = eclipse_test(
             analysed, frequency, settings.eclipse, fit_at_period=fits.get(analysed.bands[0])
@@ -413,6 +429,8 @@ def _analyse(
         outlier_times=outlier_times,
         set_aside=tuple(int(i) for i in set_aside),
         trend=choice.trend,
+        modulation=modulation,
+        relation_band_reason=band_reason,
         flags=tuple(flags),
         **common,
     )
@@ -428,6 +446,151 @@ def _analyse(
 def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any, ...]:
     rulebook = load_rulebook(settings.rulebook) if settings.rulebook else None
     return suggest(features, rulebook)
+
+
+def _measure(working: LightCurve, f0: float, fap_method: str, settings: AnalysisSettings):
+    """Refined frequency and per-band Fourier fits at the chosen candidate."""
+    refined = refine_frequency(working, f0, settings=settings.fourier)
+    frequency = refined.frequency if refined.converged else f0
+    # a Fourier series cannot follow a narrow eclipse: its residuals would set
+    # the eclipse points aside as outliers
+    from_search = fap_method == ECLIPSE_FAP_METHOD
+    decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
+    fits, outlier_times, analysed = _decompose_with_outliers(working, frequency, decompose_settings)
+    return refined, fits, outlier_times, analysed
+
+
+#: A calibration band's Fourier parameters are used for the relations when
+#: their phi31 error is at most this many times the best band's (our choice).
+GOOD_ENOUGH_FACTOR = 2.0
+
+
+def _fourier_quality(fit: FourierFit) -> float:
+    """Error of the parameter the relations use most: phi31, else A1 relative."""
+    if fit.phi31_err is not None and np.isfinite(fit.phi31_err):
+        return float(fit.phi31_err)
+    amp = fit.amplitudes[0] if len(fit.amplitudes) else 0.0
+    err = fit.amplitudes_err[0] if len(fit.amplitudes_err) else np.inf
+    return float(err / amp) if amp > 0 else np.inf
+
+
+def relation_band(fits: dict[str, FourierFit], settings: AnalysisSettings) -> tuple[str, str]:
+    """The band whose Fourier parameters are reported and fed to relations, and why.
+
+    The relations' calibration band (:func:`_calibration_band`) when it was observed and its phi31 error (A1's relative error where
+    phi31 is not measured) is within :data:`GOOD_ENOUGH_FACTOR` of the best
+    band's; otherwise the band that determines them best.  Relations check
+    the band themselves (:mod:`core.physics.derive`): a band they were not
+    calibrated in gets no value, only a flag.
+    """
+    quality = {band: _fourier_quality(fit) for band, fit in fits.items()}
+    best = min(quality, key=lambda b: (quality[b], b))
+    calibrated = _calibration_band()
+    text = ", ".join(f"{b} {q:.3g}" for b, q in quality.items())
+    if calibrated in fits and quality[calibrated] <= GOOD_ENOUGH_FACTOR * quality[best]:
+        if calibrated == best or len(fits) == 1:
+            return (
+                calibrated,
+                f"{calibrated}: the relations' calibration band and the best determined",
+            )
+        return calibrated, (
+            f"{calibrated}: the relations' calibration band, good enough "
+            f"(error within {GOOD_ENOUGH_FACTOR:g}x the best; {text})"
+        )
+    if calibrated in fits:
+        return best, (
+            f"{best}: determines the Fourier parameters best ({text}); {calibrated} is more "
+            f"than {GOOD_ENOUGH_FACTOR:g}x worse, and relations calibrated in {calibrated} "
+            f"are not applied to {best}"
+        )
+    return best, f"{best}: determines the Fourier parameters best ({text}); no {calibrated} data"
+
+
+#: Inputs that are Fourier parameters of the light curve.
+FOURIER_INPUTS = frozenset({"phi31", "phi31_cos", "A1", "A3", "R21", "R31", "phi21"})
+
+
+def _calibration_band() -> str:
+    """The band the registry's light-curve (Fourier-parameter) relations were calibrated in."""
+    from collections import Counter
+
+    from .physics import RELATIONS
+
+    bands = Counter(r.band for r in RELATIONS.values() if FOURIER_INPUTS & set(r.inputs) and r.band)
+    return bands.most_common(1)[0][0] if bands else "V"
+
+
+#: Probability below which amplitude or phase changes between seasons count
+#: as modulation (our choice; a chi-square test of the per-season values).
+MODULATION_P = 1e-3
+
+
+def find_modulation(lc: LightCurve, frequency: float, pw, band: str) -> dict[str, Any] | None:
+    """Modulation of the main mode: side peaks, or changes between seasons.
+
+    Side peaks ``k f1 +- delta`` found by prewhitening give the modulation
+    period 1/delta (their mean).  Otherwise, with two or more seasons (gaps
+    over 60 d) of at least 20 points in ``band``, a first-order Fourier fit
+    per season gives A1 and phi1 with errors; amplitudes or phases that
+    differ between seasons with chi-square probability below
+    :data:`MODULATION_P` mark the star as modulated, with no period (a few
+    seasons cannot give one).
+    """
+    if pw is not None and pw.modulation_period is not None:
+        peaks = [f for f in pw.frequencies if f.kind == "side peak"]
+        return {
+            "kind": "side peaks",
+            "period": float(pw.modulation_period),
+            "side_peaks": [f.label for f in peaks],
+            "snr": [float(f.snr) for f in peaks],
+            "description": f"side peaks, modulation period {pw.modulation_period:.4g} d",
+        }
+    from .period_choice import _seasons
+
+    t, m, e = lc.arrays(band)
+    if t.size == 0:
+        return None
+    seasons = _seasons(t)
+    amps, amp_errs, phases, phase_errs = [], [], [], []
+    for s in np.unique(seasons):
+        sel = seasons == s
+        if sel.sum() < 20:
+            continue
+        try:
+            # one epoch for every season, so the phases compare
+            fit = fit_fourier(t[sel], m[sel], e[sel], frequency, 1, epoch=float(t[0]))
+        except PhasewiseError:
+            continue
+        amps.append(fit.amplitudes[0])
+        amp_errs.append(fit.amplitudes_err[0])
+        phases.append(fit.phases[0])
+        phase_errs.append(fit.phases_err[0])
+    if len(amps) < 2:
+        return None
+    amps, amp_errs = np.array(amps), np.array(amp_errs)
+    phases, phase_errs = np.unwrap(np.array(phases)), np.array(phase_errs)
+    dof = len(amps) - 1
+    changes = []
+    for name, values, errs in (("amplitude", amps, amp_errs), ("phase", phases, phase_errs)):
+        if not np.all(np.isfinite(errs)) or np.any(errs <= 0):
+            continue
+        w = 1.0 / errs**2
+        mean = np.dot(w, values) / w.sum()
+        chi2 = float(np.dot(w, (values - mean) ** 2))
+        if stats.chi2.sf(chi2, dof) < MODULATION_P:
+            changes.append(name)
+    if not changes:
+        return None
+    return {
+        "kind": "seasonal " + " and ".join(changes) + " change",
+        "period": None,
+        "n_seasons": len(amps),
+        "amplitudes": [float(a) for a in amps],
+        "description": (
+            f"the {' and '.join(changes)} of the main mode change between {len(amps)} "
+            "seasons (no modulation period from so few seasons)"
+        ),
+    }
 
 
 def _decompose_with_outliers(

@@ -48,6 +48,7 @@ from .periodogram import (
     Candidate,
     EclipseSearch,
     Periodogram,
+    candidate_windows,
     compute_periodogram,
     eclipse_search,
     find_candidates,
@@ -93,6 +94,7 @@ class PeriodChoice:
     set_aside: tuple[int, ...] = ()
     trend: dict[str, Any] | None = None
     reasons: tuple[str, ...] = ()
+    windows: tuple = ()
 
     @property
     def candidate(self) -> Candidate | None:
@@ -112,9 +114,11 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
     """
     pg = settings.periodogram
     pgram = compute_periodogram(lc, pg) if pgram is None else pgram
-    candidates = find_candidates(pgram, lc, pg)
+    # one window for every search here: setting a few points aside barely changes it
+    windows = candidate_windows(lc.time[lc.good], pg)
+    candidates = find_candidates(pgram, lc, pg, windows=windows)
     if not candidates:
-        return PeriodChoice(pgram, (), None, None, lc)
+        return PeriodChoice(pgram, (), None, None, lc, windows=windows)
     chosen = choose_candidate(lc, candidates, settings)
     reasons: list[str] = []
 
@@ -127,7 +131,7 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
             set_aside |= new
             working = lc.with_excluded(lc.excluded | set_aside)
             pgram = compute_periodogram(working, pg)
-            candidates = find_candidates(pgram, working, pg)
+            candidates = find_candidates(pgram, working, pg, windows=windows)
             chosen = choose_candidate(working, candidates, settings)
         if set_aside.any():
             reasons.append(
@@ -137,7 +141,7 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
 
     trend = None
     if settings.trend == "auto":
-        outcome = _trend_step(working, pgram, candidates, chosen, settings)
+        outcome = _trend_step(working, pgram, candidates, chosen, settings, windows)
         if outcome is not None:
             working, pgram, candidates, chosen, trend = outcome
             reasons.append(f"trend removed ({trend['description']}): {trend['rule']}")
@@ -174,6 +178,7 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
         set_aside=tuple(int(i) for i in np.flatnonzero(set_aside)),
         trend=trend,
         reasons=tuple(reasons),
+        windows=windows,
     )
 
 
@@ -369,8 +374,10 @@ def _trend_description(lc, option, frequency, orders, t_ref, t_scale, delta_bic)
             cols.append(_harmonic_columns(t, frequency, orders[band]))
         _, coef = _wls(np.concatenate(cols, axis=1), m, e)
         coefficients[band] = [float(c) for c in coef[1 : 1 + trend_cols.shape[1]]]
-    text = f"polynomial of degree {degree} in time" if kind == "polynomial" else (
-        f"a floating mean for each of {degree + 1} seasons"
+    text = (
+        f"polynomial of degree {degree} in time"
+        if kind == "polynomial"
+        else (f"a floating mean for each of {degree + 1} seasons")
     )
     return {
         "kind": kind,
@@ -407,7 +414,7 @@ def _detrended(lc: LightCurve, trend: dict[str, Any]) -> LightCurve:
     return replace(lc, mag=mag, mag_err=lc._err_arg())
 
 
-def _trend_step(working, pgram, candidates, chosen, settings):
+def _trend_step(working, pgram, candidates, chosen, settings, windows):
     """Adopt a trend when it is called for and wins (see the module notes), else None."""
     f_old = candidates[chosen].frequency
     trend = fit_trend(working, f_old, settings)
@@ -422,7 +429,7 @@ def _trend_step(working, pgram, candidates, chosen, settings):
         return None
     pg2 = replace(pg, fmin=fmin, fmax=pg.fmax if pg.fmax is not None else float(fmax_default))
     pgram2 = compute_periodogram(detrended, pg2)
-    candidates2 = find_candidates(pgram2, detrended, pg2)
+    candidates2 = find_candidates(pgram2, detrended, pg2, windows=windows)
     if not candidates2:
         return None
     chosen2 = choose_candidate(detrended, candidates2, settings)

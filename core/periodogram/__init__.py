@@ -26,7 +26,7 @@ from .kernels import KERNELS, METHOD_KERNELS, REFERENCE_KERNELS, Kernel
 from .result import Periodogram
 from .settings import DEFAULT_FMAX, METHODS, PeriodogramSettings
 from .shared import shared_epoch_periodograms
-from .window import WindowPeak, spectral_window, window_peaks
+from .window import WindowPeak, candidate_windows, spectral_window, window_peaks
 
 __all__ = [
     "PeriodogramSettings",
@@ -47,6 +47,7 @@ __all__ = [
     "Periodogram",
     "spectral_window",
     "window_peaks",
+    "candidate_windows",
     "WindowPeak",
     "find_candidates",
     "candidate_marks",

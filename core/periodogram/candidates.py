@@ -31,7 +31,7 @@ from .fap import baluev_fap, f_test_fap
 from .kernels.gls import gls_exact
 from .result import Periodogram
 from .settings import PeriodogramSettings
-from .window import WindowPeak, _parabola_offset, window_peaks
+from .window import WindowPeak, _parabola_offset, candidate_windows
 
 __all__ = ["Candidate", "find_candidates", "candidate_marks"]
 
@@ -158,9 +158,10 @@ def find_candidates(
     """The ``settings.n_candidates`` best distinct peaks, strongest first.
 
     Peaks closer than ``settings.peak_separation / T`` (T the baseline; at
-    least 3 grid steps) count as one.  ``windows`` may pass precomputed :func:`window_peaks` (stars that
-    share their epochs share them); by default they are computed from the
-    light curve's good times.
+    least 3 grid steps) count as one.  ``windows`` may pass precomputed
+    :func:`~core.periodogram.window.candidate_windows` (stars that share
+    their epochs share them); by default they are computed from the light
+    curve's good times.
     """
     settings = periodogram.settings if settings is None else settings
     frequency, power = periodogram.frequency, periodogram.power
@@ -175,10 +176,7 @@ def find_candidates(
         else:
             refined.append(float(frequency[i]))
     if windows is None:
-        t_good = lc.time[lc.good]
-        windows = window_peaks(
-            t_good, threshold=settings.window_threshold, oversampling=settings.oversampling
-        )
+        windows = candidate_windows(lc.time[lc.good], settings)
     faps, fap_method = _faps(periodogram, lc, settings, np.array(refined), power[indices])
     marks = candidate_marks(refined, windows, baseline, settings)
     return tuple(
