@@ -51,6 +51,7 @@ from .periodogram import (
     candidate_windows,
     compute_periodogram,
     eclipse_search,
+    effective_points,
     find_candidates,
     sampling_of,
 )
@@ -146,6 +147,18 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
             working, pgram, candidates, chosen, trend = outcome
             reasons.append(f"trend removed ({trend['description']}): {trend['rule']}")
 
+    # correlated noise (nightly zero points, drifts, ramps) makes fewer points
+    # independent than there are: the false-alarm probabilities count those
+    n_eff = _effective_points(working, candidates[chosen].frequency, settings)
+    if n_eff is not None:
+        candidates = find_candidates(
+            pgram, working, pgram.settings, windows=windows, n_effective=n_eff
+        )
+        reasons.append(
+            f"residuals correlated in time: false-alarm probabilities from {n_eff:.0f} "
+            f"independent points of {working.n_good}"
+        )
+
     # the eclipse search sees every cleaned point (detrended if a trend was adopted)
     everything = _detrended(lc, trend) if trend else lc
     candidates, chosen, search = with_eclipse_search(
@@ -227,6 +240,29 @@ def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
         chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
         bic += chi2 + (2 * order + 1) * np.log(t.size)
     return bic
+
+
+def _effective_points(lc: LightCurve, frequency: float, settings) -> float | None:
+    """Independent points of the residuals from the Fourier model, if clearly fewer.
+
+    Residuals in units of their errors, all bands in time order
+    (:func:`core.periodogram.effective_points`); None when they are at least
+    90% of the points (white noise within its scatter).
+    """
+    times, scaled = [], []
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            order = choose_order(t, m, e, frequency, settings.fourier).order
+            fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
+        except PhasewiseError:
+            return None
+        times.append(t)
+        scaled.append((m - fit.model(t)) / e)
+    t_all = np.concatenate(times)
+    r_all = np.concatenate(scaled)[np.argsort(t_all, kind="stable")]
+    n_eff = effective_points(r_all)
+    return n_eff if n_eff < 0.9 * r_all.size else None
 
 
 # ------------------------------------------------------------- set aside
