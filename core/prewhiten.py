@@ -31,9 +31,10 @@ independent frequencies the false-alarm probability of a step stays at
 the larger of that and ``snr_threshold``.
 
 Peaks at known frequencies are not searched: the harmonics in the model,
-every frequency already found, and the reflections of these and of every
-harmonic ``n f1`` (n up to ``max_harmonic``) through the peaks of the
-spectral window (``f +- w``, e.g. the 1 c/d of nightly sampling), within the
+every frequency already found, and the reflections of these, of every
+harmonic ``n f1`` (n up to ``max_harmonic``) and of zero frequency (the mean
+level and slow drifts) through the peaks of the spectral window (``f +- w``,
+e.g. the 1 c/d of nightly sampling, 1/yr of seasons), within the
 resolution.  Harmonics outside the model may still be found; they are named
 ``harmonic`` and never reported as a secondary.
 
@@ -84,7 +85,8 @@ class PrewhitenSettings:
         Lowest amplitude signal-to-noise a frequency needs (Breger et al. 1993).
     step_fap : float
         False-alarm probability allowed per step; raises the threshold with
-        the number of frequencies searched (module notes).
+        the number of frequencies searched (module notes).  1e-3, as the
+        main period's threshold (``AnalysisSettings.fap_threshold``).
     noise_box : float
         Half-width (cycles/day) of the box in which the noise is averaged.
     noise_samples : int
@@ -114,7 +116,7 @@ class PrewhitenSettings:
 
     max_frequencies: int = 5
     snr_threshold: float = 4.0
-    step_fap: float = 0.01
+    step_fap: float = 1e-3
     noise_box: float = 1.0
     noise_samples: int = 100
     main_order: int | None = None
@@ -270,7 +272,8 @@ def residual_search(oversampling: float = 3, periodogram=None) -> Search:
 
     On the frequency range (and band combination) of ``periodogram``, a
     :class:`~core.periodogram.PeriodogramSettings` (the defaults if None),
-    with ``oversampling`` points per peak width.  The residuals keep the
+    from 2/T up (two cycles in the baseline T at least), with
+    ``oversampling`` points per peak width.  The residuals keep the
     points of the light curve, so every step after the first reuses the
     weight terms of the transform (:func:`core.periodogram.kernels.gls.weight_terms`).
     """
@@ -280,7 +283,14 @@ def residual_search(oversampling: float = 3, periodogram=None) -> Search:
     settings = replace(base, method="gls", oversampling=oversampling)
 
     def search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
-        pg = compute_periodogram(residual, settings)
+        # a further period must repeat at least twice in the baseline
+        # (fewer cycles cannot tell it from a drift)
+        here = settings
+        baseline = residual.baseline
+        if baseline > 0 and (settings.fmin or 0.0) < 2.0 / baseline:
+            if settings.fmax is None or settings.fmax > 2.0 / baseline:
+                here = replace(settings, fmin=2.0 / baseline)
+        pg = compute_periodogram(residual, here)
         return np.asarray(pg.frequency), np.asarray(pg.power)
 
     return search
@@ -331,6 +341,10 @@ def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
         if all(abs(grid[i] - c) >= resolution for c in chosen):
             chosen.append(float(grid[i]))
     return chosen
+
+
+def _near_any(f: float, known: list[float], tolerance: float) -> bool:
+    return any(abs(f - k) < tolerance for k in known)
 
 
 def _label_independent(index: int) -> str:
@@ -481,10 +495,16 @@ def prewhiten(
         # reflections through the sampling window of every harmonic and found
         # frequency (a harmonic itself may still be found, and is named so)
         harmonics = [k * f_now for k in range(1, settings.max_harmonic + 1)]
-        for fk in harmonics + list(fit.frequencies[1:]):
-            for w in window_freqs:
-                masked |= np.abs(grid - (fk + w)) < resolution
-                masked |= np.abs(grid - abs(fk - w)) < resolution
+        # 0 stands for the mean level and slow drifts: the window's own peaks
+        # (1 c/d, 1/yr, ...) are their reflections
+        reflections = [
+            x
+            for fk in [0.0, *harmonics, *fit.frequencies[1:]]
+            for w in window_freqs
+            for x in (fk + w, abs(fk - w))
+        ]
+        for x in reflections:
+            masked |= np.abs(grid - x) < resolution
         candidates = np.flatnonzero(~masked & np.isfinite(power))
         if candidates.size == 0:
             stop = "no peak"
@@ -502,6 +522,11 @@ def prewhiten(
         others = tuple(peaks[1:])
         amp = trial.term_amplitude(0, sum(orders))
         f_found = float(trial.frequencies[-1])
+        if f_found < 2.0 / baseline or _near_any(f_found, reflections, resolution):
+            # refined onto a drift (under two cycles) or an alias of a known
+            # frequency: the strongest residual signal is not a further mode
+            stop = "no peak"
+            break
         noise = _noise(
             t[primary], trial.residuals[primary], sw[primary], f_found, box, settings.noise_samples
         )
