@@ -255,7 +255,7 @@ class AnalysisResult:
             "rise_time": _num(fit.rise_time) if fit else None,
             "residual_std": _num(fit.residual_std) if fit else None,
             "secondary_periods": secondary,
-            "period_ratio": _num(pw.period_ratio) if pw else None,
+            "period_ratio": _ratio(self.period, secondary),
             "prewhitening": pw.to_dict() if pw else None,
             "eclipse": self.eclipse.to_dict() if self.eclipse else None,
             "features": {k: _feature_value(v) for k, v in self.features.items()},
@@ -270,6 +270,14 @@ class AnalysisResult:
             "relation_band_reason": self.relation_band_reason or None,
             "flags": list(self.flags),
         }
+
+
+def _ratio(period: float | None, secondary: list[dict[str, Any]]) -> float | None:
+    """Shorter / longer of the period and the reported (first) secondary period."""
+    if not period or not secondary:
+        return None
+    other = secondary[0]["period"]
+    return _num(min(period, other) / max(period, other))
 
 
 def _fit_dict(fit: FourierFit) -> dict[str, Any]:

@@ -236,7 +236,8 @@ def test_multiband_reduces_to_gls_for_one_band(sample):
 @pytest.mark.parametrize(("method", "nterms"), [("gls", 1), ("mhgls", 2), ("mhgls", 3)])
 def test_multiband_power_is_total_chi2_reduction(method, nterms):
     # Direct weighted least squares per band at a few frequencies (numpy lstsq):
-    # P = sum_b (chi2_0,b - chi2_b) / sum_b chi2_0,b.
+    # P = sum_b (chi2_0,b - chi2_b) / s2_b / sum_b chi2_0,b / s2_b, each band's
+    # chi-square in units of its scatter s2_b = chi2_0,b / (N_b - 1).
     lc = _two_band_curve()
     settings = PeriodogramSettings(method=method, nterms=nterms, fmax=3.0)
     pg = compute_periodogram(lc, settings)
@@ -256,8 +257,9 @@ def test_multiband_power_is_total_chi2_reduction(method, nterms):
             chi2 = np.sum(((y - design @ coef) * sw) ** 2)
             mean = np.sum(y / e**2) / np.sum(1 / e**2)
             chi2_0 = np.sum(((y - mean) * sw) ** 2)
-            reduced += chi2_0 - chi2
-            total += chi2_0
+            s2 = chi2_0 / (t.size - 1)
+            reduced += (chi2_0 - chi2) / s2
+            total += chi2_0 / s2
         assert pg.power[i] == pytest.approx(reduced / total, abs=1e-8)
     if method == "gls":
         assert abs(pg.best_frequency - 1 / TRUE_PERIOD) < 1 / pg.baseline
