@@ -43,6 +43,7 @@ import numpy as np  # noqa: E402
 from astropy.timeseries import LombScargle  # noqa: E402
 
 from phasewise.core.analysis import analyse  # noqa: E402
+from phasewise.core.threads import limit_blas_threads  # noqa: E402
 from phasewise.core.synthetic import (  # noqa: E402
     BATTERY_CADENCES,
     BATTERY_CLASSES,
@@ -133,6 +134,7 @@ def main(argv=None) -> int:
     parser.add_argument("--cadences", default=",".join(BATTERY_CADENCES))
     parser.add_argument("--verbose", action="store_true", help="list every wrong star")
     args = parser.parse_args(argv)
+    limit_blas_threads()  # one BLAS thread, as the batch workers run
     seeds, per_class = (1, 1) if args.smoke else (args.seeds, args.per_class)
     cadences = [c for c in args.cadences.split(",") if c]
     print(f"cadence battery: {seeds} seed(s) x {per_class} star(s) per class and cadence\n")
