@@ -225,6 +225,12 @@ DAY_ALIASES = (1.0, 2.0, 1.0 / SIDEREAL_DAY, 2.0 / SIDEREAL_DAY)
 #: count the same).
 ALIAS_PENALTY = 100.0
 
+#: The subharmonic check takes 2f (half the period) when its single-trial
+#: probability is this many times smaller than at f (our choice: clearly
+#: better, not just as good; an eclipsing binary with two similar eclipses
+#: is as significant at both, and P against 2P is the eclipse test's).
+SUBHARMONIC_FACTOR = 1e-3
+
 #: Points in the deepest bin whose median must confirm a dip (the median
 #: ignores a few co-phased outliers that would move the mean).
 MIN_DIP_POINTS = 3
@@ -354,8 +360,9 @@ def eclipse_search(
     Beyond the phase-binned statistic (module notes), each reported peak
     goes through four checks, in this order:
 
-    * **subharmonic check**: if the statistic at 2f is at least as
-      significant as at f, the plainer answer 2f (half the period) is taken;
+    * **subharmonic check**: if the statistic at 2f is clearly more
+      significant than at f (:data:`SUBHARMONIC_FACTOR`), the plainer
+      answer 2f (half the period) is taken; as significant, it is noted;
     * **dip confirmed by medians** (:func:`_dip_confirmed`); a peak that
       fails gets FAP 1 (co-phased outliers, not an eclipse);
     * **calibrated false-alarm probability**: the F distribution's tail is
@@ -405,24 +412,28 @@ def eclipse_search(
     for i in chosen:
         f, value, filled = float(frequency[i]), float(f_value[i]), int(r[i])
         p = float(single_p(value, filled))
+        note = ()
         if 2.0 * f <= fmax:  # subharmonic check: is 2f as good?
             v2, r2 = aov_binned(t, y, w, np.array([2.0 * f]), settings.n_bins)
             p2 = float(single_p(v2[0], r2[0]))
-            if p2 <= p:
+            if p2 < SUBHARMONIC_FACTOR * p:
                 f, value, filled, p = 2.0 * f, float(v2[0]), int(r2[0]), p2
-        peaks.append([f, value, filled, p])
+            elif p2 <= p:
+                note = (f"subharmonic check: {1 / (2 * f):.6g} d is as significant",)
+        peaks.append([f, value, filled, p, note])
     inflation = 1.0
-    gaussian = [-np.expm1(n_trials * np.log1p(-min(p, 1 - 1e-16))) for *_, p in peaks]
+    gaussian = [-np.expm1(n_trials * np.log1p(-min(p, 1 - 1e-16))) for *_, p, _ in peaks]
     if min(gaussian) < 0.05:  # calibrate only where it could matter
         rng = np.random.default_rng(n)  # seeded by the data size: reproducible
         inflation = _tail_inflation(t, y, w, coarse, settings.n_bins, rng)
     windows = window_peaks(t)
     faps, marks, details = [], [], []
-    for f, _value, _filled, p in peaks:
+    for f, _value, _filled, p, note in peaks:
         p_cal = min(1.0, inflation * p)
         with np.errstate(divide="ignore"):
             fap = float(np.clip(-np.expm1(n_trials * np.log1p(-min(p_cal, 1 - 1e-16))), 0, 1))
         m, d = _alias_marks(f, baseline, windows)
+        d = (*d, *note)
         if m:
             fap = min(1.0, ALIAS_PENALTY * fap)
         if fap < 1.0 and not _dip_confirmed(t, y, w, f, settings.n_bins):
