@@ -43,13 +43,13 @@ import numpy as np  # noqa: E402
 from astropy.timeseries import LombScargle  # noqa: E402
 
 from phasewise.core.analysis import analyse  # noqa: E402
-from phasewise.core.threads import limit_blas_threads  # noqa: E402
 from phasewise.core.synthetic import (  # noqa: E402
     BATTERY_CADENCES,
     BATTERY_CLASSES,
     battery_star,
     period_determinable,
 )
+from phasewise.core.threads import limit_blas_threads  # noqa: E402
 
 ECLIPSING = ("EW", "EA", "EB")
 CONSTANT = ("CONST", "NONVAR")
