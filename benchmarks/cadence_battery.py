@@ -1,6 +1,9 @@
 """Periods and classes on four survey cadences: our top suggestion against plain Lomb-Scargle.
 
-    python benchmarks/cadence_battery.py [--seeds 3] [--per-class 2] [--smoke]
+    python benchmarks/cadence_battery.py [--seeds 3] [--per-class 2] [--classes NONVAR,...]
+                                         [--smoke] [--verbose]
+
+``--smoke`` runs one star of RRab and of NONVAR per cadence (seconds).
 
 Stars come from ``core.synthetic.battery_star`` (seeded, invented): four
 cadences (sparse all-sky, one site nightly, two bands of unequal depth,
@@ -130,8 +133,13 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--seeds", type=int, default=3, help="seeds per cadence x class")
     parser.add_argument("--per-class", type=int, default=2, help="stars per seed and class")
-    parser.add_argument("--smoke", action="store_true", help="one star per cadence x class")
+    parser.add_argument(
+        "--smoke", action="store_true", help="one RRab and one constant star per cadence"
+    )
     parser.add_argument("--cadences", default=",".join(BATTERY_CADENCES))
+    parser.add_argument(
+        "--classes", default="", help="only these battery classes, e.g. NONVAR,RRab (default all)"
+    )
     parser.add_argument("--verbose", action="store_true", help="list every wrong star")
     args = parser.parse_args(argv)
     limit_blas_threads()  # one BLAS thread, as the batch workers run
@@ -144,7 +152,12 @@ def main(argv=None) -> int:
     for kind in cadences:
         print(header)
         totals = defaultdict(int)
+        wanted = {c for c in args.classes.split(",") if c}
+        if args.smoke and not wanted:
+            wanted = {"RRab", "NONVAR"}
         for code, sub, opt in BATTERY_CLASSES:
+            if wanted and code not in wanted:
+                continue
             rows = [
                 run_star(kind, code, sub, opt, 1000 * s + k)
                 for s in range(seeds)
