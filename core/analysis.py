@@ -162,6 +162,10 @@ class AnalysisSettings:
 
 _num = finite_or_none  # a finite float or None, for JSON-able results
 
+#: Fewest cycles in the baseline for a period to be adopted (status "ok"):
+#: the rule of a period the data can determine (core.synthetic.period_determinable).
+MIN_CYCLES = 2.0
+
 
 @dataclass(frozen=True, eq=False)
 class AnalysisResult:
@@ -417,6 +421,13 @@ def _analyse(
         status = "no_significant_period"
         fap_text = "unknown" if fap is None else f"{fap:.2g}"
         reason = f"false-alarm probability {fap_text} above {settings.fap_threshold:g}"
+    elif working.baseline < MIN_CYCLES / frequency:
+        # fewer cycles cannot tell a period from a drift or a ramp
+        status = "no_significant_period"
+        reason = (
+            f"period {1 / frequency:.6g} d repeats fewer than {MIN_CYCLES:g} times in the "
+            f"baseline of {working.baseline:.6g} d"
+        )
     measured = AnalysisResult(
         status=status,
         reason=reason,
