@@ -421,7 +421,8 @@ def _analyse(
         status = "no_significant_period"
         fap_text = "unknown" if fap is None else f"{fap:.2g}"
         reason = f"false-alarm probability {fap_text} above {settings.fap_threshold:g}"
-    elif working.baseline < MIN_CYCLES / frequency:
+    few_cycles = working.baseline < MIN_CYCLES / frequency
+    if status == "ok" and few_cycles:
         # fewer cycles cannot tell a period from a drift or a ramp
         status = "no_significant_period"
         reason = (
@@ -455,6 +456,10 @@ def _analyse(
     )
     # one place turns results into features: the same function reads stored results
     features = features_from_result(measured.to_dict())
+    if few_cycles:
+        # the rulebook's significance gate: a period that does not repeat
+        # twice is no period (the measured FAP stays in the result)
+        features = {**features, "fap": 1.0}
     suggestions = _suggest(features, settings)
     physics: tuple[PhysicalValue, ...] = ()
     if suggestions:

@@ -241,3 +241,14 @@ def test_binned_effective_points_see_slow_correlated_noise():
     assert binned_effective_points(t, white, 0.5) == pytest.approx(t.size, rel=0.3)
     wander = white + 1.5 * np.sin(2 * np.pi * t / 9.0)
     assert binned_effective_points(t, wander, 0.5) < 0.1 * t.size
+
+
+def test_a_period_under_two_cycles_is_not_adopted():
+    # a constant star on the 27-day space-like cadence whose scattered-light
+    # ramps after the gap leave a ~15 d wave: under two cycles, no period
+    lc, _ = battery_star("space", "NONVAR", seed=2000)
+    result = analyse(lc).to_dict()
+    assert result["period"] > lc.baseline / 2.0
+    assert result["status"] == "no_significant_period"
+    assert "fewer than 2 times" in result["reason"]
+    assert _top(result)["class"] == "CONST"
