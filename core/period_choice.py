@@ -48,7 +48,6 @@ from .periodogram import (
     Candidate,
     EclipseSearch,
     Periodogram,
-    binned_effective_points,
     candidate_windows,
     compute_periodogram,
     eclipse_search,
@@ -246,11 +245,9 @@ def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
 def _effective_points(lc: LightCurve, frequency: float, settings) -> float | None:
     """Independent points of the residuals from the Fourier model, if clearly fewer.
 
-    Residuals in units of their errors, all bands in time order: the fewer
-    of :func:`core.periodogram.effective_points` (neighbours alike) and
-    :func:`core.periodogram.binned_effective_points` over a tenth of the
-    period; None when they are at least 90% of the points (white noise
-    within its scatter).
+    Residuals in units of their errors, all bands in time order
+    (:func:`core.periodogram.effective_points`); None when they are at
+    least 90% of the points (white noise within its scatter).
     """
     times, scaled = [], []
     for band in lc.bands:
@@ -264,10 +261,11 @@ def _effective_points(lc: LightCurve, frequency: float, settings) -> float | Non
         scaled.append((m - fit.model(t)) / e)
     t_all = np.concatenate(times)
     order = np.argsort(t_all, kind="stable")
-    t_all, r_all = t_all[order], np.concatenate(scaled)[order]
-    # correlation between neighbours, and over a tenth of the period (the
-    # time scale on which noise competes with the signal)
-    n_eff = min(effective_points(r_all), binned_effective_points(t_all, r_all, 0.1 / frequency))
+    r_all = np.concatenate(scaled)[order]
+    # correlation between neighbours only: averaging over longer times
+    # (Pont, Zucker & Queloz 2006) also counts a strong signal's model
+    # error (modulation) as noise and buried modulated RRab in the demo
+    n_eff = effective_points(r_all)
     return n_eff if n_eff < 0.9 * r_all.size else None
 
 

@@ -11,7 +11,7 @@ from ..errors import GridTooLargeError
 from .candidates import Candidate, candidate_marks, find_candidates
 from .compute import MIN_POINTS, compute_periodogram, search_bands
 from .eclipse_search import EclipseSearch, EclipseSearchSettings, eclipse_search
-from .fap import baluev_fap, binned_effective_points, effective_points, f_test_fap
+from .fap import baluev_fap, effective_points, f_test_fap
 from .grid import (
     RegularGrid,
     Sampling,
@@ -54,7 +54,6 @@ __all__ = [
     "Candidate",
     "baluev_fap",
     "effective_points",
-    "binned_effective_points",
     "eclipse_search",
     "EclipseSearch",
     "EclipseSearchSettings",

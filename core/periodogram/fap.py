@@ -19,7 +19,7 @@ import math
 
 import numpy as np
 
-__all__ = ["baluev_fap", "f_test_fap", "effective_points", "binned_effective_points"]
+__all__ = ["baluev_fap", "f_test_fap", "effective_points"]
 
 
 def effective_points(residual: np.ndarray) -> float:
@@ -116,33 +116,3 @@ def f_test_fap(power, n_points, n_model, n_null, n_independent):
     single = special.fdtrc(n_model, dof, f_value)  # survival function of F
     with np.errstate(divide="ignore"):
         return np.clip(-np.expm1(max(n_independent, 1.0) * np.log1p(-single)), 0.0, 1.0)
-
-
-def binned_effective_points(time, residual, width: float) -> float:
-    """Independent points from the scatter of residuals averaged over ``width`` days.
-
-    The "time-averaging" test of correlated noise (Pont, Zucker & Queloz
-    2006, MNRAS 373, 231; from memory): for white noise the mean of k
-    residuals (in units of their errors) has variance s^2 / k, s^2 their
-    variance; the ratio beta^2 of the variance seen to that, over bins of
-    ``width`` holding at least 3 points, says how many times fewer the
-    independent points are: ``N_eff = N / max(beta^2, 1)``.  With fewer
-    than 5 such bins the data cannot tell, and N is returned.
-    """
-    t = np.asarray(time, dtype=float)
-    z = np.asarray(residual, dtype=float)
-    n = z.size
-    if n < 10 or not width > 0:
-        return float(n)
-    z = z - z.mean()
-    s2 = float(np.mean(z**2))
-    if s2 <= 0:
-        return float(n)
-    index = np.floor((t - t.min()) / width).astype(np.int64)
-    _, inverse, counts = np.unique(index, return_inverse=True, return_counts=True)
-    sums = np.bincount(inverse, weights=z)
-    full = counts >= 3
-    if full.sum() < 5:
-        return float(n)
-    beta2 = float(np.mean(sums[full] ** 2 / counts[full]) / s2)
-    return n / max(beta2, 1.0)

@@ -19,7 +19,6 @@ from phasewise.core.analysis import AnalysisSettings, analyse
 from phasewise.core.lightcurve import LightCurve
 from phasewise.core.periodogram import (
     PeriodogramSettings,
-    binned_effective_points,
     compute_periodogram,
     eclipse_search,
     effective_points,
@@ -230,17 +229,6 @@ def test_yearly_sunspots_give_the_solar_cycle_with_default_settings():
     lc = LightCurve("sunspots", jd, data["SUNACTIVITY"].to_numpy(float), time_scale="JD")
     result = analyse(lc).to_dict()
     assert 10.5 <= result["period"] / 365.25 <= 11.5
-
-
-def test_binned_effective_points_see_slow_correlated_noise():
-    # white noise plus a slow wander (ramps, drifts): binned means scatter
-    # more than white noise allows (Pont, Zucker & Queloz 2006, from memory)
-    rng = np.random.default_rng(3)
-    t = np.arange(0.0, 27.0, 1.0 / 48.0)
-    white = rng.normal(size=t.size)
-    assert binned_effective_points(t, white, 0.5) == pytest.approx(t.size, rel=0.3)
-    wander = white + 1.5 * np.sin(2 * np.pi * t / 9.0)
-    assert binned_effective_points(t, wander, 0.5) < 0.1 * t.size
 
 
 def test_a_period_under_two_cycles_is_not_adopted():
