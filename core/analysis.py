@@ -276,6 +276,10 @@ class AnalysisResult:
         }
 
 
+def _significant_fap(fap: float | None, threshold: float) -> bool:
+    return fap is not None and bool(np.isfinite(fap)) and fap <= threshold
+
+
 def _ratio(period: float | None, secondary: list[dict[str, Any]]) -> float | None:
     """Shorter / longer of the period and the reported (first) secondary period."""
     if not period or not secondary:
@@ -395,7 +399,13 @@ def _analyse(
     )
     if outlier_times:
         flags.append(f"{len(outlier_times)} outlier(s) set aside for the Fourier fit")
-    primary, band_reason = relation_band(fits, settings)
+    if _significant_fap(candidates[chosen].fap, settings.fap_threshold):
+        primary, band_reason = relation_band(fits, settings)
+    else:
+        # no period to measure: the quality of a fit to noise says nothing,
+        # and the features of non-variables stay those of the calibration band
+        primary = _calibration_band() if _calibration_band() in fits else next(iter(fits))
+        band_reason = f"{primary}: no significant period; the relations' calibration band"
 
     # reuse the decomposition: its order for prewhitening, its fit for the eclipse test
     pw_settings = settings.prewhiten
