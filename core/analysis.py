@@ -38,34 +38,34 @@ from .fourier import (
     FourierFit,
     FourierSettings,
     RefinedFrequency,
-    choose_order,
     decompose,
     fit_fourier,
     refine_frequency,
 )
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
+from .period_choice import ECLIPSE_FAP_METHOD, MAD_TO_SIGMA, choose_period
 from .periodogram import (
     Candidate,
     EclipseSearch,
     EclipseSearchSettings,
     Periodogram,
     PeriodogramSettings,
-    compute_periodogram,
-    eclipse_search,
-    find_candidates,
 )
 from .physics import PhysicalValue, PhysicsSettings, derive
 from .prewhiten import Prewhitening, PrewhitenSettings, prewhiten, residual_search
 from .settings import settings_hash, settings_to_dict
-from .validation import finite_or_none, require_int, require_positive, require_range
+from .validation import (
+    finite_or_none,
+    require_choice,
+    require_int,
+    require_positive,
+    require_range,
+)
 
 __all__ = ["STATUSES", "AnalysisSettings", "AnalysisResult", "analyse"]
 
 #: Result states. ``ok``: a significant period was found and measured.
 STATUSES = ("ok", "no_significant_period", "no_variability", "too_few_points", "failed")
-
-#: Median absolute deviation to Gaussian sigma (common practice, no source).
-MAD_TO_SIGMA = 1.4826
 
 
 @dataclass(frozen=True)
@@ -102,6 +102,24 @@ class AnalysisSettings:
         Skewness of the primary band's magnitudes above which the eclipse
         search also runs for a significant periodogram peak (its best
         period then competes with the periodogram's candidates).
+    set_aside_sigma : float or None
+        Before candidates compete, points further than this many robust
+        sigmas from the Fourier model at the current choice are set aside
+        (recorded, never deleted) and the search repeated; None switches it
+        off.  See :mod:`core.period_choice`.
+    set_aside_max_share : float
+        A band with more than this share of its points beyond the limit
+        sets none aside in that round (the model is wrong, not the points).
+    set_aside_rounds : int
+        Most rounds of setting aside and searching again.
+    trend : {"auto", "none"}
+        ``"auto"``: a polynomial in time (degree 1-3) or a floating mean per
+        season is fitted where the data call for it (scaled BIC lower by
+        ``trend_min_delta_bic``; see :mod:`core.period_choice`).
+    trend_min_delta_bic : float
+        Smallest drop in the scaled BIC that calls for and adopts a trend
+        (10: "very strong" evidence on the scale of Kass & Raftery 1995,
+        from memory).
     """
 
     clean: CleanSettings = field(default_factory=CleanSettings)
@@ -116,9 +134,20 @@ class AnalysisSettings:
     rulebook: str | None = None
     eclipse_search: EclipseSearchSettings | None = field(default_factory=EclipseSearchSettings)
     eclipse_skewness: float = 1.0
+    set_aside_sigma: float | None = 5.0
+    set_aside_max_share: float = 0.03
+    set_aside_rounds: int = 3
+    trend: str = "auto"
+    trend_min_delta_bic: float = 10.0
 
     def __post_init__(self) -> None:
         require_range("fap_threshold", self.fap_threshold, 0.0, 1.0)
+        if self.set_aside_sigma is not None:
+            require_positive("set_aside_sigma", self.set_aside_sigma)
+        require_range("set_aside_max_share", self.set_aside_max_share, 0.0, 0.5)
+        require_int("set_aside_rounds", self.set_aside_rounds, 0, 10)
+        require_choice("trend", self.trend, ("auto", "none"))
+        require_positive("trend_min_delta_bic", self.trend_min_delta_bic)
         require_int("compare_candidates", self.compare_candidates, 1, 20)
         if self.outlier_sigma is not None:
             require_positive("outlier_sigma", self.outlier_sigma)
@@ -133,6 +162,10 @@ class AnalysisSettings:
 
 
 _num = finite_or_none  # a finite float or None, for JSON-able results
+
+#: Fewest cycles in the baseline for a period to be adopted (status "ok"):
+#: the rule of a period the data can determine (core.synthetic.period_determinable).
+MIN_CYCLES = 2.0
 
 
 @dataclass(frozen=True, eq=False)
@@ -165,6 +198,10 @@ class AnalysisResult:
     physics: tuple[PhysicalValue, ...] = ()
     clean_report: CleanReport | None = None
     outlier_times: tuple[float, ...] = ()
+    set_aside: tuple[int, ...] = ()
+    trend: dict[str, Any] | None = None
+    modulation: dict[str, Any] | None = None
+    relation_band_reason: str = ""
     flags: tuple[str, ...] = ()
     final: dict[str, Any] | None = None
 
@@ -188,7 +225,8 @@ class AnalysisResult:
         fit = self.primary_fit
         fits = {band: _fit_dict(f) for band, f in self.fits.items()}
         pw = self.prewhitening
-        secondary = [] if pw is None else [f.to_dict() for f in pw.frequencies[1:]]
+        # only secondaries that are reported: independent, significant, strongest first
+        secondary = [] if pw is None else [f.to_dict() for f in pw.secondaries]
         return {
             "star_id": self.star_id,
             "phasewise_version": __version__,
@@ -223,7 +261,7 @@ class AnalysisResult:
             "rise_time": _num(fit.rise_time) if fit else None,
             "residual_std": _num(fit.residual_std) if fit else None,
             "secondary_periods": secondary,
-            "period_ratio": _num(pw.period_ratio) if pw else None,
+            "period_ratio": _ratio(self.period, secondary),
             "prewhitening": pw.to_dict() if pw else None,
             "eclipse": self.eclipse.to_dict() if self.eclipse else None,
             "features": {k: _feature_value(v) for k, v in self.features.items()},
@@ -231,9 +269,26 @@ class AnalysisResult:
             "physics": [p.to_dict() for p in self.physics],
             "clean": self.clean_report.to_dict() if self.clean_report else None,
             "outlier_times": [float(t) for t in self.outlier_times],
+            "set_aside": [int(i) for i in self.set_aside],
+            "trend": self.trend,
+            "modulation": self.modulation,
+            "relation_band": self.primary_band if fit is not None else None,
+            "relation_band_reason": self.relation_band_reason or None,
             "flags": list(self.flags),
             "final": self.final,
         }
+
+
+def _significant_fap(fap: float | None, threshold: float) -> bool:
+    return fap is not None and bool(np.isfinite(fap)) and fap <= threshold
+
+
+def _ratio(period: float | None, secondary: list[dict[str, Any]]) -> float | None:
+    """Shorter / longer of the period and the reported (first) secondary period."""
+    if not period or not secondary:
+        return None
+    other = secondary[0]["period"]
+    return _num(min(period, other) / max(period, other))
 
 
 def _fit_dict(fit: FourierFit) -> dict[str, Any]:
@@ -308,9 +363,13 @@ def _analyse(
             **common,
         )
 
-    if pgram is None:
-        pgram = compute_periodogram(cleaned, settings.periodogram)
-    candidates = find_candidates(pgram, cleaned, settings.periodogram)
+    choice = choose_period(cleaned, settings, pgram)
+    pgram, candidates, chosen, search = (
+        choice.periodogram,
+        choice.candidates,
+        choice.chosen,
+        choice.search,
+    )
     if not candidates:
         return AnalysisResult(
             status="no_significant_period",
@@ -318,34 +377,38 @@ def _analyse(
             method=pgram.method,
             **common,
         )
-    chosen = _choose_candidate(cleaned, candidates, settings)
-    candidates, chosen, search = _with_eclipse_search(cleaned, candidates, chosen, settings)
-    if candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
-        flags.append(
-            f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
-            "the periodogram's peaks were weaker; no residual outliers set aside"
-        )
-    elif chosen != 0:
-        flags.append(
-            f"period from candidate {chosen + 1} (multi-harmonic fit preferred it "
-            "over the highest peak)"
-        )
+    flags.extend(choice.reasons)
+    working = choice.lc
     f0 = candidates[chosen].frequency
 
-    refined = refine_frequency(cleaned, f0, settings=settings.fourier)
+    measured = _measure(working, f0, candidates[chosen].fap_method, settings)
+    if not measured[1] and candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
+        # never fail where a plainer answer exists: the periodogram's best peak
+        flags.append(
+            "the eclipse search's period supports no Fourier fit; "
+            "the periodogram's best candidate is used instead"
+        )
+        chosen = 0
+        f0 = candidates[0].frequency
+        measured = _measure(working, f0, candidates[0].fap_method, settings)
+    refined, fits, outlier_times, analysed = measured
     frequency = refined.frequency if refined.converged else f0
     if not refined.converged:
         flags.append(f"period refinement did not converge: {refined.message}")
-    from_search = candidates[chosen].fap_method == ECLIPSE_FAP_METHOD
-    # a Fourier series cannot follow a narrow eclipse: its residuals would set
-    # the eclipse points aside as outliers
-    decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
-    fits, outlier_times, analysed = _decompose_with_outliers(cleaned, frequency, decompose_settings)
     if not fits:
         raise PhasewiseError("no band supports even a first-order Fourier fit", field=lc.star_id)
+    set_aside = sorted(
+        set(choice.set_aside) | set(np.flatnonzero(analysed.excluded & cleaned.good))
+    )
     if outlier_times:
         flags.append(f"{len(outlier_times)} outlier(s) set aside for the Fourier fit")
-    primary = "V" if "V" in fits else next(iter(fits))
+    if _significant_fap(candidates[chosen].fap, settings.fap_threshold):
+        primary, band_reason = relation_band(fits, settings)
+    else:
+        # no period to measure: the quality of a fit to noise says nothing,
+        # and the features of non-variables stay those of the calibration band
+        primary = _calibration_band() if _calibration_band() in fits else next(iter(fits))
+        band_reason = f"{primary}: no significant period; the relations' calibration band"
 
     # reuse the decomposition: its order for prewhitening, its fit for the eclipse test
     pw_settings = settings.prewhiten
@@ -353,7 +416,10 @@ def _analyse(
         pw_settings = replace(pw_settings, main_order=fits[primary].order)
     # the residuals are searched on the main search's range
     residuals = residual_search(pw_settings.search_oversampling, settings.periodogram)
-    pw = prewhiten(analysed, frequency, pw_settings, search=residuals)
+    pw = prewhiten(analysed, frequency, pw_settings, search=residuals, windows=choice.windows)
+    modulation = find_modulation(analysed, frequency, pw, primary)
+    if modulation is not None:
+        flags.append(f"modulated: {modulation['description']}")
     try:
         ecl = eclipse_test(
             analysed, frequency, settings.eclipse, fit_at_period=fits.get(analysed.bands[0])
@@ -368,6 +434,14 @@ def _analyse(
         status = "no_significant_period"
         fap_text = "unknown" if fap is None else f"{fap:.2g}"
         reason = f"false-alarm probability {fap_text} above {settings.fap_threshold:g}"
+    few_cycles = working.baseline < MIN_CYCLES / frequency
+    if status == "ok" and few_cycles:
+        # fewer cycles cannot tell a period from a drift or a ramp
+        status = "no_significant_period"
+        reason = (
+            f"period {1 / frequency:.6g} d repeats fewer than {MIN_CYCLES:g} times in the "
+            f"baseline of {working.baseline:.6g} d"
+        )
     measured = AnalysisResult(
         status=status,
         reason=reason,
@@ -386,11 +460,19 @@ def _analyse(
         eclipse=ecl,
         features=_extra_features(analysed, primary),
         outlier_times=outlier_times,
+        set_aside=tuple(int(i) for i in set_aside),
+        trend=choice.trend,
+        modulation=modulation,
+        relation_band_reason=band_reason,
         flags=tuple(flags),
         **common,
     )
     # one place turns results into features: the same function reads stored results
     features = features_from_result(measured.to_dict())
+    if few_cycles:
+        # the rulebook's significance gate: a period that does not repeat
+        # twice is no period (the measured FAP stays in the result)
+        features = {**features, "fap": 1.0}
     suggestions = _suggest(features, settings)
     physics: tuple[PhysicalValue, ...] = ()
     if suggestions:
@@ -406,127 +488,149 @@ def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any,
     return suggest(features, rulebook)
 
 
-#: ``fap_method`` of a candidate that comes from the eclipse search.
-ECLIPSE_FAP_METHOD = "aov_binned"
+def _measure(working: LightCurve, f0: float, fap_method: str, settings: AnalysisSettings):
+    """Refined frequency and per-band Fourier fits at the chosen candidate."""
+    refined = refine_frequency(working, f0, settings=settings.fourier)
+    frequency = refined.frequency if refined.converged else f0
+    # a Fourier series cannot follow a narrow eclipse: its residuals would set
+    # the eclipse points aside as outliers
+    from_search = fap_method == ECLIPSE_FAP_METHOD
+    decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
+    fits, outlier_times, analysed = _decompose_with_outliers(working, frequency, decompose_settings)
+    return refined, fits, outlier_times, analysed
 
 
-def _with_eclipse_search(
-    lc: LightCurve, candidates: tuple[Candidate, ...], chosen: int, settings: AnalysisSettings
-) -> tuple[tuple[Candidate, ...], int, EclipseSearch | None]:
-    """Run the eclipse search where it matters; its best period may take over.
+#: A calibration band's Fourier parameters are used for the relations when
+#: their phi31 error is at most this many times the best band's (our choice).
+GOOD_ENOUGH_FACTOR = 2.0
 
-    * The periodogram's chosen peak is not significant: the search's best
-      peak is taken when it is significant.
-    * The magnitudes are strongly skewed to the faint side (most of the time
-      at maximum light, short fadings): the search's best peak joins the
-      multi-harmonic competition of :func:`_choose_candidate`, unless it is
-      the chosen peak, its harmonic or its subharmonic.
 
-    Two searches were made, so the search's false-alarm probability is
-    doubled (Bonferroni) before it is compared or reported.
+def _fourier_quality(fit: FourierFit) -> float:
+    """Error of the parameter the relations use most: phi31, else A1 relative."""
+    if fit.phi31_err is not None and np.isfinite(fit.phi31_err):
+        return float(fit.phi31_err)
+    amp = fit.amplitudes[0] if len(fit.amplitudes) else 0.0
+    err = fit.amplitudes_err[0] if len(fit.amplitudes_err) else np.inf
+    return float(err / amp) if amp > 0 else np.inf
+
+
+def relation_band(fits: dict[str, FourierFit], settings: AnalysisSettings) -> tuple[str, str]:
+    """The band whose Fourier parameters are reported and fed to relations, and why.
+
+    The relations' calibration band (:func:`_calibration_band`) when it was observed and its phi31 error (A1's relative error where
+    phi31 is not measured) is within :data:`GOOD_ENOUGH_FACTOR` of the best
+    band's; otherwise the band that determines them best.  Relations check
+    the band themselves (:mod:`core.physics.derive`): a band they were not
+    calibrated in gets no value, only a flag.
     """
-    if settings.eclipse_search is None:
-        return candidates, chosen, None
-    weak = not _significant(candidates[chosen].fap, settings.fap_threshold)
-    _, mag, _ = lc.arrays(lc.bands[0])
-    skewed = mag.size > 2 and float(stats.skew(mag)) >= settings.eclipse_skewness
-    if not (weak or skewed):
-        return candidates, chosen, None
-    search = eclipse_search(lc, settings.eclipse_search)
-    if search is None or not search.frequencies:
-        return candidates, chosen, search
-    fap = min(1.0, 2.0 * search.faps[0])
-    if not _significant(fap, settings.fap_threshold):
-        return candidates, chosen, search
-    f = search.frequencies[0]
-    extra = Candidate(
-        frequency=f,
-        period=1.0 / f,
-        power=search.f_values[0],
-        fap=fap,
-        snr=search.snrs[0],
-        marks=(),
-        mark_details=(
-            f"phase-binned eclipse search: F = {search.f_values[0]:.3g} with "
-            f"{search.n_bins} bins; FAP doubled for the two searches",
+    quality = {band: _fourier_quality(fit) for band, fit in fits.items()}
+    best = min(quality, key=lambda b: (quality[b], b))
+    calibrated = _calibration_band()
+    text = ", ".join(f"{b} {q:.3g}" for b, q in quality.items())
+    if calibrated in fits and quality[calibrated] <= GOOD_ENOUGH_FACTOR * quality[best]:
+        if calibrated == best or len(fits) == 1:
+            return (
+                calibrated,
+                f"{calibrated}: the relations' calibration band and the best determined",
+            )
+        return calibrated, (
+            f"{calibrated}: the relations' calibration band, good enough "
+            f"(error within {GOOD_ENOUGH_FACTOR:g}x the best; {text})"
+        )
+    if calibrated in fits:
+        return best, (
+            f"{best}: determines the Fourier parameters best ({text}); {calibrated} is more "
+            f"than {GOOD_ENOUGH_FACTOR:g}x worse, and relations calibrated in {calibrated} "
+            f"are not applied to {best}"
+        )
+    return best, f"{best}: determines the Fourier parameters best ({text}); no {calibrated} data"
+
+
+#: Inputs that are Fourier parameters of the light curve.
+FOURIER_INPUTS = frozenset({"phi31", "phi31_cos", "A1", "A3", "R21", "R31", "phi21"})
+
+
+def _calibration_band() -> str:
+    """The band the registry's light-curve (Fourier-parameter) relations were calibrated in."""
+    from collections import Counter
+
+    from .physics import RELATIONS
+
+    bands = Counter(r.band for r in RELATIONS.values() if FOURIER_INPUTS & set(r.inputs) and r.band)
+    return bands.most_common(1)[0][0] if bands else "V"
+
+
+#: Probability below which amplitude or phase changes between seasons count
+#: as modulation (our choice; a chi-square test of the per-season values).
+MODULATION_P = 1e-3
+
+
+def find_modulation(lc: LightCurve, frequency: float, pw, band: str) -> dict[str, Any] | None:
+    """Modulation of the main mode: side peaks, or changes between seasons.
+
+    Side peaks ``k f1 +- delta`` found by prewhitening give the modulation
+    period 1/delta (their mean).  Otherwise, with two or more seasons (gaps
+    over 60 d) of at least 20 points in ``band``, a first-order Fourier fit
+    per season gives A1 and phi1 with errors; amplitudes or phases that
+    differ between seasons with chi-square probability below
+    :data:`MODULATION_P` mark the star as modulated, with no period (a few
+    seasons cannot give one).
+    """
+    if pw is not None and pw.modulation_period is not None:
+        peaks = [f for f in pw.frequencies if f.kind == "side peak"]
+        return {
+            "kind": "side peaks",
+            "period": float(pw.modulation_period),
+            "side_peaks": [f.label for f in peaks],
+            "snr": [float(f.snr) for f in peaks],
+            "description": f"side peaks, modulation period {pw.modulation_period:.4g} d",
+        }
+    from .period_choice import _seasons
+
+    t, m, e = lc.arrays(band)
+    if t.size == 0:
+        return None
+    seasons = _seasons(t)
+    amps, amp_errs, phases, phase_errs = [], [], [], []
+    for s in np.unique(seasons):
+        sel = seasons == s
+        if sel.sum() < 20:
+            continue
+        try:
+            # one epoch for every season, so the phases compare
+            fit = fit_fourier(t[sel], m[sel], e[sel], frequency, 1, epoch=float(t[0]))
+        except PhasewiseError:
+            continue
+        amps.append(fit.amplitudes[0])
+        amp_errs.append(fit.amplitudes_err[0])
+        phases.append(fit.phases[0])
+        phase_errs.append(fit.phases_err[0])
+    if len(amps) < 2:
+        return None
+    amps, amp_errs = np.array(amps), np.array(amp_errs)
+    phases, phase_errs = np.unwrap(np.array(phases)), np.array(phase_errs)
+    dof = len(amps) - 1
+    changes = []
+    for name, values, errs in (("amplitude", amps, amp_errs), ("phase", phases, phase_errs)):
+        if not np.all(np.isfinite(errs)) or np.any(errs <= 0):
+            continue
+        w = 1.0 / errs**2
+        mean = np.dot(w, values) / w.sum()
+        chi2 = float(np.dot(w, (values - mean) ** 2))
+        if stats.chi2.sf(chi2, dof) < MODULATION_P:
+            changes.append(name)
+    if not changes:
+        return None
+    return {
+        "kind": "seasonal " + " and ".join(changes) + " change",
+        "period": None,
+        "n_seasons": len(amps),
+        "amplitudes": [float(a) for a in amps],
+        "description": (
+            f"the {' and '.join(changes)} of the main mode change between {len(amps)} "
+            "seasons (no modulation period from so few seasons)"
         ),
-        rank=len(candidates) + 1,
-        fap_method=ECLIPSE_FAP_METHOD,
-    )
-    joined = (*candidates, extra)
-    if weak:
-        return joined, len(joined) - 1, search
-    if _harmonically_related(f, candidates[chosen].frequency, lc.baseline, settings):
-        # at f/2 a curve fits as well with twice the parameters: the choice
-        # between P and 2P is the eclipse test's and the classifier's
-        return joined, chosen, search
-    best = _best_by_bic(lc, joined, (chosen, len(joined) - 1), settings)
-    return joined, best, search
-
-
-def _harmonically_related(f: float, other: float, baseline: float, settings) -> bool:
-    """Whether ``f`` is n or 1/n times ``other`` (n = 1 .. max_harmonic) within
-    the candidates' mark tolerance."""
-    pg = settings.periodogram
-    tol = pg.mark_tolerance / baseline if baseline > 0 else 0.0
-    for n in range(1, pg.max_harmonic + 1):
-        if abs(f - n * other) <= tol or abs(n * f - other) <= tol:
-            return True
-    return False
-
-
-def _significant(fap: float | None, threshold: float) -> bool:
-    return fap is not None and bool(np.isfinite(fap)) and fap <= threshold
-
-
-def _choose_candidate(
-    lc: LightCurve, candidates: tuple[Candidate, ...], settings: AnalysisSettings
-) -> int:
-    """Index of the candidate whose multi-harmonic fit has the lowest BIC.
-
-    Each band gets its own mean and harmonics (order chosen per band and
-    frequency); the information criterion adds them up over the bands.
-    Harmonic and subharmonic candidates of a stronger peak do not compete:
-    at f/2 a curve fits as well with twice the parameters, and the choice
-    between P and 2P for eclipsing binaries is the classifier's.
-    """
-    n = min(settings.compare_candidates, len(candidates))
-    if n == 1:
-        return 0
-    competing = [
-        i
-        for i in range(n)
-        if i == 0 or not ({"harmonic", "subharmonic"} & set(candidates[i].marks))
-    ]
-    return _best_by_bic(lc, candidates, competing, settings)
-
-
-def _best_by_bic(
-    lc: LightCurve,
-    candidates: tuple[Candidate, ...],
-    competing: Any,
-    settings: AnalysisSettings,
-) -> int:
-    """The competing candidate whose multi-harmonic fit has the lowest BIC."""
-    competing = list(competing)
-    best, best_bic = competing[0], np.inf
-    for index in competing:
-        cand = candidates[index]
-        bic = 0.0
-        for band in lc.bands:
-            t, m, e = lc.arrays(band)
-            try:
-                order = choose_order(t, m, e, cand.frequency, settings.fourier).order
-                fit = fit_fourier(t, m, e, cand.frequency, order, form=settings.fourier.form)
-            except PhasewiseError:
-                bic = np.inf
-                break
-            chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
-            bic += chi2 + (2 * order + 1) * np.log(t.size)
-        # the frequency itself is one more parameter, the same for every candidate
-        if bic < best_bic:
-            best, best_bic = index, bic
-    return best
+    }
 
 
 def _decompose_with_outliers(

@@ -22,9 +22,26 @@ frequency resolution ``1/T`` (times ``resolution_factor``) as tolerance:
 ``independent``
     anything else.
 
-The period ratio is shorter/longer of the two strongest independent modes
-(the main one included): near 0.745 for RRd stars, near 0.72 for double-mode
-Cepheids pulsating in the fundamental and first overtone.
+The threshold accounts for the number of frequencies searched: for
+Gaussian noise the amplitude spectrum at one frequency follows a Rayleigh
+distribution, so an amplitude k times its mean is exceeded with probability
+exp(-pi k^2 / 4) (common practice, no source); over M = (f_max - f_min) T
+independent frequencies the false-alarm probability of a step stays at
+``step_fap`` when k = sqrt(4 ln(M / step_fap) / pi).  The threshold used is
+the larger of that and ``snr_threshold``.
+
+Peaks at known frequencies are not searched: the harmonics in the model,
+every frequency already found, and the reflections of these, of every
+harmonic ``n f1`` (n up to ``max_harmonic``) and of zero frequency (the mean
+level and slow drifts) through the peaks of the spectral window (``f +- w``,
+e.g. the 1 c/d of nightly sampling, 1/yr of seasons), within the
+resolution.  Harmonics outside the model may still be found; they are named
+``harmonic`` and never reported as a secondary.
+
+The reported secondary (``secondary``) is the strongest independent
+frequency; the period ratio is shorter/longer of the main period and that
+secondary's: near 0.745 for RRd stars, near 0.72 for double-mode Cepheids
+pulsating in the fundamental and first overtone.
 """
 
 from __future__ import annotations
@@ -47,6 +64,7 @@ __all__ = [
     "Prewhitening",
     "prewhiten",
     "residual_search",
+    "snr_threshold_for",
 ]
 
 KINDS = ("main", "harmonic", "side peak", "combination", "independent")
@@ -64,7 +82,11 @@ class PrewhitenSettings:
     max_frequencies : int
         Further frequencies to look for beyond the main one.
     snr_threshold : float
-        Amplitude signal-to-noise a frequency needs (Breger et al. 1993).
+        Lowest amplitude signal-to-noise a frequency needs (Breger et al. 1993).
+    step_fap : float
+        False-alarm probability allowed per step; raises the threshold with
+        the number of frequencies searched (module notes).  1e-3, as the
+        main period's threshold (``AnalysisSettings.fap_threshold``).
     noise_box : float
         Half-width (cycles/day) of the box in which the noise is averaged.
     noise_samples : int
@@ -94,6 +116,7 @@ class PrewhitenSettings:
 
     max_frequencies: int = 5
     snr_threshold: float = 4.0
+    step_fap: float = 1e-3
     noise_box: float = 1.0
     noise_samples: int = 100
     main_order: int | None = None
@@ -110,6 +133,7 @@ class PrewhitenSettings:
     def __post_init__(self) -> None:
         require_int("max_frequencies", self.max_frequencies, 0, 50)
         require_positive("snr_threshold", self.snr_threshold)
+        require_range("step_fap", self.step_fap, 1e-12, 0.5)
         require_positive("noise_box", self.noise_box)
         require_int("noise_samples", self.noise_samples, 10, 100_000)
         if self.main_order is not None:
@@ -178,6 +202,7 @@ class Prewhitening:
     residual_std: float
     n_points: int
     note: str = ""  # why the search failed, if it did
+    threshold: float | None = None  # the S/N threshold used (see the module notes)
 
     @property
     def independent(self) -> tuple[FoundFrequency, ...]:
@@ -186,9 +211,14 @@ class Prewhitening:
         return tuple(sorted(modes, key=lambda f: -f.amplitude))
 
     @property
+    def secondaries(self) -> tuple[FoundFrequency, ...]:
+        """Independent frequencies other than the main one, strongest first."""
+        return tuple(f for f in self.independent if f.kind == "independent")
+
+    @property
     def secondary_periods(self) -> tuple[float, ...]:
         """Periods of the independent frequencies other than the main one."""
-        return tuple(f.period for f in self.independent if f.kind == "independent")
+        return tuple(f.period for f in self.secondaries)
 
     @property
     def secondary_period(self) -> float | None:
@@ -197,12 +227,13 @@ class Prewhitening:
 
     @property
     def period_ratio(self) -> float | None:
-        """Shorter / longer period of the two strongest independent modes."""
-        modes = self.independent
-        if len(modes) < 2:
+        """Shorter / longer of the main period and the reported secondary's."""
+        main = [f for f in self.frequencies if f.kind == "main"]
+        second = self.secondary_period
+        if not main or second is None:
             return None
-        p1, p2 = modes[0].period, modes[1].period
-        return min(p1, p2) / max(p1, p2)
+        p1 = main[0].period
+        return min(p1, second) / max(p1, second)
 
     @property
     def modulation_period(self) -> float | None:
@@ -224,7 +255,15 @@ class Prewhitening:
             "secondary_period": _opt(self.secondary_period),
             "period_ratio": _opt(self.period_ratio),
             "modulation_period": _opt(self.modulation_period),
+            "threshold": _opt(self.threshold),
         }
+
+
+def snr_threshold_for(n_independent: float, settings: PrewhitenSettings) -> float:
+    """S/N threshold for ``n_independent`` frequencies searched (module notes)."""
+    m = max(float(n_independent), 1.0)
+    k = np.sqrt(4.0 * np.log(m / settings.step_fap) / np.pi) if m > settings.step_fap else 0.0
+    return float(max(settings.snr_threshold, k))
 
 
 # ------------------------------------------------------------------- search
@@ -233,7 +272,8 @@ def residual_search(oversampling: float = 3, periodogram=None) -> Search:
 
     On the frequency range (and band combination) of ``periodogram``, a
     :class:`~core.periodogram.PeriodogramSettings` (the defaults if None),
-    with ``oversampling`` points per peak width.  The residuals keep the
+    from 2/T up (two cycles in the baseline T at least), with
+    ``oversampling`` points per peak width.  The residuals keep the
     points of the light curve, so every step after the first reuses the
     weight terms of the transform (:func:`core.periodogram.kernels.gls.weight_terms`).
     """
@@ -243,7 +283,14 @@ def residual_search(oversampling: float = 3, periodogram=None) -> Search:
     settings = replace(base, method="gls", oversampling=oversampling)
 
     def search(residual: LightCurve) -> tuple[np.ndarray, np.ndarray]:
-        pg = compute_periodogram(residual, settings)
+        # a further period must repeat at least twice in the baseline
+        # (fewer cycles cannot tell it from a drift)
+        here = settings
+        baseline = residual.baseline
+        if baseline > 0 and (settings.fmin or 0.0) < 2.0 / baseline:
+            if settings.fmax is None or settings.fmax > 2.0 / baseline:
+                here = replace(settings, fmin=2.0 / baseline)
+        pg = compute_periodogram(residual, here)
         return np.asarray(pg.frequency), np.asarray(pg.power)
 
     return search
@@ -294,6 +341,10 @@ def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
         if all(abs(grid[i] - c) >= resolution for c in chosen):
             chosen.append(float(grid[i]))
     return chosen
+
+
+def _near_any(f: float, known: list[float], tolerance: float) -> bool:
+    return any(abs(f - k) < tolerance for k in known)
 
 
 def _label_independent(index: int) -> str:
@@ -363,6 +414,7 @@ def prewhiten(
     frequency: float,
     settings: PrewhitenSettings | None = None,
     search: Search | None = None,
+    windows=None,
 ) -> Prewhitening:
     """Find further significant frequencies after the main one.
 
@@ -377,6 +429,9 @@ def prewhiten(
         ``search(residual_lightcurve) -> (frequency, power)``; default the
         generalized Lomb–Scargle of :func:`core.periodogram.compute_periodogram`
         on its default range with ``search_oversampling``.
+    windows : sequence of WindowPeak, optional
+        Spectral-window peaks whose reflections of known frequencies are not
+        searched; by default those of the light curve's times.
 
     Returns
     -------
@@ -412,7 +467,12 @@ def prewhiten(
     alternatives: list[tuple[float, ...]] = [()]
     fit = multi_frequency_fit(t, m, e, freqs, orders, bidx, refine=settings.refine)
     fit = _keep_near(fit, t, m, e, freqs, orders, bidx, resolution, settings)
-    stop, last_snr, note = "limit", None, ""
+    if windows is None:
+        from .periodogram import PeriodogramSettings, candidate_windows
+
+        windows = candidate_windows(t, PeriodogramSettings())
+    window_freqs = [w.frequency for w in windows]
+    stop, last_snr, note, threshold = "limit", None, "", None
     for step in range(1, settings.max_frequencies + 1):
         n_params = len(freqs) + len(band_names) * (1 + 2 * sum(orders))
         if t.size - n_params - 3 < 2 * len(band_names) + 1:
@@ -425,10 +485,26 @@ def prewhiten(
             stop, note = "search failed", exc.reason
             break
         grid, power = np.asarray(grid, float), np.asarray(power, float)
+        if threshold is None and grid.size > 1:
+            threshold = snr_threshold_for((grid[-1] - grid[0]) * baseline, settings)
         masked = np.zeros(grid.size, bool)
-        known = [k * f_main for k in range(1, orders[0] + 1)] + list(fit.frequencies[1:])
-        for fk in known:
+        f_now = float(fit.frequencies[0])
+        in_model = [k * f_now for k in range(1, orders[0] + 1)] + list(fit.frequencies[1:])
+        for fk in in_model:
             masked |= np.abs(grid - fk) < resolution
+        # reflections through the sampling window of every harmonic and found
+        # frequency (a harmonic itself may still be found, and is named so)
+        harmonics = [k * f_now for k in range(1, settings.max_harmonic + 1)]
+        # 0 stands for the mean level and slow drifts: the window's own peaks
+        # (1 c/d, 1/yr, ...) are their reflections
+        reflections = [
+            x
+            for fk in [0.0, *harmonics, *fit.frequencies[1:]]
+            for w in window_freqs
+            for x in (fk + w, abs(fk - w))
+        ]
+        for x in reflections:
+            masked |= np.abs(grid - x) < resolution
         candidates = np.flatnonzero(~masked & np.isfinite(power))
         if candidates.size == 0:
             stop = "no peak"
@@ -446,11 +522,16 @@ def prewhiten(
         others = tuple(peaks[1:])
         amp = trial.term_amplitude(0, sum(orders))
         f_found = float(trial.frequencies[-1])
+        if f_found < 2.0 / baseline or _near_any(f_found, reflections, resolution):
+            # refined onto a drift (under two cycles) or an alias of a known
+            # frequency: the strongest residual signal is not a further mode
+            stop = "no peak"
+            break
         noise = _noise(
             t[primary], trial.residuals[primary], sw[primary], f_found, box, settings.noise_samples
         )
         snr = amp / noise if noise > 0 else np.inf
-        if snr < settings.snr_threshold:
+        if snr < (threshold or settings.snr_threshold):
             stop, last_snr = "snr", float(snr)
             break
         fit, freqs, orders = trial, list(trial.frequencies), trial_orders
@@ -492,6 +573,7 @@ def prewhiten(
         residual_std=resid_std,
         n_points=int(t.size),
         note=note,
+        threshold=threshold,
     )
 
 

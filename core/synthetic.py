@@ -42,6 +42,7 @@ import numpy as np
 
 from .errors import SettingsError
 from .lightcurve import LightCurve, StarMeta
+from .periodogram.grid import sampling_step
 
 __all__ = [
     "SITE",
@@ -63,6 +64,13 @@ __all__ = [
     "make_survey",
     "synthetic_field",
     "truth_table",
+    "BATTERY_CADENCES",
+    "BATTERY_CLASSES",
+    "SPACE_NOISE",
+    "battery_cadence",
+    "battery_star",
+    "period_determinable",
+    "DETECTION_SNR",
 ]
 
 BANDS = ("V", "I")
@@ -461,7 +469,7 @@ def _field_apparent(rng: np.random.Generator, m_v: float, vi0: float, mu: tuple[
     return m_v + mod + 3.1 * ebv, vi0 + 1.28 * ebv
 
 
-def _draw_rrab(rng, t0, cluster):
+def _draw_rrab(rng, t0, cluster, option=""):
     # P: 0.47–0.8 d (REFERENCES: RRab typical 0.45–1.0 d); mean ~0.60 d for a
     # cluster between the Oosterhoff groups (mean P 0.55/0.65 d, REFERENCES)
     period = float(np.clip(rng.normal(0.60, 0.07), 0.47, 0.80))
@@ -478,6 +486,8 @@ def _draw_rrab(rng, t0, cluster):
     vi0 = float(rng.uniform(0.50, 0.68))  # RRab (V−I)_0 ~0.5–0.7 (from memory)
     ratio = float(rng.uniform(0.58, 0.66))  # A_I/A_V ~0.63 for RR Lyrae (from memory)
     blazhko = rng.random() < 0.35  # Blazhko fraction ~30–50% (from memory)
+    if option in ("modulated", "plain"):  # the battery asks for one or the other
+        blazhko = option == "modulated"
     pb = float(rng.uniform(20.0, 200.0)) if blazhko else np.nan  # Blazhko periods (from memory)
     am = rng.uniform(0.1, 0.35)  # relative amplitude modulation (from memory)
     pm = rng.uniform(0.01, 0.05)  # phase modulation in cycles (from memory)
@@ -654,7 +664,7 @@ def _draw_acep(rng, t0, cluster, subtype):
     return (lambda t: amp * shape(t)), info, m_v, float(rng.uniform(0.4, 0.6)), True
 
 
-def _draw_dsct(rng, t0, cluster, subtype):
+def _draw_dsct(rng, t0, cluster, subtype, option=""):
     if subtype == "HADS":
         period = float(rng.uniform(0.05, 0.16))  # P24: 0.02–0.25 d
         amp = float(rng.uniform(0.32, 0.7))  # HADS above 0.3 mag (P24)
@@ -668,6 +678,8 @@ def _draw_dsct(rng, t0, cluster, subtype):
         R = [0.1]
         phi = [3.0]
         second = rng.uniform(0.76, 0.8) if rng.random() < 0.3 else 0.0
+        if option == "multi":  # a second radial mode forced (the battery's multi-mode stars)
+            second = second or rng.uniform(0.76, 0.8)
         a2 = amp * rng.uniform(0.2, 0.5)
     epoch = t0 + rng.uniform(0, period)
     shape = _fourier_mode(period, epoch, R, phi)
@@ -805,13 +817,13 @@ def _draw_nonvar(rng, t0, cluster):
 
 
 _DRAWERS = {
-    "RRab": lambda rng, t0, cl, sub, span: _draw_rrab(rng, t0, cl),
+    "RRab": lambda rng, t0, cl, sub, span, opt="": _draw_rrab(rng, t0, cl, opt),
     "RRc": lambda rng, t0, cl, sub, span: _draw_rrc(rng, t0, cl),
     "RRd": lambda rng, t0, cl, sub, span: _draw_rrd(rng, t0, cl),
     "DCEP": lambda rng, t0, cl, sub, span: _draw_dcep(rng, t0, cl, sub),
     "T2CEP": lambda rng, t0, cl, sub, span: _draw_t2cep(rng, t0, cl, sub),
     "ACEP": lambda rng, t0, cl, sub, span: _draw_acep(rng, t0, cl, sub),
-    "DSCT": lambda rng, t0, cl, sub, span: _draw_dsct(rng, t0, cl, sub),
+    "DSCT": lambda rng, t0, cl, sub, span, opt="": _draw_dsct(rng, t0, cl, sub, opt),
     "EW": lambda rng, t0, cl, sub, span: _draw_eclipsing(rng, t0, cl, "EW"),
     "EB": lambda rng, t0, cl, sub, span: _draw_eclipsing(rng, t0, cl, "EB"),
     "EA": lambda rng, t0, cl, sub, span: _draw_eclipsing(rng, t0, cl, "EA"),
@@ -828,6 +840,7 @@ def draw_star(
     t0: float = CadenceSettings().start_hjd,
     span: float = 1100.0,
     cluster: Cluster = CLUSTER,
+    option: str = "",
 ) -> SyntheticStar:
     """Draw one star of a class: its truth and its noise-free model.
 
@@ -839,13 +852,20 @@ def draw_star(
         DCEP, T2CEP, ACEP, DSCT, EW, EB, EA, LPV, NONVAR).
     t0, span : float
         Start and length (days) of the observations; epochs fall near ``t0``.
+    option : str
+        ``"modulated"`` / ``"plain"`` force an RRab's modulation, ``"multi"``
+        a delta Scuti's second mode; other classes ignore it.
     """
     if class_code not in _DRAWERS:
         raise SettingsError(
             f"unknown class {class_code!r}; expected one of {', '.join(_DRAWERS)}",
             field="class_code",
         )
-    base, info, m_v, vi0, member = _DRAWERS[class_code](rng, t0, cluster, subtype, span)
+    drawer = _DRAWERS[class_code]
+    if option and class_code in ("RRab", "DSCT"):
+        base, info, m_v, vi0, member = drawer(rng, t0, cluster, subtype, span, option)
+    else:
+        base, info, m_v, vi0, member = drawer(rng, t0, cluster, subtype, span)
     if member:
         mean_v, vi = _cluster_apparent(cluster, m_v, vi0)
         ra, dec = _member_position(rng, cluster)
@@ -1125,3 +1145,212 @@ def synthetic_field(
         truths.append(StarTruth(**{**star.truth.to_dict(), "n_outliers": n_out}))
         ids.append(star_id)
     return SyntheticField(tuple(ids), common if shared_epochs else times, mags, errs, tuple(truths))
+
+
+# ------------------------------------------------------- cadence battery
+#: Survey cadences of the benchmark battery (:func:`battery_star`).
+BATTERY_CADENCES = ("sparse", "nightly", "two_band", "space")
+
+#: (class, subtype, option) of the battery; the option forces modulation of
+#: an RRab ("modulated"/"plain") or a second mode of a delta Scuti ("multi").
+BATTERY_CLASSES: tuple[tuple[str, str, str], ...] = (
+    ("RRab", "", "plain"),
+    ("RRab", "", "modulated"),
+    ("RRc", "", ""),
+    ("RRd", "", ""),
+    ("DCEP", "F", ""),
+    ("DSCT", "SXPHE", "multi"),
+    ("EW", "", ""),
+    ("EA", "", ""),
+    ("LPV", "MIRA", ""),
+    ("NONVAR", "", ""),
+)
+
+#: Camera of the space-like cadence: a small telescope above the air, so
+#: brighter zero points and no sky glow from the atmosphere (invented).
+SPACE_NOISE = NoiseModel(
+    zero_point={"V": 30.4, "I": 29.8}, sky_electrons={"V": 300.0, "I": 650.0}, floor=0.0015
+)
+
+
+def _observable_nights(rng: np.random.Generator, n_seasons: int, season_days: float):
+    """Night numbers (days from the start) inside ``n_seasons`` seasons a year apart."""
+    starts = 365.25 * np.arange(n_seasons) + rng.uniform(0.0, 20.0, n_seasons)
+    nights = [s + np.arange(int(season_days)) for s in starts]
+    return np.floor(np.concatenate(nights))
+
+
+def battery_cadence(kind: str, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+    """Epochs (days from an arbitrary start, sorted) and band of each, for one cadence.
+
+    * ``sparse``: an all-sky survey, 60–90 visits over three seasons of
+      ~240 nights, one band (V); a third of the visits has a second one some
+      20–60 minutes later (a survey's paired exposures).
+    * ``nightly``: one site, two seasons of ~150 nights, weather losing ~30%,
+      1–3 points a night spread over the hours around midnight (V).
+    * ``two_band``: ~400 I epochs over three seasons (about one a clear
+      night) and ~50 V epochs on a random subset of those nights.
+    * ``space``: one point every 30 minutes for 27 days in one band (I),
+      with one gap of ~1 day in the middle (data downlink).
+
+    Ground-based times of night fall within ±0.2 d of local midnight, which
+    drifts through the season as the field's transit does (~4 min a night).
+    """
+    if kind not in BATTERY_CADENCES:
+        raise SettingsError(
+            f"unknown cadence {kind!r}; expected one of {', '.join(BATTERY_CADENCES)}",
+            field="cadence",
+        )
+    if kind == "space":
+        step = 30.0 / 1440.0
+        t = np.arange(0.0, 27.0, step)
+        gap0 = rng.uniform(12.5, 14.0)
+        t = t[(t < gap0) | (t > gap0 + rng.uniform(0.8, 1.2))]
+        return t, np.full(t.size, "I", dtype=object)
+
+    def night_time(nights: np.ndarray, n: int | np.ndarray) -> np.ndarray:
+        # the field transits ~4 minutes earlier each night: over a season the
+        # usable hours slide across the night
+        centre = 0.5 - ((nights % 365.25) * (4.0 / 1440.0)) % 0.3 + 0.15
+        return nights + centre + rng.uniform(-0.2, 0.2, np.size(nights))
+
+    if kind == "sparse":
+        nights = _observable_nights(rng, 3, 240)
+        n = int(rng.integers(60, 91))
+        pick = np.sort(rng.choice(nights, n, replace=False))
+        t = night_time(pick, n)
+        pairs = rng.random(n) < 0.33
+        t = np.concatenate([t, t[pairs] + rng.uniform(20.0, 60.0, pairs.sum()) / 1440.0])
+        t = np.sort(t)[: max(60, min(90, t.size))]
+        return t, np.full(t.size, "V", dtype=object)
+    if kind == "nightly":
+        nights = _observable_nights(rng, 2, 150)
+        nights = nights[rng.random(nights.size) > 0.3]
+        per = rng.integers(1, 4, nights.size)
+        rep = np.repeat(nights, per)
+        t = np.sort(night_time(rep, rep.size))
+        return t, np.full(t.size, "V", dtype=object)
+    nights = _observable_nights(rng, 3, 200)
+    nights = nights[rng.random(nights.size) > 0.3]
+    i_nights = np.sort(rng.choice(nights, min(nights.size, int(rng.integers(380, 421))), False))
+    t_i = night_time(i_nights, i_nights.size)
+    with_v = np.sort(rng.choice(t_i.size, int(rng.integers(45, 56)), replace=False))
+    t_v = t_i[with_v] + 5.0 / 1440.0  # V right after I on some nights
+    t = np.concatenate([t_i, t_v])
+    band = np.array(["I"] * t_i.size + ["V"] * t_v.size, dtype=object)
+    order = np.argsort(t, kind="stable")
+    return t[order], band[order]
+
+
+def _systematics(rng: np.random.Generator, kind: str, time: np.ndarray) -> np.ndarray:
+    """Instrumental magnitude offsets: nightly zero points, drifts, ramps.
+
+    Ground: each night's zero point is off by N(0, 4–8 mmag); each season
+    drifts linearly by up to ±0.015 mag end to end (flat-field ageing,
+    invented).  Space: a slow drift of up to ±0.01 mag over the run and a
+    scattered-light ramp of 5–20 mmag decaying over 0.3–1 d after the start
+    and after the gap (invented, typical in kind).
+    """
+    offset = np.zeros(time.size)
+    if kind == "space":
+        offset += rng.uniform(-0.01, 0.01) * (time - time.mean()) / np.ptp(time)
+        starts = np.concatenate([[time[0]], time[1:][np.diff(time) > 0.2]])
+        for start in starts:
+            after = time >= start
+            scale = rng.uniform(0.3, 1.0)
+            offset[after] += rng.uniform(0.005, 0.02) * np.exp(-(time[after] - start) / scale)
+        return offset
+    night = np.floor(time)
+    nights, index = np.unique(night, return_inverse=True)
+    offset += rng.normal(0.0, rng.uniform(0.004, 0.008), nights.size)[index]
+    season = np.floor(time / 365.25)
+    for s in np.unique(season):
+        sel = season == s
+        span = np.ptp(time[sel]) or 1.0
+        offset[sel] += rng.uniform(-0.015, 0.015) * ((time[sel] - time[sel].min()) / span - 0.5)
+    return offset
+
+
+def battery_star(
+    kind: str,
+    class_code: str,
+    subtype: str = "",
+    option: str = "",
+    seed: int = 0,
+    star_id: str | None = None,
+    outlier_fraction: float = 0.01,
+) -> tuple[LightCurve, StarTruth]:
+    """One star of the cadence battery: its light curve and its truth.
+
+    The star is drawn from the class templates of :func:`draw_star` (same
+    sources); ``option`` forces an RRab's modulation (``"modulated"`` or
+    ``"plain"``) or a delta Scuti's second mode (``"multi"``).  The light
+    curve carries noise that grows with magnitude (:func:`noise_sigma`; the
+    space camera is :data:`SPACE_NOISE`), the systematics of the cadence
+    (nightly zero points and seasonal drifts, or ramps after gaps), and
+    single-point outliers on ``outlier_fraction`` of the points (at least
+    one), off by 0.3–1.5 mag either way.  The same arguments give the same
+    star.
+    """
+    key = _class_key(f"{class_code}{subtype}{option}")
+    ss = np.random.SeedSequence([seed, BATTERY_CADENCES.index(kind), key])
+    cad_rng, star_rng, noise_rng = (np.random.default_rng(s) for s in ss.spawn(3))
+    time, band = battery_cadence(kind, cad_rng)
+    time = time + 2461000.5  # an invented start on the HJD axis
+    span = float(np.ptp(time)) + 1.0
+    star_id = star_id or f"BAT-{kind}-{class_code}{subtype}{option}-{seed}"
+    star = draw_star(
+        star_rng, star_id, class_code, subtype, t0=float(time[0]), span=span, option=option
+    )
+    noise = SPACE_NOISE if kind == "space" else NoiseModel()
+    true_mag = star.model(time, band)
+    sigma = noise_sigma(true_mag, band, noise)
+    mag = true_mag + noise_rng.normal(0.0, 1.0, time.size) * sigma
+    mag += _systematics(noise_rng, kind, time - time[0])
+    err = sigma * np.clip(
+        1.0 + noise.error_jitter * noise_rng.normal(0.0, 1.0, time.size), 0.5, None
+    )
+    n_out = max(1, int(round(outlier_fraction * time.size))) if outlier_fraction > 0 else 0
+    if n_out:
+        idx = noise_rng.choice(time.size, n_out, replace=False)
+        mag[idx] += noise_rng.choice([-1.0, 1.0], n_out) * noise_rng.uniform(0.3, 1.5, n_out)
+    truth = StarTruth(**{**star.truth.to_dict(), "n_outliers": n_out})
+    meta = StarMeta(ra=truth.ra, dec=truth.dec, notes=("synthetic", f"cadence {kind}"))
+    lc = LightCurve(star_id, time, mag, err, band, time_scale="HJD", meta=meta)
+    return lc, truth
+
+
+def _class_key(class_code: str) -> int:
+    return sum(ord(c) * 31**k for k, c in enumerate(class_code)) % 2**31
+
+
+#: Detection floor of :func:`period_determinable`: half the peak-to-peak
+#: amplitude times sqrt(N/2) over the median error (our choice: a clear
+#: detection of a sinusoid with that amplitude).
+DETECTION_SNR = 8.0
+
+
+def period_determinable(lc: LightCurve, truth: StarTruth) -> tuple[bool, str]:
+    """Whether the data can determine the injected period, with the reason.
+
+    The rule (ours, stated for the benchmark and the tests): a period can be
+    determined when (1) the baseline holds at least two cycles, (2) the
+    period is at least twice the typical sampling step of
+    :func:`sampling_step`, and (3) the signal is clear:
+    (A/2) sqrt(N/2) / median error >= :data:`DETECTION_SNR`, A the
+    peak-to-peak amplitude in the band with most points.
+    """
+    period = truth.period
+    if not np.isfinite(period):
+        return False, "no period"
+    t, _, e = lc.arrays(lc.bands[0])
+    if lc.baseline < 2.0 * period:
+        return False, f"fewer than 2 cycles in {lc.baseline:.3g} d"
+    step, _ = sampling_step(lc.time)
+    if period < 2.0 * step:
+        return False, f"period below twice the sampling step {step:.3g} d"
+    amp = truth.amplitude_I if lc.bands[0] == "I" else truth.amplitude_V
+    snr = 0.5 * amp * np.sqrt(t.size / 2.0) / float(np.median(e))
+    if snr < DETECTION_SNR:
+        return False, f"signal S/N {snr:.3g} below {DETECTION_SNR:g}"
+    return True, ""

@@ -14,4 +14,7 @@ INSPECT_JSON_KEYS = frozenset(
 RESULT_KEYS = INSPECT_JSON_KEYS | {
     "flags", "settings_hash", "time_scale", "bands", "primary_band", "mean_mag_by_band",
     "amplitude_by_band", "fourier_by_band",
+    # the period choice on any cadence (issue 12): points set aside, trend,
+    # modulation, the band of the relations' Fourier parameters and why
+    "set_aside", "trend", "modulation", "relation_band", "relation_band_reason",
 }  # fmt: skip

@@ -33,9 +33,20 @@ def register(subparsers) -> None:
     parser.add_argument(
         "--method",
         choices=("gls", "mhgls", "pdm", "ce"),
-        default="gls",
+        default=None,
         help="periodogram: generalised Lomb-Scargle (default), multi-harmonic, "
         "phase dispersion minimisation, conditional entropy",
+    )
+    parser.add_argument(
+        "--settings",
+        metavar="FILE",
+        help="analysis settings (TOML, as for 'phasewise analyse'); the options below override it",
+    )
+    parser.add_argument(
+        "--period-range",
+        metavar="SHORTEST,LONGEST",
+        help="search periods between these two lengths in days, e.g. 0.2,30 "
+        "(default: from the sampling and the baseline)",
     )
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.set_defaults(func=run)
@@ -57,14 +68,44 @@ def _load_star(path: str, star: str | None, columns: str | None):
     return source.star(ids[0])
 
 
-def run(args) -> int:
+def parse_period_range(text: str) -> tuple[float, float]:
+    """``"SHORTEST,LONGEST"`` in days to a frequency range ``(fmin, fmax)`` in c/d."""
+    parts = text.replace(":", ",").split(",")
+    try:
+        shortest, longest = (float(p) for p in parts)
+    except ValueError:
+        raise PhasewiseError(
+            f"got {text!r}; expected two periods in days, e.g. 0.2,30", field="--period-range"
+        ) from None
+    if not (0 < shortest < longest and math.isfinite(longest)):
+        raise PhasewiseError(
+            f"got {text!r}; expected 0 < shortest < longest (days)", field="--period-range"
+        )
+    return 1.0 / longest, 1.0 / shortest
+
+
+def _settings(args):
     from dataclasses import replace
 
-    from phasewise.core.analysis import AnalysisSettings, analyse
+    from phasewise.core.analysis import AnalysisSettings
+    from phasewise.core.batch import load_settings
 
+    settings = load_settings(args.settings) if args.settings else AnalysisSettings()
+    changes = {}
+    if args.method is not None:
+        changes["method"] = args.method
+    if args.period_range is not None:
+        changes["fmin"], changes["fmax"] = parse_period_range(args.period_range)
+    if changes:
+        settings = replace(settings, periodogram=replace(settings.periodogram, **changes))
+    return settings
+
+
+def run(args) -> int:
+    from phasewise.core.analysis import analyse
+
+    settings = _settings(args)
     lc = _load_star(args.file, args.star, args.columns)
-    defaults = AnalysisSettings()
-    settings = replace(defaults, periodogram=replace(defaults.periodogram, method=args.method))
     result = analyse(lc, settings).to_dict()
     if args.json:
         print(json.dumps(result, indent=2, allow_nan=False))
@@ -116,10 +157,23 @@ def print_summary(r: dict) -> None:
         f"epoch of maximum: {_fmt(r['epoch_max'], 5)} ({r['time_scale']})   "
         f"rise time {_fmt(r['rise_time'], 3)}"
     )
+    if r.get("relation_band_reason"):
+        print(f"Fourier parameters for the relations: {r['relation_band_reason']}")
     for s in r["secondary_periods"]:
-        print(f"further frequency: P = {s['period']:.6f} d  ({s['kind']}: {s['label']})")
+        print(
+            f"secondary period: P = {s['period']:.6f} d  ({s['kind']}: {s['label']}, "
+            f"S/N {_fmt(s.get('snr'), 1)})"
+        )
     if r["period_ratio"] is not None:
         print(f"period ratio: {r['period_ratio']:.4f}")
+    if r.get("modulation"):
+        period = r["modulation"].get("period")
+        text = f", period {period:.4g} d" if period else ""
+        print(f"modulation: {r['modulation']['kind']}{text}")
+    if r.get("trend"):
+        print(f"trend removed: {r['trend']['description']}")
+    if r.get("set_aside"):
+        print(f"points set aside: {len(r['set_aside'])} (indices {r['set_aside'][:10]})")
     print("suggestions (empirical rules with known overlaps; the astronomer decides):")
     for s in r["suggestions"][:3]:
         period = f", period {s['period']:.6f} d" if s.get("period") else ""

@@ -25,7 +25,11 @@ The rulebook is data only: no code, no eval.  Layout::
     source = "Matsunaga, Feast & Menzies 2009"
 
 Class tables may also hold ``eclipsing = true`` (score at 2P when the fold at
-2P shows two minima) and, for UNKNOWN only, ``score`` (its fixed score).
+2P shows two minima), ``double_when`` for an eclipsing class (``"two_minima"``,
+the default: the second-harmonic weight or unequal minima at 2P double the
+period; ``"unequal"``: only significantly unequal minima do, for detached
+binaries whose one visible eclipse per cycle already marks the orbit) and,
+for UNKNOWN only, ``score`` (its fixed score).
 
 The shipped copy is ``core/classify/rulebook.toml``.  A user copy replaces it
 as a whole: pass its path to :func:`load_rulebook`, or put it at
@@ -70,7 +74,7 @@ CLASS_CODES = _REGISTRY_CODES
 _RULE_KEYS = {"range", "margin", "weight", "source", "says", "required", "gate"}
 _RULE_REQUIRED = ("range", "margin", "weight", "source")
 _SUBTYPE_KEYS = {"feature", "range", "source"}
-_CLASS_KEYS = {"label", "eclipsing", "score", "subtype"}
+_CLASS_KEYS = {"label", "eclipsing", "score", "subtype", "double_when"}
 _SCORING_DEFAULTS = {"missing_penalty": 0.15, "two_minima_weight": 0.5}
 
 
@@ -126,6 +130,11 @@ class ClassRules:
     subtypes: tuple[Subtype, ...] = ()
     eclipsing: bool = False
     fixed_score: float | None = None
+    double_when: str = "two_minima"
+
+
+#: Values of a class's ``double_when``.
+DOUBLE_WHEN = ("two_minima", "unequal")
 
 
 @dataclass(frozen=True)
@@ -317,7 +326,7 @@ def _parse_class(code: str, body: Any, lines: _Lines, fail) -> ClassRules:
         raise fail(line, f"unknown class code {code!r}; expected one of {', '.join(CLASS_CODES)}")
     if not isinstance(body, dict):
         raise fail(line, f"{_table_name(path)}: expected a table")
-    label, eclipsing, fixed_score = code, False, None
+    label, eclipsing, fixed_score, double_when = code, False, None, "two_minima"
     rules: list[Rule] = []
     subtypes: tuple[Subtype, ...] = ()
     for key, value in body.items():
@@ -333,6 +342,14 @@ def _parse_class(code: str, body: Any, lines: _Lines, fail) -> ClassRules:
                     f"{_table_name(path)} eclipsing: expected true or false, got {value!r}",
                 )
             eclipsing = value
+        elif key == "double_when":
+            if value not in DOUBLE_WHEN:
+                raise fail(
+                    key_line,
+                    f"{_table_name(path)} double_when: expected one of "
+                    f"{', '.join(DOUBLE_WHEN)}, got {value!r}",
+                )
+            double_when = value
         elif key == "score":
             fixed_score = _number(value, 0.0, 1.0, key_line, f"{_table_name(path)} score", fail)
         elif key == "subtype":
@@ -347,7 +364,7 @@ def _parse_class(code: str, body: Any, lines: _Lines, fail) -> ClassRules:
             )
     if not rules and fixed_score is None:
         raise fail(line, f"{_table_name(path)}: no rules and no fixed score")
-    return ClassRules(code, label, tuple(rules), subtypes, eclipsing, fixed_score)
+    return ClassRules(code, label, tuple(rules), subtypes, eclipsing, fixed_score, double_when)
 
 
 def _check_feature(feature: Any, line: int, what: str, fail) -> str:

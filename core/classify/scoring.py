@@ -218,6 +218,8 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
         # significantly unequal alternate minima: the curve does not repeat at P
         unequal = values.get("unequal_minima") == 1.0
         two_minima = weight is not None and weight >= book.two_minima_weight
+        if entry.double_when == "unequal":
+            two_minima = False  # one visible eclipse a cycle already marks the orbit
         if (unequal or two_minima) and not already_orbital:
             used = 2.0 * period
             trial_values = _with_period(values, used)

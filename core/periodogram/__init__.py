@@ -11,13 +11,22 @@ from ..errors import GridTooLargeError
 from .candidates import Candidate, candidate_marks, find_candidates
 from .compute import MIN_POINTS, compute_periodogram, search_bands
 from .eclipse_search import EclipseSearch, EclipseSearchSettings, eclipse_search
-from .fap import baluev_fap, f_test_fap
-from .grid import RegularGrid, frequency_grid, grid_parameters, grid_size, regular_grid_of
+from .fap import baluev_fap, effective_points, f_test_fap
+from .grid import (
+    RegularGrid,
+    Sampling,
+    default_fmax,
+    frequency_grid,
+    grid_parameters,
+    grid_size,
+    regular_grid_of,
+    sampling_of,
+)
 from .kernels import KERNELS, METHOD_KERNELS, REFERENCE_KERNELS, Kernel
 from .result import Periodogram
 from .settings import DEFAULT_FMAX, METHODS, PeriodogramSettings
 from .shared import shared_epoch_periodograms
-from .window import WindowPeak, spectral_window, window_peaks
+from .window import WindowPeak, candidate_windows, spectral_window, window_peaks
 
 __all__ = [
     "PeriodogramSettings",
@@ -26,6 +35,9 @@ __all__ = [
     "MIN_POINTS",
     "GridTooLargeError",
     "RegularGrid",
+    "Sampling",
+    "sampling_of",
+    "default_fmax",
     "grid_parameters",
     "grid_size",
     "frequency_grid",
@@ -35,11 +47,13 @@ __all__ = [
     "Periodogram",
     "spectral_window",
     "window_peaks",
+    "candidate_windows",
     "WindowPeak",
     "find_candidates",
     "candidate_marks",
     "Candidate",
     "baluev_fap",
+    "effective_points",
     "eclipse_search",
     "EclipseSearch",
     "EclipseSearchSettings",

@@ -31,7 +31,7 @@ from .fap import baluev_fap, f_test_fap
 from .kernels.gls import gls_exact
 from .result import Periodogram
 from .settings import PeriodogramSettings
-from .window import WindowPeak, _parabola_offset, window_peaks
+from .window import WindowPeak, _parabola_offset, candidate_windows
 
 __all__ = ["Candidate", "find_candidates", "candidate_marks"]
 
@@ -154,13 +154,18 @@ def find_candidates(
     settings: PeriodogramSettings | None = None,
     *,
     windows: tuple[WindowPeak, ...] | None = None,
+    n_effective: float | None = None,
 ) -> tuple[Candidate, ...]:
     """The ``settings.n_candidates`` best distinct peaks, strongest first.
 
     Peaks closer than ``settings.peak_separation / T`` (T the baseline; at
-    least 3 grid steps) count as one.  ``windows`` may pass precomputed :func:`window_peaks` (stars that
-    share their epochs share them); by default they are computed from the
-    light curve's good times.
+    least 3 grid steps) count as one.  ``windows`` may pass precomputed
+    :func:`~core.periodogram.window.candidate_windows` (stars that share
+    their epochs share them); by default they are computed from the light
+    curve's good times.  ``n_effective`` (independent points, fewer than
+    the points when the noise is correlated; see
+    :func:`~core.periodogram.fap.effective_points`) makes the false-alarm
+    probabilities count only those.
     """
     settings = periodogram.settings if settings is None else settings
     frequency, power = periodogram.frequency, periodogram.power
@@ -175,11 +180,10 @@ def find_candidates(
         else:
             refined.append(float(frequency[i]))
     if windows is None:
-        t_good = lc.time[lc.good]
-        windows = window_peaks(
-            t_good, threshold=settings.window_threshold, oversampling=settings.oversampling
-        )
-    faps, fap_method = _faps(periodogram, lc, settings, np.array(refined), power[indices])
+        windows = candidate_windows(lc.time[lc.good], settings)
+    faps, fap_method = _faps(
+        periodogram, lc, settings, np.array(refined), power[indices], n_effective
+    )
     marks = candidate_marks(refined, windows, baseline, settings)
     return tuple(
         Candidate(
@@ -199,7 +203,7 @@ def find_candidates(
     )
 
 
-def _faps(periodogram, lc, settings, freqs, powers):
+def _faps(periodogram, lc, settings, freqs, powers, n_effective=None):
     bands = periodogram.bands or search_bands(lc, settings)
     use_errors = bool(lc.has_errors)
     per_band = [lc.arrays(b) for b in bands] if bands else [lc.arrays()]
@@ -211,16 +215,18 @@ def _faps(periodogram, lc, settings, freqs, powers):
         return np.ones(len(powers)), "none"
     if method == "gls" and len(per_band) == 1:
         t, _, dy = per_band[0]
-        return baluev_fap(powers, fmax, t, dy if use_errors else None), "baluev"
+        fap = baluev_fap(powers, fmax, t, dy if use_errors else None, n_effective)
+        return fap, "baluev"
     if method in ("gls", "mhgls"):
         nterms = settings.nterms if method == "mhgls" else 1
         n_bands = len(per_band)
         m_independent = (fmax - fmin) * periodogram.baseline
-        fap = f_test_fap(powers, n_total, 2 * nterms * n_bands, n_bands, m_independent)
+        n_used = n_total if n_effective is None else min(n_total, n_effective)
+        fap = f_test_fap(powers, n_used, 2 * nterms * n_bands, n_bands, m_independent)
         return fap, "f_test"
     # PDM / CE: Baluev FAP of the GLS power of the main band at each candidate.
     t, y, dy = per_band[0]
     dy = dy if use_errors else None
     t0 = 0.5 * (t.min() + t.max())
     gls_power, _ = gls_exact(t - t0, y, dy, freqs)
-    return baluev_fap(gls_power, fmax, t, dy), "gls_at_frequency"
+    return baluev_fap(gls_power, fmax, t, dy, n_effective), "gls_at_frequency"

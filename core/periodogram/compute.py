@@ -2,13 +2,18 @@
 
 Multi-band power (one frequency shared by all bands, each band b with its
 own mean and its own harmonic amplitudes) is the total chi-square reduction
-over the total chi-square of constant band means::
+over the total chi-square of constant band means, each band's chi-square
+taken in units of its own scatter (its errors rescaled so that the reduced
+chi-square about its mean is 1, s2_b = chi2_0,b / (N_b - 1))::
 
-    P(f) = sum_b [chi2_0,b - chi2_b(f)] / sum_b chi2_0,b
-         = sum_b chi2_0,b p_b(f) / sum_b chi2_0,b
+    P(f) = sum_b [chi2_0,b - chi2_b(f)] / s2_b / sum_b chi2_0,b / s2_b
+         = sum_b (N_b - 1) p_b(f) / sum_b (N_b - 1)
 
 with p_b the single-band (GLS or multi-harmonic) power.  P is in [0, 1] and
-equals the GLS for one band.  PDM and conditional entropy have no
+equals the GLS for one band.  Without the rescaling a band with few points
+and underestimated errors (zero points, outliers) would dominate the sum,
+and the F test of the false-alarm probability would credit its chance
+peaks with the points of every band.  PDM and conditional entropy have no
 chi-square: there each band is standardised (own weighted mean removed,
 divided by its own weighted scatter) and the bands are searched together.
 """
@@ -159,8 +164,9 @@ def _multiband(per_band, t_all, frequency, grid, settings, kernel, n_threads):
             power, _ = kernel.function(
                 t - t0, y, dy, frequency, settings, grid=grid, n_threads=n_threads
             )
-            total += chi2_0 * power
-            chi2_sum += chi2_0
+            # each band's chi-square in units of its own scatter (module notes)
+            total += (t.size - 1) * power
+            chi2_sum += t.size - 1
         if chi2_sum <= 0:
             return np.zeros(frequency.size), None
         return total / chi2_sum, None

@@ -24,7 +24,8 @@ The loop over trial frequencies and points is compiled with numba
 (``_aov_loop.py``); it bins the phases with the same floating-point
 operations as a plain numpy version would.
 
-Significance: for Gaussian noise F follows the F distribution with
+Significance (see :func:`eclipse_search` for the checks on each peak):
+for Gaussian noise F follows the F distribution with
 (r - 1, N - r) degrees of freedom at one frequency (Schwarzenberg-Czerny
 1989).  Over the grid the false-alarm probability is bounded by
 ``1 - (1 - p)^M`` with ``M = 2 n_bins (f_max - f_min) T`` trials: ``n_bins``
@@ -110,6 +111,9 @@ class EclipseSearch:
     n_bins: int
     n_points: int
     n_searched: int
+    marks: tuple[tuple[str, ...], ...] = ()
+    mark_details: tuple[tuple[str, ...], ...] = ()
+    tail_inflation: float = 1.0
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -123,6 +127,9 @@ class EclipseSearch:
             "n_bins": int(self.n_bins),
             "n_points": int(self.n_points),
             "n_searched": int(self.n_searched),
+            "marks": [list(m) for m in self.marks],
+            "mark_details": [list(d) for d in self.mark_details],
+            "tail_inflation": float(self.tail_inflation),
         }
 
 
@@ -205,13 +212,172 @@ def _distinct_peaks(frequency, value, k, separation) -> list[int]:
     return chosen
 
 
-def eclipse_search(lc, settings: EclipseSearchSettings | None = None) -> EclipseSearch | None:
+#: Sidereal day in solar days (common practice, no source): ground-based
+#: sampling repeats every sidereal day, so a false period settles near it.
+SIDEREAL_DAY = 0.99727
+
+#: Frequencies (c/d) of the day-length aliases penalised: periods of 1 d,
+#: 1/2 d and the sidereal day (and its half).
+DAY_ALIASES = (1.0, 2.0, 1.0 / SIDEREAL_DAY, 2.0 / SIDEREAL_DAY)
+
+#: Factor on the false-alarm probability of a peak at a day-length alias
+#: or a window peak (our choice: such a peak must be 100 times stronger to
+#: count the same).
+ALIAS_PENALTY = 100.0
+
+#: The subharmonic check takes 2f (half the period) when its single-trial
+#: probability is this many times smaller than at f (our choice: clearly
+#: better, not just as good; an eclipsing binary with two similar eclipses
+#: is as significant at both, and P against 2P is the eclipse test's).
+SUBHARMONIC_FACTOR = 1e-3
+
+#: Points in the deepest bin whose median must confirm a dip (the median
+#: ignores a few co-phased outliers that would move the mean).
+MIN_DIP_POINTS = 3
+
+#: Robust S/N the median of the deepest bin must reach below the median of
+#: the rest (our choice).
+MIN_DIP_SNR = 4.0
+
+#: Quantile of the permuted residuals' statistics at which the F tail is
+#: compared with the star's own null (see :func:`_tail_inflation`).
+CALIBRATION_QUANTILE = 0.999
+
+
+def _limits(t, settings, periodogram) -> tuple[float, float]:
+    """Frequency range: the periodogram's limits within the search's own."""
+    from .grid import default_fmax
+
+    baseline = float(t.max() - t.min())
+    fmin = 1.0 / (settings.max_period_fraction * baseline) if baseline > 0 else np.inf
+    fmax = 1.0 / settings.min_period
+    if periodogram is not None:
+        if periodogram.fmin is not None:
+            fmin = max(fmin, float(periodogram.fmin))
+        fmax = min(fmax, float(periodogram.fmax or default_fmax(t)))
+    return fmin, fmax
+
+
+def _alias_marks(f: float, baseline: float, windows) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """Marks of a peak at a day-length alias or a window peak (or their halves)."""
+    tol = max(1.0 / baseline, 0.002 * f)
+    details = []
+    for a in DAY_ALIASES:
+        if abs(f - a) <= tol:
+            details.append(f"near the day-length alias {1 / a:.5g} d")
+    for w in windows:
+        for k in (1.0, 2.0, 0.5):
+            if abs(f - k * w.frequency) <= tol:
+                details.append(f"at {k:g} x the window peak {w.frequency:.5g} c/d")
+    return (("alias",) if details else ()), tuple(details)
+
+
+def _dip_confirmed(t, y, w, f, n_bins) -> bool:
+    """Whether the median of the deepest phase bin confirms a dip.
+
+    The mean of a bin moves with three co-phased outliers, its median does
+    not: the dip counts when the deepest bin (by median, faint = larger
+    magnitude) holds at least :data:`MIN_DIP_POINTS` points and its median
+    lies :data:`MIN_DIP_SNR` robust standard errors beyond the median of
+    the rest.
+    """
+    phase = (f * (t - t.min())) % 1.0
+    best = 0.0
+    for shift in (0.0, 0.5):
+        index = np.floor(phase * n_bins + shift).astype(int) % n_bins
+        for b in range(n_bins):
+            inside = index == b
+            k = int(inside.sum())
+            if k < MIN_DIP_POINTS or k == t.size:
+                continue
+            rest = y[~inside]
+            centre = float(np.median(rest))
+            sigma = MAD_TO_SIGMA * float(np.median(np.abs(rest - centre)))
+            if not sigma > 0:
+                continue
+            # standard error of a median: 1.2533 sigma / sqrt(k) (common practice, no source)
+            snr = (float(np.median(y[inside])) - centre) / (1.2533 * sigma / np.sqrt(k))
+            best = max(best, snr)
+    return best >= MIN_DIP_SNR
+
+
+def _tail_inflation(t, y, w, frequency, n_bins, rng) -> float:
+    """How much heavier the star's own null tail is than the F distribution's.
+
+    The magnitudes are shifted circularly along the time-ordered points,
+    twice (the star's own residual distribution, outliers, nightly zero
+    points and drifts all kept, any periodicity destroyed) and the
+    statistic computed on the coarse grid.  At the
+    :data:`CALIBRATION_QUANTILE` of those null values, the ratio of the
+    exceedance seen to the F distribution's survival function is the
+    factor (at least 1) by which single-frequency probabilities are raised.
+    """
+    from scipy import special
+
+    order = np.argsort(t, kind="stable")
+    values, filled = [], []
+    for _ in range(2):
+        # a circular shift of the magnitudes along the time-ordered points
+        # keeps neighbours together (nightly zero points, drifts) while it
+        # destroys any periodicity
+        shift = int(rng.integers(t.size // 10, t.size - t.size // 10))
+        shifted_y, shifted_w = np.empty_like(y), np.empty_like(w)
+        shifted_y[order] = np.roll(y[order], shift)
+        shifted_w[order] = np.roll(w[order], shift)
+        f_value, r = aov_binned(t, shifted_y, shifted_w, frequency, n_bins, shifts=(0.0,))
+        values.append(f_value)
+        filled.append(r)
+    values = np.concatenate(values)
+    filled = np.concatenate(filled)
+    if values.size < 100:
+        return 1.0
+    k = int(CALIBRATION_QUANTILE * values.size)
+    order = np.argsort(values)
+    q_index = order[min(k, values.size - 1)]
+    expected = float(special.fdtrc(filled[q_index] - 1, t.size - filled[q_index], values[q_index]))
+    seen = 1.0 - k / values.size
+    return max(1.0, seen / expected) if expected > 0 else 1.0
+
+
+def eclipse_search(
+    lc,
+    settings: EclipseSearchSettings | None = None,
+    *,
+    periodogram=None,
+) -> EclipseSearch | None:
     """Search a light curve's good points for narrow eclipses.
 
+    Parameters
+    ----------
+    lc : LightCurve
+    settings : EclipseSearchSettings, optional
+    periodogram : PeriodogramSettings, optional
+        The periodogram's settings: the search keeps within its frequency
+        limits (``fmin``, and ``fmax`` or the default from the sampling).
+
+    Notes
+    -----
+    Beyond the phase-binned statistic (module notes), each reported peak
+    goes through four checks, in this order:
+
+    * **subharmonic check**: if the statistic at 2f is clearly more
+      significant than at f (:data:`SUBHARMONIC_FACTOR`), the plainer
+      answer 2f (half the period) is taken; as significant, it is noted;
+    * **dip confirmed by medians** (:func:`_dip_confirmed`); a peak that
+      fails gets FAP 1 (co-phased outliers, not an eclipse);
+    * **calibrated false-alarm probability**: the F distribution's tail is
+      scaled by :func:`_tail_inflation` (permutations of the star's own
+      magnitudes) before the trials are counted;
+    * **aliases**: peaks near 1 d, 1/2 d, the sidereal day or a window
+      peak are marked ``alias`` and their FAP multiplied by
+      :data:`ALIAS_PENALTY`.
+
     Returns None when the data cannot support the search (too few points
-    for the bins, or a baseline too short for ``min_period``).
+    for the bins, or a baseline too short for the range).
     """
     from scipy import special  # imported here: scipy.special is slow to import
+
+    from .window import window_peaks
 
     settings = settings or EclipseSearchSettings()
     t, y, w = _prepare(lc, settings.clip)
@@ -219,8 +385,7 @@ def eclipse_search(lc, settings: EclipseSearchSettings | None = None) -> Eclipse
     if n < 3 * settings.n_bins or not np.any(y):
         return None
     baseline = float(t.max() - t.min())
-    fmin = 1.0 / (settings.max_period_fraction * baseline) if baseline > 0 else np.inf
-    fmax = 1.0 / settings.min_period
+    fmin, fmax = _limits(t, settings, periodogram)
     if not fmin < fmax:
         return None
     # stage 1: coarse bins on a coarse grid (a coarse bin tolerates the phase
@@ -228,6 +393,8 @@ def eclipse_search(lc, settings: EclipseSearchSettings | None = None) -> Eclipse
     # around the best coarse peaks
     df = 1.0 / (settings.oversampling * baseline)
     coarse = np.arange(fmin, fmax, df)
+    if coarse.size < 3:
+        return None
     coarse_f, _ = aov_binned(t, y, w, coarse, max(4, settings.n_bins // 2), shifts=(0.0,))
     fine_df = 1.0 / (2.0 * settings.n_bins * baseline)  # phase drift under half a bin
     seeds = _distinct_peaks(coarse, coarse_f, settings.n_seeds, 1.5 / baseline)
@@ -237,27 +404,66 @@ def eclipse_search(lc, settings: EclipseSearchSettings | None = None) -> Eclipse
     f_value, r = aov_binned(t, y, w, frequency, settings.n_bins)
     chosen = _distinct_peaks(frequency, f_value, settings.n_peaks, 1.5 / baseline)
     n_trials = 2.0 * settings.n_bins * (fmax - fmin) * baseline
-    idx = np.array(chosen)
-    single = special.fdtrc(r[idx] - 1, n - r[idx], f_value[idx])
-    with np.errstate(divide="ignore"):
-        fap = np.clip(-np.expm1(n_trials * np.log1p(-single)), 0.0, 1.0)
+
+    def single_p(value, filled):
+        return special.fdtrc(filled - 1, n - filled, value)
+
+    peaks = []
+    for i in chosen:
+        f, value, filled = float(frequency[i]), float(f_value[i]), int(r[i])
+        p = float(single_p(value, filled))
+        note = ()
+        if 2.0 * f <= fmax:  # subharmonic check: is 2f as good?
+            v2, r2 = aov_binned(t, y, w, np.array([2.0 * f]), settings.n_bins)
+            p2 = float(single_p(v2[0], r2[0]))
+            if p2 < SUBHARMONIC_FACTOR * p:
+                f, value, filled, p = 2.0 * f, float(v2[0]), int(r2[0]), p2
+            elif p2 <= p:
+                note = (f"subharmonic check: {1 / (2 * f):.6g} d is as significant",)
+        peaks.append([f, value, filled, p, note])
+    inflation = 1.0
+    gaussian = [-np.expm1(n_trials * np.log1p(-min(p, 1 - 1e-16))) for *_, p, _ in peaks]
+    if min(gaussian) < 0.05:  # calibrate only where it could matter
+        rng = np.random.default_rng(n)  # seeded by the data size: reproducible
+        inflation = _tail_inflation(t, y, w, coarse, settings.n_bins, rng)
+    windows = window_peaks(t)
+    faps, marks, details = [], [], []
+    for f, _value, _filled, p, note in peaks:
+        p_cal = min(1.0, inflation * p)
+        with np.errstate(divide="ignore"):
+            fap = float(np.clip(-np.expm1(n_trials * np.log1p(-min(p_cal, 1 - 1e-16))), 0, 1))
+        m, d = _alias_marks(f, baseline, windows)
+        d = (*d, *note)
+        if m:
+            fap = min(1.0, ALIAS_PENALTY * fap)
+        if fap < 1.0 and not _dip_confirmed(t, y, w, f, settings.n_bins):
+            fap = 1.0
+            d = (*d, "the median of the deepest bin does not confirm a dip")
+        faps.append(fap)
+        marks.append(m)
+        details.append(d)
     # robust z-score of each peak in the coarse pass (as the candidates' local
     # S/N does for periodogram peaks), the coarse value being the largest
     # within one coarse step of the peak
     centre = float(np.median(coarse_f))
     spread = MAD_TO_SIGMA * float(np.median(np.abs(coarse_f - centre)))
     snr = []
-    for i in idx:
-        near = np.abs(coarse - frequency[i]) <= 1.01 * df
+    for f, *_ in peaks:
+        near = np.abs(coarse - f) <= 1.01 * df
         top = float(coarse_f[near].max()) if near.any() else centre
         snr.append((top - centre) / spread if spread > 0 else float("inf"))
+    # strongest first after the checks
+    order = sorted(range(len(peaks)), key=lambda k: (faps[k], -peaks[k][1]))
     return EclipseSearch(
-        snrs=tuple(snr),
+        snrs=tuple(snr[k] for k in order),
         n_searched=int(coarse.size + frequency.size),
-        frequencies=tuple(float(frequency[i]) for i in idx),
-        f_values=tuple(float(v) for v in f_value[idx]),
-        faps=tuple(float(p) for p in fap),
+        frequencies=tuple(peaks[k][0] for k in order),
+        f_values=tuple(peaks[k][1] for k in order),
+        faps=tuple(faps[k] for k in order),
         n_trials=n_trials,
         n_bins=settings.n_bins,
         n_points=n,
+        marks=tuple(marks[k] for k in order),
+        mark_details=tuple(details[k] for k in order),
+        tail_inflation=inflation,
     )

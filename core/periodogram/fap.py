@@ -19,7 +19,29 @@ import math
 
 import numpy as np
 
-__all__ = ["baluev_fap", "f_test_fap"]
+__all__ = ["baluev_fap", "f_test_fap", "effective_points"]
+
+
+def effective_points(residual: np.ndarray) -> float:
+    """Independent points among time-ordered residuals with correlated noise.
+
+    With lag-one autocorrelation rho of the residuals (in units of their
+    errors, time order), ``N_eff = N (1 - rho) / (1 + rho)`` for rho > 0
+    (the AR(1) variance inflation; common practice, no source).  Night-to-
+    night zero points, drifts and ramps make neighbouring residuals alike;
+    white noise leaves N.
+    """
+    r = np.asarray(residual, dtype=float)
+    n = r.size
+    if n < 5:
+        return float(n)
+    r = r - r.mean()
+    denom = float(np.dot(r, r))
+    if denom <= 0:
+        return float(n)
+    rho = float(np.dot(r[1:], r[:-1]) / denom)
+    rho = min(max(rho, 0.0), 0.95)
+    return n * (1.0 - rho) / (1.0 + rho)
 
 
 def _weighted_var(values, dy):
@@ -30,7 +52,7 @@ def _weighted_var(values, dy):
     return float(np.dot(w, values**2) / w.sum() - mean**2)
 
 
-def baluev_fap(power, fmax, time, dy=None):
+def baluev_fap(power, fmax, time, dy=None, n_effective=None):
     """Baluev (2008) false-alarm probability of GLS peaks of ``power``.
 
     Parameters
@@ -43,6 +65,9 @@ def baluev_fap(power, fmax, time, dy=None):
         Times of the points used, days.
     dy : array of float, optional
         Their errors (weights the effective baseline).
+    n_effective : float, optional
+        Independent points, when correlated noise makes them fewer than the
+        points (see :func:`effective_points`); default all points.
 
     Notes
     -----
@@ -54,7 +79,7 @@ def baluev_fap(power, fmax, time, dy=None):
     z = np.clip(np.asarray(power, dtype=float), 0.0, 1.0)
     t = np.asarray(time, dtype=float)
     t = t - t.mean()
-    n = t.size
+    n = t.size if n_effective is None else max(float(min(n_effective, t.size)), 5.0)
     nh, nk = n - 1, n - 3
     gamma = math.sqrt(2.0 / nh) * math.exp(math.lgamma(nh / 2) - math.lgamma((nh - 1) / 2))
     w_eff = fmax * np.sqrt(4.0 * np.pi * _weighted_var(t, dy))

@@ -9,7 +9,75 @@ import numpy as np
 from ..errors import GridTooLargeError, PhasewiseError
 from .settings import DEFAULT_FMAX, PeriodogramSettings
 
-__all__ = ["RegularGrid", "grid_parameters", "grid_size", "frequency_grid", "regular_grid_of"]
+__all__ = [
+    "RegularGrid",
+    "Sampling",
+    "sampling_step",
+    "sampling_of",
+    "default_fmax",
+    "grid_parameters",
+    "grid_size",
+    "frequency_grid",
+    "regular_grid_of",
+]
+
+#: Share of consecutive time differences that must lie within
+#: :data:`REGULAR_TOLERANCE` of their median for sampling to count as regular.
+REGULAR_SHARE = 0.8
+REGULAR_TOLERANCE = 0.1
+
+#: Lowest oversampling a default grid is coarsened to before a long series
+#: is refused as too large (peaks are still sampled twice per width 1/T).
+MIN_DEFAULT_OVERSAMPLING = 2.0
+
+
+class Sampling(NamedTuple):
+    """The typical sampling step (days) and whether the sampling is regular."""
+
+    step: float
+    regular: bool
+
+    @property
+    def nyquist(self) -> float | None:
+        """Pseudo-Nyquist frequency 1/(2 step) of regular sampling, else None."""
+        return 0.5 / self.step if self.regular and self.step > 0 else None
+
+
+def sampling_of(time: np.ndarray) -> Sampling:
+    """The typical sampling step of ``time`` and whether sampling is regular.
+
+    Regular: at least 80% of the consecutive time differences lie within
+    10% of their median (our rule).  The step is then the median difference;
+    for irregular sampling it is the 5th percentile of the differences (the
+    shortest spacing the data use often).  Only regular sampling has a
+    pseudo-Nyquist frequency 1/(2 step) about which peaks reflect; irregular
+    sampling reaches above it (Eyer & Bartholdi 1999, from memory).
+    """
+    t = np.unique(np.asarray(time, dtype=float))
+    if t.size < 3:
+        return Sampling(float("nan"), False)
+    dt = np.diff(t)
+    median = float(np.median(dt))
+    regular = bool(np.mean(np.abs(dt - median) <= REGULAR_TOLERANCE * median) >= REGULAR_SHARE)
+    return Sampling(median if regular else float(np.percentile(dt, 5)), regular)
+
+
+def sampling_step(time: np.ndarray) -> tuple[float, bool]:
+    """``(step, regular)`` of :func:`sampling_of` as a plain tuple."""
+    s = sampling_of(time)
+    return s.step, s.regular
+
+
+def default_fmax(time: np.ndarray) -> float:
+    """Highest frequency searched when none is given (c/d).
+
+    :data:`DEFAULT_FMAX` (the shortest periods of the classes we know), or
+    the pseudo-Nyquist frequency of regular sampling if that is lower: above
+    it every peak is a reflection of one below (30-minute sampling: 24 c/d;
+    weekly: 1/14 c/d).
+    """
+    nyquist = sampling_of(time).nyquist
+    return DEFAULT_FMAX if nyquist is None else min(DEFAULT_FMAX, nyquist)
 
 
 class RegularGrid(NamedTuple):
@@ -32,9 +100,13 @@ def grid_parameters(
 ) -> RegularGrid:
     """The grid a search over ``time`` uses, without building it.
 
-    ``fmin`` defaults to 1/T (T the baseline), ``fmax`` to 50 c/d, and the
-    step is 1/(oversampling T): each peak of width ~1/T is sampled
-    ``oversampling`` times (common practice, no source).
+    ``fmin`` defaults to 1/T (T the baseline), ``fmax`` to
+    :func:`default_fmax` (50 c/d, or the pseudo-Nyquist frequency of
+    regular sampling), and the step is 1/(oversampling T): each peak of
+    width ~1/T is sampled ``oversampling`` times (common practice, no
+    source).  On the default range a grid above ``max_frequencies`` is
+    first coarsened down to :data:`MIN_DEFAULT_OVERSAMPLING` points per
+    peak width, so long series work without settings.
 
     Raises
     ------
@@ -51,13 +123,20 @@ def grid_parameters(
             field="time",
         )
     fmin = 1.0 / baseline if settings.fmin is None else float(settings.fmin)
-    fmax = DEFAULT_FMAX if settings.fmax is None else float(settings.fmax)
+    fmax = default_fmax(time) if settings.fmax is None else float(settings.fmax)
     if fmax <= fmin:
         raise PhasewiseError(
             f"fmax={fmax:g} c/d is not above fmin={fmin:g} c/d (baseline {baseline:g} d)",
             field="fmax",
         )
-    df = 1.0 / (settings.oversampling * baseline)
+    oversampling = settings.oversampling
+    n = int(np.floor((fmax - fmin) * oversampling * baseline)) + 1
+    if settings.fmax is None and settings.fmin is None and n > settings.max_frequencies:
+        # a long series on the default range: sample each peak less finely
+        # (down to MIN_DEFAULT_OVERSAMPLING) before refusing it
+        coarse = (settings.max_frequencies - 1) / ((fmax - fmin) * baseline)
+        oversampling = max(MIN_DEFAULT_OVERSAMPLING, min(oversampling, coarse))
+    df = 1.0 / (oversampling * baseline)
     n = int(np.floor((fmax - fmin) / df)) + 1
     if check_limit and n > settings.max_frequencies:
         error = GridTooLargeError(

@@ -26,7 +26,9 @@ class PeriodogramSettings:
         dispersion minimisation or conditional entropy.
     fmin, fmax : float, optional
         Frequency range in cycles/day.  ``fmin=None`` is one cycle over the
-        baseline (1/T); ``fmax=None`` is :data:`DEFAULT_FMAX`.
+        baseline (1/T); ``fmax=None`` is :data:`DEFAULT_FMAX`, or the
+        pseudo-Nyquist frequency of regular sampling if lower
+        (:func:`core.periodogram.grid.default_fmax`).
     oversampling : float
         Grid points per peak width 1/T: the step is 1/(oversampling T).
     nterms : int

@@ -15,7 +15,7 @@ import numpy as np
 from .grid import regular_grid_of
 from .kernels.nufft import trig_sums
 
-__all__ = ["WindowPeak", "spectral_window", "window_peaks", "WINDOW_FMAX"]
+__all__ = ["WindowPeak", "spectral_window", "window_peaks", "candidate_windows", "WINDOW_FMAX"]
 
 #: Highest frequency (c/d) searched for window peaks: covers 1, 2 and 3 c/d.
 WINDOW_FMAX = 3.5
@@ -102,6 +102,25 @@ def window_peaks(
             if len(peaks) >= max_peaks:
                 break
     return tuple(peaks)
+
+
+def candidate_windows(time, settings) -> tuple[WindowPeak, ...]:
+    """Window peaks the candidates' alias marks use.
+
+    The peaks of :func:`window_peaks` up to :data:`WINDOW_FMAX`, and for
+    regular sampling the window's peak at the sampling frequency 1/step
+    (power 1 there): a candidate at ``1/step - f`` is the reflection of
+    ``f`` about the pseudo-Nyquist frequency (Eyer & Bartholdi 1999, from
+    memory) and is marked ``alias`` like any other.
+    """
+    from .grid import sampling_of
+
+    t = np.asarray(time, dtype=float)
+    peaks = window_peaks(t, threshold=settings.window_threshold, oversampling=settings.oversampling)
+    sampling = sampling_of(t)
+    if sampling.nyquist is not None and 2.0 * sampling.nyquist > WINDOW_FMAX:
+        peaks = (*peaks, WindowPeak(2.0 * sampling.nyquist, 1.0))
+    return peaks
 
 
 def _parabola_offset(left: float, centre: float, right: float) -> float:

@@ -66,3 +66,23 @@ def test_runs_as_a_subprocess_without_qt(one_star_csv):
     assert proc.returncode == 0, proc.stderr
     assert proc.stderr.strip().endswith("False")
     assert json.loads(proc.stdout)["status"] == "ok"
+
+
+def test_period_range_and_settings_file(one_star_csv, tmp_path, capsys):
+    # the range leaves out the true 0.61 d: the best period must lie inside it
+    assert main(["inspect", str(one_star_csv), "--json", "--period-range", "1.5,20"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert all(1.5 <= c["period"] <= 20.0 for c in data["candidates"])
+    settings = tmp_path / "s.toml"
+    settings.write_text("[periodogram]\nmethod = 'pdm'\nfmax = 5.0\n")
+    assert main(["inspect", str(one_star_csv), "--settings", str(settings)]) == 0
+    out = capsys.readouterr().out
+    assert "method pdm" in out and "period: 0.61" in out
+    # the command-line method wins over the file's
+    assert main(["inspect", str(one_star_csv), "--settings", str(settings), "--method", "gls"]) == 0
+    assert "method gls" in capsys.readouterr().out
+
+
+def test_period_range_is_checked(one_star_csv, capsys):
+    assert main(["inspect", str(one_star_csv), "--period-range", "30,2"]) == 2
+    assert "--period-range" in capsys.readouterr().err

@@ -20,6 +20,7 @@ from phasewise.core.periodogram import (
     frequency_grid,
     grid_parameters,
     grid_size,
+    sampling_of,
 )
 
 TRUE_PERIOD = 0.61  # days, injected
@@ -66,7 +67,9 @@ def test_grid_follows_the_baseline():
 
 def test_grid_over_the_limit_names_size_and_limit():
     t = np.linspace(0, 1000, 50)
-    settings = PeriodogramSettings(max_frequencies=100_000)
+    # an explicit range is never coarsened (the default range would stop at
+    # the sampling's pseudo-Nyquist frequency)
+    settings = PeriodogramSettings(fmax=50.0, max_frequencies=100_000)
     with pytest.raises(GridTooLargeError, match=r"249,996 frequencies.*limit of 100,000") as info:
         grid_parameters(t, settings)
     assert (info.value.n_frequencies, info.value.limit) == (249_996, 100_000)
@@ -233,7 +236,8 @@ def test_multiband_reduces_to_gls_for_one_band(sample):
 @pytest.mark.parametrize(("method", "nterms"), [("gls", 1), ("mhgls", 2), ("mhgls", 3)])
 def test_multiband_power_is_total_chi2_reduction(method, nterms):
     # Direct weighted least squares per band at a few frequencies (numpy lstsq):
-    # P = sum_b (chi2_0,b - chi2_b) / sum_b chi2_0,b.
+    # P = sum_b (chi2_0,b - chi2_b) / s2_b / sum_b chi2_0,b / s2_b, each band's
+    # chi-square in units of its scatter s2_b = chi2_0,b / (N_b - 1).
     lc = _two_band_curve()
     settings = PeriodogramSettings(method=method, nterms=nterms, fmax=3.0)
     pg = compute_periodogram(lc, settings)
@@ -253,8 +257,9 @@ def test_multiband_power_is_total_chi2_reduction(method, nterms):
             chi2 = np.sum(((y - design @ coef) * sw) ** 2)
             mean = np.sum(y / e**2) / np.sum(1 / e**2)
             chi2_0 = np.sum(((y - mean) * sw) ** 2)
-            reduced += chi2_0 - chi2
-            total += chi2_0
+            s2 = chi2_0 / (t.size - 1)
+            reduced += (chi2_0 - chi2) / s2
+            total += chi2_0 / s2
         assert pg.power[i] == pytest.approx(reduced / total, abs=1e-8)
     if method == "gls":
         assert abs(pg.best_frequency - 1 / TRUE_PERIOD) < 1 / pg.baseline
@@ -362,3 +367,34 @@ def test_pdm_and_ce_see_no_period_in_noise():
     assert pdm.best_power < 0.2
     ce = compute_periodogram(lc, PeriodogramSettings(method="ce", fmax=5.0))
     assert np.median(ce.power) < 0.1 and ce.best_power < 0.25
+
+
+def test_regular_sampling_stops_at_its_pseudo_nyquist_frequency():
+    # 30-minute sampling with one gap: peaks above 24 c/d are reflections
+    # (Eyer & Bartholdi 1999, from memory; common practice)
+    t = np.arange(0.0, 27.0, 1.0 / 48.0)
+    t = t[(t < 13.0) | (t > 14.0)]
+    sampling = sampling_of(t)
+    assert sampling.regular and sampling.step == pytest.approx(1.0 / 48.0)
+    assert grid_parameters(t, PeriodogramSettings()).fmax == pytest.approx(24.0, abs=0.01)
+    # an explicit fmax is the user's
+    assert grid_parameters(t, PeriodogramSettings(fmax=40.0)).fmax == pytest.approx(40.0, 0.01)
+
+
+def test_irregular_sampling_keeps_the_physical_limit():
+    rng = np.random.default_rng(4)
+    t = np.sort(rng.uniform(0.0, 900.0, 80))
+    assert not sampling_of(t).regular
+    assert grid_parameters(t, PeriodogramSettings()).fmax == pytest.approx(50.0, abs=0.01)
+
+
+def test_long_irregular_series_coarsened_not_refused():
+    # 20 years of random nights up to 50 c/d: 5 points per peak would need
+    # 1.8 million frequencies; the default range samples peaks more coarsely
+    rng = np.random.default_rng(5)
+    t = np.sort(rng.uniform(0.0, 20 * 365.25, 400))
+    settings = PeriodogramSettings()
+    assert grid_size(t, PeriodogramSettings(fmax=50.0)) > settings.max_frequencies
+    grid = grid_parameters(t, settings)
+    assert grid.n <= settings.max_frequencies
+    assert 2.0 <= 1.0 / (grid.df * np.ptp(t)) < 5.0

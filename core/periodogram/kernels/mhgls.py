@@ -67,7 +67,10 @@ def mhgls_nufft(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
 
     y = np.asarray(y, dtype=float)
     if dy is not None:
-        dy = np.asarray(dy, dtype=float)
+        raw = np.asarray(dy, dtype=float)
+        dy = _sanitised_errors(raw, 2 * nterms + 1)
+        if dy is None:  # too few points carry weight: the exact kernel raises cleanly
+            return mhgls_exact(t, y, raw, frequency, settings)
     power = backend.lombscargle(
         t,
         y,
@@ -80,3 +83,33 @@ def mhgls_nufft(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
         nterms=nterms,
     )
     return power, None
+
+
+#: Relative weight below which a point counts as weightless for the solver.
+MIN_RELATIVE_WEIGHT = 1e-12
+
+
+def _sanitised_errors(dy: np.ndarray, n_parameters: int) -> np.ndarray | None:
+    """Errors scaled to a median of 1, or None when too few points carry weight.
+
+    The power does not change when every error is multiplied by one number,
+    but the native solver of the fast backend tests its normal matrix
+    against an absolute tolerance and aborts the whole process ("Matrix is
+    singular") when the weights are tiny (errors of 1e6 mag).  Scaling the
+    errors to a median of one keeps the matrix well inside its range; a
+    band where fewer points than parameters (plus one) carry weight is
+    refused here instead of in native code.
+    """
+    if dy.ndim == 2:
+        rows = [_sanitised_errors(row, n_parameters) for row in dy]
+        return None if any(r is None for r in rows) else np.stack(rows)
+    finite = np.isfinite(dy) & (dy > 0)
+    if finite.sum() <= n_parameters:
+        return None
+    scaled = np.where(finite, dy, 1.0) / float(np.median(dy[finite]))
+    weight = np.where(finite, 1.0 / scaled**2, 0.0)
+    heavy = weight >= MIN_RELATIVE_WEIGHT * weight.max()
+    if heavy.sum() <= n_parameters:
+        return None
+    # weightless points get a large finite error: the backend wants finite errors
+    return np.where(heavy, scaled, 1e6 * scaled[heavy].max())

@@ -1,0 +1,574 @@
+"""The choice of period: every search's candidates compete here under one rule.
+
+Steps, in this order (each stated where it is made):
+
+1. **Search.**  The periodogram of the cleaned curve gives candidates; up to
+   ``compare_candidates`` of the highest peaks compete by the Bayesian
+   information criterion of their multi-harmonic fits (:func:`best_by_bic`);
+   harmonics and subharmonics of a stronger peak do not compete.
+2. **Points set aside** (:func:`outliers_against`): against the Fourier
+   model at the current choice, points further than ``set_aside_sigma``
+   robust sigmas (1.4826 x MAD of the band's residuals) are set aside and
+   the search is repeated, up to ``set_aside_rounds`` rounds, until no new
+   point goes.  Outliers are rare by nature: when more than
+   ``set_aside_max_share`` of a band's points lie beyond the limit the model
+   is wrong, not the points, and none of that band is set aside in that
+   round.
+3. **Trend** (:func:`fit_trend`), where the data call for it: a polynomial
+   in time of degree 1-3 or a floating mean per season, each band with its
+   own coefficients.  A trend is *called for* when it lowers the scaled BIC
+   (chi-square over the best model's reduced chi-square, plus k ln N) by at
+   least ``trend_min_delta_bic``, alone or beside the Fourier model at the
+   current choice.  The search is then repeated on the detrended curve from
+   2/T up (a polynomial of degree 3 cannot be told from fewer than two
+   cycles), and the trend is *adopted* only if trend + Fourier at the new
+   choice beats Fourier alone at the old one by the same margin.
+4. **Eclipse search** (:func:`with_eclipse_search`) where a sinusoid is weak
+   or the curve has a long faint tail; its best period joins the
+   competition of step 1.  It sees every cleaned point (its statistic
+   resists outliers by itself), so points set aside in step 2 do not hide
+   an eclipse.
+
+The result (:class:`PeriodChoice`) records the winner, why it won, the
+indices of the points set aside and the trend.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+from .errors import PhasewiseError
+from .fourier import choose_order, fit_fourier
+from .lightcurve import MIN_GOOD_POINTS, LightCurve
+from .periodogram import (
+    Candidate,
+    EclipseSearch,
+    Periodogram,
+    candidate_windows,
+    compute_periodogram,
+    eclipse_search,
+    effective_points,
+    find_candidates,
+    sampling_of,
+)
+
+__all__ = [
+    "PeriodChoice",
+    "choose_period",
+    "best_by_bic",
+    "outliers_against",
+    "fit_trend",
+    "ECLIPSE_FAP_METHOD",
+    "MAD_TO_SIGMA",
+]
+
+#: Median absolute deviation to Gaussian sigma (common practice, no source).
+MAD_TO_SIGMA = 1.4826
+
+#: ``fap_method`` of a candidate that comes from the eclipse search.
+ECLIPSE_FAP_METHOD = "aov_binned"
+
+#: Gaps longer than this (days) separate observing seasons for the
+#: per-season trend (our choice: longer than any run of nights, shorter than
+#: the months a field is out of reach).
+SEASON_GAP = 60.0
+
+
+@dataclass(frozen=True, eq=False)
+class PeriodChoice:
+    """What :func:`choose_period` decided.
+
+    ``lc`` is the curve the later steps measure: the trend removed and the
+    set-aside points excluded.  ``set_aside`` are indices into the input
+    light curve's points; ``trend`` is a JSON-able description or None.
+    """
+
+    periodogram: Periodogram
+    candidates: tuple[Candidate, ...]
+    chosen: int | None
+    search: EclipseSearch | None
+    lc: LightCurve
+    set_aside: tuple[int, ...] = ()
+    trend: dict[str, Any] | None = None
+    reasons: tuple[str, ...] = ()
+    windows: tuple = ()
+
+    @property
+    def candidate(self) -> Candidate | None:
+        return None if self.chosen is None else self.candidates[self.chosen]
+
+
+def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) -> PeriodChoice:
+    """Choose the period of a cleaned light curve (see the module notes).
+
+    Parameters
+    ----------
+    lc : LightCurve
+        Cleaned curve with at least ``MIN_GOOD_POINTS`` good points.
+    settings : AnalysisSettings
+    pgram : Periodogram, optional
+        The periodogram of ``lc`` already computed with ``settings.periodogram``.
+    """
+    pg = settings.periodogram
+    pgram = compute_periodogram(lc, pg) if pgram is None else pgram
+    # one window for every search here: setting a few points aside barely changes it
+    windows = candidate_windows(lc.time[lc.good], pg)
+    candidates = find_candidates(pgram, lc, pg, windows=windows)
+    if not candidates:
+        return PeriodChoice(pgram, (), None, None, lc, windows=windows)
+    chosen = choose_candidate(lc, candidates, settings)
+    reasons: list[str] = []
+
+    working, set_aside = lc, np.zeros(lc.n_points, dtype=bool)
+    if settings.set_aside_sigma is not None:
+        for _ in range(settings.set_aside_rounds):
+            new = outliers_against(working, candidates[chosen].frequency, settings) & ~set_aside
+            if not new.any() or working.n_good - new.sum() < MIN_GOOD_POINTS:
+                break
+            set_aside |= new
+            working = lc.with_excluded(lc.excluded | set_aside)
+            pgram = compute_periodogram(working, pg)
+            candidates = find_candidates(pgram, working, pg, windows=windows)
+            chosen = choose_candidate(working, candidates, settings)
+        if set_aside.any():
+            reasons.append(
+                f"{int(set_aside.sum())} point(s) beyond {settings.set_aside_sigma:g} robust "
+                "sigmas of the model set aside before the candidates competed"
+            )
+
+    trend = None
+    if settings.trend == "auto":
+        outcome = _trend_step(working, pgram, candidates, chosen, settings, windows)
+        if outcome is not None:
+            working, pgram, candidates, chosen, trend = outcome
+            reasons.append(f"trend removed ({trend['description']}): {trend['rule']}")
+
+    # correlated noise (nightly zero points, drifts, ramps) makes fewer points
+    # independent than there are: the false-alarm probabilities count those
+    n_eff = _effective_points(working, candidates[chosen].frequency, settings)
+    if n_eff is not None:
+        candidates = find_candidates(
+            pgram, working, pgram.settings, windows=windows, n_effective=n_eff
+        )
+        reasons.append(
+            f"residuals correlated in time: false-alarm probabilities from {n_eff:.0f} "
+            f"independent points of {working.n_good}"
+        )
+
+    # the eclipse search sees every cleaned point (detrended if a trend was adopted)
+    everything = _detrended(lc, trend) if trend else lc
+    candidates, chosen, search = with_eclipse_search(
+        everything, working, candidates, chosen, settings
+    )
+    if candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
+        working, set_aside = everything, np.zeros(lc.n_points, dtype=bool)
+        reasons.append(
+            f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
+            "the periodogram's peaks were weaker; no points set aside"
+        )
+    elif chosen != 0:
+        reasons.append(
+            f"period from candidate {chosen + 1} (multi-harmonic fit preferred it "
+            "over the highest peak)"
+        )
+    step = sampling_of(lc.time[lc.good])
+    period = candidates[chosen].period
+    if np.isfinite(step.step) and period < 2.0 * step.step:
+        reasons.append(
+            f"period {period:.6g} d is shorter than twice the typical sampling step "
+            f"({step.step:.3g} d): check it against the window and its reflections"
+        )
+    return PeriodChoice(
+        periodogram=pgram,
+        candidates=candidates,
+        chosen=chosen,
+        search=search,
+        lc=working,
+        set_aside=tuple(int(i) for i in np.flatnonzero(set_aside)),
+        trend=trend,
+        reasons=tuple(reasons),
+        windows=windows,
+    )
+
+
+# ------------------------------------------------------------ competition
+def choose_candidate(lc: LightCurve, candidates: tuple[Candidate, ...], settings) -> int:
+    """Index of the candidate whose multi-harmonic fit has the lowest BIC.
+
+    Each band gets its own mean and harmonics (order chosen per band and
+    frequency); the information criterion adds them up over the bands.
+    Harmonic and subharmonic candidates of a stronger peak do not compete:
+    at f/2 a curve fits as well with twice the parameters, and the choice
+    between P and 2P for eclipsing binaries is the classifier's.
+    """
+    n = min(settings.compare_candidates, len(candidates))
+    if n == 1:
+        return 0
+    competing = [
+        i
+        for i in range(n)
+        if i == 0 or not ({"harmonic", "subharmonic"} & set(candidates[i].marks))
+    ]
+    return best_by_bic(lc, candidates, competing, settings)
+
+
+def best_by_bic(lc: LightCurve, candidates, competing, settings) -> int:
+    """The competing candidate whose multi-harmonic fit has the lowest BIC."""
+    competing = list(competing)
+    best, best_bic = competing[0], np.inf
+    for index in competing:
+        bic = _fourier_bic(lc, candidates[index].frequency, settings)
+        # the frequency itself is one more parameter, the same for every candidate
+        if bic < best_bic:
+            best, best_bic = index, bic
+    return best
+
+
+def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
+    bic = 0.0
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            order = choose_order(t, m, e, frequency, settings.fourier).order
+            fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
+        except PhasewiseError:
+            return np.inf
+        chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
+        bic += chi2 + (2 * order + 1) * np.log(t.size)
+    return bic
+
+
+def _effective_points(lc: LightCurve, frequency: float, settings) -> float | None:
+    """Independent points of the residuals from the Fourier model, if clearly fewer.
+
+    Residuals in units of their errors, all bands in time order
+    (:func:`core.periodogram.effective_points`); None when they are at
+    least 90% of the points (white noise within its scatter).
+    """
+    times, scaled = [], []
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            order = choose_order(t, m, e, frequency, settings.fourier).order
+            fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
+        except PhasewiseError:
+            return None
+        times.append(t)
+        scaled.append((m - fit.model(t)) / e)
+    t_all = np.concatenate(times)
+    order = np.argsort(t_all, kind="stable")
+    r_all = np.concatenate(scaled)[order]
+    # correlation between neighbours only: averaging over longer times
+    # (Pont, Zucker & Queloz 2006) also counts a strong signal's model
+    # error (modulation) as noise and buried modulated RRab in the demo
+    n_eff = effective_points(r_all)
+    return n_eff if n_eff < 0.9 * r_all.size else None
+
+
+# ------------------------------------------------------------- set aside
+def outliers_against(lc: LightCurve, frequency: float, settings) -> np.ndarray:
+    """Good points beyond ``set_aside_sigma`` robust sigmas of the Fourier model.
+
+    Per band: residuals from the Fourier fit (order by the usual choice) at
+    ``frequency``; sigma = 1.4826 x MAD of the residuals.  A band where more
+    than ``set_aside_max_share`` of the points would go gives none (the
+    model is wrong there, not the points).
+    """
+    out = np.zeros(lc.n_points, dtype=bool)
+    for band in lc.bands:
+        sel = np.flatnonzero(lc.band_mask(band))
+        t, m, e = lc.time[sel], lc.mag[sel], lc.mag_err[sel]
+        try:
+            order = choose_order(t, m, e, frequency, settings.fourier).order
+            fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
+        except PhasewiseError:
+            continue
+        r = m - fit.model(t)
+        centre = np.median(r)
+        sigma = MAD_TO_SIGMA * np.median(np.abs(r - centre))
+        if not sigma > 0:
+            continue
+        far = np.abs(r - centre) > settings.set_aside_sigma * sigma
+        if far.sum() <= settings.set_aside_max_share * t.size:
+            out[sel[far]] = True
+    return out
+
+
+# ----------------------------------------------------------------- trend
+def _seasons(t: np.ndarray) -> np.ndarray:
+    """Season number of each time (gaps longer than :data:`SEASON_GAP` split seasons)."""
+    order = np.argsort(t)
+    breaks = np.zeros(t.size, dtype=int)
+    breaks[order[1:]] = np.cumsum(np.diff(t[order]) > SEASON_GAP)
+    return breaks
+
+
+def _trend_columns(kind: str, degree: int, t: np.ndarray, t_ref: float, t_scale: float):
+    """Design columns of a trend (without the constant, which each model has)."""
+    if kind == "polynomial":
+        x = (t - t_ref) / t_scale
+        return np.stack([x**k for k in range(1, degree + 1)], axis=1)
+    season = _seasons(t)
+    labels = np.unique(season)
+    return np.stack([(season == s).astype(float) for s in labels[1:]], axis=1)
+
+
+def _harmonic_columns(t: np.ndarray, frequency: float, order: int) -> np.ndarray:
+    arg = 2.0 * np.pi * frequency * np.multiply.outer(t - t.mean(), np.arange(1, order + 1))
+    return np.concatenate([np.cos(arg), np.sin(arg)], axis=1)
+
+
+def _wls(columns: np.ndarray, m: np.ndarray, e: np.ndarray) -> tuple[float, np.ndarray]:
+    design = np.concatenate([np.ones((m.size, 1)), columns], axis=1)
+    coef, *_ = np.linalg.lstsq(design / e[:, None], m / e, rcond=None)
+    return float(np.sum(((m - design @ coef) / e) ** 2)), coef
+
+
+def _trend_options(lc: LightCurve) -> list[tuple[str, int]]:
+    options = [("polynomial", d) for d in (1, 2, 3)]
+    t = lc.time[lc.good]
+    n_seasons = int(_seasons(t).max()) + 1 if t.size else 0
+    if 2 <= n_seasons and all(
+        np.min(np.bincount(_seasons(lc.arrays(b)[0]))) >= 5 for b in lc.bands
+    ):
+        options.append(("seasons", n_seasons - 1))
+    return options
+
+
+def _model_chi2(lc, trend_option, frequency, orders, t_ref, t_scale):
+    """Chi-square and parameter count of trend (optional) + harmonics (optional), all bands."""
+    chi2, k = 0.0, 0
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        cols = [np.zeros((t.size, 0))]
+        if trend_option is not None:
+            cols.append(_trend_columns(*trend_option, t, t_ref, t_scale))
+        if frequency is not None:
+            cols.append(_harmonic_columns(t, frequency, orders[band]))
+        columns = np.concatenate(cols, axis=1)
+        c2, _ = _wls(columns, m, e)
+        chi2 += c2
+        k += 1 + columns.shape[1]
+    return chi2, k
+
+
+def _scaled_bics(fits: dict, n: int) -> dict:
+    """Scaled BIC of each (chi2, k): chi2 / s2 + k ln n, s2 the best model's reduced chi2."""
+    best = min(fits.values(), key=lambda ck: ck[0] / max(n - ck[1], 1))
+    s2 = max(1.0, best[0] / max(n - best[1], 1))
+    return {key: c / s2 + k * np.log(n) for key, (c, k) in fits.items()}
+
+
+def _orders(lc: LightCurve, frequency: float, settings) -> dict[str, int] | None:
+    orders = {}
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            orders[band] = choose_order(t, m, e, frequency, settings.fourier).order
+        except PhasewiseError:
+            return None
+    return orders
+
+
+def fit_trend(lc: LightCurve, frequency: float | None, settings) -> dict[str, Any] | None:
+    """The trend the data call for beside the Fourier model at ``frequency``, or None.
+
+    Options: polynomials of degree 1-3 in time and, with two or more
+    seasons, a floating mean per season.  The option with the lowest scaled
+    BIC is called for when it is lower than without a trend by
+    ``settings.trend_min_delta_bic``, either alone or together with the
+    Fourier model at ``frequency`` (whichever test passes first).
+    Returns a JSON-able description with per-band coefficients.
+    """
+    t_all = lc.time[lc.good]
+    n = t_all.size
+    t_ref = float(0.5 * (t_all.min() + t_all.max()))
+    t_scale = float(max(0.5 * np.ptp(t_all), 1e-9))
+    options = _trend_options(lc)
+    orders = _orders(lc, frequency, settings) if frequency is not None else None
+    tests = [None] if orders is None else [None, frequency]
+    for f in tests:
+        fits = {None: _model_chi2(lc, None, f, orders, t_ref, t_scale)}
+        for option in options:
+            fits[option] = _model_chi2(lc, option, f, orders, t_ref, t_scale)
+        bics = _scaled_bics(fits, n)
+        best = min(options, key=lambda o: bics[o])
+        delta = bics[None] - bics[best]
+        if delta >= settings.trend_min_delta_bic:
+            return _trend_description(lc, best, f, orders, t_ref, t_scale, delta)
+    return None
+
+
+def _trend_description(lc, option, frequency, orders, t_ref, t_scale, delta_bic):
+    kind, degree = option
+    coefficients = {}
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        trend_cols = _trend_columns(kind, degree, t, t_ref, t_scale)
+        cols = [trend_cols]
+        if frequency is not None:
+            cols.append(_harmonic_columns(t, frequency, orders[band]))
+        _, coef = _wls(np.concatenate(cols, axis=1), m, e)
+        coefficients[band] = [float(c) for c in coef[1 : 1 + trend_cols.shape[1]]]
+    text = (
+        f"polynomial of degree {degree} in time"
+        if kind == "polynomial"
+        else (f"a floating mean for each of {degree + 1} seasons")
+    )
+    return {
+        "kind": kind,
+        "degree": degree if kind == "polynomial" else None,
+        "n_seasons": degree + 1 if kind == "seasons" else None,
+        "t_ref": t_ref,
+        "t_scale": t_scale,
+        "season_gap": SEASON_GAP,
+        "coefficients": coefficients,
+        "delta_bic": float(delta_bic),
+        "description": text,
+    }
+
+
+def trend_values(trend: dict[str, Any], time: np.ndarray, band: str) -> np.ndarray:
+    """The trend at ``time`` in ``band``, with zero mean over those times."""
+    coef = np.asarray(trend["coefficients"].get(band, []), dtype=float)
+    if coef.size == 0 or time.size == 0:
+        return np.zeros(time.size)
+    if trend["kind"] == "polynomial":
+        cols = _trend_columns("polynomial", trend["degree"], time, trend["t_ref"], trend["t_scale"])
+    else:
+        cols = _trend_columns("seasons", 0, time, 0.0, 1.0)
+        cols = cols[:, : coef.size]
+    values = cols @ coef[: cols.shape[1]]
+    return values - values.mean()
+
+
+def _detrended(lc: LightCurve, trend: dict[str, Any]) -> LightCurve:
+    mag = np.array(lc.mag, dtype=float)
+    for band in lc.bands:
+        sel = lc.band_mask(band)
+        mag[sel] -= trend_values(trend, lc.time[sel], band)
+    return replace(lc, mag=mag, mag_err=lc._err_arg())
+
+
+def _trend_step(working, pgram, candidates, chosen, settings, windows):
+    """Adopt a trend when it is called for and wins (see the module notes), else None."""
+    f_old = candidates[chosen].frequency
+    trend = fit_trend(working, f_old, settings)
+    if trend is None:
+        return None
+    detrended = _detrended(working, trend)
+    pg = settings.periodogram
+    baseline = working.baseline
+    fmin = max(pg.fmin or 0.0, 2.0 / baseline)
+    fmax_default = pgram.frequency[-1]
+    if fmin >= fmax_default:
+        return None
+    pg2 = replace(pg, fmin=fmin, fmax=pg.fmax if pg.fmax is not None else float(fmax_default))
+    pgram2 = compute_periodogram(detrended, pg2)
+    candidates2 = find_candidates(pgram2, detrended, pg2, windows=windows)
+    if not candidates2:
+        return None
+    chosen2 = choose_candidate(detrended, candidates2, settings)
+    f_new = candidates2[chosen2].frequency
+    # trend + Fourier at the new choice against Fourier alone at the old one
+    orders_old = _orders(working, f_old, settings)
+    orders_new = _orders(working, f_new, settings)
+    if orders_old is None or orders_new is None:
+        return None
+    t_ref, t_scale = trend["t_ref"], trend["t_scale"]
+    option = (trend["kind"], trend["degree"] or (trend["n_seasons"] or 1) - 1)
+    fits = {
+        "plain": _model_chi2(working, None, f_old, orders_old, t_ref, t_scale),
+        "trend": _model_chi2(working, option, f_new, orders_new, t_ref, t_scale),
+    }
+    bics = _scaled_bics(fits, working.n_good)
+    delta = bics["plain"] - bics["trend"]
+    if delta < settings.trend_min_delta_bic:
+        return None
+    trend = {
+        **_trend_description(working, option, f_new, orders_new, t_ref, t_scale, delta),
+        "rule": (
+            f"trend + Fourier at {1 / f_new:.6g} d beats Fourier alone at {1 / f_old:.6g} d "
+            f"by a scaled BIC of {delta:.3g} (at least {settings.trend_min_delta_bic:g})"
+        ),
+    }
+    return _detrended(working, trend), pgram2, candidates2, chosen2, trend
+
+
+# ---------------------------------------------------------- eclipse search
+def with_eclipse_search(
+    everything: LightCurve,
+    working: LightCurve,
+    candidates: tuple[Candidate, ...],
+    chosen: int,
+    settings,
+) -> tuple[tuple[Candidate, ...], int, EclipseSearch | None]:
+    """Run the eclipse search where it matters; its best period may take over.
+
+    * The periodogram's chosen peak is not significant: the search's best
+      peak is taken when it is significant.
+    * The magnitudes (points not set aside) are strongly skewed to the
+      faint side (most of the time at maximum light, short fadings): the
+      search's best peak joins the multi-harmonic competition, unless it is
+      the chosen peak, its harmonic or its subharmonic.
+
+    Two searches were made, so the search's false-alarm probability is
+    doubled (Bonferroni) before it is compared or reported.
+    """
+    if settings.eclipse_search is None:
+        return candidates, chosen, None
+    weak = not _significant(candidates[chosen].fap, settings.fap_threshold)
+    _, mag, _ = working.arrays(working.bands[0])
+    skewed = mag.size > 2 and float(stats.skew(mag)) >= settings.eclipse_skewness
+    if not (weak or skewed):
+        return candidates, chosen, None
+    search = eclipse_search(everything, settings.eclipse_search, periodogram=settings.periodogram)
+    if search is None or not search.frequencies:
+        return candidates, chosen, search
+    fap = min(1.0, 2.0 * search.faps[0])
+    if not _significant(fap, settings.fap_threshold):
+        return candidates, chosen, search
+    f = search.frequencies[0]
+    extra = Candidate(
+        frequency=f,
+        period=1.0 / f,
+        power=search.f_values[0],
+        fap=fap,
+        snr=search.snrs[0],
+        marks=tuple(search.marks[0]) if search.marks else (),
+        mark_details=(
+            f"phase-binned eclipse search: statistic {search.f_values[0]:.3g} with "
+            f"{search.n_bins} bins; FAP doubled for the two searches",
+            *(search.mark_details[0] if search.mark_details else ()),
+        ),
+        rank=len(candidates) + 1,
+        fap_method=ECLIPSE_FAP_METHOD,
+    )
+    joined = (*candidates, extra)
+    if weak:
+        return joined, len(joined) - 1, search
+    if _harmonically_related(f, candidates[chosen].frequency, working.baseline, settings):
+        # at f/2 a curve fits as well with twice the parameters: the choice
+        # between P and 2P is the eclipse test's and the classifier's
+        return joined, chosen, search
+    best = best_by_bic(everything, joined, (chosen, len(joined) - 1), settings)
+    return joined, best, search
+
+
+def _harmonically_related(f: float, other: float, baseline: float, settings) -> bool:
+    """Whether ``f`` is n or 1/n times ``other`` (n = 1 .. max_harmonic) within
+    the candidates' mark tolerance."""
+    pg = settings.periodogram
+    tol = pg.mark_tolerance / baseline if baseline > 0 else 0.0
+    for n in range(1, pg.max_harmonic + 1):
+        if abs(f - n * other) <= tol or abs(n * f - other) <= tol:
+            return True
+    return False
+
+
+def _significant(fap: float | None, threshold: float) -> bool:
+    return fap is not None and bool(np.isfinite(fap)) and fap <= threshold

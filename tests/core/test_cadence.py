@@ -1,0 +1,242 @@
+"""Periods and classes on survey cadences: seeded recovery tests and real series.
+
+The synthetic stars come from ``core.synthetic.battery_star`` (invented
+cadences, the class templates of ``core.synthetic`` with their sources);
+what is checked is the injected truth.  The real series are the statsmodels
+datasets, with the published values named beside the checks.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from phasewise.core.analysis import AnalysisSettings, analyse
+from phasewise.core.lightcurve import LightCurve
+from phasewise.core.periodogram import (
+    PeriodogramSettings,
+    compute_periodogram,
+    eclipse_search,
+    effective_points,
+    find_candidates,
+)
+from phasewise.core.synthetic import battery_star, period_determinable
+
+
+def _with_mag(lc: LightCurve, mag: np.ndarray) -> LightCurve:
+    return replace(lc, mag=mag, mag_err=lc._err_arg())
+
+
+def _top(result: dict) -> dict:
+    return result["suggestions"][0]
+
+
+def test_thirty_minute_cadence_rrab():
+    # regular 30-minute sampling: peaks above 24 c/d are reflections; the
+    # 0.5-0.8 d RRab must not come out as a 0.02 d reflection
+    lc, truth = battery_star("space", "RRab", "", "plain", seed=3)
+    assert period_determinable(lc, truth)[0]
+    result = analyse(lc).to_dict()
+    assert result["status"] == "ok"
+    assert result["period"] == pytest.approx(truth.period, rel=1e-3)
+    assert _top(result)["class"] == "RRab"
+    assert all(c["frequency"] <= 24.01 for c in result["candidates"])
+
+
+def test_rrd_with_two_outliers_keeps_its_modes():
+    lc, truth = battery_star("nightly", "RRd", "", "", seed=2, outlier_fraction=0.0)
+    mag = np.array(lc.mag)
+    mag[[40, 200]] += [1.2, -0.9]  # two bad points, one each way
+    result = analyse(_with_mag(lc, mag)).to_dict()
+    assert {40, 200} <= set(result["set_aside"])
+    assert result["period"] == pytest.approx(truth.period, rel=1e-3)
+    assert _top(result)["class"] == "RRd"
+    # the period ratio comes from the reported secondary (S16: 0.742-0.748)
+    secondary = result["secondary_periods"][0]
+    assert secondary["period"] == pytest.approx(truth.period2, rel=1e-3)
+    assert secondary["snr"] > 4.0
+    assert result["period_ratio"] == pytest.approx(result["period"] / secondary["period"], 1e-12)
+    assert 0.74 < result["period_ratio"] < 0.75
+
+
+def test_delta_scuti_with_three_co_phased_outliers():
+    lc, truth = battery_star("nightly", "DSCT", "SXPHE", "multi", seed=2, outlier_fraction=0.0)
+    mag = np.array(lc.mag)
+    # three faint points at one phase of an unrelated 1.7 d period: a fake "eclipse"
+    phase = ((lc.time - lc.time[0]) / 1.7) % 1.0
+    bad = np.argsort(np.abs(phase - 0.3))[:3]
+    mag[bad] += 0.6
+    result = analyse(_with_mag(lc, mag)).to_dict()
+    assert set(bad.tolist()) <= set(result["set_aside"])
+    assert result["period"] == pytest.approx(truth.period, rel=1e-3)
+    assert _top(result)["class"] in ("DSCT", "SXPHE")
+    chosen = result["candidates"][result["chosen_candidate"]]
+    assert chosen["fap_method"] != "aov_binned"
+
+
+def test_constant_star_with_seasonal_drift_gets_no_period():
+    lc, _ = battery_star("two_band", "NONVAR", "", "", seed=1)
+    t = lc.time - lc.time[0]
+    season = np.floor(t / 365.25)
+    mag = np.array(lc.mag) + 0.03 * (season - 1) + 0.02 * np.sin(t / 100.0)
+    result = analyse(_with_mag(lc, mag)).to_dict()
+    assert result["status"] != "ok"
+    assert _top(result)["class"] == "CONST"
+    assert result["trend"] is not None
+    assert result["trend"]["kind"] in ("seasons", "polynomial")
+
+
+def test_two_band_star_takes_its_fourier_parameters_from_the_dense_band():
+    # ~400 I points and ~50 V: V's phi31 is too poorly determined
+    lc, truth = battery_star("two_band", "RRab", "", "plain", seed=1)
+    result = analyse(lc).to_dict()
+    assert result["period"] == pytest.approx(truth.period, rel=1e-3)
+    by_band = result["fourier_by_band"]
+    assert by_band["I"]["phi31_err"] * 2.0 < by_band["V"]["phi31_err"]
+    assert result["relation_band"] == "I"
+    assert result["primary_band"] == "I"
+    assert "I" in result["relation_band_reason"]
+    # the V-calibrated [Fe/H] relation is not fed I-band parameters
+    for value in result["physics"]:
+        if value["quantity"].startswith("[Fe/H]") and value["value"] is not None:
+            pytest.fail(f"[Fe/H] from I-band parameters: {value}")
+
+
+def test_rrab_without_modulation_gets_no_secondary():
+    lc, truth = battery_star("nightly", "RRab", "", "plain", seed=2)
+    result = analyse(lc).to_dict()
+    assert result["period"] == pytest.approx(truth.period, rel=1e-3)
+    assert result["secondary_periods"] == []
+    assert result["period_ratio"] is None
+    assert result["modulation"] is None
+
+
+def test_modulated_rrab_is_flagged_with_a_period():
+    lc, truth = battery_star("nightly", "RRab", "", "modulated", seed=1)
+    result = analyse(lc).to_dict()
+    modulation = result["modulation"]
+    assert modulation is not None and modulation["kind"] == "side peaks"
+    # side peaks at f1 +- 1/P_mod, resolved to ~1/T of the frequency
+    width = 1.0 / lc.baseline
+    assert abs(1.0 / modulation["period"] - 1.0 / truth.blazhko_period) < 2 * width
+    assert any(f.startswith("modulated") for f in result["flags"])
+
+
+@pytest.mark.slow
+def test_false_alarm_probability_means_what_it_says_on_constant_stars():
+    # white noise on random times: the Baluev FAP (Baluev 2008; astropy is the
+    # reference implementation) is < 0.01 for about 1% of stars
+    rng = np.random.default_rng(20)
+    settings = PeriodogramSettings(fmax=10.0)
+    low = 0
+    n_stars = 300
+    for k in range(n_stars):
+        t = np.sort(rng.uniform(0.0, 300.0, 120))
+        lc = LightCurve(f"C{k}", t, 15.0 + rng.normal(0.0, 0.02, t.size), np.full(t.size, 0.02))
+        fap = find_candidates(compute_periodogram(lc, settings), lc, settings)[0].fap
+        low += fap < 0.01
+    # binomial(300, <=0.01): more than 9 has probability below 0.1%
+    assert low <= 9
+
+
+@pytest.mark.slow
+def test_constant_stars_with_survey_systematics_stay_constant():
+    # nightly zero points, seasonal drifts and 1% outliers (battery cadences):
+    # the whole analysis, eclipse search included, calls none of 16 variable
+    made_variable, low_fap = 0, 0
+    for kind in ("sparse", "nightly", "two_band"):
+        for seed in range(100, 105 if kind != "nightly" else 106):
+            lc, _ = battery_star(kind, "NONVAR", seed=seed)
+            result = analyse(lc).to_dict()
+            made_variable += result["status"] == "ok" and _top(result)["class"] != "CONST"
+            low_fap += (result["fap"] or 1.0) < 0.01
+    assert made_variable <= 1
+    assert low_fap <= 1
+
+
+def test_effective_points_fewer_for_correlated_noise():
+    rng = np.random.default_rng(1)
+    white = rng.normal(size=2000)
+    assert effective_points(white) == pytest.approx(2000, rel=0.1)
+    red = np.empty(2000)  # AR(1) with rho = 0.8: N (1 - rho) / (1 + rho) = 222
+    red[0] = 0.0
+    for i in range(1, red.size):
+        red[i] = 0.8 * red[i - 1] + rng.normal()
+    assert effective_points(red) == pytest.approx(2000 * 0.2 / 1.8, rel=0.25)
+
+
+def test_eclipse_search_keeps_to_the_periodogram_range():
+    lc, _ = battery_star("nightly", "EA", seed=4)
+    search = eclipse_search(lc, periodogram=PeriodogramSettings(fmin=0.5, fmax=2.0))
+    assert search is not None
+    assert all(0.5 <= f <= 2.0 for f in search.frequencies)
+
+
+def test_eclipse_search_penalises_day_aliases():
+    # a constant star with nightly zero points: any best peak near 1 d is marked
+    lc, _ = battery_star("nightly", "NONVAR", seed=7)
+    search = eclipse_search(lc)
+    for f, marks, fap in zip(search.frequencies, search.marks, search.faps, strict=True):
+        if abs(f - 1.0) < 0.01 or abs(f - 2.0) < 0.01:
+            assert "alias" in marks and fap > 0.01
+
+
+def test_absurd_errors_do_not_abort_the_multi_harmonic_search():
+    # errors of 1e6 mag once made the native solver abort the whole process
+    code = (
+        "import numpy as np\n"
+        "from phasewise.core.lightcurve import LightCurve\n"
+        "from phasewise.core.periodogram import PeriodogramSettings, compute_periodogram\n"
+        "rng = np.random.default_rng(1)\n"
+        "t = np.sort(rng.uniform(0, 100, 200))\n"
+        "m = 15 + 0.1 * np.sin(2 * np.pi * t / 3.3) + rng.normal(0, 0.02, 200)\n"
+        "lc = LightCurve('x', t, m, np.full(200, 1e6))\n"
+        "p = compute_periodogram(lc, PeriodogramSettings(method='mhgls', fmax=5))\n"
+        "print(1 / p.best_frequency)\n"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    # equal errors, however large, weigh the points equally: the 3.3 d signal is found
+    assert float(out.stdout) == pytest.approx(3.3, rel=0.01)
+
+
+# ------------------------------------------------------------- real series
+statsmodels = pytest.importorskip("statsmodels.api")
+
+
+@pytest.mark.slow  # the joint fits of prewhitening take most of its ~30 s at 2,225 points
+def test_weekly_co2_gives_its_yearly_cycle_with_default_settings():
+    # Mauna Loa weekly CO2 (statsmodels `co2`): a seasonal cycle of one year
+    # on a rising trend (Keeling et al. 1976, from memory)
+    data = statsmodels.datasets.co2.load_pandas().data.dropna()
+    jd = data.index.to_julian_date().to_numpy(float)
+    lc = LightCurve("co2", jd, data["co2"].to_numpy(float), time_scale="JD")
+    result = analyse(lc, AnalysisSettings()).to_dict()
+    assert result["period"] == pytest.approx(365.25, abs=2.0)
+    assert result["trend"] is not None
+
+
+def test_yearly_sunspots_give_the_solar_cycle_with_default_settings():
+    # yearly sunspot numbers (statsmodels `sunspots`): mean cycle about
+    # 11 yr (Hathaway 2015, Living Rev. Sol. Phys. 12, 4, from memory)
+    data = statsmodels.datasets.sunspots.load_pandas().data
+    years = data["YEAR"].to_numpy(float) + 0.5  # yearly means: mid-year
+    jd = 2451545.0 + (years - 2000.0) * 365.25  # Julian epochs (IAU definition of J2000.0)
+    lc = LightCurve("sunspots", jd, data["SUNACTIVITY"].to_numpy(float), time_scale="JD")
+    result = analyse(lc).to_dict()
+    assert 10.5 <= result["period"] / 365.25 <= 11.5
+
+
+def test_a_period_under_two_cycles_is_not_adopted():
+    # a constant star on the 27-day space-like cadence whose scattered-light
+    # ramps after the gap leave a ~15 d wave: under two cycles, no period
+    lc, _ = battery_star("space", "NONVAR", seed=2000)
+    result = analyse(lc).to_dict()
+    assert result["period"] > lc.baseline / 2.0
+    assert result["status"] == "no_significant_period"
+    assert "fewer than 2 times" in result["reason"]
+    assert _top(result)["class"] == "CONST"
