@@ -231,13 +231,16 @@ def fold_model(
     band: str | None = None,
     eclipsing: bool = False,
     n_grid: int = 400,
+    result=None,
 ) -> FoldModel:
     """Fit the analysis model of ``band`` at a trial period, with the analysis's rules.
 
     The same steps as ``core.analysis.analyse`` after its period choice:
-    the cleaning rules, the per-band Fourier order choice and the
-    residual-outlier set-aside (``settings.outlier_sigma``).  At the
-    analysed period the line is therefore the analysis's own fit.
+    the cleaning rules, the points its period choice set aside and the trend
+    it removed (both from the stored result: they are decisions of the
+    analysis, kept while the period is tried), the per-band Fourier order
+    choice and the residual-outlier set-aside (``settings.outlier_sigma``).
+    At the analysed period the line is therefore the analysis's own fit.
 
     Parameters
     ----------
@@ -250,11 +253,17 @@ def fold_model(
     eclipsing : bool
         Put phase 0 at primary minimum (``core.final.eclipse_shape``, as the
         final numbers do) instead of the model's maximum light, and set no
-        residual outliers aside (they would be the eclipse).
+        points aside (they would be the eclipse).
+    result : mapping, optional
+        The stored analysis (``AnalysisResult.to_dict()``): its ``set_aside``
+        points (less the residual outliers of its Fourier fit, found again
+        here at the trial period, ``outlier_times``) and its ``trend``
+        (removed before the fit; the points are drawn with it removed too).
     """
     # imported here: the analysis pulls in scipy.stats, not needed to open the window
     from .analysis import AnalysisSettings, _decompose_with_outliers
     from .clean import clean
+    from .period_choice import _detrended, trend_values
 
     if not np.isfinite(period) or period <= 0:
         raise PhasewiseError(f"a period must be positive, got {period!r}", field="period")
@@ -267,12 +276,28 @@ def fold_model(
         # a narrow eclipse, so the points it would set aside are mostly the eclipse
         settings = replace(settings, outlier_sigma=None)
     cleaned, _report = clean(lc, settings.clean)
+    same_points = cleaned.n_points == lc.n_points  # else no index match
+    working = cleaned
+    result = result or {}
+    trend = result.get("trend")
+    refit_times = {round(float(t), 9) for t in result.get("outlier_times") or ()}
+    chosen_aside = [
+        int(i)
+        for i in result.get("set_aside") or ()
+        if 0 <= int(i) < lc.n_points and round(float(lc.time[int(i)]), 9) not in refit_times
+    ]
+    if chosen_aside and same_points and not eclipsing:
+        mask = np.array(cleaned.excluded, dtype=bool)
+        mask[chosen_aside] = True
+        working = cleaned.with_excluded(mask)
+    if trend:
+        working = _detrended(working, trend)
     fit = None
-    kept = cleaned
-    if cleaned.n_good >= 3:
-        fits, _times, kept = _decompose_with_outliers(cleaned, 1.0 / period, settings)
+    kept = working
+    if working.n_good >= 3:
+        fits, _times, kept = _decompose_with_outliers(working, 1.0 / period, settings)
         fit = fits.get(band)
-    if kept.n_points != lc.n_points:  # a cleaning rule that drops points: no index match
+    if not same_points:
         kept = lc
     # every point of the band, excluded ones too (``band_mask`` holds good points only)
     in_band = (np.asarray(lc.band) == band) & np.isfinite(lc.time) & np.isfinite(lc.mag)
@@ -280,10 +305,16 @@ def fold_model(
     index = index[np.argsort(np.asarray(lc.time)[index], kind="stable")]
     time = np.asarray(lc.time, dtype=float)[index]
     mag = np.asarray(lc.mag, dtype=float)[index]
+    if trend and time.size:
+        # every point drawn with the trend removed, on the fitted points' zero
+        mag = mag - trend_values(trend, time, band)
+        fitted = np.asarray(kept.good, dtype=bool)[index] if same_points else None
+        if fitted is not None and fitted.any():
+            mag += float(np.mean(np.asarray(kept.mag)[index][fitted] - mag[fitted]))
     err = np.asarray(lc.mag_err, dtype=float)[index]
     excluded = np.asarray(lc.excluded, dtype=bool)[index]
-    set_aside = np.asarray(kept.excluded, dtype=bool)[index] & ~excluded
-    used = ~(excluded | set_aside)
+    aside = np.asarray(kept.excluded, dtype=bool)[index] & ~excluded
+    used = ~(excluded | aside)
     if fit is not None:
         residual = mag - np.asarray(fit.model(time))
         epoch = float(fit.epoch_max)
@@ -313,7 +344,7 @@ def fold_model(
         err=err,
         index=index,
         excluded=excluded,
-        set_aside=set_aside,
+        set_aside=aside,
         residual=residual,
         rms=rms,
         order=None if fit is None else int(fit.order),
@@ -324,14 +355,14 @@ class FoldModelCache:
     """The last few :func:`fold_model` results, so going back to a period is free.
 
     The key is the star, its exclusion mask, the period, the settings hash,
-    the band and the epoch kind.
+    the band, the epoch kind and the result's set-aside points and trend.
     """
 
     def __init__(self, size: int = 64) -> None:
         self.size = int(size)
         self._items: OrderedDict = OrderedDict()
 
-    def get(self, lc, period, settings=None, band=None, eclipsing=False) -> FoldModel:
+    def get(self, lc, period, settings=None, band=None, eclipsing=False, result=None) -> FoldModel:
         digest = getattr(settings, "hash", None) if settings is not None else None
         key = (
             lc.star_id,
@@ -340,11 +371,14 @@ class FoldModelCache:
             digest,
             band,
             bool(eclipsing),
+            None if result is None else result.get("settings_hash"),
+            None if result is None else tuple(result.get("set_aside") or ()),
+            None if result is None else repr(result.get("trend")),
         )
         if key in self._items:
             self._items.move_to_end(key)
             return self._items[key]
-        model = fold_model(lc, period, settings, band, eclipsing)
+        model = fold_model(lc, period, settings, band, eclipsing, result=result)
         self._items[key] = model
         while len(self._items) > self.size:
             self._items.popitem(last=False)

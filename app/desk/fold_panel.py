@@ -98,6 +98,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.zero = pg.InfiniteLine(angle=0, pos=0.0, pen=pg.mkPen(EXCLUDED_COLOUR))
         self.resid.addItem(self.zero, ignoreBounds=True)
         self.lc = None
+        self.result: dict = {}
         self.band: str | None = None
         self.settings = None
         self.eclipsing = False
@@ -119,9 +120,16 @@ class FoldView(pg.GraphicsLayoutWidget):
     def _set_title(self, text: str) -> None:
         self.fold.setTitle(text, size="9pt")
 
-    def set_star(self, lc, band: str | None, settings=None, eclipsing: bool = False) -> None:
-        """New star, band, settings or epoch rule: the next ``set_period`` redraws."""
+    def set_star(
+        self, lc, band: str | None, settings=None, eclipsing: bool = False, result=None
+    ) -> None:
+        """New star, band, settings or epoch rule: the next ``set_period`` redraws.
+
+        ``result`` is the stored analysis dict: its ``set_aside`` points and
+        ``trend`` are the analysis's decisions the model keeps.
+        """
         self.lc, self.band, self.settings = lc, band, settings
+        self.result = result or {}
         self.eclipsing = bool(eclipsing)
         self.period = None
         self._drawn = None
@@ -157,7 +165,12 @@ class FoldView(pg.GraphicsLayoutWidget):
             return  # nothing moved (the other fold's period did)
         try:
             model = self.services.fold_model(
-                lc, float(period), self.settings, self.band, self.eclipsing
+                lc,
+                float(period),
+                self.settings,
+                self.band,
+                self.eclipsing,
+                self.result,
             )
         except PhasewiseError as exc:
             self.clear()
@@ -193,6 +206,8 @@ class FoldView(pg.GraphicsLayoutWidget):
             text += f" · rms {model.rms:.3f} mag (order {model.order})"
         if aside.any():
             text += f" · {int(aside.sum())} set aside"
+        if self.result.get("trend"):
+            text += " · trend removed"
         self._set_title(text)
         self._set_range(model)
 
@@ -313,9 +328,9 @@ class FoldPanel(QWidget):
             self.band_box.setCurrentText(current)
         self.band_box.blockSignals(False)
 
-    def set_star(self, lc, band, settings=None, eclipsing: bool = False) -> None:
-        self.main.set_star(lc, band, settings, eclipsing)
-        self.alt.set_star(lc, band, settings, eclipsing)
+    def set_star(self, lc, band, settings=None, eclipsing: bool = False, result=None) -> None:
+        self.main.set_star(lc, band, settings, eclipsing, result)
+        self.alt.set_star(lc, band, settings, eclipsing, result)
 
     def set_errors_visible(self, on: bool) -> None:
         self.main.set_errors_visible(on)

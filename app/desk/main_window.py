@@ -636,7 +636,13 @@ class MainWindow(QMainWindow):
         if self.lc is None or band is None:
             self.fold.set_star(None, None)
             return
-        self.fold.set_star(self.lc, band, self.analysis_settings, is_eclipsing(self._class_code()))
+        self.fold.set_star(
+            self.lc,
+            band,
+            self.analysis_settings,
+            is_eclipsing(self._class_code()),
+            self.result,
+        )
 
     def _band_changed(self, band: str) -> None:
         self._set_fold_band(band)

@@ -106,13 +106,13 @@ class CoreServices:
 
         return np.asarray(spectral_window(time, frequency), dtype=float)
 
-    def fold_model(self, lc, period, settings=None, band=None, eclipsing=False):
+    def fold_model(self, lc, period, settings=None, band=None, eclipsing=False, result=None):
         """The analysis model at a trial period (``core.folding.fold_model``), cached."""
         if self._fold_cache is None:
             from phasewise.core.folding import FoldModelCache
 
             self._fold_cache = FoldModelCache()
-        return self._fold_cache.get(lc, period, settings, band, eclipsing)
+        return self._fold_cache.get(lc, period, settings, band, eclipsing, result)
 
     # -------------------------------------------------------------- ledger
     def open_ledger(self, path, readonly: bool = False):

@@ -90,7 +90,7 @@ def test_fold_line_is_the_core_model_at_the_trial_period(desk, qtbot):
     np.testing.assert_allclose(y, fit.model(fold.model.epoch + x * fold.period), atol=1e-9)
     assert f"rms {fit.residual_std:.3f}" in fold.fold.titleLabel.text
     desk.session.nudge(+1, large=True)
-    expected = fold_model(lc, desk.session.period, settings, band)
+    expected = fold_model(lc, desk.session.period, settings, band, result=desk.result)
     x, y = fold.model_curve.getData()
     np.testing.assert_allclose(x, expected.phase_grid)
     np.testing.assert_allclose(y, expected.model_grid)

@@ -109,7 +109,8 @@ def test_fold_model_at_the_analysed_period_is_the_analysis_fit(analysed_rrab):
     from phasewise.core.folding import fold_model
 
     lc, settings, result = analysed_rrab
-    model = fold_model(lc, result.period, settings, result.primary_band)
+    stored = result.to_dict()
+    model = fold_model(lc, result.period, settings, result.primary_band, result=stored)
     fit = result.primary_fit
     assert model.order == fit.order
     np.testing.assert_allclose(
@@ -118,9 +119,8 @@ def test_fold_model_at_the_analysed_period_is_the_analysis_fit(analysed_rrab):
     assert model.epoch == pytest.approx(fit.epoch_max)
     assert model.rms == pytest.approx(fit.residual_std)
     # the points the analysis set aside are the ones marked here
-    aside_times = set(np.round(model.time[model.set_aside], 9))
-    in_band = {round(t, 9) for t in result.outlier_times} & set(np.round(model.time, 9))
-    assert aside_times == in_band and aside_times
+    marked = set(model.index[model.set_aside])
+    assert marked == set(stored["set_aside"]) & set(model.index) and marked
 
 
 def test_fold_model_marks_user_exclusions_apart_and_is_cached(analysed_rrab):
@@ -131,11 +131,12 @@ def test_fold_model_marks_user_exclusions_apart_and_is_cached(analysed_rrab):
     idx = np.flatnonzero(lc.good & (np.asarray(lc.band) == band))[:4]
     excluded = lc.exclude(idx)
     cache = FoldModelCache(size=2)
-    model = cache.get(excluded, result.period, settings, band)
+    stored = result.to_dict()
+    model = cache.get(excluded, result.period, settings, band, result=stored)
     assert set(model.index[model.excluded]) == set(idx)
     assert not (model.excluded & model.set_aside).any()
-    assert cache.get(excluded, result.period, settings, band) is model
-    assert cache.get(lc, result.period, settings, band) is not model  # other exclusions
+    assert cache.get(excluded, result.period, settings, band, result=stored) is model
+    assert cache.get(lc, result.period, settings, band, result=stored) is not model
 
 
 def test_fold_model_refuses_a_bad_period(analysed_rrab):
