@@ -56,13 +56,13 @@ FIELDS = tuple(c[0] for c in COLUMNS)
 #: Columns from left to right on screen (the model keeps ``COLUMNS`` order).
 VISUAL_ORDER = (
     "star_id",
+    "suggested_class",  # what an unreviewed star is thought to be: first thing to see
     "verdict_class",
     "period",
     "amplitude",
     "fap",
     "flags",
     "status",
-    "suggested_class",
     "suggested_score",
 )
 #: The longest star id the list shows whole at its default width (13 digits).

@@ -73,7 +73,15 @@ def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_co
         assert view.columnWidth(0) > metrics.horizontalAdvance(ID_SAMPLE)
         visible = view.viewport().width()
         header = view.horizontalHeader()
-        for field in ("star_id", "verdict_class", "period", "amplitude", "fap", "flags"):
+        for field in (
+            "star_id",
+            "suggested_class",
+            "verdict_class",
+            "period",
+            "amplitude",
+            "fap",
+            "flags",
+        ):
             col = FIELDS.index(field)
             right = header.sectionViewportPosition(col) + header.sectionSize(col)
             assert right <= visible, field
