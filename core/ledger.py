@@ -1420,9 +1420,7 @@ class Ledger:
         """
         return self._verdicts("", ())
 
-    def verdict_chunks(
-        self, chunk: int = 2000
-    ) -> Iterator[list[tuple[Verdict, dict[str, Any]]]]:
+    def verdict_chunks(self, chunk: int = 2000) -> Iterator[list[tuple[Verdict, dict[str, Any]]]]:
         """Every star's verdict (with its final numbers) and info, in import order, in chunks.
 
         Each chunk holds at most ``chunk`` stars as ``(verdict, star_info)``
