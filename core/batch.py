@@ -44,6 +44,7 @@ from .errors import PhasewiseError, plain_reason
 from .threads import limit_blas_threads
 
 __all__ = [
+    "DASK_WORKER_CONFIG",
     "DEFAULT_ANALYSE",
     "ONLY_CHOICES",
     "Progress",
@@ -513,6 +514,23 @@ class _LocalEngine(_Engine):
                 os.environ.pop(name, None)
 
 
+#: Dask configuration for workers Phasewise starts (LocalCluster in tests and
+#: benchmarks); put the same in the dask configuration of a cluster you start
+#: yourself (see DEVELOPERS.md).  distributed's nanny sets
+#: ``MALLOC_TRIM_THRESHOLD_=65536`` in its workers' environment; with it glibc
+#: stops adapting its mmap threshold, every large array is mapped and unmapped
+#: afresh, and a star costs about 2.4x the CPU of the local pool in page faults.
+#: ``None`` removes the variable (the nanny skips keys whose value is None).
+DASK_WORKER_CONFIG: dict[str, Any] = {
+    "distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
+}
+
+
+def _dask_worker_setup() -> bool:
+    """Run on every Dask worker when a batch connects: one BLAS thread, as in the pool."""
+    return limit_blas_threads(environment=False)
+
+
 class _DaskEngine(_Engine):
     """A Dask distributed cluster reached at a scheduler address."""
 
@@ -541,6 +559,8 @@ class _DaskEngine(_Engine):
             ) from None
         threads = sum(self._client.nthreads().values())
         self.workers = workers or max(1, threads)
+        # workers already running; those that join later start as their cluster's config says
+        self._client.run(_dask_worker_setup)
 
     def submit(self, lightcurves, settings, fn_name, shared):
         return self._client.submit(

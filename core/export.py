@@ -472,14 +472,26 @@ def catalogue_rows(
     undecided stars and decisions stored without numbers.
     """
     statuses = _check_statuses(statuses)
-    for summary in ledger.star_rows():
-        if summary.status not in statuses:
-            continue
-        star = summary.star_id
-        verdict = ledger.verdict(star)
-        needs_result = not (verdict.status in _DECIDED and verdict.final)
-        stored = ledger.result(star) if needs_result else None
-        yield catalogue_row(verdict, ledger.star_info(star), summary, stored)
+    summaries = iter(ledger.star_rows())
+    for chunk in ledger.verdict_chunks(_READ_CHUNK):
+        for verdict, info in chunk:
+            # both come in import order, from the verdicts table
+            summary = next(summaries)
+            if summary.star_id != verdict.star_id:  # pragma: no cover - a ledger invariant
+                raise PhasewiseError(
+                    f"star {verdict.star_id!r}: the summary and verdict tables disagree; "
+                    "run 'phasewise ledger check'",
+                    file=str(ledger.path),
+                )
+            if summary.status not in statuses:
+                continue
+            needs_result = not (verdict.status in _DECIDED and verdict.final)
+            stored = ledger.result(verdict.star_id) if needs_result else None
+            yield catalogue_row(verdict, info, summary, stored)
+
+
+#: Stars read from the ledger per query in the export (a chunk's final numbers in memory).
+_READ_CHUNK = 2000
 
 
 #: Verdict states whose row shows the numbers stored with the verdict.

@@ -79,3 +79,38 @@ def test_unreachable_scheduler_is_a_clear_error(tmp_path, monkeypatch):
         analyse_ledger(path, FAST, scheduler="tcp://127.0.0.1:9")
     with Ledger.open(path, readonly=True) as ledger:
         assert ledger.settings_hash is None  # a run that never started changed nothing
+
+
+def _worker_environment():
+    import os
+
+    return {name: os.environ.get(name) for name in ("MALLOC_TRIM_THRESHOLD_", "OMP_NUM_THREADS")}
+
+
+def test_project_config_keeps_malloc_trim_out_of_worker_processes(monkeypatch):
+    # distributed's default nanny environment sets MALLOC_TRIM_THRESHOLD_=65536
+    # (distributed.yaml, distributed.nanny.pre-spawn-environ); ours removes it
+    import dask
+    from distributed import Client, LocalCluster
+
+    from phasewise.core.batch import DASK_WORKER_CONFIG
+
+    monkeypatch.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)  # the nanny copies it here too
+    seen = {}
+    for name, config in (("default", {}), ("project", DASK_WORKER_CONFIG)):
+        with (
+            dask.config.set(config),
+            LocalCluster(
+                n_workers=1,
+                threads_per_worker=1,
+                processes=True,
+                host="127.0.0.1",
+                dashboard_address=None,
+            ) as cluster,
+            Client(cluster) as client,
+        ):
+            (seen[name],) = client.run(_worker_environment).values()
+        monkeypatch.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)
+    assert seen["default"]["MALLOC_TRIM_THRESHOLD_"] == "65536"  # the check can fail
+    assert seen["project"]["MALLOC_TRIM_THRESHOLD_"] is None
+    assert seen["project"]["OMP_NUM_THREADS"] == "1"  # the rest of the nanny's set stays

@@ -1,0 +1,120 @@
+"""CPU per star: the local process pool against a Dask LocalCluster, in one run.
+
+Each engine analyses the same seeded field (``core.synthetic``) in a fresh
+child process; the CPU time of that child and all its reaped descendants
+(pool workers, Dask nanny workers) is divided by the stars analysed.  Three
+rows: the local pool, a LocalCluster with distributed's default worker
+environment, and a LocalCluster with :data:`core.batch.DASK_WORKER_CONFIG`
+(what Phasewise sets).  Target: project Dask / local pool <= 1.15.
+
+    python benchmarks/bench_dask.py [--stars 128] [--workers 2]
+    python benchmarks/bench_dask.py --smoke
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+MODES = ("local", "dask-default", "dask-project")
+
+
+def child(mode: str, path: str, workers: int) -> None:
+    """Run in a fresh process: analyse every star of the ledger with one engine."""
+    from phasewise.core.analysis import AnalysisSettings
+    from phasewise.core.batch import DASK_WORKER_CONFIG, analyse_ledger
+
+    settings = AnalysisSettings()
+    start = time.perf_counter()
+    if mode == "local":
+        summary = analyse_ledger(path, settings, workers=workers)
+    else:
+        import dask
+        from distributed import LocalCluster
+
+        config = DASK_WORKER_CONFIG if mode == "dask-project" else {}
+        with (
+            dask.config.set(config),
+            LocalCluster(
+                n_workers=workers,
+                threads_per_worker=1,
+                processes=True,
+                host="127.0.0.1",
+                dashboard_address=None,
+            ) as cluster,
+        ):
+            summary = analyse_ledger(path, settings, scheduler=cluster.scheduler_address)
+    print(json.dumps({"n": summary.analysed + summary.failed, "wall": time.perf_counter() - start}))
+
+
+def run(mode: str, path: Path, workers: int) -> dict:
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    proc = subprocess.run(
+        [sys.executable, __file__, "--child", mode, str(path), str(workers)],
+        capture_output=True,
+        text=True,
+        check=True,
+    )
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    got = json.loads(proc.stdout.strip().splitlines()[-1])
+    got["cpu"] = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
+    got["faults"] = after.ru_minflt - before.ru_minflt
+    return got
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--stars", type=int, default=128)
+    parser.add_argument("--points", type=int, default=700)
+    parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--smoke", action="store_true", help="a tiny run")
+    parser.add_argument("--child", nargs=3, metavar=("MODE", "LEDGER", "WORKERS"), help="internal")
+    args = parser.parse_args()
+    if args.child:
+        child(args.child[0], args.child[1], int(args.child[2]))
+        return
+    if args.smoke:
+        args.stars, args.points = 8, 100
+    os.environ.pop("MALLOC_TRIM_THRESHOLD_", None)  # the children start clean
+    from phasewise.core.ledger import Ledger
+    from phasewise.core.synthetic import synthetic_field
+
+    folder = Path(tempfile.mkdtemp(prefix="bench_dask_"))
+    lcs = synthetic_field(args.stars, n_epochs=args.points, seed=17).lightcurves()
+    print(f"Dask cost: {args.stars} stars x {args.points} points, {args.workers} workers")
+    print(
+        "  load average (1, 5, 15 min) at the start: {:.2f} {:.2f} {:.2f}".format(*os.getloadavg())
+    )
+    print(
+        f"  {'engine':14s} {'stars':>6s} {'wall s':>7s} {'CPU ms/star':>12s} {'faults':>10s} ratio"
+    )
+    base = None
+    for mode in MODES:
+        path = folder / f"{mode}.ledger.sqlite"
+        with Ledger.create(path) as ledger:
+            ledger.add_stars(lcs)
+        got = run(mode, path, args.workers)
+        per_star = 1000 * got["cpu"] / max(got["n"], 1)
+        base = base or per_star
+        print(
+            f"  {mode:14s} {got['n']:6d} {got['wall']:7.1f} {per_star:12.1f} "
+            f"{got['faults']:10d} {per_star / base:5.2f}x"
+        )
+        for item in folder.glob(f"{mode}.ledger.sqlite*"):
+            item.unlink()
+    print("  load average (1, 5, 15 min) at the end: {:.2f} {:.2f} {:.2f}".format(*os.getloadavg()))
+    print("  (CPU includes each child's start-up: imports, cluster or pool start)")
+    folder.rmdir()
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,96 @@
+"""The export's batched read equals the star-by-star reads, damage included.
+
+The ledger holds seeded stars of every class (``core.synthetic.make_survey``)
+analysed by ``core.analysis``; most are confirmed as their top suggestion
+with the final numbers of their own analysis, the rest stay unreviewed.
+"""
+
+import json
+import shutil
+import sqlite3
+
+import pytest
+
+from phasewise.core.analysis import AnalysisSettings, analyse
+from phasewise.core.errors import LedgerError
+from phasewise.core.ledger import Ledger
+from phasewise.core.synthetic import make_survey
+
+
+@pytest.fixture(scope="module")
+def seeded(tmp_path_factory):
+    path = tmp_path_factory.mktemp("chunks") / "seeded.ledger.sqlite"
+    settings = AnalysisSettings()
+    survey = make_survey(6, seed=2026)
+    with Ledger.create(path) as ledger:
+        ledger.add_stars(survey.lightcurves)
+        ledger.set_analysis_settings(settings.to_dict(), settings.hash)
+        results = {
+            lc.star_id: json.loads(json.dumps(analyse(lc, settings).to_dict()))
+            for lc in survey.lightcurves
+        }
+        ledger.store_results([(s, settings.hash, r) for s, r in results.items()])
+        confirmed = [
+            (
+                s,
+                "confirmed",
+                r["suggestions"][0]["class"],
+                r["suggestions"][0]["period"],
+                None,
+                r["final"],
+            )
+            for s, r in list(results.items())[:-2]
+            if r["suggestions"] and r.get("final")
+        ]
+        assert len(confirmed) >= 2
+        ledger.set_verdicts(confirmed, label="bulk confirm")
+    return path
+
+
+@pytest.fixture
+def ledger_path(seeded, tmp_path):
+    path = tmp_path / "chunks.ledger.sqlite"
+    shutil.copyfile(seeded, path)
+    return path
+
+
+def _one_by_one(ledger):
+    return [(ledger.verdict(s), ledger.star_info(s)) for s in ledger.star_ids()]
+
+
+@pytest.mark.parametrize("chunk", [1, 2, 3, 1000])
+def test_chunks_equal_single_star_reads(ledger_path, chunk):
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        expected = _one_by_one(ledger)
+        chunks = list(ledger.verdict_chunks(chunk))
+    assert all(0 < len(c) <= chunk for c in chunks)
+    assert [pair for c in chunks for pair in c] == expected
+    assert sum(v.final is not None for v, _ in expected) >= 2  # finals are really compared
+
+
+def test_chunk_size_is_checked(ledger_path):
+    with (
+        Ledger.open(ledger_path, readonly=True) as ledger,
+        pytest.raises(LedgerError, match="chunk"),
+    ):
+        next(ledger.verdict_chunks(0))
+
+
+def test_damaged_verdict_is_reported_by_both_reads(ledger_path):
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        victim = next(v.star_id for v, _ in _one_by_one(ledger) if v.final is not None)
+    conn = sqlite3.connect(ledger_path)
+    with conn:
+        conn.execute(
+            "UPDATE verdicts SET note = 'changed behind the ledger' "
+            "WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
+            (victim,),
+        )
+    conn.close()
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        with pytest.raises(LedgerError, match=f"star '{victim}'.*damaged") as single:
+            ledger.verdict(victim)
+        with pytest.raises(LedgerError, match=f"star '{victim}'.*damaged") as batched:
+            for _ in ledger.verdict_chunks(2):
+                pass
+    assert str(batched.value) == str(single.value)
