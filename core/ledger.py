@@ -1072,20 +1072,21 @@ class Ledger:
 
     def _insert_star(self, lc: LightCurve, source: str | None, checksum: str | None) -> None:
         meta = lc.meta.to_dict()
+        star_row = (
+            lc.star_id,
+            lc.meta.ra,
+            lc.meta.dec,
+            source or lc.meta.source_file,
+            checksum,
+            lc.time_scale,
+            int(lc.has_errors),
+            lc.n_points,
+            _dumps(meta),
+        )
         cursor = self._query(
             "INSERT INTO stars(star_id, ra, dec, source_file, source_checksum, time_scale, "
             "has_errors, n_points, meta) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            (
-                lc.star_id,
-                lc.meta.ra,
-                lc.meta.dec,
-                source or lc.meta.source_file,
-                checksum,
-                lc.time_scale,
-                int(lc.has_errors),
-                lc.n_points,
-                _dumps(meta),
-            ),
+            star_row,
         )
         key = cursor.lastrowid
         names, index = np.unique(lc.band.astype(str), return_inverse=True)
@@ -1102,19 +1103,7 @@ class Ledger:
             band_index,
             excluded,
         )
-        seal = _seal(
-            key,
-            lc.star_id,
-            lc.meta.ra,
-            lc.meta.dec,
-            source or lc.meta.source_file,
-            checksum,
-            lc.time_scale,
-            int(lc.has_errors),
-            lc.n_points,
-            _dumps(meta),
-            *arrays,
-        )
+        seal = _seal(key, *star_row, *arrays)
         self._query(
             "INSERT INTO photometry(star, time, mag, mag_err, bands, band_index, excluded, seal) "
             "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
