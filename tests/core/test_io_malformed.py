@@ -98,7 +98,7 @@ CASES = [
     # ids: accepted survey names, and names or values that look like ids
     ("objid upper", "objid.csv", _survey_objid(40, "OBJID"), None, ("stars", 40)),
     ("objid lower", "objid2.csv", _survey_objid(40, "objid"), None, ("stars", 40)),
-    ("source_id", "gaia_like.csv", _survey_objid(5, "source_id"), None, ("stars", 5)),
+    ("source_id", "source_ids.csv", _survey_objid(5, "source_id"), None, ("stars", 5)),
     (
         "id-like name",
         "srcnum.csv",
