@@ -455,6 +455,7 @@ class MainWindow(QMainWindow):
         dock = self.views[name]
         dock.setVisible(True)
         dock.raise_()
+        self._shown_view = name
 
     def select_star(self, star_id: str) -> None:
         """Make ``star_id`` the current star (from any view)."""
@@ -1324,7 +1325,10 @@ class MainWindow(QMainWindow):
         path = Path(path)
         self.wait_idle()
         QApplication.instance().processEvents()
-        pixmap = self.grab()
+        # a view shown in a window of its own is what was asked for: grab that window
+        dock = self.views.get(getattr(self, "_shown_view", None) or "")
+        shown_apart = dock is not None and dock.isVisible() and dock.isFloating()
+        pixmap = dock.grab() if shown_apart else self.grab()
         if not pixmap.save(str(path)):
             raise PhasewiseError("could not write the screenshot", file=str(path))
         return path
