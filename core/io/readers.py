@@ -318,31 +318,29 @@ class _DelimitedTable:
         """The first ``limit`` cells of a column as text (for checks on whole columns)."""
         position = self.columns.index(name)
         out: list[str] = []
+        for parts in self._data_rows():
+            if position < len(parts):
+                out.append(parts[position].strip())
+            if len(out) >= limit:
+                break
+        return out
+
+    def _data_rows(self):
+        """The cells of each data row in file order (blank and comment lines skipped)."""
         with self._open() as handle:
             handle.seek(self.header_end)
             for number, raw in enumerate(handle, start=self.header_line + 1):
                 stripped = raw.strip()
                 if not stripped or stripped.startswith(b"#"):
                     continue
-                parts = self._split(_decode(stripped, self.file, number), number)
-                if position < len(parts):
-                    out.append(parts[position].strip())
-                if len(out) >= limit:
-                    break
-        return out
+                yield self._split(_decode(stripped, self.file, number), number)
 
     def preview(self, n: int) -> list[dict[str, str]]:
         out: list[dict[str, str]] = []
-        with self._open() as handle:
-            handle.seek(self.header_end)
-            for number, raw in enumerate(handle, start=self.header_line + 1):
-                stripped = raw.strip()
-                if not stripped or stripped.startswith(b"#"):
-                    continue
-                parts = self._split(_decode(stripped, self.file, number), number)
-                out.append(dict(zip(self.columns, (p.strip() for p in parts), strict=False)))
-                if len(out) >= n:
-                    break
+        for parts in self._data_rows():
+            out.append(dict(zip(self.columns, (p.strip() for p in parts), strict=False)))
+            if len(out) >= n:
+                break
         return out
 
 
