@@ -228,15 +228,26 @@ def best_by_bic(lc: LightCurve, candidates, competing, settings) -> int:
     return best
 
 
-def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
-    bic = 0.0
+def _band_fits(lc: LightCurve, frequency: float, settings) -> list | None:
+    """Per band ``(t, m, e, order, fit)`` of the chosen-order Fourier fit; None if one fails."""
+    fits = []
     for band in lc.bands:
         t, m, e = lc.arrays(band)
         try:
             order = choose_order(t, m, e, frequency, settings.fourier).order
             fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
         except PhasewiseError:
-            return np.inf
+            return None
+        fits.append((t, m, e, order, fit))
+    return fits
+
+
+def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
+    fits = _band_fits(lc, frequency, settings)
+    if fits is None:
+        return np.inf
+    bic = 0.0
+    for t, m, e, order, fit in fits:
         chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
         bic += chi2 + (2 * order + 1) * np.log(t.size)
     return bic
@@ -249,16 +260,11 @@ def _effective_points(lc: LightCurve, frequency: float, settings) -> float | Non
     (:func:`core.periodogram.effective_points`); None when they are at
     least 90% of the points (white noise within its scatter).
     """
-    times, scaled = [], []
-    for band in lc.bands:
-        t, m, e = lc.arrays(band)
-        try:
-            order = choose_order(t, m, e, frequency, settings.fourier).order
-            fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
-        except PhasewiseError:
-            return None
-        times.append(t)
-        scaled.append((m - fit.model(t)) / e)
+    fits = _band_fits(lc, frequency, settings)
+    if fits is None:
+        return None
+    times = [t for t, *_ in fits]
+    scaled = [(m - fit.model(t)) / e for t, m, e, _, fit in fits]
     t_all = np.concatenate(times)
     order = np.argsort(t_all, kind="stable")
     r_all = np.concatenate(scaled)[order]
