@@ -159,6 +159,7 @@ def main() -> None:
     if args.smoke:
         args.stars, args.points, args.pool = 200, 30, 12
     folder = args.keep or Path(tempfile.mkdtemp(prefix="bench_export_"))
+    folder.mkdir(parents=True, exist_ok=True)
     path = folder / "bench.ledger.sqlite"
     print(f"export benchmark: {args.stars} stars x {args.points} points -> {folder}")
     print(

@@ -464,16 +464,18 @@ def _check_statuses(statuses: Iterable[str]) -> tuple[str, ...]:
 def catalogue_rows(
     ledger: Ledger, statuses: Iterable[str] = DEFAULT_STATUSES
 ) -> Iterator[dict[str, Any]]:
-    """The catalogue's rows, one star at a time (one star's records in memory).
+    """The catalogue's rows, in import order, read from the ledger a chunk at a time.
 
     The stars are chosen from the ledger's narrow summary lines; a decided
     star's row comes from its verdict (with the final numbers stored with
     it) and its summary line; the full analysis result is read only for
-    undecided stars and decisions stored without numbers.
+    undecided stars and decisions stored without numbers, one query per
+    chunk.  At most one chunk of stars' records is in memory.
     """
     statuses = _check_statuses(statuses)
     summaries = iter(ledger.star_rows())
     for chunk in ledger.verdict_chunks(_READ_CHUNK):
+        rows = []
         for verdict, info in chunk:
             # both come in import order, from the verdicts table
             summary = next(summaries)
@@ -483,11 +485,13 @@ def catalogue_rows(
                     "run 'phasewise ledger check'",
                     file=str(ledger.path),
                 )
-            if summary.status not in statuses:
-                continue
-            needs_result = not (verdict.status in _DECIDED and verdict.final)
-            stored = ledger.result(verdict.star_id) if needs_result else None
-            yield catalogue_row(verdict, info, summary, stored)
+            if summary.status in statuses:
+                rows.append((verdict, info, summary))
+        needs_result = [v.star_id for v, _, _ in rows if not (v.status in _DECIDED and v.final)]
+        stored = ledger.results_of(needs_result) if needs_result else {}
+        for verdict, info, summary in rows:
+            yield catalogue_row(verdict, info, summary, stored.get(verdict.star_id))
+        del rows, stored
 
 
 #: Stars read from the ledger per query in the export (a chunk's final numbers in memory).

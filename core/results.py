@@ -32,6 +32,8 @@ __all__ = [
 
 def number(value: Any) -> float | None:
     """A finite float, or None (missing, text, NaN, infinite)."""
+    if type(value) is float:  # the common case, first (the export calls this per cell)
+        return value if math.isfinite(value) else None
     if value is None or isinstance(value, bool | str):
         return None
     try:

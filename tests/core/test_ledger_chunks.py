@@ -1,4 +1,4 @@
-"""The export's batched read equals the star-by-star reads, damage included.
+"""The export's batched reads equal the star-by-star reads, damage included.
 
 The ledger holds seeded stars of every class (``core.synthetic.make_survey``)
 analysed by ``core.analysis``; most are confirmed as their top suggestion
@@ -8,6 +8,7 @@ with the final numbers of their own analysis, the rest stay unreviewed.
 import json
 import shutil
 import sqlite3
+from dataclasses import replace
 
 import pytest
 
@@ -94,3 +95,34 @@ def test_damaged_verdict_is_reported_by_both_reads(ledger_path):
             for _ in ledger.verdict_chunks(2):
                 pass
     assert str(batched.value) == str(single.value)
+
+
+def test_results_of_equals_single_star_reads(ledger_path):
+    with Ledger.open(ledger_path) as ledger:
+        ids = ledger.star_ids()
+        never = "never-analysed"
+        # a star added after the analysis has no result: absent from the mapping
+        ledger.add_stars([replace(make_survey(1, seed=7).lightcurves[0], star_id=never)])
+        expected = {s: ledger.result(s) for s in ids}
+        assert all(r is not None and r.result for r in expected.values())
+        assert ledger.results_of([*reversed(ids), never]) == expected
+        assert ledger.results_of([]) == {}
+
+
+def test_damaged_result_is_reported_by_both_reads(ledger_path):
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        victim = ledger.star_ids()[1]
+    conn = sqlite3.connect(ledger_path)
+    with conn:
+        conn.execute(
+            "UPDATE results SET period = period + 1 "
+            "WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
+            (victim,),
+        )
+    conn.close()
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        single = ledger.result(victim)
+        batched = ledger.results_of(ledger.star_ids())
+        assert single.damaged and single.result is None
+        assert batched[victim] == single
+        assert sum(r.damaged for r in batched.values()) == 1
