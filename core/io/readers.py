@@ -27,6 +27,7 @@ import re
 import stat
 import tempfile
 import warnings
+import weakref
 import zipfile
 from collections import Counter
 from collections.abc import Iterator
@@ -206,6 +207,8 @@ class _DelimitedTable:
                 spool.write(block.replace(b"\r", b"\n"))
         spool.seek(0)
         self._spool = spool
+        # the table has no close(): its copy is closed when the table goes away
+        weakref.finalize(self, spool.close)
         self.table_note = "lines end with CR alone (old Mac style); read as ordinary lines"
 
     def _split(self, text: str, line: int) -> list[str]:

@@ -24,6 +24,11 @@ from phasewise.core.errors import PhasewiseError, ReadError
 from phasewise.core.io import ColumnMapping, open_photometry
 from phasewise.core.io import readers as readers_module
 
+# a reader that leaves a file open (its CR-only copy, say) fails here, not silently
+pytestmark = pytest.mark.filterwarnings(
+    "error::ResourceWarning", "error::pytest.PytestUnraisableExceptionWarning"
+)
+
 
 def _rows(n_stars=3, n=20, id_name="star_id", time="hjd", start=2460000.0, ids=None):
     lines = [f"{id_name},{time},mag,err"]
