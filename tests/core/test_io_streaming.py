@@ -2,6 +2,8 @@
 
 import tracemalloc
 
+import pytest
+
 from phasewise.core.io import open_photometry
 
 
@@ -23,6 +25,7 @@ def _peak(fn):
         tracemalloc.stop()
 
 
+@pytest.mark.slow  # several seconds; run by the slow suite
 def test_peak_memory_for_all_stars_is_that_of_one_star(tmp_path):
     path = _big_csv(tmp_path / "big.csv")
     source = open_photometry(path)

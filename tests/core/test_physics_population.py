@@ -148,6 +148,7 @@ def test_same_object_twice_is_left_out_twice_as_before():
     assert_same_as_reference(members)
 
 
+@pytest.mark.slow  # several seconds; run by the slow suite
 def test_random_fields_match_the_reference():
     rng = np.random.default_rng(20240611)
     for trial in range(300):
@@ -172,6 +173,7 @@ def test_random_fields_match_the_reference():
         assert_same_as_reference(_members(mus, errs))
 
 
+@pytest.mark.slow  # several seconds; run by the slow suite
 def test_a_larger_field_matches_the_reference():
     rng = np.random.default_rng(7)
     mus = np.concatenate([rng.normal(18.3, 0.2, 400), rng.normal(19.5, 0.3, 12)])
@@ -228,6 +230,7 @@ _err = st.one_of(
 )
 
 
+@pytest.mark.slow  # several seconds; run by the slow suite
 @settings(max_examples=400, deadline=None)
 @given(st.lists(st.tuples(_mu, _err), min_size=0, max_size=25))
 def test_property_same_result_as_the_reference(pairs):

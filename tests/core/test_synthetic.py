@@ -304,6 +304,7 @@ def test_outliers_are_few_and_recorded(survey):
 
 
 # ------------------------------------------------------- committed demo
+@pytest.mark.slow  # several seconds; run by the slow suite
 def test_committed_demo_matches_generator(tmp_path):
     make_demo = _load_make_demo()
     make_demo.write_demo(tmp_path)
