@@ -49,6 +49,8 @@ def child(mode: str, path: str, workers: int) -> None:
         from distributed import LocalCluster
 
         config = DASK_WORKER_CONFIG if mode == "dask-project" else {}
+        if os.environ.get("BENCH_DASK_EXTRA"):  # experiments: extra config as JSON
+            config = {**config, **json.loads(os.environ["BENCH_DASK_EXTRA"])}
         with (
             dask.config.set(config),
             LocalCluster(
@@ -84,6 +86,7 @@ def main() -> None:
     parser.add_argument("--points", type=int, default=700)
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--smoke", action="store_true", help="a tiny run")
+    parser.add_argument("--modes", default=",".join(MODES), help="comma-separated engines")
     parser.add_argument("--child", nargs=3, metavar=("MODE", "LEDGER", "WORKERS"), help="internal")
     args = parser.parse_args()
     if args.child:
@@ -106,7 +109,7 @@ def main() -> None:
     )
     small_n = max(4, args.stars // 8)
     base = base_marginal = None
-    for mode in MODES:
+    for mode in args.modes.split(","):
         runs = []
         for n in (small_n, args.stars):
             path = folder / f"{mode}.ledger.sqlite"

@@ -516,13 +516,26 @@ class _LocalEngine(_Engine):
 
 #: Dask configuration for workers Phasewise starts (LocalCluster in tests and
 #: benchmarks); put the same in the dask configuration of a cluster you start
-#: yourself (see DEVELOPERS.md).  distributed's nanny sets
-#: ``MALLOC_TRIM_THRESHOLD_=65536`` in its workers' environment; with it glibc
-#: stops adapting its mmap threshold, every large array is mapped and unmapped
-#: afresh, and a star costs about 2.4x the CPU of the local pool in page faults.
-#: ``None`` removes the variable (the nanny skips keys whose value is None).
+#: yourself (see DEVELOPERS.md).  Two things made a star cost more CPU on a
+#: Dask worker than in the local pool (``benchmarks/bench_dask.py``):
+#:
+#: * distributed's nanny sets ``MALLOC_TRIM_THRESHOLD_=65536`` in its workers'
+#:   environment; with it glibc stops adapting its mmap threshold, every large
+#:   array is mapped and unmapped afresh, and a star cost about 2.4x the local
+#:   pool's CPU in page faults.  ``None`` removes the variable (the nanny skips
+#:   keys whose value is None).
+#: * the worker's background samplers: the statistical profiler walks the
+#:   running task's Python stack every 10 ms, and the system and memory
+#:   monitors poll every 0.5 s and 0.1 s.  With the variable removed, a star
+#:   still cost 1.86x the pool's marginal CPU; with the profiler off and the
+#:   monitors polling every few seconds, 0.94x (128 stars, 2 workers, one run).
+#:   The memory monitor still runs (every 2 s), so a worker past its memory
+#:   limit is still paused or restarted.
 DASK_WORKER_CONFIG: dict[str, Any] = {
     "distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
+    "distributed.worker.profile.enabled": False,
+    "distributed.admin.system-monitor.interval": "5s",
+    "distributed.worker.memory.monitor-interval": "2s",
 }
 
 

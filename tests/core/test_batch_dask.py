@@ -84,7 +84,11 @@ def test_unreachable_scheduler_is_a_clear_error(tmp_path, monkeypatch):
 def _worker_environment():
     import os
 
-    return {name: os.environ.get(name) for name in ("MALLOC_TRIM_THRESHOLD_", "OMP_NUM_THREADS")}
+    import dask
+
+    seen = {name: os.environ.get(name) for name in ("MALLOC_TRIM_THRESHOLD_", "OMP_NUM_THREADS")}
+    seen["profile"] = dask.config.get("distributed.worker.profile.enabled")
+    return seen
 
 
 def test_project_config_keeps_malloc_trim_out_of_worker_processes(monkeypatch):
@@ -114,3 +118,6 @@ def test_project_config_keeps_malloc_trim_out_of_worker_processes(monkeypatch):
     assert seen["default"]["MALLOC_TRIM_THRESHOLD_"] == "65536"  # the check can fail
     assert seen["project"]["MALLOC_TRIM_THRESHOLD_"] is None
     assert seen["project"]["OMP_NUM_THREADS"] == "1"  # the rest of the nanny's set stays
+    # the worker process itself runs without the 10 ms stack sampler
+    assert seen["default"]["profile"] is True
+    assert seen["project"]["profile"] is False
