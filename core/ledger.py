@@ -59,7 +59,7 @@ from contextlib import contextmanager
 from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -76,6 +76,7 @@ __all__ = [
     "StoredResult",
     "Verdict",
     "StarRow",
+    "PointRow",
     "HistoryEntry",
     "Action",
     "Change",
@@ -86,7 +87,7 @@ __all__ = [
 ]
 
 #: Version of the table layout written by this Phasewise.
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 
 #: Page size of new ledgers (older files keep theirs).
 PAGE_SIZE = 8192
@@ -203,6 +204,19 @@ class StarRow:
     period_err: float | None = None  # of the analysis period
     mean_mag: float | None = None  # in the primary band
     primary_band: str | None = None
+
+
+class PointRow(NamedTuple):
+    """What the population diagrams read of one star (``Ledger.point_rows``)."""
+
+    star_id: str
+    status: str
+    class_code: str | None
+    period: float | None  # the verdict's period, when the person chose one
+    has_final: bool  # the verdict has final numbers stored
+    analysed: bool  # a result is stored and it did not fail
+    result_point: dict[str, Any] | None  # core.diagrams.result_point_record of the result
+    final_point: dict[str, Any] | None  # core.diagrams.final_point_record of the final numbers
 
 
 @dataclass(frozen=True)
@@ -405,9 +419,65 @@ def _migrate_2_to_3(conn: sqlite3.Connection) -> None:
 
 
 #: Migration steps: ``MIGRATIONS[v]`` turns a version-``v`` file into ``v + 1``.
+# Version 4: the population diagrams' numbers of each result and of each
+# verdict's final numbers, a few hundred bytes per star in their own table, so
+# that drawing 10^5 stars never decodes a full result.  They are derived from
+# the sealed records (``core.diagrams.result_point_record`` and
+# ``final_point_record``), written in the same transaction, and compared with
+# them by ``ledger check``.
+def _migrate_3_to_4(conn: sqlite3.Connection) -> None:
+    conn.execute(_POINTS_TABLE)
+    codec = _Codec(conn)
+    for star, codec_id, data in conn.execute(
+        "SELECT r.star, d.codec, d.data FROM results r JOIN result_data d ON d.star = r.star "
+        "WHERE NOT r.failed"
+    ).fetchall():
+        try:
+            record = _result_point(json.loads(codec.unpack(codec_id, data)))
+        except ValueError:
+            record = None  # a damaged record: ledger check reports it; the view reads it alone
+        conn.execute("INSERT INTO points(star, result_point) VALUES (?, ?)", (star, record))
+    for star, codec_id, data in conn.execute("SELECT star, codec, data FROM finals").fetchall():
+        try:
+            record = _final_point(json.loads(codec.unpack(codec_id, data)))
+        except ValueError:
+            record = None
+        conn.execute(
+            "INSERT INTO points(star, final_point) VALUES (?, ?) "
+            "ON CONFLICT(star) DO UPDATE SET final_point = excluded.final_point",
+            (star, record),
+        )
+
+
+_POINTS_TABLE = """
+CREATE TABLE points (
+    star INTEGER PRIMARY KEY REFERENCES stars(id),
+    result_point TEXT, final_point TEXT
+)"""
+
+
+def _result_point(result: Mapping[str, Any] | None) -> str | None:
+    """The stored diagram record of a result (None for no result)."""
+    if result is None:
+        return None
+    from .diagrams import result_point_record
+
+    return _dumps(result_point_record(result))
+
+
+def _final_point(final: Mapping[str, Any] | None) -> str | None:
+    """The stored diagram record of a verdict's final numbers (None for none)."""
+    if not final:
+        return None
+    from .diagrams import final_point_record
+
+    return _dumps(final_point_record(final))
+
+
 MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
     1: _migrate_1_to_2,
     2: _migrate_2_to_3,
+    3: _migrate_3_to_4,
 }
 
 _SUM_MODULUS = 1 << 256
@@ -1266,7 +1336,7 @@ class Ledger:
             tx.star_ids = [str(item[0]) for item in items]
             for star_id, settings_hash, result in items:
                 values = (str(settings_hash), now, 0, 0, *_summary(result), None, None)
-                self._put_result(self._key(star_id), values, _dumps(result))
+                self._put_result(self._key(star_id), values, _dumps(result), _result_point(result))
         return len(items)
 
     def store_failures(self, items: Iterable[tuple[str, ...]]) -> int:
@@ -1293,7 +1363,9 @@ class Ledger:
         """Record that the analysis of a star failed, with its message."""
         self.store_failures([(star_id, settings_hash, message, detail)])
 
-    def _put_result(self, key: int, values: tuple[Any, ...], text: str | None) -> None:
+    def _put_result(
+        self, key: int, values: tuple[Any, ...], text: str | None, point: str | None = None
+    ) -> None:
         old = self._query("SELECT seal FROM results WHERE star = ?", (key,)).fetchone()
         seal = _seal(key, *values, text)
         self._query(
@@ -1308,7 +1380,15 @@ class Ledger:
                 "INSERT OR REPLACE INTO result_data(star, codec, data) VALUES (?, ?, ?)",
                 (key, *self._codec.pack(text)),
             )
+        self._put_point(key, "result_point", point)
         self._account("results", key, None if old is None else old[0], seal)
+
+    def _put_point(self, key: int, column: str, record: str | None) -> None:
+        self._query(
+            f"INSERT INTO points(star, {column}) VALUES (?, ?) "
+            f"ON CONFLICT(star) DO UPDATE SET {column} = excluded.{column}",
+            (key, record),
+        )
 
     def _result_record(self, key: int) -> tuple[tuple[Any, ...], str | None, bool] | None:
         """``(values, result_text, intact)`` of a stored result, or None."""
@@ -1605,6 +1685,8 @@ class Ledger:
                 "INSERT OR REPLACE INTO finals(star, codec, data) VALUES (?, ?, ?)",
                 (key, *self._codec.pack(text)),
             )
+        if text is not None or not new:
+            self._put_point(key, "final_point", _final_point(verdict.final))
         self._account("verdicts", key, old, seal)
 
     def status_counts(self) -> dict[str, int]:
@@ -1618,6 +1700,34 @@ class Ledger:
     def star_rows(self) -> list[StarRow]:
         """Every star's list line, in import order, from one query."""
         return self._star_rows("", ())
+
+    def point_rows(self) -> list[PointRow]:
+        """Every star's diagram records and verdict, in import order, from one query.
+
+        The records are derived from the sealed result and final numbers
+        when those are written (``ledger check`` compares them); a star
+        whose result failed or was never made has ``analysed=False``.
+        """
+        rows = self._query(
+            "SELECT s.star_id, v.status, v.class_code, v.period, f.star IS NOT NULL, "
+            "r.star IS NOT NULL AND NOT r.failed, p.result_point, p.final_point "
+            "FROM stars s JOIN verdicts v ON v.star = s.id "
+            "LEFT JOIN results r ON r.star = s.id LEFT JOIN finals f ON f.star = s.id "
+            "LEFT JOIN points p ON p.star = s.id ORDER BY s.id"
+        ).fetchall()
+        return [
+            PointRow(
+                star_id,
+                status,
+                class_code,
+                period,
+                bool(has_final),
+                bool(analysed),
+                None if result_point is None else json.loads(result_point),
+                None if final_point is None else json.loads(final_point),
+            )
+            for star_id, status, class_code, period, has_final, analysed, result_point, final_point in rows
+        ]
 
     def star_row(self, star_id: str) -> StarRow:
         """One star's list line (to refresh a row after a change)."""
@@ -1844,10 +1954,30 @@ class Ledger:
             if _seal(*row[:-1]) != row[-1]:
                 problems.append(Problem(names.get(row[0]), "photometry", "checksum mismatch"))
             total += _share("photometry", row[0], row[-1])
+        points = {
+            key: (result_point, final_point)
+            for key, result_point, final_point in self._conn.execute(
+                "SELECT star, result_point, final_point FROM points"
+            )
+        }
+
+        def check_point(key: int, which: int, expected: str | None) -> None:
+            if points.get(key, (None, None))[which] != expected:
+                problems.append(
+                    Problem(
+                        names.get(key),
+                        "points",
+                        "the diagrams' record does not match the "
+                        + ("result" if which == 0 else "verdict's final numbers"),
+                    )
+                )
+
         for (key,) in self._conn.execute("SELECT star FROM results"):
-            values_text_intact = self._result_record(key)
-            if not values_text_intact[2]:
+            values, text, intact = self._result_record(key)
+            if not intact:
                 problems.append(Problem(names.get(key), "result", "checksum mismatch"))
+            elif not values[2]:  # not failed
+                check_point(key, 0, _result_point(_loads(text)))
             seal = self._conn.execute("SELECT seal FROM results WHERE star = ?", (key,))
             total += _share("results", key, seal.fetchone()[0])
         verdict_keys = set()
@@ -1855,9 +1985,11 @@ class Ledger:
             verdict_keys.add(key)
             total += _share("verdicts", key, seal)
             try:
-                self._verdicts("WHERE v.star = ?", (key,))
+                (verdict,) = self._verdicts("WHERE v.star = ?", (key,))
             except LedgerError:
                 problems.append(Problem(names.get(key), "verdict", "checksum mismatch"))
+            else:
+                check_point(key, 1, _final_point(verdict.final))
         for key in sorted(keys - verdict_keys):
             problems.append(Problem(names.get(key), "verdict", "missing"))
         for row in self._conn.execute(
@@ -1886,7 +2018,7 @@ class Problem:
     """One thing :meth:`Ledger.check` found wrong."""
 
     star_id: str | None  # the star concerned, if any
-    record: str  # file, photometry, result, verdict, history, meta, content
+    record: str  # file, photometry, result, points, verdict, history, meta, content
     detail: str
 
     def describe(self) -> str:

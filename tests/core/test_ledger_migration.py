@@ -1,4 +1,4 @@
-"""The one migration to schema version 3, from a ledger the version-2 code wrote.
+"""The migrations to schema versions 3 and 4, from a ledger the version-2 code wrote.
 
 ``data/schema_v2.ledger.sqlite`` was made by the code of commit d3e22f6 (schema
 version 2): six stars of ``make_survey(n_stars=6, seed=2026)``, five analysed
@@ -59,7 +59,7 @@ def _same_json(a, b):
 
 
 def test_fixture_is_a_version_2_ledger():
-    assert _raw(FIXTURE)["version"] == 2 and SCHEMA_VERSION == 3
+    assert _raw(FIXTURE)["version"] == 2 and SCHEMA_VERSION == 4
 
 
 def test_version_2_ledger_migrates_and_keeps_everything(v2):
@@ -173,20 +173,21 @@ def test_version_1_ledger_takes_both_steps(v2):
 
 def test_migration_registry_runs_every_step(v2, monkeypatch):
     calls = []
+    later = SCHEMA_VERSION + 1
 
-    def step_3_to_4(conn):
-        calls.append(3)
+    def step_to_later(conn):
+        calls.append(SCHEMA_VERSION)
         conn.execute("CREATE TABLE extra (x INTEGER)")
 
-    monkeypatch.setattr(ledger_module, "SCHEMA_VERSION", 4)
-    monkeypatch.setitem(ledger_module.MIGRATIONS, 3, step_3_to_4)
+    monkeypatch.setattr(ledger_module, "SCHEMA_VERSION", later)
+    monkeypatch.setitem(ledger_module.MIGRATIONS, SCHEMA_VERSION, step_to_later)
     with Ledger.open(v2) as upgraded:
         assert upgraded.n_stars == 6
     conn = sqlite3.connect(v2)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == 4
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == later
     assert conn.execute("SELECT COUNT(*) FROM extra").fetchone()[0] == 0
     conn.close()
-    assert calls == [3]
+    assert calls == [SCHEMA_VERSION]
 
 
 def test_results_are_stored_compactly(v2):
