@@ -34,6 +34,7 @@ from typing import Any
 import numpy as np
 
 from . import physics
+from .physics.derive import FEATURES_READ
 from .classes import CLASSES
 from .errors import PhasewiseError
 from .results import FourierTerms, StarResult
@@ -282,7 +283,12 @@ def result_point_record(
         "shorter_period": shorter,
         "longer_period": longer,
         "primary_band": model.primary_band,
-        "features": _features(model, period, amplitudes, means),
+        # only what core.physics.derive reads: a survey's records stay small
+        "features": {
+            k: v
+            for k, v in _features(model, period, amplitudes, means).items()
+            if k in FEATURES_READ
+        },
     }
 
 

@@ -31,7 +31,13 @@ from .relations import (
     sine_to_cosine_phi31,
 )
 
-__all__ = ["PhysicsSettings", "PhysicalValue", "derive"]
+__all__ = ["PhysicsSettings", "PhysicalValue", "derive", "FEATURES_READ"]
+
+#: The features :func:`derive` reads (each with its ``_err``, and the primary
+#: band); the ledger keeps only these for the population's field summary.
+#: ``tests/core/test_physics_derive.py`` checks that nothing else matters.
+_MEASURED = ("period", "phi31", "A1", "A3", "mean_mag_V", "mean_mag_I")
+FEATURES_READ = frozenset((*_MEASURED, *(f"{n}_err" for n in _MEASURED), "primary_band"))
 
 METALLICITY_SCALES = ("ZW", "C09")
 RR_MV_RELATIONS = ("chaboyer99_mv", "cc03_mv")

@@ -212,3 +212,27 @@ def test_summary_is_plain_json():
     ]
     data = population_summary(stars).to_dict()
     assert json.loads(json.dumps(data))["mean_rrab_period"] == pytest.approx(0.565)
+
+
+def test_derive_reads_only_the_declared_features():
+    # seeded stars analysed by core.analysis; every feature derive does not
+    # declare is replaced by a value that would change any relation reading it
+    from phasewise.core.analysis import AnalysisSettings, analyse
+    from phasewise.core.classes import CLASSES
+    from phasewise.core.classify import FEATURES
+    from phasewise.core.physics.derive import FEATURES_READ
+    from phasewise.core.results import StarResult
+    from phasewise.core.synthetic import make_survey
+
+    compared = 0
+    for lc in make_survey(6, seed=11).lightcurves:
+        result = StarResult.from_dict(analyse(lc, AnalysisSettings()).to_dict())
+        features = {**result.feature_map, "primary_band": result.primary_band}
+        junk = {name: 0.123 for name in FEATURES}
+        junk.update({k: (v if k in FEATURES_READ else 0.123) for k, v in features.items()})
+        for code in CLASSES:
+            full = [v.to_dict() for v in derive(code, features)]
+            declared = [v.to_dict() for v in derive(code, junk)]
+            assert declared == full, code
+            compared += len(full)
+    assert compared > 20  # relations really ran
