@@ -1701,33 +1701,39 @@ class Ledger:
         """Every star's list line, in import order, from one query."""
         return self._star_rows("", ())
 
-    def point_rows(self) -> list[PointRow]:
-        """Every star's diagram records and verdict, in import order, from one query.
+    def point_rows(self, chunk: int = 5000) -> Iterator[PointRow]:
+        """Every star's diagram records and verdict, in import order.
 
-        The records are derived from the sealed result and final numbers
-        when those are written (``ledger check`` compares them); a star
-        whose result failed or was never made has ``analysed=False``.
+        Read ``chunk`` stars per query, so that only one chunk's records are
+        held besides what the caller keeps.  The records are derived from the
+        sealed result and final numbers when those are written (``ledger
+        check`` compares them); a star whose result failed or was never made
+        has ``analysed=False``.
         """
-        rows = self._query(
-            "SELECT s.star_id, v.status, v.class_code, v.period, f.star IS NOT NULL, "
-            "r.star IS NOT NULL AND NOT r.failed, p.result_point, p.final_point "
-            "FROM stars s JOIN verdicts v ON v.star = s.id "
-            "LEFT JOIN results r ON r.star = s.id LEFT JOIN finals f ON f.star = s.id "
-            "LEFT JOIN points p ON p.star = s.id ORDER BY s.id"
-        ).fetchall()
-        return [
-            PointRow(
-                star_id,
-                status,
-                class_code,
-                period,
-                bool(has_final),
-                bool(analysed),
-                None if result_point is None else json.loads(result_point),
-                None if final_point is None else json.loads(final_point),
-            )
-            for star_id, status, class_code, period, has_final, analysed, result_point, final_point in rows
-        ]
+        last = 0  # star keys are SQLite rowids, from 1
+        while True:
+            rows = self._query(
+                "SELECT s.id, s.star_id, v.status, v.class_code, v.period, f.star IS NOT NULL, "
+                "r.star IS NOT NULL AND NOT r.failed, p.result_point, p.final_point "
+                "FROM stars s JOIN verdicts v ON v.star = s.id "
+                "LEFT JOIN results r ON r.star = s.id LEFT JOIN finals f ON f.star = s.id "
+                "LEFT JOIN points p ON p.star = s.id WHERE s.id > ? ORDER BY s.id LIMIT ?",
+                (last, int(chunk)),
+            ).fetchall()
+            if not rows:
+                return
+            last = rows[-1][0]
+            for _, star_id, status, code, period, has_final, analysed, point, final in rows:
+                yield PointRow(
+                    star_id,
+                    status,
+                    code,
+                    period,
+                    bool(has_final),
+                    bool(analysed),
+                    None if point is None else json.loads(point),
+                    None if final is None else json.loads(final),
+                )
 
     def star_row(self, star_id: str) -> StarRow:
         """One star's list line (to refresh a row after a change)."""
