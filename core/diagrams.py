@@ -34,9 +34,9 @@ from typing import Any
 import numpy as np
 
 from . import physics
-from .physics.derive import FEATURES_READ
 from .classes import CLASSES
 from .errors import PhasewiseError
+from .physics.derive import FEATURES_READ
 from .results import FourierTerms, StarResult
 from .validation import require_int, require_positive
 

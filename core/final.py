@@ -808,18 +808,10 @@ def finalise_stars(
         if only_stale and not finaliser.stale(verdict):
             continue
         final = finaliser.final(verdict.star_id, verdict.status, verdict.class_code, verdict.period)
-        items.append(
-            (
-                verdict.star_id,
-                verdict.status,
-                verdict.class_code,
-                verdict.period,
-                verdict.note,
-                final,
-            )
-        )
+        items.append((verdict.star_id, final))
     if items:
-        ledger.set_verdicts(items, label=f"final numbers of {len(items)} verdict(s) recomputed")
+        # new numbers for the same decision: the verdict's time stays the person's
+        ledger.set_finals(items, label=f"final numbers of {len(items)} verdict(s) recomputed")
     return len(items)
 
 

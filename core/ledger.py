@@ -56,7 +56,7 @@ import uuid
 import zlib
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, NamedTuple
@@ -1618,6 +1618,34 @@ class Ledger:
                 self._apply_verdict(verdict)
                 self._log(action, verdict.star_id, "verdict", old.to_dict(), verdict.to_dict())
         return checked
+
+    def set_finals(
+        self, items: Iterable[tuple[str, Mapping[str, Any] | None]], *, label: str | None = None
+    ) -> list[Verdict]:
+        """Replace the final numbers of verdicts, keeping the decisions, as one action.
+
+        ``items`` are ``(star_id, final)``.  Status, class, period, note and
+        the time of the decision stay as the person left them (new numbers
+        after a re-analysis are not a new decision); undo restores the old
+        numbers.
+        """
+        items = [(str(s), f) for s, f in items]
+        if not items:
+            return []
+        with self._mutex, self._write("verdict") as tx:
+            tx.star_ids = [s for s, _ in items]
+            action = self._new_action("do", label or f"final numbers of {len(items)} verdict(s)")
+            out = []
+            for star_id, final in items:
+                old = self.verdict(star_id)
+                checked = self._checked_verdict(
+                    star_id, old.status, old.class_code, old.period, old.note, final
+                )
+                new = replace(checked, decided_at=old.decided_at)
+                self._apply_verdict(new)
+                self._log(action, star_id, "verdict", old.to_dict(), new.to_dict())
+                out.append(new)
+        return out
 
     def _checked_verdict(
         self,

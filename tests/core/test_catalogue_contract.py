@@ -254,8 +254,21 @@ def test_finalise_after_reanalysis(field):
     changed = {**stored, "outlier_times": [*stored.get("outlier_times", []), -1.0]}
     ledger.store_results([(star, stored["settings_hash"], changed)])
     # what 'phasewise analyse' does after a run: the numbers follow the new result
+    decided = ledger.verdict(star)
     assert finalise_stars(ledger, [star]) == 1
-    assert ledger.verdict(star).final["result_key"] == result_key(changed)
+    refreshed = ledger.verdict(star)
+    assert refreshed.final["result_key"] == result_key(changed)
+    # new numbers are not a new decision: the decision and its time stay
+    assert refreshed.decided_at == decided.decided_at
+    assert (refreshed.status, refreshed.class_code, refreshed.period, refreshed.note) == (
+        decided.status,
+        decided.class_code,
+        decided.period,
+        decided.note,
+    )
+    ledger.undo()
+    assert ledger.verdict(star) == decided  # and undo brings the old numbers back
+    ledger.redo()
     assert finalise_stars(ledger, [star]) == 0
     assert "earlier analysis" not in _rows(ledger)[star]["flags"]
 
