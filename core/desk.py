@@ -9,8 +9,9 @@ policy: which class and which period a verdict records.
 The ledger is the one source of change events.  The model subscribes to
 :meth:`Ledger.subscribe` and turns each committed :class:`~core.ledger.Change`
 into events of its own, whoever made the write (this desk, a re-analysis, an
-undo), so nothing shown is ever stale.  Events are delivered in the thread
-that made the write; the desk writes from its GUI thread only.
+undo), so nothing shown is ever stale.  A change is handled through the
+model's ``dispatch`` (default: at once, in the thread that wrote); a GUI
+passes one that runs it in its own thread, where its widgets live.
 
 Events (``model.subscribe(name, callback)``)
 --------------------------------------------
@@ -104,9 +105,15 @@ class DeskModel:
     ----------
     ledger : DeskLedger, optional
         The ledger to vet (see :meth:`set_ledger`).
+    dispatch : callable, optional
+        ``dispatch(fn)`` runs ``fn()`` where the listeners live; the ledger's
+        change events go through it (default: run at once).
     """
 
-    def __init__(self, ledger: DeskLedger | None = None) -> None:
+    def __init__(
+        self, ledger: DeskLedger | None = None, dispatch: Callable[[Callable], None] | None = None
+    ) -> None:
+        self.dispatch = dispatch or (lambda fn: fn())
         self.session = VettingSession()
         self.ledger: DeskLedger | None = None
         self.settings = None  # the ledger's analysis settings, loaded lazily
@@ -155,7 +162,9 @@ class DeskModel:
         self.star_id, self.data, self.verdict = None, None, None
         self.clear_caches()
         if ledger is not None:
-            self._unsubscribe = ledger.subscribe(self._ledger_changed)
+            self._unsubscribe = ledger.subscribe(
+                lambda change, ledger=ledger: self.dispatch(lambda: self._apply(ledger, change))
+            )
         self._emit("ledger")
         self._emit("history")
 
@@ -470,6 +479,10 @@ class DeskModel:
             self._ledger_changed(Change("results", tuple(analysed)))
 
     # -------------------------------------------------------------- changes
+    def _apply(self, ledger, change) -> None:
+        if ledger is self.ledger:  # not one closed while the change was on its way
+            self._ledger_changed(change)
+
     def _ledger_changed(self, change) -> None:
         ids = tuple(change.star_ids)
         everything = change.what == "import" or (not ids and change.what in _DATA_CHANGES)

@@ -32,15 +32,15 @@ class FoldView(pg.GraphicsLayoutWidget):
     """One folded curve over phase 0–2 with its residuals below.
 
     Draws :class:`phasewise.core.folding.FoldModel` (the analysis's model at
-    the trial period, from ``services.fold_model``): points used by the fit
+    the trial period, from the desk model's ``fold_model``): points used by the fit
     coloured by time, points the analysis set aside as red open circles,
     points excluded by the user as grey crosses.  Items are created once and
     updated with ``setData``.
     """
 
-    def __init__(self, services, title: str = "", parent=None) -> None:
+    def __init__(self, desk, title: str = "", parent=None) -> None:
         super().__init__(parent)
-        self.services = services
+        self.desk = desk
         self.ci.layout.setSpacing(2)
         self.ci.setContentsMargins(2, 2, 6, 2)
         self.fold = self.addPlot(row=0, col=0)
@@ -142,7 +142,9 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.show_errors = bool(on)
         self._draw_errors()
 
-    def clear(self) -> None:
+    def clear_fold(self) -> None:
+        """Nothing folded.  (Not ``clear``: pyqtgraph binds the layout's ``clear``, which
+        removes the plots, to that name on every GraphicsLayoutWidget.)"""
         self.model = None
         self._drawn = None
         for s in self.bins:
@@ -158,13 +160,13 @@ class FoldView(pg.GraphicsLayoutWidget):
         """Fold at ``period`` and draw the core model there."""
         lc = self.lc
         if lc is None or self.band is None or period is None or period <= 0:
-            self.clear()
+            self.clear_fold()
             return
         key = (float(period), id(lc), self.band, id(self.settings), self.eclipsing)
         if self._drawn == key:
             return  # nothing moved (the other fold's period did)
         try:
-            model = self.services.fold_model(
+            model = self.desk.fold_model(
                 lc,
                 float(period),
                 self.settings,
@@ -173,7 +175,7 @@ class FoldView(pg.GraphicsLayoutWidget):
                 self.result,
             )
         except PhasewiseError as exc:
-            self.clear()
+            self.clear_fold()
             self._set_title(f"{self.title}no fold: {exc}")
             return
         self._drawn = key
@@ -255,10 +257,11 @@ class FoldPanel(QWidget):
     action = Signal(str)
     bandChanged = Signal(str)
 
-    def __init__(self, services, parent=None) -> None:
+    def __init__(self, desk, parent=None) -> None:
         super().__init__(parent)
-        self.main = FoldView(services, "")
-        self.alt = FoldView(services, "Compare: ")
+        self.desk = desk
+        self.main = FoldView(desk, "")
+        self.alt = FoldView(desk, "Compare: ")
         self.spin = QDoubleSpinBox()
         self.spin.setDecimals(8)
         self.spin.setRange(1e-4, 1e5)
@@ -319,6 +322,46 @@ class FoldPanel(QWidget):
             lambda _i: self.bandChanged.emit(self.band_box.currentText())
         )
         self._updating = False
+        session = desk.session
+        self.periodEntered.connect(lambda p: session.set_period(p, "entry"))
+        self.action.connect(
+            lambda key: {
+                "halve": session.halve,
+                "double": session.double,
+                "prev": lambda: session.cycle_candidate(-1),
+                "next": lambda: session.cycle_candidate(+1),
+                "reset": session.reset_period,
+                "use_alternative": desk.use_alternative,
+            }[key]()
+        )
+        self.bandChanged.connect(lambda _band: self.redraw())
+        desk.subscribe("star", self._star_shown)
+        # the mask, the settings or the class (epoch kind) changed: same star, same period
+        desk.subscribe("lightcurve", lambda _id: self.redraw())
+        desk.subscribe("settings", self.redraw)
+        desk.subscribe("verdict", lambda sid: self.redraw() if sid == desk.star_id else None)
+        session.subscribe("period", lambda _p, _source: self.show_trial())
+
+    # ------------------------------------------------------ the desk model
+    def _star_shown(self, _star_id: str) -> None:
+        bands = list(self.desk.lc.bands) if self.desk.lc is not None else []
+        self.set_bands(bands, self.desk.primary_band())
+        self.redraw()
+
+    def redraw(self) -> None:
+        """Fold the desk's current star in the chosen band at the trial period."""
+        desk = self.desk
+        band = self.band_box.currentText() or None
+        if desk.lc is None or band is None:
+            self.set_star(None, None)
+        else:
+            self.set_star(desk.lc, band, desk.settings, desk.eclipsing(), desk.result)
+        self.show_trial()
+
+    def show_trial(self) -> None:
+        desk = self.desk
+        self.show_period(desk.session.period, desk.session.step(), desk.result.get("epoch_max"))
+        self.show_alternative(desk.alternative_period())
 
     def set_bands(self, bands, current: str | None) -> None:
         self.band_box.blockSignals(True)

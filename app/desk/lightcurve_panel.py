@@ -27,8 +27,9 @@ class LightCurvePanel(QWidget):
 
     exclusionRequested = Signal(object, bool)
 
-    def __init__(self, parent=None) -> None:
+    def __init__(self, desk=None, parent=None) -> None:
         super().__init__(parent)
+        self.desk = desk
         self.plot = make_plot(select=True)
         self.vb = self.plot.getPlotItem().getViewBox()
         self.vb.invertY(True)
@@ -88,6 +89,17 @@ class LightCurvePanel(QWidget):
         self.lc = None
         self.t0 = 0.0
         set_labels(self.plot, "Time (d)", "Magnitude (mag)")
+        if desk is not None:
+            desk.subscribe("star", lambda _id: self.set_lightcurve(desk.lc))
+            desk.subscribe("lightcurve", lambda _id: self.set_lightcurve(desk.lc))
+            desk.subscribe("ledger", self._ledger_shown)
+
+    def _ledger_shown(self) -> None:
+        writable = not self.desk.read_only
+        self.select_box.setEnabled(writable)
+        self.lasso_box.setEnabled(writable)
+        if self.desk.ledger is None:
+            self.set_lightcurve(None)
 
     # ------------------------------------------------------------- drawing
     def set_lightcurve(self, lc) -> None:

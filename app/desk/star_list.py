@@ -27,6 +27,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from phasewise.core.ledger import StarRow
+
 from .style import STATUS_COLOURS, fmt, fmt_period
 
 __all__ = [
@@ -68,6 +70,8 @@ VISUAL_ORDER = (
 #: The longest star id the list shows whole at its default width (13 digits).
 ID_SAMPLE = "0000000000000"
 CELL_PADDING_PX = 14
+#: Above this many changed stars the whole list is read again (one query).
+ROW_REFRESH_LIMIT = 200
 SORT_ARROW_PX = 10
 _ALIASES = {
     "star_id": ("star_id", "id"),
@@ -85,7 +89,7 @@ _ALIASES = {
 
 def row_values(row) -> list:
     """The list of :data:`FIELDS` (+ stale) of one ledger star row."""
-    if hasattr(row, "suggested_period") and hasattr(row, "analysed"):  # core.ledger.StarRow
+    if isinstance(row, StarRow):
         flags = ",".join(row.flags) if row.flags else ""
         if row.failed:
             flags = "failed," + flags if flags else "failed"
@@ -336,8 +340,9 @@ class StarListWidget(QWidget):
     #: Enter or Escape in the filter box: the typing is done, the keys go back to vetting.
     filterDone = Signal()
 
-    def __init__(self, parent=None) -> None:
+    def __init__(self, desk=None, parent=None) -> None:
         super().__init__(parent)
+        self.desk = desk
         self.model = StarTableModel(self)
         self.proxy = StarFilterProxy(self)
         self.proxy.setSourceModel(self.model)
@@ -389,6 +394,29 @@ class StarListWidget(QWidget):
         self.status_box.currentIndexChanged.connect(self._status_changed)
         self.view.selectionModel().currentRowChanged.connect(self._row_changed)
         self._sort_order = {}
+        if desk is not None:
+            desk.subscribe("ledger", self.reload)
+            desk.subscribe("rows", self.rows_changed)
+            desk.subscribe("star", self.model.set_current)
+
+    # ------------------------------------------------------ the desk model
+    def reload(self) -> None:
+        """Every line again from the ledger (the current star kept in view)."""
+        ledger = self.desk.ledger
+        self.set_rows(ledger.star_rows() if ledger is not None else [])
+        current = self.desk.star_id
+        if current:
+            self.model.set_current(current)
+            self.scroll_to(current)
+
+    def rows_changed(self, star_ids) -> None:
+        """Lines to re-read after a ledger change (all of them for an empty tuple)."""
+        if not star_ids or len(star_ids) > ROW_REFRESH_LIMIT:
+            self.reload()
+            return
+        for star_id in star_ids:
+            self.model.replace_row(self.desk.ledger.star_row(star_id))
+        self.update_counts()
 
     def _set_column_widths(self) -> None:
         """Columns as wide as their header or a typical value, ids of 13 digits whole."""
