@@ -455,9 +455,7 @@ class DeskModel:
         from .ledger import Ledger
 
         self.ledger.close()
-        self.set_ledger(Ledger.open(path, readonly=True))
-        if current:
-            self.load_star(current)
+        self._reopen(Ledger.open(path, readonly=True), current, settings)
         return path, todo
 
     def take_back(self, path, analysed: Sequence[str]) -> None:
@@ -469,14 +467,20 @@ class DeskModel:
         """
         from .ledger import Change, Ledger
 
-        current = self.star_id
+        current, settings = self.star_id, self.settings
         if self.ledger is not None:
             self.ledger.close()
-        self.set_ledger(Ledger.open(path))
-        if current:
-            self.load_star(current)
+        self._reopen(Ledger.open(path), current, settings)
         if analysed:
             self._ledger_changed(Change("results", tuple(analysed)))
+
+    def _reopen(self, ledger, star_id: str | None, settings) -> None:
+        """The same ledger file through another connection: same star, same settings."""
+        self.set_ledger(ledger)
+        if settings is not None:
+            self.use_settings(settings)
+        if star_id:
+            self.load_star(star_id)
 
     # -------------------------------------------------------------- changes
     def _apply(self, ledger, change) -> None:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QByteArray, QSettings, Qt, QTimer, Signal
+from PySide6.QtCore import QSettings, Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QApplication,
     QDockWidget,
@@ -26,10 +26,11 @@ from phasewise.core.desk import DeskModel
 from phasewise.core.errors import LedgerError, PhasewiseError
 
 from .actions import SPECS, build_actions, build_menus, build_toolbar
-from .dialogs import AnalysisSettingsDialog, ClassPicker, ShortcutSheet
+from .dialogs import AnalysisSettingsDialog, ClassPicker, ShortcutSheet, show_about
 from .files import FileCommands
 from .fold_panel import FoldPanel
 from .icons import icon
+from .layout import default_sizes, restore_layout, save_layout
 from .lightcurve_panel import LightCurvePanel
 from .periodogram_panel import PeriodogramPanel
 from .reanalysis import Reanalysis
@@ -107,7 +108,7 @@ class MainWindow(QMainWindow):
         self._connect()
         self.statusBar().showMessage("Open a ledger (File ▸ Open ledger) or build one from files.")
         self.resize(1600, 1000)
-        self._layout_restored = self._restore_layout()
+        self._layout_restored = restore_layout(self)
 
     # ================================================================ layout
     def _build_panels(self) -> None:
@@ -447,47 +448,17 @@ class MainWindow(QMainWindow):
         self.shortcut_sheet.show()
 
     def show_about(self) -> None:
-        from phasewise.core import __version__
-
-        QMessageBox.about(
-            self,
-            "About Phasewise",
-            f"<b>Phasewise {__version__}</b><p>Find periods, classify and vet variable-star "
-            "light curves. Suggestions and distances come from published empirical relations "
-            "with known scatter; the astronomer decides.</p>",
-        )
+        show_about(self)
 
     # ============================================================ persistence
     def showEvent(self, event) -> None:
         super().showEvent(event)
         if not self._layout_restored:
             self._layout_restored = True
-            QTimer.singleShot(0, self, self._default_sizes)
-
-    def _default_sizes(self) -> None:
-        width = max(self.main_splitter.width(), self.width() - 8)
-        # the list wide enough for its key columns (tests/app/test_desk_layout.py)
-        self.main_splitter.setSizes([int(0.31 * width), int(0.47 * width), int(0.22 * width)])
-
-    def _restore_layout(self) -> bool:
-        geometry = self.qsettings.value("window/geometry")
-        if isinstance(geometry, QByteArray):
-            self.restoreGeometry(geometry)
-        state = self.qsettings.value("window/state")
-        if isinstance(state, QByteArray):
-            self.restoreState(state)
-        for name, splitter in self.splitters.items():
-            value = self.qsettings.value(f"splitter/{name}")
-            if isinstance(value, QByteArray):
-                splitter.restoreState(value)
-        return isinstance(self.qsettings.value("splitter/main"), QByteArray)
+            QTimer.singleShot(0, self, lambda: default_sizes(self))
 
     def save_layout(self) -> None:
-        self.qsettings.setValue("window/geometry", self.saveGeometry())
-        self.qsettings.setValue("window/state", self.saveState())
-        for name, splitter in self.splitters.items():
-            self.qsettings.setValue(f"splitter/{name}", splitter.saveState())
-        self.qsettings.sync()
+        save_layout(self)
 
     def closeEvent(self, event) -> None:
         self.save_layout()

@@ -6,7 +6,6 @@ pytest.importorskip("pytestqt")
 from PySide6 import QtCore, QtWidgets  # noqa: E402
 
 from phasewise.app.population import VIEW_NAME, attach  # noqa: E402
-
 from phasewise.core.desk import DeskModel  # noqa: E402
 
 from .population_fakes import build_ledger  # noqa: E402
