@@ -352,10 +352,14 @@ class FoldPanel(QWidget):
         """Fold the desk's current star in the chosen band at the trial period."""
         desk = self.desk
         band = self.band_box.currentText() or None
-        if desk.lc is None or band is None:
+        if desk.lc is None or band is None or desk.settings is None:
+            # the model is fitted with the ledger's own settings: it waits for them (and
+            # for the analysis modules, which load in the background after the first star)
             self.set_star(None, None)
-        else:
-            self.set_star(desk.lc, band, desk.settings, desk.eclipsing(), desk.result)
+            self.show_trial()
+            self.main._set_title("loading the analysis…" if desk.lc is not None else "")
+            return
+        self.set_star(desk.lc, band, desk.settings, desk.eclipsing(), desk.result)
         self.show_trial()
 
     def show_trial(self) -> None:

@@ -47,21 +47,6 @@ MIN_TOP_HEIGHT = 180
 MIN_FOLD_HEIGHT = 260
 
 
-def _preload_science() -> None:
-    """Import the core modules the first star needs, in the background.
-
-    They take a good part of a second to import (scipy); a thread started
-    now overlaps that with building the window and reading the ledger.
-    """
-    import threading
-
-    def load() -> None:
-        import phasewise.core.fourier  # noqa: F401
-        import phasewise.core.periodogram  # noqa: F401
-
-    threading.Thread(target=load, name="preload-core", daemon=True).start()
-
-
 class MainWindow(QMainWindow):
     """The vetting desk.
 
@@ -86,7 +71,6 @@ class MainWindow(QMainWindow):
 
     def __init__(self, services: CoreServices | None = None, settings: QSettings | None = None):
         super().__init__()
-        _preload_science()
         configure_pyqtgraph()
         self.services = services or CoreServices()
         self.qsettings = settings or QSettings("Phasewise", "Phasewise")
