@@ -33,6 +33,13 @@ def save_layout(window) -> None:
 
 
 def default_sizes(window) -> None:
-    """First start: the list wide enough for its key columns (tests/app/test_desk_layout.py)."""
-    width = max(window.main_splitter.width(), window.width() - 8)
-    window.main_splitter.setSizes([int(0.31 * width), int(0.47 * width), int(0.22 * width)])
+    """First start: the list wide enough for its key columns (tests/app/test_desk_layout.py),
+    the sheet a fifth, the plots the rest."""
+    splitter = window.main_splitter
+    width = max(splitter.width(), window.width() - 8) - 2 * splitter.handleWidth()
+    listed = min(max(int(0.28 * width), window.star_list.key_columns_width()), int(0.4 * width))
+    sheet = int(0.21 * width)
+    short = window.centre_splitter.minimumSizeHint().width() - (width - listed - sheet)
+    if short > 0:  # a small screen: the sheet gives up its share first (down to its minimum)
+        sheet = max(window.sheet.minimumSizeHint().width(), sheet - short)
+    splitter.setSizes([listed, width - listed - sheet, sheet])

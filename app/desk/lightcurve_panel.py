@@ -70,8 +70,11 @@ class LightCurvePanel(QWidget):
         self.info = QLabel()
         self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         bar = QHBoxLayout()
-        bar.addWidget(QLabel("<b>Light curve</b>"))
-        bar.addStretch(1)
+        heading = QLabel("<b>Light curve</b>")
+        # clipped, not a minimum width: at 1280 px the star list's key columns come first
+        heading.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        heading.setMinimumWidth(0)
+        bar.addWidget(heading, 1)
         bar.addWidget(self.select_box)
         bar.addWidget(self.lasso_box)
         bar.addWidget(self.show_errors)

@@ -28,6 +28,7 @@ from PySide6.QtWidgets import (
 )
 
 from phasewise.core.ledger import StarRow
+from phasewise.core.vetting import NON_PERIODIC_CLASSES
 
 from .style import STATUS_COLOURS, fmt, fmt_period
 
@@ -67,9 +68,11 @@ VISUAL_ORDER = (
     "status",
     "suggested_score",
 )
+#: The columns the list shows whole at its default width, left to right.
+KEY_COLUMNS = VISUAL_ORDER[:7]
 #: The longest star id the list shows whole at its default width (13 digits).
 ID_SAMPLE = "0000000000000"
-CELL_PADDING_PX = 14
+CELL_PADDING_PX = 8
 #: Above this many changed stars the whole list is read again (one query).
 ROW_REFRESH_LIMIT = 200
 SORT_ARROW_PX = 10
@@ -87,6 +90,15 @@ _ALIASES = {
 }
 
 
+def listed_period(row: StarRow) -> float | None:
+    """The period the catalogue would give the star: none for a rejected star or a
+    class without a period (the verdict's class, else the top suggestion's)."""
+    if row.status == "rejected":
+        return None
+    code = row.verdict_class or row.suggested_class
+    return None if code in NON_PERIODIC_CLASSES else row.period
+
+
 def row_values(row) -> list:
     """The list of :data:`FIELDS` (+ stale) of one ledger star row."""
     if isinstance(row, StarRow):
@@ -101,7 +113,7 @@ def row_values(row) -> list:
             row.suggested_class,
             row.suggested_score,
             row.verdict_class,
-            row.period,
+            listed_period(row),
             row.amplitude,
             row.fap,
             flags,
@@ -398,6 +410,16 @@ class StarListWidget(QWidget):
             desk.subscribe("ledger", self.reload)
             desk.subscribe("rows", self.rows_changed)
             desk.subscribe("star", self.model.set_current)
+
+    def key_columns_width(self) -> int:
+        """Width (px) the widget needs to show the key columns (id … flags) whole."""
+        header = self.view.horizontalHeader()
+        last = FIELDS.index(KEY_COLUMNS[-1])
+        inner = header.sectionViewportPosition(last) + header.sectionSize(last)
+        inner += header.offset()  # as if scrolled to the left
+        frame = 2 * self.view.frameWidth() + self.view.verticalScrollBar().sizeHint().width()
+        margins = self.layout().contentsMargins()
+        return inner + frame + margins.left() + margins.right()
 
     # ------------------------------------------------------ the desk model
     def reload(self) -> None:

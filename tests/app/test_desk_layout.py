@@ -61,10 +61,11 @@ def test_candidate_numbers_do_not_overlap(desk, qtbot):
             assert not a.intersects(b), star
 
 
-def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_copy):
+@pytest.mark.parametrize("size", [(1280, 800), (1600, 1000)])
+def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_copy, size):
     window = MainWindow(settings=QSettings(str(tmp_path / "l.ini"), QSettings.Format.IniFormat))
     try:
-        window.resize(1600, 1000)
+        window.resize(*size)
         window.show()
         window.open_ledger(subset_copy)
         qtbot.wait(50)
