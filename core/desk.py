@@ -530,7 +530,8 @@ class StarAnalyser:
         "compiled code); it is recorded as failed"
     )
 
-    def __init__(self) -> None:
+    def __init__(self, analyse_fn: str | None = None) -> None:
+        self.analyse_fn = analyse_fn  # "module:function" (default: core.analysis.analyse)
         self._pool = None
 
     def analyse(self, lc, settings) -> Any:
@@ -547,7 +548,8 @@ class StarAnalyser:
                 1, mp_context=get_context("spawn"), initializer=limit_blas_threads
             )
         try:
-            return self._pool.submit(analyse_chunk, [lc], settings, DEFAULT_ANALYSE).result()[0]
+            fn = self.analyse_fn or DEFAULT_ANALYSE
+            return self._pool.submit(analyse_chunk, [lc], settings, fn).result()[0]
         except BrokenProcessPool as exc:
             self.close()
             return StarOutcome(lc.star_id, error=self.LOST, detail=repr(exc))

@@ -181,3 +181,26 @@ def test_star_analyser_runs_the_batch_worker_function_in_a_process(model):
     assert outcome.star_id == star_id and not outcome.failed
     # the same numbers as in this process (deterministic analysis)
     assert outcome.result["period"] == pytest.approx(model.ledger.result(star_id).result["period"])
+
+
+def abort_in_compiled_code(lc, settings, periodogram=None):
+    """Stands for an analysis that aborts in native code (the worker process dies)."""
+    import os
+
+    os.abort()
+
+
+@pytest.mark.slow
+def test_a_star_that_kills_its_worker_is_recorded_failed_and_the_next_one_runs(model):
+    star_id = model.star_ids()[0]
+    lc = model.ledger.lightcurve(star_id)
+    analyser = StarAnalyser(f"{__name__}:abort_in_compiled_code")
+    try:
+        outcome = analyser.analyse(lc, model.analysis_settings())
+        assert outcome.failed and outcome.error == StarAnalyser.LOST  # this process lives on
+        model.store_outcomes([outcome])
+        assert model.ledger.result(star_id).failed
+        analyser.analyse_fn = None  # the real analysis, in a fresh worker process
+        assert not analyser.analyse(lc, model.analysis_settings()).failed
+    finally:
+        analyser.close()
