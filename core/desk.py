@@ -406,11 +406,18 @@ class DeskModel:
 
     def fold_model(self, lc, period, settings=None, band=None, eclipsing=False, result=None):
         """The analysis model at a trial period (:func:`core.folding.fold_model`), cached."""
+        return self._fold_cache().get(lc, period, settings, band, eclipsing, result)
+
+    def cached_fold_model(self, lc, period, settings=None, band=None, eclipsing=False, result=None):
+        """The model at a trial period if already fitted, else None (fits nothing)."""
+        return self._fold_cache().cached(lc, period, settings, band, eclipsing, result)
+
+    def _fold_cache(self):
         if self._folds is None:
             from .folding import FoldModelCache
 
             self._folds = FoldModelCache()
-        return self._folds.get(lc, period, settings, band, eclipsing, result)
+        return self._folds
 
     def _forget(self, star_ids: Iterable[str], periodograms: bool) -> None:
         for star_id in star_ids:

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
@@ -26,6 +28,8 @@ from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_co
 __all__ = ["FoldView", "FoldPanel"]
 
 SET_ASIDE_COLOUR = "#D62728"
+#: A nudged period is fitted once it rests this long (held keys move the points only).
+FIT_DELAY_MS = 120
 
 
 class FoldView(pg.GraphicsLayoutWidget):
@@ -107,6 +111,11 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.period = None
         self._range_key = None
         self._drawn = None
+        self._pending = None
+        self.fit_timer = QTimer(self)
+        self.fit_timer.setSingleShot(True)
+        self.fit_timer.setInterval(FIT_DELAY_MS)
+        self.fit_timer.timeout.connect(self._fit_pending)
 
     # kept for callers that read these
     @property
@@ -157,29 +166,50 @@ class FoldView(pg.GraphicsLayoutWidget):
         self._set_title(self.title)
 
     def set_period(self, period: float | None, epoch_hint: float | None = None) -> None:
-        """Fold at ``period`` and draw the core model there."""
+        """Fold at ``period`` and draw the core model there.
+
+        A model not fitted yet at a new period of the same star is fitted once
+        the period rests for :data:`FIT_DELAY_MS`: meanwhile the points move at
+        once (folded with the last model's epoch) and the line waits.
+        """
         lc = self.lc
+        self.fit_timer.stop()
         if lc is None or self.band is None or period is None or period <= 0:
             self.clear_fold()
             return
         key = (float(period), id(lc), self.band, id(self.settings), self.eclipsing)
         if self._drawn == key:
             return  # nothing moved (the other fold's period did)
+        args = (lc, float(period), self.settings, self.band, self.eclipsing, self.result)
+        if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
+            if self.desk.cached_fold_model(*args) is None:
+                self._draw(_points_only(self.model, float(period)))
+                self._pending = key
+                self.fit_timer.start()
+                return
+        self._fit(key, args)
+
+    @property
+    def busy(self) -> bool:
+        """A model is waiting to be fitted."""
+        return self.fit_timer.isActive()
+
+    def _fit_pending(self) -> None:
+        key = self._pending
+        if key is not None and key[1] == id(self.lc):
+            args = (self.lc, key[0], self.settings, self.band, self.eclipsing, self.result)
+            self._fit(key, args)
+
+    def _fit(self, key, args) -> None:
+        self._pending = None
         try:
-            model = self.desk.fold_model(
-                lc,
-                float(period),
-                self.settings,
-                self.band,
-                self.eclipsing,
-                self.result,
-            )
+            model = self.desk.fold_model(*args)
         except PhasewiseError as exc:
             self.clear_fold()
             self._set_title(f"{self.title}no fold: {exc}")
             return
         self._drawn = key
-        self.period = float(period)
+        self.period = key[0]
         self.model = model
         self._draw(model)
 
@@ -238,6 +268,19 @@ class FoldView(pg.GraphicsLayoutWidget):
             s = max(abs(r[0]), abs(r[1]), 1e-3)
             self.resid.setYRange(-s, s, padding=0)
         self.resid.getViewBox().disableAutoRange()
+
+
+def _points_only(model, period: float):
+    """``model``'s points folded at another period, with no line yet (being fitted)."""
+    return replace(
+        model,
+        period=period,
+        model_grid=np.empty(0),
+        phase_grid=np.empty(0),
+        residual=np.full(model.mag.shape, np.nan),
+        rms=None,
+        order=None,
+    )
 
 
 class FoldPanel(QWidget):
@@ -382,6 +425,11 @@ class FoldPanel(QWidget):
     def set_errors_visible(self, on: bool) -> None:
         self.main.set_errors_visible(on)
         self.alt.set_errors_visible(on)
+
+    @property
+    def busy(self) -> bool:
+        """A fold waits to fit its model (the period is still moving)."""
+        return self.main.busy or self.alt.busy
 
     def show_period(self, period: float | None, step: float, epoch_hint=None) -> None:
         self._updating = True

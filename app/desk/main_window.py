@@ -460,7 +460,7 @@ class MainWindow(QMainWindow):
         app = QApplication.instance()
         while time.monotonic() < end:
             app.processEvents()
-            if not self.workers.busy and not self.periodogram.feed.busy:
+            if not (self.workers.busy or self.periodogram.feed.busy or self.fold.busy):
                 app.processEvents()
                 return
             time.sleep(0.01)

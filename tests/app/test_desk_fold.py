@@ -90,6 +90,11 @@ def test_fold_line_is_the_core_model_at_the_trial_period(desk, qtbot):
     np.testing.assert_allclose(y, fit.model(fold.model.epoch + x * fold.period), atol=1e-9)
     assert f"rms {fit.residual_std:.3f}" in fold.fold.titleLabel.text
     desk.session.nudge(+1, large=True)
+    # the points move at once; the line follows when the period rests
+    line_x = fold.model_curve.getData()[0]
+    assert fold.busy and (line_x is None or len(line_x) == 0)
+    assert fold.bins[0].getData()[0].size > 0
+    qtbot.waitUntil(lambda: not fold.busy, timeout=5000)
     expected = fold_model(lc, desk.session.period, settings, band, result=desk.desk.result)
     x, y = fold.model_curve.getData()
     np.testing.assert_allclose(x, expected.phase_grid)
