@@ -22,6 +22,9 @@ from phasewise.core.errors import PhasewiseError
 
 __all__ = ["Reanalysis"]
 
+#: Stars per chunk sent to a worker process by a batch run from the desk.
+CHUNK = 4
+
 
 class Reanalysis:
     """The desk's re-analyses (``window.desk``, ``window.workers``, the status bar)."""
@@ -102,7 +105,11 @@ class Reanalysis:
             def progress(p) -> None:
                 report(p.done, p.total, f"{p.rate:.1f} stars/s, {p.failed} failed")
 
-            return analyse_ledger(path, settings, only=only, progress=progress, stop=cancelled)
+            # small chunks: Cancel (or closing the window) waits only for the few stars
+            # in flight, which are written, never for a survey-sized chunk
+            return analyse_ledger(
+                path, settings, only=only, progress=progress, stop=cancelled, chunk_size=CHUNK
+            )
 
         def finished() -> None:
             self.running = None
