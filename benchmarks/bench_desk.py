@@ -101,8 +101,10 @@ def dispose(window) -> None:
     QCoreApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
 
 
-def bench_nudge(tmp: Path, n_points: int, repeats: int) -> tuple[float, float]:
-    """Median wall and process-CPU milliseconds from a nudge to its painted frame."""
+def bench_nudge(tmp: Path, n_points: int, repeats: int) -> tuple[float, float, float]:
+    """Median wall and process-CPU milliseconds from a nudge to its painted frame (the
+    points at the new period), and the CPU milliseconds of the model fitted when the
+    period rests (``core.folding.fold_model`` at a new period, the line drawn after)."""
     path = tmp / f"nudge{n_points}.ledger.sqlite"
     make_ledger(path, 1, n_points, analyse=False)
     app, window = window_on(path)
@@ -117,8 +119,17 @@ def bench_nudge(tmp: Path, n_points: int, repeats: int) -> tuple[float, float]:
             app.processEvents()
         times.append(time.perf_counter() - t0)
         cpu.append(time.process_time() - c0)
+    desk = window.desk
+    fold = window.fold.main
+    fits = []
+    for i in range(max(repeats // 3, 2)):
+        period = desk.session.period * (1 + 1e-5 * (i + 1))
+        c0 = time.process_time()
+        fold_model(desk.lc, period, desk.settings, fold.band, False, result=desk.result)
+        fits.append(time.process_time() - c0)
     dispose(window)
-    return statistics.median(times) * 1000, statistics.median(cpu) * 1000
+    med = statistics.median
+    return med(times) * 1000, med(cpu) * 1000, med(fits) * 1000
 
 
 def count_paints(item) -> list[int]:
@@ -132,6 +143,12 @@ def count_paints(item) -> list[int]:
 
     item.paint = paint
     return counter
+
+
+def fold_model(*args, **kwargs):
+    from phasewise.core.folding import fold_model as fit
+
+    return fit(*args, **kwargs)
 
 
 def bench_switch(tmp: Path, repeats: int, analyse: bool) -> tuple[float, float]:
@@ -168,7 +185,7 @@ w.open_ledger(sys.argv[1])
 app.processEvents()
 w.repaint()
 shown = time.time() - t_start
-print(f"{shown:.3f} {w.current_star}")
+print(f"{shown:.3f} {w.current_star} {time.process_time():.3f}")
 w.workers.shutdown()
 w.close()
 """
@@ -182,7 +199,7 @@ def bench_first_star(tmp: Path, n_stars: int) -> tuple[float, str]:
         f"  (made a {n_stars:,}-star ledger in {time.perf_counter() - t0:.1f} s, "
         f"{path.stat().st_size / 1e6:.1f} MB)"
     )
-    runs = []
+    runs, cpu = [], []
     for _ in range(3):  # the first run may read the file from disk, the others from cache
         start = time.time()
         out = subprocess.run(
@@ -201,7 +218,12 @@ def bench_first_star(tmp: Path, n_stars: int) -> tuple[float, str]:
             check=True,
         ).stdout.split()
         runs.append(float(out[0]) * 1000)
-    print("  (runs: " + ", ".join(f"{r:.0f} ms" for r in runs) + ")")
+        cpu.append(float(out[2]) * 1000)
+    print(
+        "  (runs: "
+        + ", ".join(f"{r:.0f} ms wall / {c:.0f} ms CPU" for r, c in zip(runs, cpu, strict=True))
+        + ")"
+    )
     return statistics.median(runs), out[1]
 
 
@@ -222,10 +244,11 @@ def main() -> None:
             "so the process CPU time is printed beside them)"
         )
         for n, target in ((5_000, 16.0), (50_000, 50.0)):
-            ms, cpu = bench_nudge(tmp, n, repeats)
+            ms, cpu, fit = bench_nudge(tmp, n, repeats)
             print(
                 f"nudge redraw, {n:>6,} points: {ms:7.1f} ms wall, {cpu:6.1f} ms CPU  "
-                f"(target {target:.0f} ms, ratio {ms / target:.2f} wall, {cpu / target:.2f} CPU)"
+                f"(target {target:.0f} ms, ratio {ms / target:.2f} wall, {cpu / target:.2f} CPU); "
+                f"the model line when the period rests: {fit:.1f} ms CPU to fit"
             )
         shown, cpu, full = bench_switch(tmp, max(repeats // 2, 5), analyse=True)
         print(

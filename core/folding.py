@@ -362,9 +362,10 @@ class FoldModelCache:
         self.size = int(size)
         self._items: OrderedDict = OrderedDict()
 
-    def get(self, lc, period, settings=None, band=None, eclipsing=False, result=None) -> FoldModel:
+    @staticmethod
+    def _key(lc, period, settings, band, eclipsing, result) -> tuple:
         digest = getattr(settings, "hash", None) if settings is not None else None
-        key = (
+        return (
             lc.star_id,
             np.asarray(lc.excluded, dtype=bool).tobytes(),
             float(period),
@@ -375,6 +376,9 @@ class FoldModelCache:
             None if result is None else tuple(result.get("set_aside") or ()),
             None if result is None else repr(result.get("trend")),
         )
+
+    def get(self, lc, period, settings=None, band=None, eclipsing=False, result=None) -> FoldModel:
+        key = self._key(lc, period, settings, band, eclipsing, result)
         if key in self._items:
             self._items.move_to_end(key)
             return self._items[key]
@@ -383,6 +387,10 @@ class FoldModelCache:
         while len(self._items) > self.size:
             self._items.popitem(last=False)
         return model
+
+    def cached(self, lc, period, settings=None, band=None, eclipsing=False, result=None):
+        """The model if it was computed already, else None (nothing is fitted)."""
+        return self._items.get(self._key(lc, period, settings, band, eclipsing, result))
 
     def clear(self) -> None:
         self._items.clear()

@@ -331,7 +331,7 @@ def _show(ledger_path: Path | None, args, build=None) -> int:
             _select(window, args.star)
         elif build is not None:
             files, mapping, target = build
-            window.build_ledger(
+            window.files.build_ledger(
                 files, mapping, target, on_done=lambda _path, w=window: _select(w, args.star)
             )
         window.show_view(args.view)

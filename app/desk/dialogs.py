@@ -324,3 +324,18 @@ class ClassPicker(QDialog):
         super().accept()
         if code:
             self.picked.emit(code)
+
+
+def show_about(parent) -> None:
+    """The About box: what Phasewise is, and the caution its suggestions carry."""
+    from PySide6.QtWidgets import QMessageBox
+
+    from phasewise.core import __version__
+
+    QMessageBox.about(
+        parent,
+        "About Phasewise",
+        f"<b>Phasewise {__version__}</b><p>Find periods, classify and vet variable-star "
+        "light curves. Suggestions and distances come from published empirical relations "
+        "with known scatter; the astronomer decides.</p>",
+    )

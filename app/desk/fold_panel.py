@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
@@ -26,21 +28,23 @@ from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_co
 __all__ = ["FoldView", "FoldPanel"]
 
 SET_ASIDE_COLOUR = "#D62728"
+#: A nudged period is fitted once it rests this long (held keys move the points only).
+FIT_DELAY_MS = 120
 
 
 class FoldView(pg.GraphicsLayoutWidget):
     """One folded curve over phase 0–2 with its residuals below.
 
     Draws :class:`phasewise.core.folding.FoldModel` (the analysis's model at
-    the trial period, from ``services.fold_model``): points used by the fit
+    the trial period, from the desk model's ``fold_model``): points used by the fit
     coloured by time, points the analysis set aside as red open circles,
     points excluded by the user as grey crosses.  Items are created once and
     updated with ``setData``.
     """
 
-    def __init__(self, services, title: str = "", parent=None) -> None:
+    def __init__(self, desk, title: str = "", parent=None) -> None:
         super().__init__(parent)
-        self.services = services
+        self.desk = desk
         self.ci.layout.setSpacing(2)
         self.ci.setContentsMargins(2, 2, 6, 2)
         self.fold = self.addPlot(row=0, col=0)
@@ -107,6 +111,11 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.period = None
         self._range_key = None
         self._drawn = None
+        self._pending = None
+        self.fit_timer = QTimer(self)
+        self.fit_timer.setSingleShot(True)
+        self.fit_timer.setInterval(FIT_DELAY_MS)
+        self.fit_timer.timeout.connect(self._fit_pending)
 
     # kept for callers that read these
     @property
@@ -142,7 +151,9 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.show_errors = bool(on)
         self._draw_errors()
 
-    def clear(self) -> None:
+    def clear_fold(self) -> None:
+        """Nothing folded.  (Not ``clear``: pyqtgraph binds the layout's ``clear``, which
+        removes the plots, to that name on every GraphicsLayoutWidget.)"""
         self.model = None
         self._drawn = None
         for s in self.bins:
@@ -155,29 +166,50 @@ class FoldView(pg.GraphicsLayoutWidget):
         self._set_title(self.title)
 
     def set_period(self, period: float | None, epoch_hint: float | None = None) -> None:
-        """Fold at ``period`` and draw the core model there."""
+        """Fold at ``period`` and draw the core model there.
+
+        A model not fitted yet at a new period of the same star is fitted once
+        the period rests for :data:`FIT_DELAY_MS`: meanwhile the points move at
+        once (folded with the last model's epoch) and the line waits.
+        """
         lc = self.lc
+        self.fit_timer.stop()
         if lc is None or self.band is None or period is None or period <= 0:
-            self.clear()
+            self.clear_fold()
             return
         key = (float(period), id(lc), self.band, id(self.settings), self.eclipsing)
         if self._drawn == key:
             return  # nothing moved (the other fold's period did)
+        args = (lc, float(period), self.settings, self.band, self.eclipsing, self.result)
+        if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
+            if self.desk.cached_fold_model(*args) is None:
+                self._draw(_points_only(self.model, float(period)))
+                self._pending = key
+                self.fit_timer.start()
+                return
+        self._fit(key, args)
+
+    @property
+    def busy(self) -> bool:
+        """A model is waiting to be fitted."""
+        return self.fit_timer.isActive()
+
+    def _fit_pending(self) -> None:
+        key = self._pending
+        if key is not None and key[1] == id(self.lc):
+            args = (self.lc, key[0], self.settings, self.band, self.eclipsing, self.result)
+            self._fit(key, args)
+
+    def _fit(self, key, args) -> None:
+        self._pending = None
         try:
-            model = self.services.fold_model(
-                lc,
-                float(period),
-                self.settings,
-                self.band,
-                self.eclipsing,
-                self.result,
-            )
+            model = self.desk.fold_model(*args)
         except PhasewiseError as exc:
-            self.clear()
+            self.clear_fold()
             self._set_title(f"{self.title}no fold: {exc}")
             return
         self._drawn = key
-        self.period = float(period)
+        self.period = key[0]
         self.model = model
         self._draw(model)
 
@@ -238,6 +270,19 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.resid.getViewBox().disableAutoRange()
 
 
+def _points_only(model, period: float):
+    """``model``'s points folded at another period, with no line yet (being fitted)."""
+    return replace(
+        model,
+        period=period,
+        model_grid=np.empty(0),
+        phase_grid=np.empty(0),
+        residual=np.full(model.mag.shape, np.nan),
+        rms=None,
+        order=None,
+    )
+
+
 class FoldPanel(QWidget):
     """The folded curve at the trial period, and a second fold beside it.
 
@@ -255,10 +300,11 @@ class FoldPanel(QWidget):
     action = Signal(str)
     bandChanged = Signal(str)
 
-    def __init__(self, services, parent=None) -> None:
+    def __init__(self, desk, parent=None) -> None:
         super().__init__(parent)
-        self.main = FoldView(services, "")
-        self.alt = FoldView(services, "Compare: ")
+        self.desk = desk
+        self.main = FoldView(desk, "")
+        self.alt = FoldView(desk, "Compare: ")
         self.spin = QDoubleSpinBox()
         self.spin.setDecimals(8)
         self.spin.setRange(1e-4, 1e5)
@@ -319,6 +365,50 @@ class FoldPanel(QWidget):
             lambda _i: self.bandChanged.emit(self.band_box.currentText())
         )
         self._updating = False
+        session = desk.session
+        self.periodEntered.connect(lambda p: session.set_period(p, "entry"))
+        self.action.connect(
+            lambda key: {
+                "halve": session.halve,
+                "double": session.double,
+                "prev": lambda: session.cycle_candidate(-1),
+                "next": lambda: session.cycle_candidate(+1),
+                "reset": session.reset_period,
+                "use_alternative": desk.use_alternative,
+            }[key]()
+        )
+        self.bandChanged.connect(lambda _band: self.redraw())
+        desk.subscribe("star", self._star_shown)
+        # the mask, the settings or the class (epoch kind) changed: same star, same period
+        desk.subscribe("lightcurve", lambda _id: self.redraw())
+        desk.subscribe("settings", self.redraw)
+        desk.subscribe("verdict", lambda sid: self.redraw() if sid == desk.star_id else None)
+        session.subscribe("period", lambda _p, _source: self.show_trial())
+
+    # ------------------------------------------------------ the desk model
+    def _star_shown(self, _star_id: str) -> None:
+        bands = list(self.desk.lc.bands) if self.desk.lc is not None else []
+        self.set_bands(bands, self.desk.primary_band())
+        self.redraw()
+
+    def redraw(self) -> None:
+        """Fold the desk's current star in the chosen band at the trial period."""
+        desk = self.desk
+        band = self.band_box.currentText() or None
+        if desk.lc is None or band is None or desk.settings is None:
+            # the model is fitted with the ledger's own settings: it waits for them (and
+            # for the analysis modules, which load in the background after the first star)
+            self.set_star(None, None)
+            self.show_trial()
+            self.main._set_title("loading the analysis…" if desk.lc is not None else "")
+            return
+        self.set_star(desk.lc, band, desk.settings, desk.eclipsing(), desk.result)
+        self.show_trial()
+
+    def show_trial(self) -> None:
+        desk = self.desk
+        self.show_period(desk.session.period, desk.session.step(), desk.result.get("epoch_max"))
+        self.show_alternative(desk.alternative_period())
 
     def set_bands(self, bands, current: str | None) -> None:
         self.band_box.blockSignals(True)
@@ -335,6 +425,11 @@ class FoldPanel(QWidget):
     def set_errors_visible(self, on: bool) -> None:
         self.main.set_errors_visible(on)
         self.alt.set_errors_visible(on)
+
+    @property
+    def busy(self) -> bool:
+        """A fold waits to fit its model (the period is still moving)."""
+        return self.main.busy or self.alt.busy
 
     def show_period(self, period: float | None, step: float, epoch_hint=None) -> None:
         self._updating = True

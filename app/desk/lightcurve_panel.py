@@ -27,8 +27,9 @@ class LightCurvePanel(QWidget):
 
     exclusionRequested = Signal(object, bool)
 
-    def __init__(self, parent=None) -> None:
+    def __init__(self, desk=None, parent=None) -> None:
         super().__init__(parent)
+        self.desk = desk
         self.plot = make_plot(select=True)
         self.vb = self.plot.getPlotItem().getViewBox()
         self.vb.invertY(True)
@@ -69,8 +70,11 @@ class LightCurvePanel(QWidget):
         self.info = QLabel()
         self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         bar = QHBoxLayout()
-        bar.addWidget(QLabel("<b>Light curve</b>"))
-        bar.addStretch(1)
+        heading = QLabel("<b>Light curve</b>")
+        # clipped, not a minimum width: at 1280 px the star list's key columns come first
+        heading.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        heading.setMinimumWidth(0)
+        bar.addWidget(heading, 1)
         bar.addWidget(self.select_box)
         bar.addWidget(self.lasso_box)
         bar.addWidget(self.show_errors)
@@ -88,6 +92,17 @@ class LightCurvePanel(QWidget):
         self.lc = None
         self.t0 = 0.0
         set_labels(self.plot, "Time (d)", "Magnitude (mag)")
+        if desk is not None:
+            desk.subscribe("star", lambda _id: self.set_lightcurve(desk.lc))
+            desk.subscribe("lightcurve", lambda _id: self.set_lightcurve(desk.lc))
+            desk.subscribe("ledger", self._ledger_shown)
+
+    def _ledger_shown(self) -> None:
+        writable = not self.desk.read_only
+        self.select_box.setEnabled(writable)
+        self.lasso_box.setEnabled(writable)
+        if self.desk.ledger is None:
+            self.set_lightcurve(None)
 
     # ------------------------------------------------------------- drawing
     def set_lightcurve(self, lc) -> None:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import QObject, Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
@@ -21,7 +21,7 @@ from phasewise.core.folding import snap_to_peak
 from .plots import make_plot, set_labels
 from .style import MARKER_COLOUR, fmt_period
 
-__all__ = ["PeriodogramPanel", "METHODS"]
+__all__ = ["PeriodogramPanel", "PeriodogramFeed", "METHODS"]
 
 #: (core method name, menu text)
 METHODS = (
@@ -31,6 +31,8 @@ METHODS = (
     ("ce", "Conditional entropy"),
 )
 MAX_LABELS = 8
+#: A new star's periodogram starts this long after it is shown (held keys skip it).
+PERIODOGRAM_DELAY_MS = 60
 FAP_STYLES = ((0.1, "#999999"), (0.01, "#666666"), (0.001, "#333333"))
 
 
@@ -51,7 +53,7 @@ class PeriodogramPanel(QWidget):
     methodChanged = Signal(str)
     windowRequested = Signal(bool)
 
-    def __init__(self, parent=None) -> None:
+    def __init__(self, desk=None, services=None, workers=None, parent=None) -> None:
         super().__init__(parent)
         self.plot = make_plot()
         self.item = self.plot.getPlotItem()
@@ -122,12 +124,15 @@ class PeriodogramPanel(QWidget):
         self.candidate_list.setWordWrap(True)
         self.candidate_list.setTextFormat(Qt.TextFormat.RichText)
         bar = QHBoxLayout()
-        bar.addWidget(QLabel("<b>Periodogram</b>"))
+        heading = QLabel("<b>Periodogram</b>")
+        # clipped, not a minimum width: at 1280 px the star list's key columns come first
+        heading.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        heading.setMinimumWidth(0)
+        bar.addWidget(heading, 1)
         bar.addWidget(self.method_box)
         bar.addWidget(self.axis_box)
         bar.addWidget(self.log_box)
         bar.addWidget(self.window_box)
-        bar.addStretch(1)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addLayout(bar)
@@ -147,6 +152,10 @@ class PeriodogramPanel(QWidget):
         self.window_box.toggled.connect(self._window_toggled)
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         self._update_labels()
+        self.feed = PeriodogramFeed(self, desk, services, workers) if desk is not None else None
+
+    def set_period_axis(self, on: bool) -> None:
+        self.axis_box.setCurrentIndex(1 if on else 0)
 
     # ---------------------------------------------------------- coordinates
     @property
@@ -394,3 +403,110 @@ def _mark_text(candidate: dict) -> list[str]:
     if len(details) == len(marks) and all(details):
         return details
     return marks
+
+
+class PeriodogramFeed(QObject):
+    """Computes the current star's periodogram in a worker, cached in the desk model.
+
+    Listens to the desk model: a new star or new settings start a periodogram
+    (a moment later, so stars skipped by a held key never start one); the
+    trial period moves the marker; a click on a peak sets the trial period.
+    """
+
+    def __init__(self, panel: PeriodogramPanel, desk, services, workers) -> None:
+        super().__init__(panel)
+        self.panel, self.desk, self.services, self.workers = panel, desk, services, workers
+        self.method: str | None = None  # chosen here; None: the analysis settings' own
+        self.worker = None
+        self.pending = None
+        self.started_key = None  # the periodogram being computed
+        self.timer = QTimer(self)
+        self.timer.setSingleShot(True)
+        self.timer.setInterval(PERIODOGRAM_DELAY_MS)
+        self.timer.timeout.connect(self._start)
+        desk.subscribe("star", lambda _id: self.show())
+        desk.subscribe("settings", self.show)
+        desk.session.subscribe("period", lambda period, _source: self._mark(period))
+        panel.peakPicked.connect(lambda f: desk.session.set_period(1.0 / f, "peak"))
+        panel.methodChanged.connect(self._method_changed)
+        panel.windowRequested.connect(self._compute_window)
+
+    @property
+    def busy(self) -> bool:
+        return self.timer.isActive()
+
+    def settings(self):
+        pg_settings = self.services.periodogram_settings(self.desk.settings)
+        if self.method and pg_settings.method != self.method:
+            pg_settings = self.services.replace_periodogram(pg_settings, method=self.method)
+        return pg_settings
+
+    def _mark(self, period) -> None:
+        self.panel.set_frequency(1.0 / period if period else None)
+
+    def show(self) -> None:
+        panel, desk, lc = self.panel, self.desk, self.desk.lc
+        if lc is None or lc.too_few_points:
+            panel.clear()
+            panel.set_computing("no periodogram (too few points)" if lc is not None else "")
+            return
+        pg_settings = self.settings()
+        key = (desk.star_id, repr(pg_settings))
+        view = desk.periodogram(key)
+        if view is not None:
+            panel.set_periodogram(view, self._candidates_for(view))
+            self._mark(desk.session.period)
+            return
+        running = self.worker is not None and not self.worker.done.is_set()
+        if key == self.started_key and (self.busy or running):
+            return  # already on its way (new settings that leave the periodogram alone)
+        panel.clear()
+        panel.set_computing("computing periodogram…")
+        self.started_key = key
+        if self.worker is not None:
+            self.worker.cancel()  # the user moved on: skip a periodogram still queued
+        self.pending = (key, desk.star_id, lc, pg_settings)
+        self.timer.start()
+
+    def _start(self) -> None:
+        if self.pending is None:
+            return
+        key, star_id, lc, pg_settings = self.pending
+        self.pending = None
+
+        def done(view) -> None:
+            self.desk.keep_periodogram(key, view)
+            if self.desk.star_id == star_id:
+                self.panel.set_periodogram(view, self._candidates_for(view))
+                self._mark(self.desk.session.period)
+
+        self.worker = self.workers.start(
+            self.services.compute_periodogram,
+            lc,
+            pg_settings,
+            on_result=done,
+            on_error=lambda msg: self.panel.set_computing(f"error: {msg}"),
+        )
+
+    def _candidates_for(self, view) -> list:
+        """The analysis' candidates for its own method, else those of this periodogram."""
+        result = self.desk.result
+        if view.method == result.get("method") and result.get("candidates"):
+            return list(result["candidates"])
+        return list(view.candidates)
+
+    def _method_changed(self, method: str) -> None:
+        self.method = method
+        self.show()
+
+    def _compute_window(self, _on: bool) -> None:
+        view, lc, star_id = self.panel.view, self.desk.lc, self.desk.star_id
+        if view is None or lc is None:
+            return
+        t, _m, _e = lc.arrays()
+
+        def done(power) -> None:
+            if self.desk.star_id == star_id:
+                self.panel.set_window(power)
+
+        self.workers.start(self.services.spectral_window, t, view.frequency, on_result=done)

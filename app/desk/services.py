@@ -32,9 +32,6 @@ class PeriodogramView:
 class CoreServices:
     """Calls into core used by the desk (real science, no Qt)."""
 
-    def __init__(self) -> None:
-        self._fold_cache = None
-
     # ------------------------------------------------------------ settings
     def default_settings(self):
         from phasewise.core.analysis import AnalysisSettings
@@ -45,22 +42,18 @@ class CoreServices:
         """The settings the ledger's results were computed with (defaults if none)."""
         from phasewise.core.settings_file import ledger_settings
 
-        if ledger is None or not hasattr(ledger, "analysis_settings"):
-            return self.default_settings()
-        return ledger_settings(ledger)
+        return self.default_settings() if ledger is None else ledger_settings(ledger)
 
     def periodogram_settings(self, settings):
-        pg = getattr(settings, "periodogram", None)
-        if pg is None:
+        """The periodogram part of analysis settings (the defaults before they are known)."""
+        if settings is None:
             from phasewise.core.periodogram import PeriodogramSettings
 
-            pg = PeriodogramSettings()
-        return pg
+            return PeriodogramSettings()
+        return settings.periodogram
 
     def with_periodogram_settings(self, settings, pg_settings):
-        if hasattr(settings, "periodogram"):
-            return dataclasses.replace(settings, periodogram=pg_settings)
-        return settings
+        return dataclasses.replace(settings, periodogram=pg_settings)
 
     def replace_periodogram(self, pg_settings, **changes):
         return dataclasses.replace(pg_settings, **changes)
@@ -105,14 +98,6 @@ class CoreServices:
         from phasewise.core.periodogram import spectral_window
 
         return np.asarray(spectral_window(time, frequency), dtype=float)
-
-    def fold_model(self, lc, period, settings=None, band=None, eclipsing=False, result=None):
-        """The analysis model at a trial period (``core.folding.fold_model``), cached."""
-        if self._fold_cache is None:
-            from phasewise.core.folding import FoldModelCache
-
-            self._fold_cache = FoldModelCache()
-        return self._fold_cache.get(lc, period, settings, band, eclipsing, result)
 
     # -------------------------------------------------------------- ledger
     def open_ledger(self, path, readonly: bool = False):
@@ -165,10 +150,6 @@ class CoreServices:
         as_dict, digest = self.settings_record(settings)
         ledger.set_analysis_settings(as_dict, digest)
 
-    def store_result(self, ledger, star_id: str, result: dict, settings) -> None:
-        digest = result.get("settings_hash") or self.settings_record(settings)[1]
-        ledger.store_results([(star_id, digest, result)])
-
     def store_results(self, ledger, items, settings) -> None:
         """Store ``(star_id, result_dict)`` pairs in one transaction."""
         fallback = self.settings_record(settings)[1]
@@ -179,45 +160,12 @@ class CoreServices:
 
         return write_catalogue(ledger, Path(path), format=fmt)
 
-    def analyse_all(self, ledger, star_ids, settings, report=None, cancelled=None) -> None:
-        """Analyse stars of a ledger and store the results, in chunks of one transaction."""
-        star_ids = list(star_ids)
-        chunk: list = []
-        for i, star_id in enumerate(star_ids):
-            if cancelled is not None and cancelled():
-                break
-            if report is not None:
-                report(i, len(star_ids), f"analysing {star_id}")
-            chunk.append((star_id, self.analyse(ledger.lightcurve(star_id), settings)))
-            if len(chunk) >= 50:
-                self.store_results(ledger, chunk, settings)
-                chunk = []
-        if chunk:
-            self.store_results(ledger, chunk, settings)
-        if report is not None:
-            report(len(star_ids), len(star_ids), "done")
-
     def analyse_ledger(self, path, settings, report=None, cancelled=None) -> None:
-        """Analyse every unanalysed star of a closed ledger file.
+        """Analyse every unanalysed star of a closed ledger file (``core.batch``, worker processes)."""
+        from phasewise.core.batch import analyse_ledger
 
-        Uses ``core.batch.analyse_ledger`` (worker processes) when present,
-        else analyses star by star here.
-        """
-        try:
-            from phasewise.core.batch import analyse_ledger
-        except ImportError:
-            analyse_ledger = None
-        if analyse_ledger is not None:
+        def progress(p) -> None:
+            if report is not None and not (cancelled is not None and cancelled()):
+                report(p.done, p.total, f"{p.rate:.1f} stars/s")
 
-            def progress(p) -> None:
-                if report is not None and not (cancelled is not None and cancelled()):
-                    report(p.done, p.total, f"{p.rate:.1f} stars/s")
-
-            analyse_ledger(Path(path), settings, progress=progress, stop=cancelled)
-            return
-        ledger = self.open_ledger(path)
-        try:
-            ids = ledger.stars_needing_analysis(self.settings_record(settings)[1])
-            self.analyse_all(ledger, ids, settings, report=report, cancelled=cancelled)
-        finally:
-            ledger.close()
+        analyse_ledger(Path(path), settings, progress=progress, stop=cancelled)

@@ -27,6 +27,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from phasewise.core.ledger import StarRow
+from phasewise.core.vetting import NON_PERIODIC_CLASSES
+
 from .style import STATUS_COLOURS, fmt, fmt_period
 
 __all__ = [
@@ -65,9 +68,13 @@ VISUAL_ORDER = (
     "status",
     "suggested_score",
 )
+#: The columns the list shows whole at its default width, left to right.
+KEY_COLUMNS = VISUAL_ORDER[:7]
 #: The longest star id the list shows whole at its default width (13 digits).
 ID_SAMPLE = "0000000000000"
-CELL_PADDING_PX = 14
+CELL_PADDING_PX = 8
+#: Above this many changed stars the whole list is read again (one query).
+ROW_REFRESH_LIMIT = 200
 SORT_ARROW_PX = 10
 _ALIASES = {
     "star_id": ("star_id", "id"),
@@ -83,9 +90,18 @@ _ALIASES = {
 }
 
 
+def listed_period(row: StarRow) -> float | None:
+    """The period the catalogue would give the star: none for a rejected star or a
+    class without a period (the verdict's class, else the top suggestion's)."""
+    if row.status == "rejected":
+        return None
+    code = row.verdict_class or row.suggested_class
+    return None if code in NON_PERIODIC_CLASSES else row.period
+
+
 def row_values(row) -> list:
     """The list of :data:`FIELDS` (+ stale) of one ledger star row."""
-    if hasattr(row, "suggested_period") and hasattr(row, "analysed"):  # core.ledger.StarRow
+    if isinstance(row, StarRow):
         flags = ",".join(row.flags) if row.flags else ""
         if row.failed:
             flags = "failed," + flags if flags else "failed"
@@ -97,7 +113,7 @@ def row_values(row) -> list:
             row.suggested_class,
             row.suggested_score,
             row.verdict_class,
-            row.period,
+            listed_period(row),
             row.amplitude,
             row.fap,
             flags,
@@ -336,8 +352,9 @@ class StarListWidget(QWidget):
     #: Enter or Escape in the filter box: the typing is done, the keys go back to vetting.
     filterDone = Signal()
 
-    def __init__(self, parent=None) -> None:
+    def __init__(self, desk=None, parent=None) -> None:
         super().__init__(parent)
+        self.desk = desk
         self.model = StarTableModel(self)
         self.proxy = StarFilterProxy(self)
         self.proxy.setSourceModel(self.model)
@@ -389,6 +406,39 @@ class StarListWidget(QWidget):
         self.status_box.currentIndexChanged.connect(self._status_changed)
         self.view.selectionModel().currentRowChanged.connect(self._row_changed)
         self._sort_order = {}
+        if desk is not None:
+            desk.subscribe("ledger", self.reload)
+            desk.subscribe("rows", self.rows_changed)
+            desk.subscribe("star", self.model.set_current)
+
+    def key_columns_width(self) -> int:
+        """Width (px) the widget needs to show the key columns (id … flags) whole."""
+        header = self.view.horizontalHeader()
+        last = FIELDS.index(KEY_COLUMNS[-1])
+        inner = header.sectionViewportPosition(last) + header.sectionSize(last)
+        inner += header.offset()  # as if scrolled to the left
+        frame = 2 * self.view.frameWidth() + self.view.verticalScrollBar().sizeHint().width()
+        margins = self.layout().contentsMargins()
+        return inner + frame + margins.left() + margins.right()
+
+    # ------------------------------------------------------ the desk model
+    def reload(self) -> None:
+        """Every line again from the ledger (the current star kept in view)."""
+        ledger = self.desk.ledger
+        self.set_rows(ledger.star_rows() if ledger is not None else [])
+        current = self.desk.star_id
+        if current:
+            self.model.set_current(current)
+            self.scroll_to(current)
+
+    def rows_changed(self, star_ids) -> None:
+        """Lines to re-read after a ledger change (all of them for an empty tuple)."""
+        if not star_ids or len(star_ids) > ROW_REFRESH_LIMIT:
+            self.reload()
+            return
+        for star_id in star_ids:
+            self.model.replace_row(self.desk.ledger.star_row(star_id))
+        self.update_counts()
 
     def _set_column_widths(self) -> None:
         """Columns as wide as their header or a typical value, ids of 13 digits whole."""

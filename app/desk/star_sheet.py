@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (
 )
 
 from phasewise.core.results import StarResult, Suggestion
+from phasewise.core.vetting import NON_PERIODIC_CLASSES
 
 from .style import STATUS_COLOURS, fmt, fmt_period, fmt_pm
 
@@ -73,8 +74,9 @@ class StarSheet(QWidget):
 
     verdictRequested = Signal(str, str, str)
 
-    def __init__(self, parent=None) -> None:
+    def __init__(self, desk=None, parent=None) -> None:
         super().__init__(parent)
+        self.desk = desk
         self.browser = QTextBrowser()
         self.browser.setOpenLinks(False)
         self.trial_label = QLabel()
@@ -114,6 +116,44 @@ class StarSheet(QWidget):
         self.defer_button.clicked.connect(lambda: self._verdict("deferred", ""))
         self.result: dict | None = None
         self.star_id: str | None = None
+        if desk is not None:
+            desk.subscribe("star", self._star_shown)
+            desk.subscribe("verdict", self._verdict_changed)
+            desk.subscribe("ledger", self._ledger_shown)
+            desk.session.subscribe("period", lambda _p, _source: self.show_trial())
+
+    # ------------------------------------------------------ the desk model
+    def _star_shown(self, star_id: str) -> None:
+        desk = self.desk
+        self.set_star(star_id, desk.result, desk.verdict, desk.session.period)
+        self.set_writable(not desk.read_only)
+        self.show_trial()
+
+    def _verdict_changed(self, star_id: str) -> None:
+        if star_id == self.desk.star_id:
+            self.set_verdict(self.desk.verdict)
+            self.show_trial()
+
+    def _ledger_shown(self) -> None:
+        self.set_writable(not self.desk.read_only)
+
+    def set_writable(self, on: bool) -> None:
+        """Verdict controls on (a writable ledger) or off."""
+        for button in (self.relabel_button, self.reject_button, self.defer_button):
+            button.setEnabled(on)
+        self.confirm_button.setEnabled(on and bool(self.top_suggestion()))
+        self.note_edit.setReadOnly(not on)
+
+    def show_trial(self) -> None:
+        """What a verdict would record, by the desk's verdict policy."""
+        desk = self.desk
+        code = desk.class_code()
+        if code in NON_PERIODIC_CLASSES:
+            self.trial_label.setText(f"A verdict of {_e(code)} records no period")
+        else:
+            self.show_trial_period(
+                desk.session.period, desk.session.overridden, desk.suggested_period()
+            )
 
     # ------------------------------------------------------------ verdicts
     def top_suggestion(self) -> str | None:

@@ -14,7 +14,7 @@ import threading
 import traceback
 from collections.abc import Callable
 
-from PySide6.QtCore import QObject, QRunnable, QThreadPool, Signal
+from PySide6.QtCore import QObject, QRunnable, Qt, QThread, QThreadPool, Signal
 from PySide6.QtWidgets import QProgressDialog, QWidget
 
 from phasewise.core.errors import PhasewiseError
@@ -202,3 +202,20 @@ class WorkerPool(QObject):
         dialog.canceled.connect(worker.cancel)
         worker.progress_dialog = dialog
         return worker
+
+
+class GuiThread(QObject):
+    """``gui_thread(fn)`` runs ``fn()`` in this object's thread: now if called there,
+    else queued (the desk model's ``dispatch``: ledger writes may come from workers)."""
+
+    call = Signal(object)
+
+    def __init__(self, parent: QObject | None = None) -> None:
+        super().__init__(parent)
+        self.call.connect(lambda fn: fn(), Qt.ConnectionType.QueuedConnection)
+
+    def __call__(self, fn: Callable) -> None:
+        if QThread.currentThread() == self.thread():
+            fn()
+        else:
+            self.call.emit(fn)

@@ -34,13 +34,11 @@ OUTLIER_FLAG = "diagram outlier"
 class PopulationLink(QtCore.QObject):
     """Keeps a :class:`PopulationView` and the desk window in step.
 
-    The ledger is the one source of change events: the link subscribes to
-    :meth:`Ledger.subscribe`, so the diagrams follow every committed write,
-    by this window, a re-analysis in a worker thread or an undo.
+    The ledger is the one source of change events: the link listens to the
+    desk model's ``"change"`` event (the ledger's :class:`Change`, relayed), so
+    the diagrams follow every committed write, by this window, a re-analysis
+    or an undo.
     """
-
-    #: A ledger change, delivered in the GUI thread (writes may come from workers).
-    ledgerChangedIn = QtCore.Signal(object)
 
     def __init__(self, window: Any, view: PopulationView) -> None:
         super().__init__(view)
@@ -50,11 +48,11 @@ class PopulationLink(QtCore.QObject):
         self._flagged: set[str] = set()
         self._timer = QtCore.QTimer(self, singleShot=True, interval=VERDICT_DELAY_MS)
         self._timer.timeout.connect(self._apply_verdicts)
-        self._unsubscribe = None
-        self.ledgerChangedIn.connect(self.ledger_change, QtCore.Qt.ConnectionType.QueuedConnection)
+        # the desk model delivers the ledger's changes in this (the GUI) thread
+        unsubscribe = window.desk.subscribe("change", self.ledger_change)
+        view.destroyed.connect(lambda *_: unsubscribe())
         window.ledgerChanged.connect(self.ledger_changed)
         window.starChanged.connect(view.set_current_star)
-        window.verdictChanged.connect(self.verdict_changed)
         window.filterChanged.connect(self.filter_changed)
         view.star_selected.connect(window.select_star)
         view.stars_brushed.connect(window.select_stars)
@@ -89,22 +87,6 @@ class PopulationLink(QtCore.QObject):
                 model.update_star(star_id, flags=text)
         self._flagged = flagged
 
-    def _subscribe(self, ledger) -> None:
-        if self._unsubscribe is not None:
-            self._unsubscribe()
-            self._unsubscribe = None
-        subscribe = getattr(ledger, "subscribe", None)
-        if subscribe is not None:
-            relay = self.ledgerChangedIn
-
-            def deliver(change) -> None:
-                try:
-                    relay.emit(change)
-                except RuntimeError:  # the view was closed: a write must not fail for it
-                    pass
-
-            self._unsubscribe = subscribe(deliver)
-
     def ledger_change(self, change) -> None:
         """A committed write: redraw the stars it touched (all for an import)."""
         if change.what == "settings":
@@ -120,16 +102,11 @@ class PopulationLink(QtCore.QObject):
         self._timer.start()
 
     def ledger_changed(self) -> None:
-        self._subscribe(self.window.ledger)
         self._pending.clear()
         self._flagged.clear()  # the desk re-read its rows from the ledger
         self.view.set_ledger(self.window.ledger)
         self.filter_changed()
         self.view.set_current_star(self.window.current_star)
-
-    def verdict_changed(self, star_id: str) -> None:
-        self._pending.add(str(star_id))
-        self._timer.start()
 
     def _apply_verdicts(self) -> None:
         ids, self._pending = self._pending, set()

@@ -60,9 +60,10 @@ _GRID = (
 
 def _stored_physics(ledger: Any) -> dict:
     """The physics settings of the ledger's analysis settings, if it has any."""
-    stored = getattr(ledger, "analysis_settings", None)
+    if ledger is None:
+        return {}
     try:
-        current = stored() if callable(stored) else None
+        current = ledger.analysis_settings()
     except Exception:  # noqa: BLE001 - an unreadable setting must not stop the view
         return {}
     if not current:

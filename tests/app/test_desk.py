@@ -98,7 +98,7 @@ def test_verdicts_undo_and_reopen(desk, qtbot, qsettings):
     assert again.ledger.verdict("CAL-V002").class_code == "RRc"
     assert again.ledger.verdict("CAL-V003").status == "rejected"
     assert again.star_list.model.value("CAL-V002", "status") == "relabelled"
-    assert str(path) in again.recent_files()
+    assert str(path) in again.files.recent_files()
     dispose(again)
 
 
@@ -120,18 +120,18 @@ def test_filter_the_list(desk, qtbot):
 
 def test_exclude_points_with_a_selection(desk, qtbot):
     lc_panel = desk.lightcurve
-    x = np.asarray(desk.lc.time) - lc_panel.t0
+    x = np.asarray(desk.desk.lc.time) - lc_panel.t0
     rect = QRectF(QPointF(-1.0, 10.0), QPointF(float(np.median(x)), 20.0))
     inside = lc_panel.points_in(rect)
-    assert 0 < inside.size < desk.lc.n_points
+    assert 0 < inside.size < desk.desk.lc.n_points
     lc_panel.vb.sigRectSelected.emit(rect, False)  # what a Shift+drag emits
     mask = desk.ledger.excluded("CAL-V001")
     assert mask[inside].all() and mask.sum() == inside.size
     assert desk.ledger.result("CAL-V001").stale  # until the re-analysis is stored
     qtbot.waitUntil(lambda: not desk.ledger.result("CAL-V001").stale, timeout=20000)
     stored = desk.ledger.result("CAL-V001").result
-    assert stored["n_good"] == desk.lc.n_points - inside.size
-    qtbot.waitUntil(lambda: desk.result.get("n_good") == stored["n_good"])
+    assert stored["n_good"] == desk.desk.lc.n_points - inside.size
+    qtbot.waitUntil(lambda: desk.desk.result.get("n_good") == stored["n_good"])
     assert len(lc_panel.excluded.getData()[0]) == inside.size
     # Ctrl on release restores
     lc_panel.vb.sigRectSelected.emit(rect, True)
@@ -150,7 +150,7 @@ def test_export_and_plots(desk, qtbot, tmp_path):
     qtbot.keyClick(desk, Qt.Key.Key_Y)  # confirm CAL-V001
     qtbot.keyClick(desk, Qt.Key.Key_3)  # relabel CAL-V002 as RRd
     done = []
-    desk.export_catalogue(tmp_path / "vetted.ecsv", "ecsv", on_done=done.append)
+    desk.files.export_catalogue(tmp_path / "vetted.ecsv", "ecsv", on_done=done.append)
     qtbot.waitUntil(lambda: bool(done), timeout=20000)
     assert done == [2]  # core.export.write_catalogue returns the number of stars
     table = Table.read(tmp_path / "vetted.ecsv", format="ascii.ecsv")
@@ -158,9 +158,9 @@ def test_export_and_plots(desk, qtbot, tmp_path):
     assert set(rows) == {"CAL-V001", "CAL-V002"}
     assert str(rows["CAL-V002"]["class"]) == "RRd"
     for which in ("lightcurve", "periodogram", "fold"):
-        png = desk.export_plot(which, tmp_path / f"{which}.png")
+        png = desk.files.export_plot(which, tmp_path / f"{which}.png")
         assert png.stat().st_size > 5000
-    svg = desk.export_plot("fold", tmp_path / "fold.svg")
+    svg = desk.files.export_plot("fold", tmp_path / "fold.svg")
     assert "<svg" in svg.read_text()[:2000]
 
 
@@ -183,8 +183,8 @@ def test_layout_and_recent_files_persist(desk, qsettings):
     again.resize(desk.size())
     again.show()
     assert again.main_splitter.sizes() == sizes
-    again._fill_recent()
-    assert [a.text() for a in again.recent_menu.actions()] == [str(desk.ledger_path)]
+    again.files.fill_recent()
+    assert [a.text() for a in again.files.recent_menu.actions()] == [str(desk.ledger_path)]
     dispose(again)
 
 
@@ -199,7 +199,7 @@ def test_analysis_settings_change_the_periodogram(desk, qtbot, monkeypatch):
         lambda self: {"method": "gls", "fmin": None, "fmax": 10.0, "oversampling": 2, "nterms": 3},
     )
     desk.settings_dialog()
-    assert desk.analysis_settings.periodogram.oversampling == 2
+    assert desk.desk.settings.periodogram.oversampling == 2
     qtbot.waitUntil(lambda: desk.periodogram.view is not None, timeout=20000)
     after = desk.periodogram.view
     assert after.frequency.max() <= 10.0 + 1e-9 and len(after.frequency) < before / 5
@@ -221,9 +221,9 @@ def test_desk_uses_the_settings_stored_in_the_ledger(qtbot, qsettings, subset_co
     try:
         window.open_ledger(subset_copy)
         window.show()
-        qtbot.waitUntil(lambda: window.analysis_settings is not None, timeout=10000)
-        assert window.settings().hash == stored.hash
-        assert window.settings().periodogram.fmax == 12.0
+        qtbot.waitUntil(lambda: window.desk.settings is not None, timeout=10000)
+        assert window.desk.settings.hash == stored.hash
+        assert window.desk.settings.periodogram.fmax == 12.0
     finally:
         dispose(window)
 
@@ -298,7 +298,7 @@ def test_points_in_polygon_matches_qt():
 
 def test_exclude_with_a_lasso(desk, qtbot):
     panel = desk.lightcurve
-    x = np.asarray(desk.lc.time) - panel.t0
+    x = np.asarray(desk.desk.lc.time) - panel.t0
     x0, x1 = float(np.percentile(x, 10)), float(np.percentile(x, 40))
     lasso = np.array([[x0, 10.0], [x1, 10.0], [x1, 20.0], [x0, 20.0]])
     panel.lasso_box.setChecked(True)
@@ -310,10 +310,11 @@ def test_exclude_with_a_lasso(desk, qtbot):
     desk.workers.wait(10000)
 
 
-def test_reanalyse_all_in_a_worker_keeps_verdicts(desk, qtbot):
+@pytest.mark.slow
+def test_reanalyse_all_in_worker_processes_keeps_verdicts(desk, qtbot):
     qtbot.keyClick(desk, Qt.Key.Key_Y)
     before = {sid: desk.ledger.result(sid).computed_at for sid in desk.ledger.star_ids()}
-    worker = desk.reanalyse_all()
+    worker = desk.reanalysis.run("all")
     qtbot.waitUntil(lambda: worker.done.is_set(), timeout=60000)
     qtbot.waitUntil(lambda: not desk.workers.busy, timeout=10000)
     after = {sid: desk.ledger.result(sid).computed_at for sid in desk.ledger.star_ids()}
@@ -330,15 +331,15 @@ def test_holding_next_star_skips_stale_periodograms(desk, qtbot):
     desk.wait_idle()
     assert desk.periodogram.view is not None
     # the periodogram shown is the current star's (cached under its id)
-    key = next(k for k, v in desk._periodograms.items() if v is desk.periodogram.view)
+    key = next(k for k, v in desk.desk._periodograms.items() if v is desk.periodogram.view)
     assert key[0] == "CAL-V006"
 
 
 def test_confirm_records_the_suggestions_period_unless_changed_by_hand(desk, qtbot):
     # an eclipsing-style suggestion proposes twice the periodogram's period
     analysed = desk.session.period
-    desk.result["suggestions"][0]["period"] = 2 * analysed
-    desk._period_changed(desk.session.period, "entry")
+    desk.desk.result["suggestions"][0]["period"] = 2 * analysed
+    desk.sheet.show_trial()
     assert "Confirm records the suggestion" in desk.sheet.trial_label.text()
     qtbot.keyClick(desk, Qt.Key.Key_Y)
     assert desk.ledger.verdict("CAL-V001").period == pytest.approx(2 * analysed)
@@ -369,10 +370,10 @@ def test_a_constant_star_gets_no_period(desk, qtbot):
 
 def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
     from phasewise.app.desk.fold_panel import FoldView
-    from phasewise.app.desk.services import CoreServices
+    from phasewise.core.desk import DeskModel
     from phasewise.core.lightcurve import LightCurve
 
-    view = FoldView(CoreServices())
+    view = FoldView(DeskModel())
     qtbot.addWidget(view)
     t = np.array([0.0, 0.3, 0.7, 1.1, 1.6])
     view.set_star(LightCurve("X", t, np.full(5, 15.0), np.full(5, 0.02)), "V")
@@ -382,13 +383,15 @@ def test_fold_of_too_few_points_shows_them_without_a_model(qtbot):
     assert view.fit is None and (x_model is None or len(x_model) == 0)
 
 
+@pytest.mark.slow
 def test_analyse_only_stars_without_a_fresh_result(desk, qtbot):
     import dataclasses
 
-    assert desk.reanalyse_all("stale") is None
+    assert desk.reanalysis.run("stale") is None
     assert desk.statusBar().currentMessage() == "Every star has a fresh result."
-    desk.analysis_settings = dataclasses.replace(desk.settings(), fap_threshold=0.01)
-    worker = desk.reanalyse_all("stale")  # other settings: all six are stale
+    assert not desk.desk.read_only  # the ledger was taken back
+    desk.desk.use_settings(dataclasses.replace(desk.desk.analysis_settings(), fap_threshold=0.01))
+    worker = desk.reanalysis.run("stale")  # other settings: all six are stale
     qtbot.waitUntil(lambda: worker.done.is_set(), timeout=60000)
     desk.wait_idle()
     assert all(not desk.ledger.result(sid).stale for sid in desk.ledger.star_ids())

@@ -61,7 +61,7 @@ def test_outlier_far_outside_the_bulk_is_in_view_and_selectable(outlier_desk, qt
     window, index, outlier_mag = outlier_desk
     lcp = window.lightcurve
     x_range, y_range = lcp.vb.viewRange()
-    x = float(window.lc.time[index]) - lcp.t0
+    x = float(window.desk.lc.time[index]) - lcp.t0
     assert _inside(y_range, outlier_mag) and _inside(x_range, x)
     # the fold shows it too (the analysis set it aside: a red circle)
     fold = window.fold.main
@@ -82,15 +82,20 @@ def test_fold_line_is_the_core_model_at_the_trial_period(desk, qtbot):
 
     desk.wait_idle()
     fold = desk.fold.main
-    lc, settings, band = desk.lc, desk.settings(), fold.band
+    lc, settings, band = desk.desk.lc, desk.desk.analysis_settings(), fold.band
     x, y = fold.model_curve.getData()
     # the analysis itself, run again here: its primary fit drawn over the same phases
     fit = analyse(lc, settings).primary_fit
-    assert fit is not None and band == desk.result["primary_band"]
+    assert fit is not None and band == desk.desk.result["primary_band"]
     np.testing.assert_allclose(y, fit.model(fold.model.epoch + x * fold.period), atol=1e-9)
     assert f"rms {fit.residual_std:.3f}" in fold.fold.titleLabel.text
     desk.session.nudge(+1, large=True)
-    expected = fold_model(lc, desk.session.period, settings, band, result=desk.result)
+    # the points move at once; the line follows when the period rests
+    line_x = fold.model_curve.getData()[0]
+    assert fold.busy and (line_x is None or len(line_x) == 0)
+    assert fold.bins[0].getData()[0].size > 0
+    qtbot.waitUntil(lambda: not fold.busy, timeout=5000)
+    expected = fold_model(lc, desk.session.period, settings, band, result=desk.desk.result)
     x, y = fold.model_curve.getData()
     np.testing.assert_allclose(x, expected.phase_grid)
     np.testing.assert_allclose(y, expected.model_grid)
@@ -102,14 +107,14 @@ def test_fold_line_is_the_core_model_at_the_trial_period(desk, qtbot):
 
 def test_excluded_and_set_aside_points_are_drawn_apart(outlier_desk, qtbot):
     window, index, outlier_mag = outlier_desk
-    others = np.flatnonzero(window.lc.good & (np.asarray(window.lc.band) == "V"))[:3]
-    window.exclude_points(others, True)
+    others = np.flatnonzero(window.desk.lc.good & (np.asarray(window.desk.lc.band) == "V"))[:3]
+    window.reanalysis.exclude(others, True)
     window.wait_idle()
     qtbot.waitUntil(lambda: window.fold.main.excluded.getData()[0].size > 0, timeout=10000)
     fold = window.fold.main
     excluded_mags = set(np.round(fold.excluded.getData()[1], 6))
     aside_mags = set(np.round(fold.set_aside.getData()[1], 6))
-    assert excluded_mags == set(np.round(window.lc.mag[others], 6))
+    assert excluded_mags == set(np.round(window.desk.lc.mag[others], 6))
     assert round(outlier_mag, 6) in aside_mags and not aside_mags & excluded_mags
     # different symbols and colours
     assert fold.excluded.opts["symbol"] != fold.set_aside.opts["symbol"]
@@ -122,7 +127,7 @@ def test_excluded_and_set_aside_points_are_drawn_apart(outlier_desk, qtbot):
 def test_error_bars_on_the_folds(desk, qtbot):
     fold = desk.fold.main
     assert not fold.error_bars.isVisible()
-    desk.act_errors.trigger()
+    desk.acts["errors"].trigger()
     assert fold.error_bars.isVisible() and desk.fold.alt.error_bars.isVisible()
     heights = fold.error_bars.opts["height"]
     np.testing.assert_allclose(heights[: fold.model.err.size], 2 * fold.model.err)

@@ -59,7 +59,7 @@ def test_unrecognised_columns_open_the_mapping_dialog_with_a_preview(
     window = MainWindow(settings=qsettings)
     try:
         window.show()
-        window.new_ledger_dialog()  # no error box: the dialog, then the build
+        window.files.new_ledger_dialog()  # no error box: the dialog, then the build
         assert len(seen) == 1
         qtbot.waitUntil(lambda: window.ledger is not None, timeout=60000)
         window.wait_idle()
@@ -86,7 +86,7 @@ def test_a_mapping_that_does_not_read_the_file_brings_the_dialog_back(
     monkeypatch.setattr(ColumnMappingDialog, "exec", answer)
     window = MainWindow(settings=qsettings)
     try:
-        assert window.choose_mapping(table) is None
+        assert window.files.choose_mapping(table) is None
         assert len(calls) == 2 and "does not read the file" in calls[1]
     finally:
         dispose(window)

@@ -47,7 +47,7 @@ def test_focus_leaves_the_filter_box_on_enter_and_escape(desk, qtbot):
     desk.activateWindow()
     assert not desk.star_list.filter_edit.hasFocus()  # the plots have it after opening
     for leave in (Qt.Key.Key_Return, Qt.Key.Key_Escape):
-        desk.act_find.trigger()
+        desk.acts["find"].trigger()
         assert desk.star_list.filter_edit.hasFocus()
         qtbot.keyClicks(desk.star_list.filter_edit, "CAL")
         qtbot.keyClick(desk.star_list.filter_edit, leave)
@@ -63,7 +63,7 @@ def test_focus_leaves_the_filter_box_on_enter_and_escape(desk, qtbot):
 @pytest.mark.parametrize("code", CLASS_CODES)
 def test_every_class_can_be_recorded_from_the_keyboard(desk, qtbot, code):
     """L opens the class picker; typing the code and Enter records a relabel verdict."""
-    desk.act_advance.setChecked(False)
+    desk.acts["advance"].setChecked(False)
     star = desk.current_star
     desk.activateWindow()
     desk.focus_plots()
@@ -98,9 +98,9 @@ def test_lasso_works_without_the_select_toggle(desk, qtbot):
     lcp = desk.lightcurve
     assert not lcp.select_box.isChecked()
     lcp.lasso_box.setChecked(True)
-    x, y = np.asarray(desk.lc.time) - lcp.t0, np.asarray(desk.lc.mag)
+    x, y = np.asarray(desk.desk.lc.time) - lcp.t0, np.asarray(desk.desk.lc.mag)
     # a faint point mid-plot: off the axes and away from the legend (top right)
-    good = np.flatnonzero(desk.lc.good)
+    good = np.flatnonzero(desk.desk.lc.good)
     good = good[y[good] > np.median(y[good])]
     i = int(good[np.argmin(np.abs(x[good] - np.median(x[good])))])
     vb = lcp.vb
@@ -153,10 +153,10 @@ def test_a_read_only_ledger_opens_read_only_with_verdicts_off(
         assert window.ledger.readonly and "read-only" in window.windowTitle()
         assert window.read_only_label.isVisible()
         for action in (
-            window.act_confirm,
-            window.act_relabel,
-            window.act_reject,
-            window.act_undo,
+            window.acts["confirm"],
+            window.acts["relabel"],
+            window.acts["reject"],
+            window.acts["undo"],
             *window.class_actions,
         ):
             assert not action.isEnabled()

@@ -24,10 +24,10 @@ def test_periodogram_zooms_to_the_candidates_and_z_shows_the_grid(desk, qtbot):
     cand = np.array([c["frequency"] for c in panel.candidates])
     assert x0 <= cand.min() and cand.max() <= x1
     assert (x1 - x0) < 0.5 * (f.max() - f.min())  # zoomed in, not the whole grid
-    desk.act_pg_range.trigger()
+    desk.acts["pg_range"].trigger()
     (g0, g1), _ = panel.vb.viewRange()
     assert g0 <= f[f > 0].min() + 1e-9 and g1 >= 0.99 * f.max()
-    desk.act_pg_range.trigger()
+    desk.acts["pg_range"].trigger()
     assert panel.vb.viewRange()[0][1] == pytest.approx(x1)
 
 
@@ -35,8 +35,8 @@ def test_periodogram_zooms_to_the_candidates_and_z_shows_the_grid(desk, qtbot):
 def test_spectral_window_is_drawn_on_both_axes(desk, qtbot, period_axis):
     panel = desk.periodogram
     qtbot.waitUntil(lambda: bool(panel.candidates), timeout=10000)
-    desk.act_period_axis.setChecked(period_axis)
-    desk.act_window.setChecked(True)
+    desk.acts["period_axis"].setChecked(period_axis)
+    desk.acts["window"].setChecked(True)
     qtbot.waitUntil(lambda: panel.window_power is not None, timeout=20000)
     assert panel.window_curve.isVisible()
     x, y = panel.window_curve.getData()
@@ -61,10 +61,11 @@ def test_candidate_numbers_do_not_overlap(desk, qtbot):
             assert not a.intersects(b), star
 
 
-def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_copy):
+@pytest.mark.parametrize("size", [(1280, 800), (1600, 1000)])
+def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_copy, size):
     window = MainWindow(settings=QSettings(str(tmp_path / "l.ini"), QSettings.Format.IniFormat))
     try:
-        window.resize(1600, 1000)
+        window.resize(*size)
         window.show()
         window.open_ledger(subset_copy)
         qtbot.wait(50)

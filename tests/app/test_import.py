@@ -48,7 +48,7 @@ def test_build_ledger_from_files_in_a_worker(qtbot, qsettings, tmp_path):
     window.show()
     done = []
     target = tmp_path / "new.ledger.sqlite"
-    window.build_ledger([path], None, target, on_done=done.append)
+    window.files.build_ledger([path], None, target, on_done=done.append)
     qtbot.waitUntil(lambda: bool(done), timeout=30000)
     assert window.ledger is not None and window.ledger_path == target
     assert window.star_list.model.star_ids() == ["NV-000", "NV-001", "NV-002"]

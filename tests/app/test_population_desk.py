@@ -18,7 +18,7 @@ def test_population_view_in_the_desk(qtbot, tmp_path):
     view = attach(w)
     w.show()
     led = build_ledger(tmp_path / "n.ledger.sqlite")
-    w.set_ledger(led, tmp_path / "n.ledger.sqlite")
+    w.set_ledger(led)
     w.show_view("population")
     w.wait_idle()
     assert len(view.points) == len(led.star_ids())

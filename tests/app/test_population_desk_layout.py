@@ -20,7 +20,7 @@ def desk_with_population(qtbot, tmp_path):
     view = attach(window)
     window.show()
     ledger = build_ledger(tmp_path / "n.ledger.sqlite")
-    window.set_ledger(ledger, tmp_path / "n.ledger.sqlite")
+    window.set_ledger(ledger)
     window.show_view("population")
     window.wait_idle()
     yield window, view, ledger
