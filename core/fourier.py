@@ -528,6 +528,9 @@ class OrderChoice:
     max_allowed: int
     limited_by: str  # "max_order", "points", "phase_gap", "overshoot"
     scores: tuple[float, ...]  # BIC per order, or F-test p-value per added order (1st = nan)
+    #: Weighted chi-square of the fit at ``order``, from the same factorisation
+    #: (what :func:`fit_fourier` at that order leaves, to rounding).
+    chi2: float = float("nan")
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -804,6 +807,7 @@ def _choose_order(t, y, e, f, settings: FourierSettings) -> OrderChoice:
         max_allowed=cap,
         limited_by=limited_by,
         scores=tuple(float(s) for s in scores),
+        chi2=float(chi2[2 * best]),
     )
 
 

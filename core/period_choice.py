@@ -244,13 +244,16 @@ def _band_fits(lc: LightCurve, frequency: float, settings) -> list | None:
 
 
 def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
-    fits = _band_fits(lc, frequency, settings)
-    if fits is None:
-        return np.inf
     bic = 0.0
-    for t, m, e, order, fit in fits:
-        chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
-        bic += chi2 + (2 * order + 1) * np.log(t.size)
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            # the order choice's own factorisation gives the chi-square of the
+            # chosen order: no second fit for a candidate that may lose
+            choice = choose_order(t, m, e, frequency, settings.fourier)
+        except PhasewiseError:
+            return np.inf
+        bic += choice.chi2 + (2 * choice.order + 1) * np.log(t.size)
     return bic
 
 

@@ -696,3 +696,18 @@ def test_repeated_order_choices_and_fits_are_kept_and_equal_fresh_ones():
     fourier_module.clear_memo()
     fresh = fourier_module.fit_fourier(t, m, e, 1 / 0.57, choice.order)
     assert fresh is not fit and fresh == fit
+
+
+@pytest.mark.parametrize("frequency", [1 / 0.57, 1 / 0.3, 2.3])
+def test_order_choice_carries_the_chi_square_of_its_fit(frequency):
+    # reference: the weighted residuals of fit_fourier at the chosen order (definition)
+    from phasewise.core.fourier import choose_order, fit_fourier
+
+    rng = np.random.default_rng(41)
+    t = np.sort(rng.uniform(0, 300, 700))
+    m = 0.3 * np.sin(2 * np.pi * t / 0.57) ** 3 + rng.normal(0, 0.02, t.size)
+    e = rng.uniform(0.01, 0.03, t.size)
+    choice = choose_order(t, m, e, frequency)
+    fit = fit_fourier(t, m, e, frequency, choice.order)
+    chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
+    assert choice.chi2 == pytest.approx(chi2, rel=1e-10)
