@@ -342,7 +342,8 @@ def _harmonic_columns(t: np.ndarray, frequency: float, order: int) -> np.ndarray
     if columns is None:
         columns = _basis_rows(2.0 * np.pi * frequency * (t - t.mean()), order)[1:].T
         columns.flags.writeable = False
-        while len(kept) >= 8:
+        # a few entries, and a bounded size for long curves (the newest is kept)
+        while kept and (len(kept) >= 8 or sum(c.nbytes for c in kept.values()) > 2**25):
             kept.pop(next(iter(kept)))
         kept[key] = columns
     return columns
