@@ -37,6 +37,9 @@ Montgomery, M. H. & O'Donoghue, D. 1999, Delta Scuti Star Newsletter 13, 28.
 from __future__ import annotations
 
 import functools
+import hashlib
+import threading
+from collections import OrderedDict
 from dataclasses import dataclass
 from typing import Any
 
@@ -307,6 +310,56 @@ def _centre(t: np.ndarray) -> float:
     return 0.5 * (float(t.min()) + float(t.max())) if t.size else 0.0
 
 
+# ---------------------------------------------------------------- memo
+#: Results of :func:`choose_order` and :func:`fit_fourier` kept per thread.
+#: Both are pure functions of their arrays and arguments, and the period
+#: choice asks them the same question several times per star (the BIC of
+#: the chosen candidate, the points set aside against it, the trend test and
+#: the effective number of points all fit the same band at the same
+#: frequency); the results are small and immutable.
+MEMO_ENTRIES = 32
+
+_memo_local = threading.local()
+
+
+def _data_key(*arrays: np.ndarray) -> bytes:
+    """A digest of the arrays' values (content, not identity)."""
+    digest = hashlib.blake2b(digest_size=16)
+    for a in arrays:
+        a = np.ascontiguousarray(a, dtype=float)
+        digest.update(np.int64(a.size).tobytes())
+        digest.update(memoryview(a).cast("B"))
+    return digest.digest()
+
+
+def _memo() -> OrderedDict:
+    cache = getattr(_memo_local, "cache", None)
+    if cache is None:
+        cache = _memo_local.cache = OrderedDict()
+    return cache
+
+
+def _memo_get(key: tuple) -> Any:
+    cache = _memo()
+    value = cache.get(key)
+    if value is not None:
+        cache.move_to_end(key)
+    return value
+
+
+def _memo_put(key: tuple, value: Any) -> Any:
+    cache = _memo()
+    cache[key] = value
+    while len(cache) > MEMO_ENTRIES:
+        cache.popitem(last=False)
+    return value
+
+
+def clear_memo() -> None:
+    """Drop this thread's kept order choices and fits."""
+    _memo_local.cache = OrderedDict()
+
+
 # ------------------------------------------------------------------- results
 _opt = finite_or_none  # undefined values leave as None
 
@@ -475,6 +528,9 @@ class OrderChoice:
     max_allowed: int
     limited_by: str  # "max_order", "points", "phase_gap", "overshoot"
     scores: tuple[float, ...]  # BIC per order, or F-test p-value per added order (1st = nan)
+    #: Weighted chi-square of the fit at ``order``, from the same factorisation
+    #: (what :func:`fit_fourier` at that order leaves, to rounding).
+    chi2: float = float("nan")
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -527,6 +583,14 @@ def fit_fourier(
     require_choice("form", form, FORMS)
     order = require_int("order", order, 1, None)
     t, y, e, f = _prepare(time, mag, err, frequency)
+    key = ("fit", _data_key(t, y, e), f, order, form, epoch, bool(scale_errors))
+    kept = _memo_get(key)
+    if kept is not None:
+        return kept
+    return _memo_put(key, _fit_fourier(t, y, e, f, order, form, epoch, scale_errors))
+
+
+def _fit_fourier(t, y, e, f, order, form, epoch, scale_errors) -> FourierFit:
     n = t.size
     p = 2 * order + 1
     if n < p + 1:
@@ -680,6 +744,14 @@ def choose_order(
     """
     settings = settings or FourierSettings()
     t, y, e, f = _prepare(time, mag, err, frequency)
+    key = ("order", _data_key(t, y, e), f, settings)
+    kept = _memo_get(key)
+    if kept is not None:
+        return kept
+    return _memo_put(key, _choose_order(t, y, e, f, settings))
+
+
+def _choose_order(t, y, e, f, settings: FourierSettings) -> OrderChoice:
     cap, limited_by = max_order_allowed(t, f, settings)
     if cap < 1:
         raise PhasewiseError(
@@ -735,6 +807,7 @@ def choose_order(
         max_allowed=cap,
         limited_by=limited_by,
         scores=tuple(float(s) for s in scores),
+        chi2=float(chi2[2 * best]),
     )
 
 

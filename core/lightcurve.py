@@ -56,6 +56,37 @@ def _readonly(array: np.ndarray) -> np.ndarray:
     return array
 
 
+#: Most distinct labels found by comparison before :func:`_distinct_labels`
+#: sorts them instead.
+_FEW_LABELS = 8
+
+
+def _distinct_labels(band: np.ndarray) -> tuple[list[str], np.ndarray]:
+    """Distinct labels of an object array of band labels and each point's index among them.
+
+    A curve has a few bands and many points: when every label is a string,
+    each distinct one is found by one vectorised comparison over the points
+    left, with no conversion of every point to a fixed-width string (the
+    cost of ``np.unique(band.astype(str))``, which is used otherwise).
+    """
+    n = band.size
+    inverse = np.empty(n, dtype=np.intp)
+    labels: list[str] = []
+    left = np.arange(n)
+    while left.size and len(labels) < _FEW_LABELS:
+        label = band[left[0]]
+        if type(label) is not str:
+            break
+        same = band[left] == label
+        inverse[left[same]] = len(labels)
+        labels.append(label)
+        left = left[~same]
+    if left.size == 0:
+        return labels, inverse
+    found, inverse = np.unique(band.astype(str), return_inverse=True)
+    return [str(label) for label in found], inverse.reshape(n)
+
+
 @dataclass(frozen=True, eq=False)
 class LightCurve:
     """Photometry of one star.
@@ -112,7 +143,7 @@ class LightCurve:
                     f"expected {n} band labels, got shape {band.shape}", file=where, field="band"
                 )
             # strip each distinct label once (a curve has a few bands, many points)
-            labels, inverse = np.unique(band.astype(str), return_inverse=True)
+            labels, inverse = _distinct_labels(band)
             stripped = [label.strip() for label in labels]
             band = np.array(stripped, dtype=object)[inverse]
             # two labels may strip to one name: index by the distinct stripped names

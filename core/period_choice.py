@@ -35,14 +35,15 @@ indices of the points set aside and the trend.
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import linalg, stats
 
 from .errors import PhasewiseError
-from .fourier import choose_order, fit_fourier
+from .fourier import _basis_rows, _data_key, choose_order, fit_fourier
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
 from .periodogram import (
     Candidate,
@@ -243,13 +244,16 @@ def _band_fits(lc: LightCurve, frequency: float, settings) -> list | None:
 
 
 def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
-    fits = _band_fits(lc, frequency, settings)
-    if fits is None:
-        return np.inf
     bic = 0.0
-    for t, m, e, order, fit in fits:
-        chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
-        bic += chi2 + (2 * order + 1) * np.log(t.size)
+    for band in lc.bands:
+        t, m, e = lc.arrays(band)
+        try:
+            # the order choice's own factorisation gives the chi-square of the
+            # chosen order: no second fit for a candidate that may lose
+            choice = choose_order(t, m, e, frequency, settings.fourier)
+        except PhasewiseError:
+            return np.inf
+        bic += choice.chi2 + (2 * choice.order + 1) * np.log(t.size)
     return bic
 
 
@@ -323,14 +327,33 @@ def _trend_columns(kind: str, degree: int, t: np.ndarray, t_ref: float, t_scale:
     return np.stack([(season == s).astype(float) for s in labels[1:]], axis=1)
 
 
+#: Harmonic columns kept per thread for the last few (times, frequency,
+#: order): the trend test fits the same harmonics beside every trend option.
+_harmonics = threading.local()
+
+
 def _harmonic_columns(t: np.ndarray, frequency: float, order: int) -> np.ndarray:
-    arg = 2.0 * np.pi * frequency * np.multiply.outer(t - t.mean(), np.arange(1, order + 1))
-    return np.concatenate([np.cos(arg), np.sin(arg)], axis=1)
+    """Columns cos k theta, sin k theta (k = 1..order) of theta = 2 pi f (t - mean t)."""
+    kept = getattr(_harmonics, "kept", None)
+    if kept is None:
+        kept = _harmonics.kept = {}
+    key = (_data_key(t), float(frequency), int(order))
+    columns = kept.get(key)
+    if columns is None:
+        columns = _basis_rows(2.0 * np.pi * frequency * (t - t.mean()), order)[1:].T
+        columns.flags.writeable = False
+        # a few entries, and a bounded size for long curves (the newest is kept)
+        while kept and (len(kept) >= 8 or sum(c.nbytes for c in kept.values()) > 2**25):
+            kept.pop(next(iter(kept)))
+        kept[key] = columns
+    return columns
 
 
 def _wls(columns: np.ndarray, m: np.ndarray, e: np.ndarray) -> tuple[float, np.ndarray]:
     design = np.concatenate([np.ones((m.size, 1)), columns], axis=1)
-    coef, *_ = np.linalg.lstsq(design / e[:, None], m / e, rcond=None)
+    # QR with column pivoting: the least-squares solution of the SVD driver
+    # (the minimum-norm one where columns are dependent) at a fraction of its cost
+    coef, *_ = linalg.lstsq(design / e[:, None], m / e, lapack_driver="gelsy", check_finite=False)
     return float(np.sum(((m - design @ coef) / e) ** 2)), coef
 
 

@@ -301,21 +301,18 @@ def _noise(t, r, sw, centre, box, samples):
 
     Weighted amplitude spectrum normalised so that a sinusoid of amplitude
     A, well sampled in phase, shows A: ``2 |sum w r exp(-2 pi i f t)| / sum w``.
-    The evenly spaced frequencies are reached by a running product of one
-    phase step (cheaper than an exponential per frequency).
+    The sums on the evenly spaced frequencies are one small non-uniform FFT
+    (:func:`core.periodogram.kernels.nufft.trig_sums`; its sign of the
+    exponent does not change the modulus of a sum with real strengths), so
+    the cost grows with the points, not with points x frequencies.
     """
+    from .periodogram.kernels.nufft import trig_sums
+
     low = max(centre - box, 0.5 * box / samples)
     high = centre + box
     step = (high - low) / (samples - 1)
     w = sw**2
-    tau = t - t.mean()
-    start = (w * r) * np.exp(-2j * np.pi * low * tau)
-    advance = np.exp(-2j * np.pi * step * tau)
-    sums = np.empty(samples, dtype=complex)
-    current = start
-    for i in range(samples):
-        sums[i] = current.sum()
-        current = current * advance
+    sums = trig_sums(t - t.mean(), w * r, low, step, samples)
     return float(np.mean(2.0 * np.abs(sums) / w.sum()))
 
 
@@ -341,6 +338,30 @@ def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
         if all(abs(grid[i] - c) >= resolution for c in chosen):
             chosen.append(float(grid[i]))
     return chosen
+
+
+def _near_mask(grid: np.ndarray, centres, tolerance: float) -> np.ndarray:
+    """``|grid - x| < tolerance`` for any ``x`` of ``centres``, as a boolean mask.
+
+    On an increasing grid each centre touches one short run of it: the run
+    is found by bisection (with one grid point to spare on either side) and
+    the exact test is made there only, so the mask is the one the plain
+    test over the whole grid gives, at a cost independent of the grid size.
+    """
+    masked = np.zeros(grid.size, bool)
+    centres = np.asarray(centres, dtype=float)
+    if grid.size == 0 or centres.size == 0:
+        return masked
+    if grid.size > 1 and not np.all(grid[1:] > grid[:-1]):
+        for x in centres:  # not increasing: the plain test
+            masked |= np.abs(grid - x) < tolerance
+        return masked
+    lo = np.maximum(np.searchsorted(grid, centres - tolerance) - 1, 0)
+    hi = np.minimum(np.searchsorted(grid, centres + tolerance) + 1, grid.size)
+    for x, a, b in zip(centres, lo, hi, strict=True):
+        if a < b:
+            masked[a:b] |= np.abs(grid[a:b] - x) < tolerance
+    return masked
 
 
 def _near_any(f: float, known: list[float], tolerance: float) -> bool:
@@ -443,9 +464,12 @@ def prewhiten(
     if not np.isfinite(f_main) or f_main <= 0:
         raise PhasewiseError(f"got {frequency!r}; expected a frequency > 0", field="frequency")
     t, m, e, labels = _unpack_input(lc)
-    names, counts = np.unique(labels, return_counts=True)
-    band_names = [str(n) for n in names[np.lexsort((names, -counts))]]
-    bidx = np.array([band_names.index(b) for b in labels]) if t.size else np.zeros(0, int)
+    names, inverse, counts = np.unique(labels, return_inverse=True, return_counts=True)
+    ranked = np.lexsort((names, -counts))  # most points first, then by name
+    band_names = [str(n) for n in names[ranked]]
+    rank_of = np.empty(names.size, dtype=int)
+    rank_of[ranked] = np.arange(names.size)
+    bidx = rank_of[inverse.reshape(-1)] if t.size else np.zeros(0, int)
     star_id = getattr(lc, "star_id", "residual")
     time_scale = getattr(lc, "time_scale", "JD")
     baseline = float(np.ptp(t)) if t.size > 1 else 0.0
@@ -487,11 +511,8 @@ def prewhiten(
         grid, power = np.asarray(grid, float), np.asarray(power, float)
         if threshold is None and grid.size > 1:
             threshold = snr_threshold_for((grid[-1] - grid[0]) * baseline, settings)
-        masked = np.zeros(grid.size, bool)
         f_now = float(fit.frequencies[0])
         in_model = [k * f_now for k in range(1, orders[0] + 1)] + list(fit.frequencies[1:])
-        for fk in in_model:
-            masked |= np.abs(grid - fk) < resolution
         # reflections through the sampling window of every harmonic and found
         # frequency (a harmonic itself may still be found, and is named so)
         harmonics = [k * f_now for k in range(1, settings.max_harmonic + 1)]
@@ -503,8 +524,7 @@ def prewhiten(
             for w in window_freqs
             for x in (fk + w, abs(fk - w))
         ]
-        for x in reflections:
-            masked |= np.abs(grid - x) < resolution
+        masked = _near_mask(grid, [*in_model, *reflections], resolution)
         candidates = np.flatnonzero(~masked & np.isfinite(power))
         if candidates.size == 0:
             stop = "no peak"

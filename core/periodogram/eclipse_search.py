@@ -282,7 +282,7 @@ def _dip_confirmed(t, y, w, f, n_bins) -> bool:
     the rest.
     """
     phase = (f * (t - t.min())) % 1.0
-    best = 0.0
+    bins = []
     for shift in (0.0, 0.5):
         index = np.floor(phase * n_bins + shift).astype(int) % n_bins
         for b in range(n_bins):
@@ -290,15 +290,20 @@ def _dip_confirmed(t, y, w, f, n_bins) -> bool:
             k = int(inside.sum())
             if k < MIN_DIP_POINTS or k == t.size:
                 continue
-            rest = y[~inside]
-            centre = float(np.median(rest))
-            sigma = MAD_TO_SIGMA * float(np.median(np.abs(rest - centre)))
-            if not sigma > 0:
-                continue
-            # standard error of a median: 1.2533 sigma / sqrt(k) (common practice, no source)
-            snr = (float(np.median(y[inside])) - centre) / (1.2533 * sigma / np.sqrt(k))
-            best = max(best, snr)
-    return best >= MIN_DIP_SNR
+            bins.append((float(np.median(y[inside])), k, inside))
+    # the faintest bins first: the answer is the same whichever bin reaches
+    # the threshold, and a real dip reaches it in the first bin tried
+    bins.sort(key=lambda item: -item[0])
+    for median_inside, k, inside in bins:
+        rest = y[~inside]
+        centre = float(np.median(rest))
+        sigma = MAD_TO_SIGMA * float(np.median(np.abs(rest - centre)))
+        if not sigma > 0:
+            continue
+        # standard error of a median: 1.2533 sigma / sqrt(k) (common practice, no source)
+        if (median_inside - centre) / (1.2533 * sigma / np.sqrt(k)) >= MIN_DIP_SNR:
+            return True
+    return False
 
 
 def _tail_inflation(t, y, w, frequency, n_bins, rng) -> float:

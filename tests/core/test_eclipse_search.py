@@ -199,3 +199,38 @@ def test_settings_are_validated_with_the_field_named():
         EclipseSearchSettings(n_bins=2)
     with pytest.raises(SettingsError, match="clip"):
         EclipseSearchSettings(clip=0.0)
+
+
+def _dip_confirmed_plain(t, y, f, n_bins):
+    # the rule written out: the best robust S/N over every bin of both offsets
+    from phasewise.core.periodogram.eclipse_search import MIN_DIP_POINTS, MIN_DIP_SNR
+
+    phase = (f * (t - t.min())) % 1.0
+    best = 0.0
+    for shift in (0.0, 0.5):
+        index = np.floor(phase * n_bins + shift).astype(int) % n_bins
+        for b in range(n_bins):
+            inside = index == b
+            k = int(inside.sum())
+            if k < MIN_DIP_POINTS or k == t.size:
+                continue
+            rest = y[~inside]
+            centre = np.median(rest)
+            sigma = 1.4826 * np.median(np.abs(rest - centre))
+            if sigma > 0:
+                best = max(best, (np.median(y[inside]) - centre) / (1.2533 * sigma / np.sqrt(k)))
+    return best >= MIN_DIP_SNR
+
+
+@pytest.mark.parametrize("depth", [0.0, 0.005, 0.01, 0.02, 0.3])
+def test_dip_confirmation_gives_the_answer_of_the_plain_rule(depth):
+    from phasewise.core.periodogram.eclipse_search import _dip_confirmed
+
+    rng = np.random.default_rng(int(depth * 1000) + 5)
+    t = np.sort(rng.uniform(0, 300, 400))
+    y = rng.normal(0, 0.02, t.size)
+    y[((t / 2.7) % 1.0) < 0.04] += depth  # a narrow dip of this depth
+    y[rng.choice(t.size, 3, replace=False)] += 0.8  # and three outliers
+    w = np.ones(t.size)
+    for f in (1 / 2.7, 1 / 1.35, 0.813):
+        assert _dip_confirmed(t, y, w, f, 20) == _dip_confirmed_plain(t, y, f, 20)

@@ -672,3 +672,42 @@ def test_joint_fit_with_a_band_of_fewer_points_than_terms():
         both.frequencies, alone.frequencies, rtol=0, atol=1e-6 * alone.frequencies_err.min()
     )
     assert np.abs(both.residuals[band == 1]).max() < 1e-9
+
+
+def test_repeated_order_choices_and_fits_are_kept_and_equal_fresh_ones():
+    from phasewise.core import fourier as fourier_module
+
+    rng = np.random.default_rng(31)
+    t = np.sort(rng.uniform(0, 100, 300))
+    m = 0.3 * np.sin(2 * np.pi * t / 0.57) + 0.1 * np.sin(4 * np.pi * t / 0.57)
+    m = m + rng.normal(0, 0.02, t.size)
+    e = np.full(t.size, 0.02)
+    fourier_module.clear_memo()
+    choice = fourier_module.choose_order(t, m, e, 1 / 0.57)
+    fit = fourier_module.fit_fourier(t, m, e, 1 / 0.57, choice.order)
+    # equal content (a copy) gives the kept result
+    assert fourier_module.choose_order(t.copy(), m.copy(), e.copy(), 1 / 0.57) is choice
+    assert fourier_module.fit_fourier(t.copy(), m.copy(), e, 1 / 0.57, choice.order) is fit
+    # other magnitudes, another frequency or order: computed afresh
+    m2 = m.copy()
+    m2[3] += 0.5
+    assert fourier_module.fit_fourier(t, m2, e, 1 / 0.57, choice.order) is not fit
+    assert fourier_module.fit_fourier(t, m, e, 1 / 0.571, choice.order) is not fit
+    fourier_module.clear_memo()
+    fresh = fourier_module.fit_fourier(t, m, e, 1 / 0.57, choice.order)
+    assert fresh is not fit and fresh == fit
+
+
+@pytest.mark.parametrize("frequency", [1 / 0.57, 1 / 0.3, 2.3])
+def test_order_choice_carries_the_chi_square_of_its_fit(frequency):
+    # reference: the weighted residuals of fit_fourier at the chosen order (definition)
+    from phasewise.core.fourier import choose_order, fit_fourier
+
+    rng = np.random.default_rng(41)
+    t = np.sort(rng.uniform(0, 300, 700))
+    m = 0.3 * np.sin(2 * np.pi * t / 0.57) ** 3 + rng.normal(0, 0.02, t.size)
+    e = rng.uniform(0.01, 0.03, t.size)
+    choice = choose_order(t, m, e, frequency)
+    fit = fit_fourier(t, m, e, frequency, choice.order)
+    chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
+    assert choice.chi2 == pytest.approx(chi2, rel=1e-10)

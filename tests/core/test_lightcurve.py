@@ -72,3 +72,31 @@ def test_band_labels_that_strip_to_one_name_are_one_band():
     excluded = lc.with_excluded(np.array([True, True, True, True, False, False]))
     assert excluded.bands == ("B", "I")  # one point each: ties go by name
     assert not excluded.good.flags.writeable
+
+
+@pytest.mark.parametrize(
+    "labels",
+    [
+        ["V"] * 6,
+        ["I", "V", " V", "I ", "V", "I"],
+        ["V", 7, "V", 7.0, "I", "V"],  # not every label a string: the general path
+        [np.str_("V"), "V", "I", "I", "V", "V"],
+        [f"b{k}" for k in range(6)],  # six distinct labels
+    ],
+)
+def test_band_labels_are_read_as_the_plain_string_conversion_does(labels):
+    # reference: np.unique of the labels converted to str, stripped (the plain rule)
+    band = np.array(labels, dtype=object)
+    lc = LightCurve("s", np.arange(6.0), np.zeros(6), band=band)
+    names = [str(x).strip() for x in band.astype(str)]
+    assert list(lc.band) == names
+    assert set(lc.bands) == set(names)
+    for name in set(names):
+        assert np.array_equal(lc.band_mask(name), np.array(names) == name)
+
+
+def test_many_band_labels_are_read_the_plain_way():
+    band = np.array([f"b{k % 11}" for k in range(40)], dtype=object)
+    lc = LightCurve("s", np.arange(40.0), np.zeros(40), band=band)
+    assert list(lc.band) == list(band)
+    assert len(lc.bands) == 11

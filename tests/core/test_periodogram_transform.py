@@ -10,8 +10,9 @@ from astropy.timeseries import LombScargle
 
 from phasewise.core.periodogram.grid import RegularGrid
 from phasewise.core.periodogram.kernels import gls as gls_module
+from phasewise.core.periodogram.kernels import nufft as nufft_module
 from phasewise.core.periodogram.kernels.gls import clear_weight_terms, gls_nufft, weight_terms
-from phasewise.core.periodogram.kernels.nufft import clear_plans, trig_sums
+from phasewise.core.periodogram.kernels.nufft import clear_plans, plan_size, trig_sums
 
 
 def _direct(t, c, frequency):
@@ -51,6 +52,29 @@ def test_plans_are_reused_and_can_be_dropped():
     assert np.max(np.abs(other - _direct(t2, c2, frequency))) < 1e-7 * np.abs(c2).sum()
 
 
+def test_plan_sizes_are_few_and_cover_the_grid():
+    sizes = [plan_size(n) for n in range(1, 200_000, 7)]
+    for n, size in zip(range(1, 200_000, 7), sizes, strict=True):
+        assert n <= size <= max(n, 16) * 1.125
+    # eight sizes per octave: 17 octaves of grids share about 8 x 17 plans
+    assert len(set(sizes)) < 8 * 18 + 16
+
+
+def test_grids_of_nearly_one_size_share_a_plan_and_keep_their_sums():
+    # Reference: the sums written out on each grid (definition).
+    rng = np.random.default_rng(4)
+    t = np.sort(rng.uniform(-300.0, 300.0, 200))
+    c = rng.normal(size=200)
+    clear_plans()
+    for n in (20_100, 20_400, 20_479):  # one size step: 20,480 modes
+        assert plan_size(n) == 20_480
+        got = trig_sums(t, c, 0.003, 0.0017, n)
+        assert got.shape == (n,)
+        want = _direct(t, c, 0.003 + 0.0017 * np.arange(n))
+        assert np.max(np.abs(got - want)) < 1e-7 * np.sum(np.abs(c))
+    assert [key[0] for key in nufft_module._local.plans] == [20_480]
+
+
 def test_fast_gls_equals_astropy_and_nifty_ls():
     # References: astropy LombScargle(method="slow"), standard normalisation, and
     # the nifty-ls finufft backend (Garrison et al. 2024), both outside this project.
@@ -66,7 +90,8 @@ def test_fast_gls_equals_astropy_and_nifty_ls():
     slow = LombScargle(t, y, dy).power(grid.frequencies()[::40], method="slow")
     assert np.max(np.abs(power[::40] - slow)) < 1e-8
     other = nifty.lombscargle(t, y, grid.fmin, grid.df, grid.n, dy=dy, nthreads=1)
-    assert np.max(np.abs(power - other)) < 1e-10
+    # both transforms are asked for a relative precision of 1e-9 (nufft.EPS)
+    assert np.max(np.abs(power - other)) < 1e-9
 
 
 def test_weight_terms_are_kept_for_the_same_points_and_not_for_others():
@@ -141,9 +166,9 @@ def test_plan_cache_is_bounded_by_grid_points(monkeypatch):
     clear_plans()
     rng = np.random.default_rng(3)
     t, c = rng.uniform(-5, 5, 20), rng.normal(size=20)
-    for n in (1000, 400, 300):
+    for n in (1024, 416, 320):  # sizes of the plan ladder (plan_size(n) == n)
         trig_sums(t, c, 0.1, 0.01, n)
     kept = [key[0] for key in nufft._local.plans]
-    assert kept == [400, 300]  # 1000 + 400 + 300 is over the budget: the oldest went
+    assert kept == [416, 320]  # 1024 + 416 + 320 is over the budget: the oldest went
     trig_sums(t, c, 0.1, 0.01, 2000)  # one plan alone may exceed it
-    assert [key[0] for key in nufft._local.plans] == [2000]
+    assert [key[0] for key in nufft._local.plans] == [plan_size(2000)]

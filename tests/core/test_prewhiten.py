@@ -243,3 +243,35 @@ def test_residual_search_keeps_to_the_main_search_range():
     res = prewhiten(lc, F1O, search=search)
     assert all(0.5 <= f.frequency <= 3.0 for f in res.frequencies)
     assert min(abs(f.frequency - F_F) for f in res.frequencies[1:]) < 1.0 / baseline
+
+
+def test_masks_near_known_frequencies_equal_the_plain_test():
+    # the plain test over the whole grid (definition) on increasing and other grids
+    from phasewise.core.prewhiten import _near_mask
+
+    rng = np.random.default_rng(21)
+    grid = 0.01 + 0.003 * np.arange(20_000)
+    centres = np.concatenate([rng.uniform(-1, 70, 60), grid[[0, 5, 19_999]], [grid[7] + 0.002]])
+    tolerance = 0.002
+    plain = np.zeros(grid.size, bool)
+    for x in centres:
+        plain |= np.abs(grid - x) < tolerance
+    assert np.array_equal(_near_mask(grid, centres, tolerance), plain)
+    shuffled = rng.permutation(grid)
+    plain_shuffled = np.zeros(grid.size, bool)
+    for x in centres:
+        plain_shuffled |= np.abs(shuffled - x) < tolerance
+    assert np.array_equal(_near_mask(shuffled, centres, tolerance), plain_shuffled)
+    assert not _near_mask(grid, [], tolerance).any()
+
+
+def test_bands_are_indexed_by_their_number_of_points():
+    # the band with most points is band 0 of the joint fit: its amplitude is reported
+    rng = np.random.default_rng(22)
+    t = np.sort(rng.uniform(0, 200, 500))
+    band = np.where(rng.random(t.size) < 0.2, "V", "I").astype(object)
+    amp = np.where(band == "I", 0.2, 0.35)
+    mag = amp * np.sin(2 * np.pi * t / 0.61) + rng.normal(0, 0.01, t.size)
+    lc = LightCurve("bands", t, mag, np.full(t.size, 0.01), band=band)
+    result = prewhiten(lc, 1 / 0.61, PrewhitenSettings(max_frequencies=1))
+    assert result.frequencies[0].amplitude == pytest.approx(0.2, abs=0.01)  # I, not V
