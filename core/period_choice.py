@@ -7,9 +7,10 @@ Steps, in this order (each stated where it is made):
    information criterion of their multi-harmonic fits (:func:`best_by_bic`);
    harmonics and subharmonics of a stronger peak do not compete.
 2. **Points set aside** (:func:`outliers_against`): against the Fourier
-   model at the current choice, points further than ``set_aside_sigma``
-   robust sigmas (1.4826 x MAD of the band's residuals) are set aside and
-   the search is repeated, up to ``set_aside_rounds`` rounds, until no new
+   model at the current choice, points whose residual lies further than
+   ``set_aside_sigma`` robust sigmas from the residuals of their neighbours
+   in phase (:func:`far_from_neighbours`) are set aside and the search is
+   repeated, up to ``set_aside_rounds`` rounds, until no new
    point goes.  Outliers are rare by nature: when more than
    ``set_aside_max_share`` of a band's points lie beyond the limit the model
    is wrong, not the points, and none of that band is set aside in that
@@ -62,12 +63,20 @@ __all__ = [
     "best_by_bic",
     "outliers_against",
     "fit_trend",
+    "far_from_neighbours",
     "ECLIPSE_FAP_METHOD",
     "MAD_TO_SIGMA",
+    "MIN_CYCLES",
+    "slow_amplitude",
 ]
 
 #: Median absolute deviation to Gaussian sigma (common practice, no source).
 MAD_TO_SIGMA = 1.4826
+
+#: Fewest cycles in the baseline for a period to be adopted: fewer cannot
+#: tell a period from a drift or a ramp (the rule of a period the data can
+#: determine, core.synthetic.period_determinable).
+MIN_CYCLES = 2.0
 
 #: ``fap_method`` of a candidate that comes from the eclipse search.
 ECLIPSE_FAP_METHOD = "aov_binned"
@@ -277,12 +286,12 @@ def _effective_points(lc: LightCurve, frequency: float, settings) -> float | Non
 
 # ------------------------------------------------------------- set aside
 def outliers_against(lc: LightCurve, frequency: float, settings) -> np.ndarray:
-    """Good points beyond ``set_aside_sigma`` robust sigmas of the Fourier model.
+    """Good points that stand apart from the Fourier model at ``frequency``.
 
-    Per band: residuals from the Fourier fit (order by the usual choice) at
-    ``frequency``; sigma = 1.4826 x MAD of the residuals.  A band where more
-    than ``set_aside_max_share`` of the points would go gives none (the
-    model is wrong there, not the points).
+    Per band: residuals from the Fourier fit (order by the usual choice),
+    judged by :func:`far_from_neighbours` with ``set_aside_sigma``.  A band
+    where more than ``set_aside_max_share`` of the points would go gives
+    none (the model is wrong there, not the points).
     """
     out = np.zeros(lc.n_points, dtype=bool)
     for band in lc.bands:
@@ -293,14 +302,61 @@ def outliers_against(lc: LightCurve, frequency: float, settings) -> np.ndarray:
             fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
         except PhasewiseError:
             continue
-        r = m - fit.model(t)
-        centre = np.median(r)
-        sigma = MAD_TO_SIGMA * np.median(np.abs(r - centre))
-        if not sigma > 0:
-            continue
-        far = np.abs(r - centre) > settings.set_aside_sigma * sigma
+        far = far_from_neighbours(t * frequency, m - fit.model(t), settings.set_aside_sigma)
         if far.sum() <= settings.set_aside_max_share * t.size:
             out[sel[far]] = True
+    return out
+
+
+#: Neighbours in phase whose residuals give a point's local scale in
+#: :func:`far_from_neighbours` (our choice: enough for a median absolute
+#: deviation that two or three other bad points do not move).
+PHASE_NEIGHBOURS = 10
+
+
+def far_from_neighbours(cycles: np.ndarray, residual: np.ndarray, limit: float) -> np.ndarray:
+    """Points whose residual stands more than ``limit`` robust sigmas from their neighbours'.
+
+    A point is judged against the :data:`PHASE_NEIGHBOURS` points nearest to
+    it in phase (itself left out): its residual minus their median, over
+    the larger of the whole band's robust sigma (1.4826 x MAD) and the
+    largest robust sigma of the neighbourhoods of the points within a
+    quarter of that number of it in phase.
+    Where the model underfits a steep branch, or the shape changes from
+    cycle to cycle (modulation, an eclipse the series cannot follow), the
+    neighbours' residuals are as large and as scattered, so genuine points
+    there stay; a bad point stands alone in its part of the phase.
+
+    Parameters
+    ----------
+    cycles : ndarray
+        Time times frequency (the phase is its fractional part).
+    residual : ndarray
+        Magnitude minus model, same length.
+    limit : float
+        In robust sigmas.
+    """
+    n = residual.size
+    out = np.zeros(n, dtype=bool)
+    centre = np.median(residual) if n else 0.0
+    whole = MAD_TO_SIGMA * np.median(np.abs(residual - centre)) if n else 0.0
+    if n < 3 or not whole > 0:
+        return out
+    k = min(PHASE_NEIGHBOURS, n - 1)
+    order = np.argsort(np.mod(cycles, 1.0), kind="stable")
+    r = residual[order]
+    # the k/2 points before and after each point in phase, wrapping round the cycle
+    half_before = k // 2
+    offsets = np.concatenate([np.arange(-half_before, 0), np.arange(1, k - half_before + 1)])
+    neighbours = r[(np.arange(n)[:, None] + offsets[None, :]) % n]
+    local_centre = np.median(neighbours, axis=1)
+    local = MAD_TO_SIGMA * np.median(np.abs(neighbours - local_centre[:, None]), axis=1)
+    # at the edge of a scattered stretch of phase half the neighbours lie
+    # outside it: the stretch's scale also holds two points beyond its end
+    spread = max(1, k // 4)
+    local = np.max([np.roll(local, shift) for shift in range(-spread, spread + 1)], axis=0)
+    scale = np.maximum(local, whole)
+    out[order] = np.abs(r - local_centre) > limit * scale
     return out
 
 
@@ -450,6 +506,24 @@ def trend_values(trend: dict[str, Any], time: np.ndarray, band: str) -> np.ndarr
         cols = cols[:, : coef.size]
     values = cols @ coef[: cols.shape[1]]
     return values - values.mean()
+
+
+def slow_amplitude(lc: LightCurve, band: str, trend: dict[str, Any] | None, fit=None) -> float:
+    """Peak-to-peak, at ``band``'s observed times, of the variation slower than the data time.
+
+    The trend (if any) plus ``fit``'s model (pass the Fourier fit of a
+    significant period that repeats fewer than :data:`MIN_CYCLES` times in
+    the baseline, else None).  0 when there is neither.
+    """
+    t = lc.arrays(band)[0]
+    if t.size == 0:
+        return 0.0
+    values = np.zeros(t.size)
+    if trend:
+        values += trend_values(trend, t, band)
+    if fit is not None:
+        values += fit.model(t)
+    return float(np.ptp(values))
 
 
 def _detrended(lc: LightCurve, trend: dict[str, Any]) -> LightCurve:

@@ -33,6 +33,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+from ..classes import CLASSES
 from .features import feature_info
 from .rulebook import ClassRules, Rule, Rulebook, load_rulebook
 
@@ -199,6 +200,13 @@ def _nightly_note(period: float | None) -> str:
     return ""
 
 
+def _claims_period(code: str) -> bool:
+    """Whether a suggestion of ``code`` proposes a period (registry classes
+    without one, and UNKNOWN, do not; a user rulebook's own classes do)."""
+    info = CLASSES.get(code)
+    return code != "UNKNOWN" and (info is None or info.periodic)
+
+
 def _subtype(entry: ClassRules, values: Mapping[str, Any]) -> str | None:
     for sub in entry.subtypes:
         value = values.get(sub.feature)
@@ -253,7 +261,8 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
                 )
         else:
             notes.append("the chosen peak is marked as an alias; check the other candidates")
-    if entry.code not in ("CONST", "UNKNOWN"):
+    claims_period = _claims_period(entry.code)
+    if claims_period:
         nightly = _nightly_note(used)
         if nightly:
             notes.append(nightly)
@@ -262,7 +271,7 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
         score=best.score,
         reasons=best.reasons,
         against=best.against,
-        period=used if entry.code not in ("CONST", "UNKNOWN") else None,
+        period=used if claims_period else None,
         note="; ".join(notes),
         subtype=_subtype(entry, best.values),
         missing=best.missing,
