@@ -92,7 +92,8 @@ FEATURES: dict[str, Feature] = _features(
     (
         "depth_difference_fraction",
         "",
-        "depth_difference / amplitude (filled in by suggest when both are known); when the "
+        "(|depth_difference| - depth_difference_err, at least 0) / amplitude (filled in by "
+        "suggest when both are known; one sigma below the measured difference); when the "
         "fold at period already shows two dips, (amplitude - depth_secondary_at_p) / amplitude",
     ),
     (

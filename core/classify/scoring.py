@@ -89,7 +89,8 @@ class Suggestion:
 
 def clean_features(features: Mapping[str, Any]) -> dict[str, Any]:
     """Plain floats (NaN → None), with ``log_period``, ``amplitude`` and
-    ``depth_difference_fraction`` filled in when absent."""
+    ``depth_difference_fraction`` filled in when absent (the depth
+    difference less its error, over the amplitude)."""
     out: dict[str, Any] = {}
     for name, value in features.items():
         if value is None or isinstance(value, str):
@@ -115,7 +116,10 @@ def clean_features(features: Mapping[str, Any]) -> dict[str, Any]:
         out["amplitude_to_noise"] = out["amplitude"] / noise
     depth, amplitude = out.get("depth_difference"), out.get("amplitude")
     if out.get("depth_difference_fraction") is None and depth is not None and amplitude:
-        out["depth_difference_fraction"] = abs(depth) / amplitude
+        # the smallest difference the data support (one sigma below the
+        # measured one): noise alone makes equal minima look unequal
+        depth_err = out.get("depth_difference_err") or 0.0
+        out["depth_difference_fraction"] = max(0.0, abs(depth) - abs(depth_err)) / amplitude
     return out
 
 

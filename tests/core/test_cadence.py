@@ -310,3 +310,26 @@ def test_a_mira_seen_for_a_month_is_long_period_without_a_period(seed):
     top = _top(result)
     assert top["class"] == "LONG" and top["period"] is None
     assert result["features"]["slow_amplitude"] >= 0.2
+
+
+def test_sparse_contact_binary_with_noisy_minima_stays_ew():
+    # 80-odd points: the alternate minima differ by 1.8 sigma only, which
+    # once read as a beta Lyrae-type difference (EB); one sigma is taken off
+    lc, truth = battery_star("sparse", "EW", seed=0)
+    result = analyse(lc).to_dict()
+    top = _top(result)
+    assert top["class"] == "EW"
+    assert top["period"] == pytest.approx(truth.period, rel=1e-3)
+
+
+def test_algol_found_at_half_its_orbit_gets_its_orbit():
+    # the periodogram finds half the orbit; a Fourier series at 2P cannot
+    # follow the narrow eclipses, but the points in the dip differ between
+    # odd and even cycles (deep primary, shallow secondary)
+    lc, truth = battery_star("nightly", "EA", seed=1)
+    result = analyse(lc).to_dict()
+    assert result["period"] == pytest.approx(truth.period / 2.0, rel=1e-3)
+    assert result["eclipse"]["unequal_minima"] is True
+    top = _top(result)
+    assert top["class"] == "EA"
+    assert top["period"] == pytest.approx(truth.period, rel=1e-3)
