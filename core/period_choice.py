@@ -16,8 +16,9 @@ Steps, in this order (each stated where it is made):
    is wrong, not the points, and none of that band is set aside in that
    round.
 3. **Trend** (:func:`fit_trend`), where the data call for it: a polynomial
-   in time of degree 1-3 or a floating mean per season, each band with its
-   own coefficients.  A trend is *called for* when it lowers the scaled BIC
+   in time of degree 1-3, a floating mean per season, or (dense regular
+   sampling) a straight drift plus a decaying ramp after each gap, each band
+   with its own coefficients.  A trend is *called for* when it lowers the scaled BIC
    (chi-square over the best model's reduced chi-square, plus k ln N) by at
    least ``trend_min_delta_bic``, alone or beside the Fourier model at the
    current choice.  The search is then repeated on the detrended curve from
@@ -369,11 +370,35 @@ def _seasons(t: np.ndarray) -> np.ndarray:
     return breaks
 
 
-def _trend_columns(kind: str, degree: int, t: np.ndarray, t_ref: float, t_scale: float):
+#: Decay times (d) of the ramps after gaps in dense regular sampling, one
+#: trend option each (our choice, spanning the 0.3-1 d scattered-light and
+#: thermal settling of space photometry after a data downlink; common
+#: practice, no source).
+RAMP_SCALES = (0.3, 1.0)
+
+#: A gap longer than this (d) in regular sampling starts a new ramp.
+RAMP_GAP = 0.5
+
+
+def _ramp_starts(t: np.ndarray) -> list[float]:
+    """The start of the series and of every stretch after a gap over :data:`RAMP_GAP`."""
+    ts = np.sort(t)
+    return [float(ts[0]), *(float(x) for x in ts[1:][np.diff(ts) > RAMP_GAP])]
+
+
+def _trend_columns(kind: str, degree: int, t: np.ndarray, t_ref: float, t_scale: float, starts=()):
     """Design columns of a trend (without the constant, which each model has)."""
     if kind == "polynomial":
         x = (t - t_ref) / t_scale
         return np.stack([x**k for k in range(1, degree + 1)], axis=1)
+    if kind == "ramps":
+        # a straight drift, and a step decaying from the start of each stretch
+        scale = RAMP_SCALES[degree]
+        cols = [(t - t_ref) / t_scale]
+        for start in starts:
+            after = t >= start
+            cols.append(np.where(after, np.exp(-np.clip(t - start, 0.0, None) / scale), 0.0))
+        return np.stack(cols, axis=1)
     season = _seasons(t)
     labels = np.unique(season)
     return np.stack([(season == s).astype(float) for s in labels[1:]], axis=1)
@@ -393,6 +418,9 @@ def _wls(columns: np.ndarray, m: np.ndarray, e: np.ndarray) -> tuple[float, np.n
 def _trend_options(lc: LightCurve) -> list[tuple[str, int]]:
     options = [("polynomial", d) for d in (1, 2, 3)]
     t = lc.time[lc.good]
+    if t.size and sampling_of(t).regular and len(_ramp_starts(t)) <= 10:
+        # dense regular sampling (space-like): ramps after the gaps
+        options += [("ramps", k) for k in range(len(RAMP_SCALES))]
     n_seasons = int(_seasons(t).max()) + 1 if t.size else 0
     if 2 <= n_seasons and all(
         np.min(np.bincount(_seasons(lc.arrays(b)[0]))) >= 5 for b in lc.bands
@@ -404,11 +432,12 @@ def _trend_options(lc: LightCurve) -> list[tuple[str, int]]:
 def _model_chi2(lc, trend_option, frequency, orders, t_ref, t_scale):
     """Chi-square and parameter count of trend (optional) + harmonics (optional), all bands."""
     chi2, k = 0.0, 0
+    starts = _ramp_starts(lc.time[lc.good])
     for band in lc.bands:
         t, m, e = lc.arrays(band)
         cols = [np.zeros((t.size, 0))]
         if trend_option is not None:
-            cols.append(_trend_columns(*trend_option, t, t_ref, t_scale))
+            cols.append(_trend_columns(*trend_option, t, t_ref, t_scale, starts))
         if frequency is not None:
             cols.append(_harmonic_columns(t, frequency, orders[band]))
         columns = np.concatenate(cols, axis=1)
@@ -468,23 +497,30 @@ def fit_trend(lc: LightCurve, frequency: float | None, settings) -> dict[str, An
 def _trend_description(lc, option, frequency, orders, t_ref, t_scale, delta_bic):
     kind, degree = option
     coefficients = {}
+    starts = _ramp_starts(lc.time[lc.good]) if kind == "ramps" else []
     for band in lc.bands:
         t, m, e = lc.arrays(band)
-        trend_cols = _trend_columns(kind, degree, t, t_ref, t_scale)
+        trend_cols = _trend_columns(kind, degree, t, t_ref, t_scale, starts)
         cols = [trend_cols]
         if frequency is not None:
             cols.append(_harmonic_columns(t, frequency, orders[band]))
         _, coef = _wls(np.concatenate(cols, axis=1), m, e)
         coefficients[band] = [float(c) for c in coef[1 : 1 + trend_cols.shape[1]]]
-    text = (
-        f"polynomial of degree {degree} in time"
-        if kind == "polynomial"
-        else (f"a floating mean for each of {degree + 1} seasons")
-    )
+    if kind == "polynomial":
+        text = f"polynomial of degree {degree} in time"
+    elif kind == "ramps":
+        text = (
+            f"a straight drift and a ramp decaying over {RAMP_SCALES[degree]:g} d after "
+            f"each of {len(starts)} starts of observing"
+        )
+    else:
+        text = f"a floating mean for each of {degree + 1} seasons"
     return {
         "kind": kind,
         "degree": degree if kind == "polynomial" else None,
         "n_seasons": degree + 1 if kind == "seasons" else None,
+        "ramp_scale": RAMP_SCALES[degree] if kind == "ramps" else None,
+        "ramp_starts": starts if kind == "ramps" else None,
         "t_ref": t_ref,
         "t_scale": t_scale,
         "season_gap": SEASON_GAP,
@@ -501,6 +537,10 @@ def trend_values(trend: dict[str, Any], time: np.ndarray, band: str) -> np.ndarr
         return np.zeros(time.size)
     if trend["kind"] == "polynomial":
         cols = _trend_columns("polynomial", trend["degree"], time, trend["t_ref"], trend["t_scale"])
+    elif trend["kind"] == "ramps":
+        k = RAMP_SCALES.index(trend["ramp_scale"])
+        starts = trend["ramp_starts"]
+        cols = _trend_columns("ramps", k, time, trend["t_ref"], trend["t_scale"], starts)
     else:
         cols = _trend_columns("seasons", 0, time, 0.0, 1.0)
         cols = cols[:, : coef.size]
@@ -534,6 +574,12 @@ def _detrended(lc: LightCurve, trend: dict[str, Any]) -> LightCurve:
     return replace(lc, mag=mag, mag_err=lc._err_arg())
 
 
+def _option_of(trend: dict[str, Any]) -> tuple[str, int]:
+    if trend["kind"] == "ramps":
+        return "ramps", RAMP_SCALES.index(trend["ramp_scale"])
+    return trend["kind"], trend["degree"] or (trend["n_seasons"] or 1) - 1
+
+
 def _trend_step(working, pgram, candidates, chosen, settings, windows):
     """Adopt a trend when it is called for and wins (see the module notes), else None."""
     f_old = candidates[chosen].frequency
@@ -560,7 +606,7 @@ def _trend_step(working, pgram, candidates, chosen, settings, windows):
     if orders_old is None or orders_new is None:
         return None
     t_ref, t_scale = trend["t_ref"], trend["t_scale"]
-    option = (trend["kind"], trend["degree"] or (trend["n_seasons"] or 1) - 1)
+    option = _option_of(trend)
     fits = {
         "plain": _model_chi2(working, None, f_old, orders_old, t_ref, t_scale),
         "trend": _model_chi2(working, option, f_new, orders_new, t_ref, t_scale),

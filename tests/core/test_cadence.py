@@ -233,14 +233,17 @@ def test_yearly_sunspots_give_the_solar_cycle_with_default_settings():
 
 
 def test_a_period_under_two_cycles_is_not_adopted():
-    # a constant star on the 27-day space-like cadence whose scattered-light
-    # ramps after the gap leave a ~15 d wave: under two cycles, no period
-    lc, _ = battery_star("space", "NONVAR", seed=2000)
+    # a 13.7 d Cepheid on the 27-day space-like cadence: the period is found
+    # but repeats fewer than two times, so it is not adopted; the star is
+    # "long-period, period undetermined" rather than a class by period
+    lc, truth = battery_star("space", "DCEP", "F", seed=0)
+    assert lc.baseline < 2.0 * truth.period
     result = analyse(lc).to_dict()
     assert result["period"] > lc.baseline / 2.0
     assert result["status"] == "no_significant_period"
     assert "fewer than 2 times" in result["reason"]
-    assert _top(result)["class"] == "CONST"
+    top = _top(result)
+    assert top["class"] == "LONG" and top["period"] is None
 
 
 @pytest.mark.parametrize("seed", [10, 14])
@@ -333,3 +336,16 @@ def test_algol_found_at_half_its_orbit_gets_its_orbit():
     top = _top(result)
     assert top["class"] == "EA"
     assert top["period"] == pytest.approx(truth.period, rel=1e-3)
+
+
+@pytest.mark.parametrize("seed", [1000, 2001])
+def test_space_constant_with_ramps_after_gaps_stays_constant(seed):
+    # 30-minute cadence: scattered-light ramps after the start and the gap,
+    # which a cubic cannot follow, once left an "8.5 d Cepheid" of 2-4 mmag
+    # with FAP < 1e-3; a drift and a decaying ramp per stretch remove them
+    lc, _ = battery_star("space", "NONVAR", seed=seed)
+    result = analyse(lc).to_dict()
+    assert result["status"] != "ok"
+    assert _top(result)["class"] == "CONST"
+    assert result["trend"] is not None and result["trend"]["kind"] == "ramps"
+    assert len(result["trend"]["ramp_starts"]) == 2
