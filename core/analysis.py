@@ -509,10 +509,13 @@ def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any,
 def _measure(working: LightCurve, f0: float, fap_method: str, settings: AnalysisSettings):
     """Refined frequency and per-band Fourier fits at the chosen candidate."""
     refined = refine_frequency(working, f0, settings=settings.fourier)
-    frequency = refined.frequency if refined.converged else f0
-    # a Fourier series cannot follow a narrow eclipse: its residuals would set
-    # the eclipse points aside as outliers
+    # a Fourier series cannot follow a narrow eclipse: it would move the
+    # search's period (timed by the search's own statistic), and its
+    # residuals would set the eclipse points aside as outliers
     from_search = fap_method == ECLIPSE_FAP_METHOD
+    if from_search and refined.converged:
+        refined = replace(refined, frequency=f0)
+    frequency = refined.frequency if refined.converged else f0
     decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
     fits, outlier_times, analysed = _decompose_with_outliers(working, frequency, decompose_settings)
     return refined, fits, outlier_times, analysed
