@@ -183,10 +183,13 @@ def _alternate_dips_differ(t, m, fit, faint_phase, settings) -> bool:
     found at half its orbit.  The points themselves can: those where the
     model at ``P`` lies deeper than half its range (within a quarter cycle of
     minimum light) are split by the parity of their cycle, counted from
-    minimum light; the difference of the two groups' mean magnitudes over
-    its standard error (scatter from the residuals of the fit at ``P``) must
-    exceed ``significance``, and the difference must be at least
-    ``min_depth_fraction`` of the deeper group's depth below maximum light.
+    minimum light, at least three in each.  Their residuals from the model
+    at ``P`` (which follows the mean eclipse profile, so where in the
+    eclipse a point falls does not count) are compared by their medians (a
+    lone outlier does not count either): the difference over its standard
+    error (1.2533 x the residuals' scatter x sqrt(1/n1 + 1/n2)) must exceed
+    ``significance``, and the difference must be at least
+    ``min_depth_fraction`` of the dip's depth.
     """
     model = fit.model(t)
     bright, faint = float(np.min(model)), float(np.max(model))
@@ -195,17 +198,16 @@ def _alternate_dips_differ(t, m, fit, faint_phase, settings) -> bool:
     in_dip = (model >= bright + 0.5 * (faint - bright)) & (_circular_distance(cycle, 0.0) <= 0.25)
     parity = np.mod(np.round(cycle), 2.0) == 0
     even, odd = in_dip & parity, in_dip & ~parity
-    if even.sum() < 2 or odd.sum() < 2:
+    if even.sum() < 3 or odd.sum() < 3:
         return False
-    scatter = float(np.std(m - model))
-    err = scatter * np.sqrt(1.0 / even.sum() + 1.0 / odd.sum())
-    depth_even = float(np.mean(m[even])) - bright
-    depth_odd = float(np.mean(m[odd])) - bright
-    difference = abs(depth_even - depth_odd)
+    resid = m - model
+    # standard error of a median: sqrt(pi / 2) times that of a mean
+    err = 1.2533 * float(np.std(resid)) * np.sqrt(1.0 / even.sum() + 1.0 / odd.sum())
+    difference = abs(float(np.median(resid[even]) - np.median(resid[odd])))
     return bool(
         err > 0
         and difference > settings.significance * err
-        and difference > settings.min_depth_fraction * max(depth_even, depth_odd)
+        and difference > settings.min_depth_fraction * (faint - bright)
     )
 
 
