@@ -491,6 +491,10 @@ def _analyse(
     # the rulebook's significance gate is the status decided above (one
     # threshold, fap_threshold; a period that does not repeat twice is none)
     features = features_from_result(measured.to_dict())
+    slow = features.get("slow_amplitude") or 0.0
+    periodic = (features.get("amplitude") or 0.0) if status == "ok" else 0.0
+    # how much of the variation is slower than the data can time
+    features["slow_share"] = slow / (slow + periodic) if slow + periodic > 0 else 0.0
     suggestions = _suggest(features, settings)
     physics: tuple[PhysicalValue, ...] = ()
     if suggestions:

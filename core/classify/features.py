@@ -135,6 +135,12 @@ FEATURES: dict[str, Feature] = _features(
     ),
     ("cycles", "", "cycles of the chosen period in the baseline"),
     (
+        "slow_share",
+        "",
+        "slow_amplitude / (slow_amplitude + amplitude of the adopted period; 0 when no "
+        "period is adopted): 1 when the slow change is all there is (filled in by the analysis)",
+    ),
+    (
         "slow_amplitude",
         "mag",
         "peak-to-peak, at the observed times of the band with most points, of the variation slower "

@@ -362,3 +362,15 @@ def test_eclipse_period_is_timed_by_the_eclipses():
     top = _top(result)
     assert top["class"] == "EA"
     assert top["period"] == pytest.approx(truth.period, rel=1e-3)
+
+
+def test_a_mira_month_detrended_to_a_weak_period_is_still_long():
+    # 27 days of a 191 d Mira: the slow change (0.66 mag) is removed as a
+    # trend and a weak 0.23 d "period" of 8 mmag is left; it does not name
+    # the class (once DSCT): the slow change dominates
+    lc, truth = battery_star("space", "LPV", "MIRA", seed=100000)
+    result = analyse(lc).to_dict()
+    features = result["features"]
+    assert features["slow_amplitude"] >= 0.2 and features["slow_share"] >= 0.8
+    top = _top(result)
+    assert top["class"] == "LONG" and top["period"] is None
