@@ -43,7 +43,13 @@ from .fourier import (
     refine_frequency,
 )
 from .lightcurve import MIN_GOOD_POINTS, LightCurve
-from .period_choice import ECLIPSE_FAP_METHOD, MAD_TO_SIGMA, choose_period
+from .period_choice import (
+    ECLIPSE_FAP_METHOD,
+    MIN_CYCLES,
+    choose_period,
+    far_from_neighbours,
+    slow_amplitude,
+)
 from .periodogram import (
     Candidate,
     EclipseSearch,
@@ -86,8 +92,10 @@ class AnalysisSettings:
         peak at an alias; the Fourier fit at the right period has the lower
         Bayesian information criterion.
     outlier_sigma : float or None
-        Points whose residual from the Fourier model exceeds this many robust
-        sigmas are set aside for the Fourier fit (reported, never deleted).
+        Points whose residual from the Fourier model stands more than this
+        many robust sigmas from their neighbours' in phase
+        (:func:`core.period_choice.far_from_neighbours`) are set aside for
+        the Fourier fit (reported, never deleted).
     rulebook : str or None
         Path of a user rulebook; None uses the user copy if present, else the
         shipped one.
@@ -162,10 +170,6 @@ class AnalysisSettings:
 
 
 _num = finite_or_none  # a finite float or None, for JSON-able results
-
-#: Fewest cycles in the baseline for a period to be adopted (status "ok"):
-#: the rule of a period the data can determine (core.synthetic.period_determinable).
-MIN_CYCLES = 2.0
 
 
 @dataclass(frozen=True, eq=False)
@@ -359,7 +363,10 @@ def _analyse(
         return AnalysisResult(
             status="no_variability",
             reason="every magnitude is the same",
-            suggestions=_suggest({"n_points": cleaned.n_good, "fap": 1.0}, settings),
+            suggestions=_suggest(
+                {"n_points": cleaned.n_good, "fap": 1.0, "significant": 0.0, "slow_amplitude": 0.0},
+                settings,
+            ),
             **common,
         )
 
@@ -458,7 +465,20 @@ def _analyse(
         refined=refined,
         prewhitening=pw,
         eclipse=ecl,
-        features=_extra_features(analysed, primary),
+        features={
+            **_extra_features(analysed, primary),
+            "cycles": working.baseline * frequency,
+            # a strong variation the data cannot time still tells the class;
+            # measured in the band with most points, which determines it best
+            "slow_amplitude": slow_amplitude(
+                analysed,
+                analysed.bands[0],
+                choice.trend,
+                fits.get(analysed.bands[0])
+                if few_cycles and _significant_fap(fap, settings.fap_threshold)
+                else None,
+            ),
+        },
         outlier_times=outlier_times,
         set_aside=tuple(int(i) for i in set_aside),
         trend=choice.trend,
@@ -468,11 +488,13 @@ def _analyse(
         **common,
     )
     # one place turns results into features: the same function reads stored results
+    # the rulebook's significance gate is the status decided above (one
+    # threshold, fap_threshold; a period that does not repeat twice is none)
     features = features_from_result(measured.to_dict())
-    if few_cycles:
-        # the rulebook's significance gate: a period that does not repeat
-        # twice is no period (the measured FAP stays in the result)
-        features = {**features, "fap": 1.0}
+    slow = features.get("slow_amplitude") or 0.0
+    periodic = (features.get("amplitude") or 0.0) if status == "ok" else 0.0
+    # how much of the variation is slower than the data can time
+    features["slow_share"] = slow / (slow + periodic) if slow + periodic > 0 else 0.0
     suggestions = _suggest(features, settings)
     physics: tuple[PhysicalValue, ...] = ()
     if suggestions:
@@ -491,10 +513,13 @@ def _suggest(features: dict[str, Any], settings: AnalysisSettings) -> tuple[Any,
 def _measure(working: LightCurve, f0: float, fap_method: str, settings: AnalysisSettings):
     """Refined frequency and per-band Fourier fits at the chosen candidate."""
     refined = refine_frequency(working, f0, settings=settings.fourier)
-    frequency = refined.frequency if refined.converged else f0
-    # a Fourier series cannot follow a narrow eclipse: its residuals would set
-    # the eclipse points aside as outliers
+    # a Fourier series cannot follow a narrow eclipse: it would move the
+    # search's period (timed by the search's own statistic), and its
+    # residuals would set the eclipse points aside as outliers
     from_search = fap_method == ECLIPSE_FAP_METHOD
+    if from_search and refined.converged:
+        refined = replace(refined, frequency=f0)
+    frequency = refined.frequency if refined.converged else f0
     decompose_settings = replace(settings, outlier_sigma=None) if from_search else settings
     fits, outlier_times, analysed = _decompose_with_outliers(working, frequency, decompose_settings)
     return refined, fits, outlier_times, analysed
@@ -647,13 +672,11 @@ def _decompose_with_outliers(
         residual[sel] = lc.mag[sel] - fit.model(lc.time[sel])
     outliers = np.zeros(lc.n_points, dtype=bool)
     for band in fits:
-        sel = lc.band_mask(band)
-        r = residual[sel]
-        sigma = MAD_TO_SIGMA * np.median(np.abs(r - np.median(r)))
-        if sigma > 0:
-            outliers[
-                np.flatnonzero(sel)[np.abs(r - np.median(r)) > settings.outlier_sigma * sigma]
-            ] = True
+        # the same rule as the period choice's: a point must stand apart from
+        # its neighbours in phase, not only from a model that underfits
+        sel = np.flatnonzero(lc.band_mask(band))
+        far = far_from_neighbours(lc.time[sel] * frequency, residual[sel], settings.outlier_sigma)
+        outliers[sel[far]] = True
     if not outliers.any():
         return fits, (), lc
     kept = lc.with_excluded(lc.excluded | outliers)

@@ -112,6 +112,9 @@ _ALL = (
     ClassInfo("LPV", "long-period variable", True, pulsating=True),
     ClassInfo("CONST", "not variable", False),
     ClassInfo("UNKNOWN", "variable of unknown type", True),
+    # varies by more than survey systematics, but slower than the data can
+    # time (fewer than two cycles): no period is claimed
+    ClassInfo("LONG", "long-period variable, period undetermined", False),
 )
 
 #: Class code -> :class:`ClassInfo`, in the order classes are offered.

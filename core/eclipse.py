@@ -18,7 +18,9 @@ tested period ``P`` the light curve then shows two minima per cycle:
 
 The tests run on the band with most points.  Depths come from a Fourier fit
 at ``2P`` (order chosen by BIC within the sampling limits); their error from
-the covariance of that fit.
+the covariance of that fit.  Where that fit sees equal minima and the curve
+at ``P`` has one dip, the points in the dip are also compared between odd
+and even cycles (a narrow eclipse no low-order series follows).
 """
 
 from __future__ import annotations
@@ -173,6 +175,42 @@ def _dip_in_points(t, m, fit, dip_phase, primary_phase, significance) -> bool:
     return err > 0 and difference > significance * err
 
 
+def _alternate_dips_differ(t, m, fit, faint_phase, settings) -> bool:
+    """Whether the points in the dip at ``P`` differ between odd and even cycles.
+
+    A Fourier series of low order at ``2P`` cannot follow a narrow eclipse,
+    so the depths of its two minima say nothing when an Algol-type binary is
+    found at half its orbit.  The points themselves can: those where the
+    model at ``P`` lies deeper than half its range (within a quarter cycle of
+    minimum light) are split by the parity of their cycle, counted from
+    minimum light, at least three in each.  Their residuals from the model
+    at ``P`` (which follows the mean eclipse profile, so where in the
+    eclipse a point falls does not count) are compared by their medians (a
+    lone outlier does not count either): the difference over its standard
+    error (1.2533 x the residuals' scatter x sqrt(1/n1 + 1/n2)) must exceed
+    ``significance``, and the difference must be at least
+    ``min_depth_fraction`` of the dip's depth.
+    """
+    model = fit.model(t)
+    bright, faint = float(np.min(model)), float(np.max(model))
+    t_faint = fit.epoch_max + faint_phase / fit.frequency
+    cycle = (t - t_faint) * fit.frequency
+    in_dip = (model >= bright + 0.5 * (faint - bright)) & (_circular_distance(cycle, 0.0) <= 0.25)
+    parity = np.mod(np.round(cycle), 2.0) == 0
+    even, odd = in_dip & parity, in_dip & ~parity
+    if even.sum() < 3 or odd.sum() < 3:
+        return False
+    resid = m - model
+    # standard error of a median: sqrt(pi / 2) times that of a mean
+    err = 1.2533 * float(np.std(resid)) * np.sqrt(1.0 / even.sum() + 1.0 / odd.sum())
+    difference = abs(float(np.median(resid[even]) - np.median(resid[odd])))
+    return bool(
+        err > 0
+        and difference > settings.significance * err
+        and difference > settings.min_depth_fraction * (faint - bright)
+    )
+
+
 def eclipse_test(
     lc: Any,
     frequency: float,
@@ -280,6 +318,10 @@ def eclipse_test(
     ratio = float(amps[1] / amps[0]) if amps[0] > 0 else np.inf
 
     unequal = bool(sigma > settings.significance and diff > settings.min_depth_fraction * depth1)
+    if not unequal and second_at_p is None:
+        # one dip at P: do its points differ from cycle to cycle (a narrow
+        # eclipse alternating with a shallower one, found at half the orbit)?
+        unequal = _alternate_dips_differ(t, m, fit_p, faint, settings)
     return EclipseTest(
         band=str(band),
         n_points=int(t.size),

@@ -7,16 +7,18 @@ Steps, in this order (each stated where it is made):
    information criterion of their multi-harmonic fits (:func:`best_by_bic`);
    harmonics and subharmonics of a stronger peak do not compete.
 2. **Points set aside** (:func:`outliers_against`): against the Fourier
-   model at the current choice, points further than ``set_aside_sigma``
-   robust sigmas (1.4826 x MAD of the band's residuals) are set aside and
-   the search is repeated, up to ``set_aside_rounds`` rounds, until no new
+   model at the current choice, points whose residual lies further than
+   ``set_aside_sigma`` robust sigmas from the residuals of their neighbours
+   in phase (:func:`far_from_neighbours`) are set aside and the search is
+   repeated, up to ``set_aside_rounds`` rounds, until no new
    point goes.  Outliers are rare by nature: when more than
    ``set_aside_max_share`` of a band's points lie beyond the limit the model
    is wrong, not the points, and none of that band is set aside in that
    round.
 3. **Trend** (:func:`fit_trend`), where the data call for it: a polynomial
-   in time of degree 1-3 or a floating mean per season, each band with its
-   own coefficients.  A trend is *called for* when it lowers the scaled BIC
+   in time of degree 1-3, a floating mean per season, or (dense regular
+   sampling) a straight drift plus a decaying ramp after each gap, each band
+   with its own coefficients.  A trend is *called for* when it lowers the scaled BIC
    (chi-square over the best model's reduced chi-square, plus k ln N) by at
    least ``trend_min_delta_bic``, alone or beside the Fourier model at the
    current choice.  The search is then repeated on the detrended curve from
@@ -63,12 +65,21 @@ __all__ = [
     "best_by_bic",
     "outliers_against",
     "fit_trend",
+    "far_from_neighbours",
     "ECLIPSE_FAP_METHOD",
     "MAD_TO_SIGMA",
+    "MIN_CYCLES",
+    "slow_amplitude",
+    "eclipse_timing",
 ]
 
 #: Median absolute deviation to Gaussian sigma (common practice, no source).
 MAD_TO_SIGMA = 1.4826
+
+#: Fewest cycles in the baseline for a period to be adopted: fewer cannot
+#: tell a period from a drift or a ramp (the rule of a period the data can
+#: determine, core.synthetic.period_determinable).
+MIN_CYCLES = 2.0
 
 #: ``fap_method`` of a candidate that comes from the eclipse search.
 ECLIPSE_FAP_METHOD = "aov_binned"
@@ -281,12 +292,12 @@ def _effective_points(lc: LightCurve, frequency: float, settings) -> float | Non
 
 # ------------------------------------------------------------- set aside
 def outliers_against(lc: LightCurve, frequency: float, settings) -> np.ndarray:
-    """Good points beyond ``set_aside_sigma`` robust sigmas of the Fourier model.
+    """Good points that stand apart from the Fourier model at ``frequency``.
 
-    Per band: residuals from the Fourier fit (order by the usual choice) at
-    ``frequency``; sigma = 1.4826 x MAD of the residuals.  A band where more
-    than ``set_aside_max_share`` of the points would go gives none (the
-    model is wrong there, not the points).
+    Per band: residuals from the Fourier fit (order by the usual choice),
+    judged by :func:`far_from_neighbours` with ``set_aside_sigma``.  A band
+    where more than ``set_aside_max_share`` of the points would go gives
+    none (the model is wrong there, not the points).
     """
     out = np.zeros(lc.n_points, dtype=bool)
     for band in lc.bands:
@@ -297,14 +308,61 @@ def outliers_against(lc: LightCurve, frequency: float, settings) -> np.ndarray:
             fit = fit_fourier(t, m, e, frequency, order, form=settings.fourier.form)
         except PhasewiseError:
             continue
-        r = m - fit.model(t)
-        centre = np.median(r)
-        sigma = MAD_TO_SIGMA * np.median(np.abs(r - centre))
-        if not sigma > 0:
-            continue
-        far = np.abs(r - centre) > settings.set_aside_sigma * sigma
+        far = far_from_neighbours(t * frequency, m - fit.model(t), settings.set_aside_sigma)
         if far.sum() <= settings.set_aside_max_share * t.size:
             out[sel[far]] = True
+    return out
+
+
+#: Neighbours in phase whose residuals give a point's local scale in
+#: :func:`far_from_neighbours` (our choice: enough for a median absolute
+#: deviation that two or three other bad points do not move).
+PHASE_NEIGHBOURS = 10
+
+
+def far_from_neighbours(cycles: np.ndarray, residual: np.ndarray, limit: float) -> np.ndarray:
+    """Points whose residual stands more than ``limit`` robust sigmas from their neighbours'.
+
+    A point is judged against the :data:`PHASE_NEIGHBOURS` points nearest to
+    it in phase (itself left out): its residual minus their median, over
+    the larger of the whole band's robust sigma (1.4826 x MAD) and the
+    largest robust sigma of the neighbourhoods of the points within a
+    quarter of that number of it in phase.
+    Where the model underfits a steep branch, or the shape changes from
+    cycle to cycle (modulation, an eclipse the series cannot follow), the
+    neighbours' residuals are as large and as scattered, so genuine points
+    there stay; a bad point stands alone in its part of the phase.
+
+    Parameters
+    ----------
+    cycles : ndarray
+        Time times frequency (the phase is its fractional part).
+    residual : ndarray
+        Magnitude minus model, same length.
+    limit : float
+        In robust sigmas.
+    """
+    n = residual.size
+    out = np.zeros(n, dtype=bool)
+    centre = np.median(residual) if n else 0.0
+    whole = MAD_TO_SIGMA * np.median(np.abs(residual - centre)) if n else 0.0
+    if n < 3 or not whole > 0:
+        return out
+    k = min(PHASE_NEIGHBOURS, n - 1)
+    order = np.argsort(np.mod(cycles, 1.0), kind="stable")
+    r = residual[order]
+    # the k/2 points before and after each point in phase, wrapping round the cycle
+    half_before = k // 2
+    offsets = np.concatenate([np.arange(-half_before, 0), np.arange(1, k - half_before + 1)])
+    neighbours = r[(np.arange(n)[:, None] + offsets[None, :]) % n]
+    local_centre = np.median(neighbours, axis=1)
+    local = MAD_TO_SIGMA * np.median(np.abs(neighbours - local_centre[:, None]), axis=1)
+    # at the edge of a scattered stretch of phase half the neighbours lie
+    # outside it: the stretch's scale also holds two points beyond its end
+    spread = max(1, k // 4)
+    local = np.max([np.roll(local, shift) for shift in range(-spread, spread + 1)], axis=0)
+    scale = np.maximum(local, whole)
+    out[order] = np.abs(r - local_centre) > limit * scale
     return out
 
 
@@ -317,11 +375,35 @@ def _seasons(t: np.ndarray) -> np.ndarray:
     return breaks
 
 
-def _trend_columns(kind: str, degree: int, t: np.ndarray, t_ref: float, t_scale: float):
+#: Decay times (d) of the ramps after gaps in dense regular sampling, one
+#: trend option each (our choice, spanning the 0.3-1 d scattered-light and
+#: thermal settling of space photometry after a data downlink; common
+#: practice, no source).
+RAMP_SCALES = (0.3, 1.0)
+
+#: A gap longer than this (d) in regular sampling starts a new ramp.
+RAMP_GAP = 0.5
+
+
+def _ramp_starts(t: np.ndarray) -> list[float]:
+    """The start of the series and of every stretch after a gap over :data:`RAMP_GAP`."""
+    ts = np.sort(t)
+    return [float(ts[0]), *(float(x) for x in ts[1:][np.diff(ts) > RAMP_GAP])]
+
+
+def _trend_columns(kind: str, degree: int, t: np.ndarray, t_ref: float, t_scale: float, starts=()):
     """Design columns of a trend (without the constant, which each model has)."""
     if kind == "polynomial":
         x = (t - t_ref) / t_scale
         return np.stack([x**k for k in range(1, degree + 1)], axis=1)
+    if kind == "ramps":
+        # a straight drift, and a step decaying from the start of each stretch
+        scale = RAMP_SCALES[degree]
+        cols = [(t - t_ref) / t_scale]
+        for start in starts:
+            after = t >= start
+            cols.append(np.where(after, np.exp(-np.clip(t - start, 0.0, None) / scale), 0.0))
+        return np.stack(cols, axis=1)
     season = _seasons(t)
     labels = np.unique(season)
     return np.stack([(season == s).astype(float) for s in labels[1:]], axis=1)
@@ -360,6 +442,9 @@ def _wls(columns: np.ndarray, m: np.ndarray, e: np.ndarray) -> tuple[float, np.n
 def _trend_options(lc: LightCurve) -> list[tuple[str, int]]:
     options = [("polynomial", d) for d in (1, 2, 3)]
     t = lc.time[lc.good]
+    if t.size and sampling_of(t).regular and len(_ramp_starts(t)) <= 10:
+        # dense regular sampling (space-like): ramps after the gaps
+        options += [("ramps", k) for k in range(len(RAMP_SCALES))]
     n_seasons = int(_seasons(t).max()) + 1 if t.size else 0
     if 2 <= n_seasons and all(
         np.min(np.bincount(_seasons(lc.arrays(b)[0]))) >= 5 for b in lc.bands
@@ -371,11 +456,12 @@ def _trend_options(lc: LightCurve) -> list[tuple[str, int]]:
 def _model_chi2(lc, trend_option, frequency, orders, t_ref, t_scale):
     """Chi-square and parameter count of trend (optional) + harmonics (optional), all bands."""
     chi2, k = 0.0, 0
+    starts = _ramp_starts(lc.time[lc.good])
     for band in lc.bands:
         t, m, e = lc.arrays(band)
         cols = [np.zeros((t.size, 0))]
         if trend_option is not None:
-            cols.append(_trend_columns(*trend_option, t, t_ref, t_scale))
+            cols.append(_trend_columns(*trend_option, t, t_ref, t_scale, starts))
         if frequency is not None:
             cols.append(_harmonic_columns(t, frequency, orders[band]))
         columns = np.concatenate(cols, axis=1)
@@ -435,23 +521,30 @@ def fit_trend(lc: LightCurve, frequency: float | None, settings) -> dict[str, An
 def _trend_description(lc, option, frequency, orders, t_ref, t_scale, delta_bic):
     kind, degree = option
     coefficients = {}
+    starts = _ramp_starts(lc.time[lc.good]) if kind == "ramps" else []
     for band in lc.bands:
         t, m, e = lc.arrays(band)
-        trend_cols = _trend_columns(kind, degree, t, t_ref, t_scale)
+        trend_cols = _trend_columns(kind, degree, t, t_ref, t_scale, starts)
         cols = [trend_cols]
         if frequency is not None:
             cols.append(_harmonic_columns(t, frequency, orders[band]))
         _, coef = _wls(np.concatenate(cols, axis=1), m, e)
         coefficients[band] = [float(c) for c in coef[1 : 1 + trend_cols.shape[1]]]
-    text = (
-        f"polynomial of degree {degree} in time"
-        if kind == "polynomial"
-        else (f"a floating mean for each of {degree + 1} seasons")
-    )
+    if kind == "polynomial":
+        text = f"polynomial of degree {degree} in time"
+    elif kind == "ramps":
+        text = (
+            f"a straight drift and a ramp decaying over {RAMP_SCALES[degree]:g} d after "
+            f"each of {len(starts)} starts of observing"
+        )
+    else:
+        text = f"a floating mean for each of {degree + 1} seasons"
     return {
         "kind": kind,
         "degree": degree if kind == "polynomial" else None,
         "n_seasons": degree + 1 if kind == "seasons" else None,
+        "ramp_scale": RAMP_SCALES[degree] if kind == "ramps" else None,
+        "ramp_starts": starts if kind == "ramps" else None,
         "t_ref": t_ref,
         "t_scale": t_scale,
         "season_gap": SEASON_GAP,
@@ -468,11 +561,33 @@ def trend_values(trend: dict[str, Any], time: np.ndarray, band: str) -> np.ndarr
         return np.zeros(time.size)
     if trend["kind"] == "polynomial":
         cols = _trend_columns("polynomial", trend["degree"], time, trend["t_ref"], trend["t_scale"])
+    elif trend["kind"] == "ramps":
+        k = RAMP_SCALES.index(trend["ramp_scale"])
+        starts = trend["ramp_starts"]
+        cols = _trend_columns("ramps", k, time, trend["t_ref"], trend["t_scale"], starts)
     else:
         cols = _trend_columns("seasons", 0, time, 0.0, 1.0)
         cols = cols[:, : coef.size]
     values = cols @ coef[: cols.shape[1]]
     return values - values.mean()
+
+
+def slow_amplitude(lc: LightCurve, band: str, trend: dict[str, Any] | None, fit=None) -> float:
+    """Peak-to-peak, at ``band``'s observed times, of the variation slower than the data time.
+
+    The trend (if any) plus ``fit``'s model (pass the Fourier fit of a
+    significant period that repeats fewer than :data:`MIN_CYCLES` times in
+    the baseline, else None).  0 when there is neither.
+    """
+    t = lc.arrays(band)[0]
+    if t.size == 0:
+        return 0.0
+    values = np.zeros(t.size)
+    if trend:
+        values += trend_values(trend, t, band)
+    if fit is not None:
+        values += fit.model(t)
+    return float(np.ptp(values))
 
 
 def _detrended(lc: LightCurve, trend: dict[str, Any]) -> LightCurve:
@@ -481,6 +596,12 @@ def _detrended(lc: LightCurve, trend: dict[str, Any]) -> LightCurve:
         sel = lc.band_mask(band)
         mag[sel] -= trend_values(trend, lc.time[sel], band)
     return replace(lc, mag=mag, mag_err=lc._err_arg())
+
+
+def _option_of(trend: dict[str, Any]) -> tuple[str, int]:
+    if trend["kind"] == "ramps":
+        return "ramps", RAMP_SCALES.index(trend["ramp_scale"])
+    return trend["kind"], trend["degree"] or (trend["n_seasons"] or 1) - 1
 
 
 def _trend_step(working, pgram, candidates, chosen, settings, windows):
@@ -509,7 +630,7 @@ def _trend_step(working, pgram, candidates, chosen, settings, windows):
     if orders_old is None or orders_new is None:
         return None
     t_ref, t_scale = trend["t_ref"], trend["t_scale"]
-    option = (trend["kind"], trend["degree"] or (trend["n_seasons"] or 1) - 1)
+    option = _option_of(trend)
     fits = {
         "plain": _model_chi2(working, None, f_old, orders_old, t_ref, t_scale),
         "trend": _model_chi2(working, option, f_new, orders_new, t_ref, t_scale),
@@ -561,7 +682,7 @@ def with_eclipse_search(
     fap = min(1.0, 2.0 * search.faps[0])
     if not _significant(fap, settings.fap_threshold):
         return candidates, chosen, search
-    f = search.frequencies[0]
+    f = eclipse_timing(everything, search.frequencies[0], settings.eclipse_search)
     extra = Candidate(
         frequency=f,
         period=1.0 / f,
@@ -586,6 +707,32 @@ def with_eclipse_search(
         return joined, chosen, search
     best = best_by_bic(everything, joined, (chosen, len(joined) - 1), settings)
     return joined, best, search
+
+
+#: Steps of the eclipse timing grid per step of the search's fine grid.
+TIMING_STEPS = 20
+
+
+def eclipse_timing(lc: LightCurve, frequency: float, search_settings) -> float:
+    """The eclipse search's frequency refined by its own statistic.
+
+    The search's fine grid lets the phase drift by up to half a bin over the
+    baseline; a Fourier series cannot time a narrow eclipse at all.  The
+    phase-binned statistic (four bin offsets) is evaluated on
+    :data:`TIMING_STEPS` steps per fine-grid step within one fine step
+    either side, and its maximum taken.
+    """
+    from .periodogram.eclipse_search import _prepare, aov_binned
+
+    t, y, w = _prepare(lc, search_settings.clip)
+    baseline = float(np.ptp(t))
+    if baseline <= 0:
+        return frequency
+    step = 1.0 / (2.0 * search_settings.n_bins * baseline)
+    grid = frequency + np.linspace(-step, step, 2 * TIMING_STEPS + 1)
+    grid = grid[grid > 0]
+    values, _ = aov_binned(t, y, w, grid, search_settings.n_bins, shifts=(0.0, 0.25, 0.5, 0.75))
+    return float(grid[int(np.argmax(values))])
 
 
 def _harmonically_related(f: float, other: float, baseline: float, settings) -> bool:

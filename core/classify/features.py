@@ -92,7 +92,8 @@ FEATURES: dict[str, Feature] = _features(
     (
         "depth_difference_fraction",
         "",
-        "depth_difference / amplitude (filled in by suggest when both are known); when the "
+        "(|depth_difference| - depth_difference_err, at least 0) / amplitude (filled in by "
+        "suggest when both are known; one sigma below the measured difference); when the "
         "fold at period already shows two dips, (amplitude - depth_secondary_at_p) / amplitude",
     ),
     (
@@ -126,6 +127,26 @@ FEATURES: dict[str, Feature] = _features(
     ("mean_mag_I", "mag", "mean I (intensity mean where the analysis gives it)"),
     ("n_points", "", "number of good points, all bands"),
     ("fap", "", "false-alarm probability of the chosen peak"),
+    (
+        "significant",
+        "",
+        "1 when the analysis adopted the period (status ok: false-alarm probability within "
+        "the analysis threshold and at least two cycles in the baseline), else 0",
+    ),
+    ("cycles", "", "cycles of the chosen period in the baseline"),
+    (
+        "slow_share",
+        "",
+        "slow_amplitude / (slow_amplitude + amplitude of the adopted period; 0 when no "
+        "period is adopted): 1 when the slow change is all there is (filled in by the analysis)",
+    ),
+    (
+        "slow_amplitude",
+        "mag",
+        "peak-to-peak, at the observed times of the band with most points, of the variation slower "
+        "than the data can time: the adopted trend, plus the Fourier model when its "
+        "significant period repeats fewer than two times in the baseline (0 when none)",
+    ),
     ("snr", "", "signal-to-noise ratio of the chosen peak"),
     ("residual_std", "mag", "standard deviation of the residuals from the Fourier model"),
     (
@@ -186,6 +207,9 @@ def features_from_result(result: Mapping[str, Any]) -> dict[str, Any]:
     if out["period"] and out["period"] > 0:
         out["log_period"] = math.log10(out["period"])
     out["fap"] = model.number("fap")
+    if isinstance(model.status, str):
+        # the analysis decided significance with its one threshold
+        out["significant"] = 1.0 if model.status == "ok" else 0.0
     out["n_points"] = model.number("n_good" if model.n_good is not None else "n_points")
     out["residual_std"] = model.number("residual_std")
     out["rise_time"] = model.number("rise_time")

@@ -33,6 +33,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+from ..classes import CLASSES
 from .features import feature_info
 from .rulebook import ClassRules, Rule, Rulebook, load_rulebook
 
@@ -88,7 +89,8 @@ class Suggestion:
 
 def clean_features(features: Mapping[str, Any]) -> dict[str, Any]:
     """Plain floats (NaN → None), with ``log_period``, ``amplitude`` and
-    ``depth_difference_fraction`` filled in when absent."""
+    ``depth_difference_fraction`` filled in when absent (the depth
+    difference less its error, over the amplitude)."""
     out: dict[str, Any] = {}
     for name, value in features.items():
         if value is None or isinstance(value, str):
@@ -114,7 +116,10 @@ def clean_features(features: Mapping[str, Any]) -> dict[str, Any]:
         out["amplitude_to_noise"] = out["amplitude"] / noise
     depth, amplitude = out.get("depth_difference"), out.get("amplitude")
     if out.get("depth_difference_fraction") is None and depth is not None and amplitude:
-        out["depth_difference_fraction"] = abs(depth) / amplitude
+        # the smallest difference the data support (one sigma below the
+        # measured one): noise alone makes equal minima look unequal
+        depth_err = out.get("depth_difference_err") or 0.0
+        out["depth_difference_fraction"] = max(0.0, abs(depth) - abs(depth_err)) / amplitude
     return out
 
 
@@ -199,6 +204,13 @@ def _nightly_note(period: float | None) -> str:
     return ""
 
 
+def _claims_period(code: str) -> bool:
+    """Whether a suggestion of ``code`` proposes a period (registry classes
+    without one, and UNKNOWN, do not; a user rulebook's own classes do)."""
+    info = CLASSES.get(code)
+    return code != "UNKNOWN" and (info is None or info.periodic)
+
+
 def _subtype(entry: ClassRules, values: Mapping[str, Any]) -> str | None:
     for sub in entry.subtypes:
         value = values.get(sub.feature)
@@ -253,7 +265,8 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
                 )
         else:
             notes.append("the chosen peak is marked as an alias; check the other candidates")
-    if entry.code not in ("CONST", "UNKNOWN"):
+    claims_period = _claims_period(entry.code)
+    if claims_period:
         nightly = _nightly_note(used)
         if nightly:
             notes.append(nightly)
@@ -262,7 +275,7 @@ def _evaluate(entry: ClassRules, values: dict[str, Any], book: Rulebook) -> Sugg
         score=best.score,
         reasons=best.reasons,
         against=best.against,
-        period=used if entry.code not in ("CONST", "UNKNOWN") else None,
+        period=used if claims_period else None,
         note="; ".join(notes),
         subtype=_subtype(entry, best.values),
         missing=best.missing,

@@ -37,7 +37,7 @@ def test_one_spelling_of_the_non_variable_class():
     assert "CONST" in CLASS_CODES and "NONVAR" not in CLASS_CODES
     assert canonical_code("NONVAR") == "CONST" == ALIASES["NONVAR"]
     assert not is_periodic("NONVAR") and not is_periodic("CONST")
-    assert NON_PERIODIC_CLASSES == {"CONST", "NONVAR"}
+    assert NON_PERIODIC_CLASSES == {"CONST", "NONVAR", "LONG"}
     assert ECLIPSING_CLASSES == {"EA", "EB", "EW"}
     assert tuple(RULEBOOK_CODES) == CLASS_CODES  # the rulebook uses the registry
     with pytest.raises(PhasewiseError, match="unknown class 'RRx'"):
@@ -62,7 +62,7 @@ def test_result_model_round_trips_stored_results(stored):
 
 
 def test_unknown_and_new_keys_are_kept(stored):
-    data = dict(stored[1])
+    data = dict(next(d for d in stored if d["secondary_periods"]))
     data["set_aside"] = [3, 7]
     data["trend"] = {"slope": 0.01}
     data["relation_band"] = "V"

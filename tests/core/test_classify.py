@@ -24,7 +24,9 @@ from phasewise.core.classify import (
     suggest,
 )
 
-SIGNIFICANT = {"fap": 1e-30, "snr": 40.0, "n_points": 600, "primary_band": "V"}
+# "significant": the analysis adopted the period (its status; one FAP threshold)
+SIGNIFICANT = {"fap": 1e-30, "significant": 1.0, "snr": 40.0, "n_points": 600,
+               "primary_band": "V"}  # fmt: skip
 
 RRAB = {**SIGNIFICANT, "period": 0.58, "amplitude": 0.9, "R21": 0.47, "R31": 0.32,
         "rise_time": 0.17, "skewness": -0.7, "asymmetry": 0.6}  # fmt: skip
@@ -38,7 +40,8 @@ DCEP = {**SIGNIFICANT, "period": 8.3, "amplitude": 0.8, "R21": 0.4, "rise_time":
         "skewness": -0.4}  # fmt: skip
 DSCT = {**SIGNIFICANT, "period": 0.071, "amplitude": 0.55, "R21": 0.3, "rise_time": 0.33,
         "skewness": -0.4, "asymmetry": 0.4}  # fmt: skip
-NOISE = {"fap": 0.6, "snr": 2.1, "period": 0.377, "amplitude": 0.02, "primary_band": "V"}
+NOISE = {"fap": 0.6, "significant": 0.0, "slow_amplitude": 0.0, "snr": 2.1, "period": 0.377,
+         "amplitude": 0.02, "primary_band": "V"}  # fmt: skip
 
 
 def _top(features) -> Suggestion:
@@ -189,8 +192,8 @@ def test_scores_stay_in_unit_interval_and_ranked(features):
 
 def test_features_from_result_follows_the_contract():
     result = {
-        "period": 0.1875, "period_err": 1e-6, "frequency": 1 / 0.1875, "fap": 1e-40,
-        "n_good": 612, "primary_band": "V", "amplitude": 0.55,
+        "status": "ok", "period": 0.1875, "period_err": 1e-6, "frequency": 1 / 0.1875,
+        "fap": 1e-40, "n_good": 612, "primary_band": "V", "amplitude": 0.55,
         "amplitude_by_band": {"V": 0.55, "I": 0.41},
         "mean_mag_by_band": {"V": 17.2, "I": 16.4},
         "intensity_mean_mag_by_band": {"V": 17.15, "I": None},

@@ -165,3 +165,29 @@ def test_fourier_ringing_is_not_a_secondary_minimum():
     assert second == pytest.approx(injected, rel=0.3)
     with pytest.raises(SettingsError, match="secondary_fraction"):
         EclipseSettings(secondary_fraction=1.5)
+
+
+def test_alternate_dips_are_told_by_the_points_not_by_one_outlier():
+    # invented recovery check: a narrow eclipse every other cycle of P is
+    # 0.3 mag deeper than on the cycles between; one outlier alone is not
+    from phasewise.core.eclipse import _alternate_dips_differ
+    from phasewise.core.fourier import fit_fourier
+
+    rng = np.random.default_rng(11)
+    period = 0.8
+    t = np.sort(rng.uniform(0.0, 400.0, 900))
+    cycle = t / period
+    phase = (cycle + 0.5) % 1.0 - 0.5
+    odd = np.mod(np.round(cycle), 2.0) == 1
+    depth = np.where(odd, 0.3, 0.6)
+    m = 15.0 + depth * np.exp(-0.5 * (phase / 0.04) ** 2) + rng.normal(0, 0.01, t.size)
+    e = np.full(t.size, 0.01)
+    fit = fit_fourier(t, m, e, 1.0 / period, 8)
+    faint = -fit.rise_time
+    settings = EclipseSettings()
+    assert _alternate_dips_differ(t, m, fit, faint, settings)
+    equal = 15.0 + 0.45 * np.exp(-0.5 * (phase / 0.04) ** 2) + rng.normal(0, 0.01, t.size)
+    in_dip = np.flatnonzero(np.abs(phase) < 0.02)
+    equal[in_dip[0]] += 1.2  # one bad point in the dip
+    fit_equal = fit_fourier(t, equal, e, 1.0 / period, 8)
+    assert not _alternate_dips_differ(t, equal, fit_equal, -fit_equal.rise_time, settings)
