@@ -37,6 +37,7 @@ _STYLES = {
     "EB": ClassStyle("#4D4D4D", "+"),
     "EW": ClassStyle("#4D4D4D", "d"),
     "LPV": ClassStyle("#8C6D31", "star"),
+    "LONG": ClassStyle("#8C6D31", "o", 6.0),  # slow variation, period undetermined
     "CONST": ClassStyle("#B0B0B0", "o", 6.0),
     "UNKNOWN": ClassStyle("#909090", "o", 6.0),
     "REJECTED": ClassStyle("#B8B8B8", "x", 6.0),
