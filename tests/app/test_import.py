@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 from phasewise.app.desk import MainWindow
 from phasewise.app.desk.dialogs import ColumnMappingDialog
@@ -42,6 +43,7 @@ def test_mapping_dialog_previews_and_maps(qtbot, tmp_path):
     assert open_photometry(path, mapping).star_ids() == ("NV-000", "NV-001", "NV-002")
 
 
+@pytest.mark.slow  # about 5 s; run by the slow suite
 def test_build_ledger_from_files_in_a_worker(qtbot, qsettings, tmp_path):
     path = _table(tmp_path)
     window = MainWindow(settings=qsettings)
