@@ -20,7 +20,7 @@ from PySide6.QtWidgets import (
 )
 
 from phasewise.core.errors import PhasewiseError
-from phasewise.core.folding import phase_fold, two_cycles
+from phasewise.core.folding import fold_points, phase_fold, two_cycles
 
 from .plots import FastPoints, cache_axes, full_range
 from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_colours
@@ -141,6 +141,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.result = result or {}
         self.eclipsing = bool(eclipsing)
         self.period = None
+        self.model = None  # another star's (or band's) model is not this one's
         self._drawn = None
         self._range_key = None
         self.resid.setLabel(
@@ -168,9 +169,10 @@ class FoldView(pg.GraphicsLayoutWidget):
     def set_period(self, period: float | None, epoch_hint: float | None = None) -> None:
         """Fold at ``period`` and draw the core model there.
 
-        A model not fitted yet at a new period of the same star is fitted once
-        the period rests for :data:`FIT_DELAY_MS`: meanwhile the points move at
-        once (folded with the last model's epoch) and the line waits.
+        A model not fitted yet is fitted once the period (or the star: J/K
+        held) rests for :data:`FIT_DELAY_MS`: meanwhile the points are drawn at
+        once (folded with the last model's epoch, or for a new star with the
+        analysis's, ``core.folding.fold_points``) and the line waits.
         """
         lc = self.lc
         self.fit_timer.stop()
@@ -181,12 +183,19 @@ class FoldView(pg.GraphicsLayoutWidget):
         if self._drawn == key:
             return  # nothing moved (the other fold's period did)
         args = (lc, float(period), self.settings, self.band, self.eclipsing, self.result)
-        if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
-            if self.desk.cached_fold_model(*args) is None:
-                self._draw(_points_only(self.model, float(period)))
-                self._pending = key
-                self.fit_timer.start()
-                return
+        if self.desk.cached_fold_model(*args) is None:
+            if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
+                preview = _points_only(self.model, float(period))
+            else:
+                try:
+                    preview = fold_points(lc, float(period), self.band, self.eclipsing, self.result)
+                except PhasewiseError:
+                    preview = None  # the fit says why
+            if preview is not None:
+                self._draw(preview)
+            self._pending = key
+            self.fit_timer.start()
+            return
         self._fit(key, args)
 
     @property
@@ -232,7 +241,7 @@ class FoldView(pg.GraphicsLayoutWidget):
             self.model_curve.setData([], [])
             self.resid_points.setData([], [])
             self.resid_set_aside.setData([], [])
-        self._draw_errors(phase)
+        self._draw_errors(phase, model)
         text = f"{self.title}P = {fmt_period(model.period)} d"
         if model.rms is not None:
             text += f" · rms {model.rms:.3f} mag (order {model.order})"
@@ -243,8 +252,8 @@ class FoldView(pg.GraphicsLayoutWidget):
         self._set_title(text)
         self._set_range(model)
 
-    def _draw_errors(self, phase=None) -> None:
-        model = self.model
+    def _draw_errors(self, phase=None, model=None) -> None:
+        model = model if model is not None else self.model
         if not self.show_errors or model is None or model.time.size == 0:
             self.error_bars.setVisible(False)
             return
