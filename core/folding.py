@@ -317,12 +317,7 @@ def fold_model(
         residual = np.full(mag.shape, np.nan)
         epoch = float(time[used][0]) if used.any() else float(time[0]) if time.size else 0.0
         rms = None
-    kind = "maximum"
-    if eclipsing and used.sum() >= 8:
-        from .final import eclipse_shape
-
-        epoch = eclipse_shape(time[used], mag[used], err[used], period).epoch
-        kind = "primary_minimum"
+    epoch, kind = _epoch_rule(epoch, eclipsing, time, mag, err, used, period)
     phase_grid, grid_times = phase_grid_times(period, epoch, n_grid)
     model_grid = (
         np.asarray(fit.model(grid_times)) if fit is not None else np.full(phase_grid.shape, np.nan)
@@ -345,6 +340,16 @@ def fold_model(
     )
 
 
+def _epoch_rule(epoch, eclipsing, time, mag, err, used, period) -> tuple[float, str]:
+    """(epoch, kind): primary minimum from the used points for eclipsing classes (as
+    the final numbers, ``core.final.eclipse_shape``), else ``epoch`` (maximum light)."""
+    if eclipsing and used.sum() >= 8:
+        from .final import eclipse_shape
+
+        return eclipse_shape(time[used], mag[used], err[used], period).epoch, "primary_minimum"
+    return epoch, "maximum"
+
+
 def _band_points(lc, band: str):
     """Index, time, mag, err and excluded mask of every point of ``band`` with a finite
     time and magnitude (excluded ones too), time-sorted."""
@@ -365,7 +370,8 @@ def fold_points(lc, period: float, band: str, eclipsing: bool = False, result=No
 
     What the desk draws of a new star while its model is fitted: phase zero
     at the stored analysis's ``epoch_max`` (the fit moves it to the model's
-    own maximum, or primary minimum, at this period), the analysis's
+    own maximum at this period) or, for eclipsing classes, at primary minimum
+    measured from the points as :func:`fold_model` does; the analysis's
     ``set_aside`` points marked (none for eclipsing classes, as in
     :func:`fold_model`), its ``trend`` removed.  ``order`` and ``rms`` are
     None, ``residual`` nan.
@@ -390,10 +396,11 @@ def fold_points(lc, period: float, band: str, eclipsing: bool = False, result=No
         epoch = float("nan")
     if not np.isfinite(epoch):
         epoch = float(time[0]) if time.size else 0.0
+    epoch, kind = _epoch_rule(epoch, eclipsing, time, mag, err, ~(excluded | aside), period)
     return FoldModel(
         period=float(period),
-        epoch=epoch,
-        epoch_kind="maximum",
+        epoch=float(epoch),
+        epoch_kind=kind,
         phase_grid=np.empty(0),
         model_grid=np.empty(0),
         time=time,

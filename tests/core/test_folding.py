@@ -169,11 +169,17 @@ def test_fold_points_are_the_points_fold_model_draws_with_nothing_fitted(analyse
 
 
 def test_fold_points_eclipsing_marks_nothing_aside_and_refuses_a_bad_period(analysed_rrab):
-    from phasewise.core.folding import fold_points
+    from phasewise.core.folding import fold_model, fold_points
 
-    lc, _settings, result = analysed_rrab
+    lc, settings, result = analysed_rrab
     stored = result.to_dict()
-    points = fold_points(lc, result.period, result.primary_band, eclipsing=True, result=stored)
+    band = result.primary_band
+    points = fold_points(lc, result.period, band, eclipsing=True, result=stored)
     assert not points.set_aside.any()
+    # phase zero at primary minimum from the start, where the fitted fold puts it
+    model = fold_model(lc, result.period, settings, band, eclipsing=True, result=stored)
+    assert points.epoch_kind == model.epoch_kind == "primary_minimum"
+    offset = ((model.epoch - points.epoch) / result.period + 0.5) % 1.0 - 0.5
+    assert abs(offset) < 0.01
     with pytest.raises(PhasewiseError, match="period must be positive"):
         fold_points(lc, 0.0, result.primary_band, result=stored)
