@@ -42,9 +42,11 @@ class FoldView(pg.GraphicsLayoutWidget):
     updated with ``setData``.
     """
 
-    def __init__(self, desk, title: str = "", parent=None) -> None:
+    def __init__(self, desk, title: str = "", parent=None, workers=None) -> None:
         super().__init__(parent)
         self.desk = desk
+        self.workers = workers  # a WorkerPool: fits off the GUI thread (None: in it)
+        self._running = None  # the key of the fit running in a worker
         self.ci.layout.setSpacing(2)
         self.ci.setContentsMargins(2, 2, 6, 2)
         self.fold = self.addPlot(row=0, col=0)
@@ -157,6 +159,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         removes the plots, to that name on every GraphicsLayoutWidget.)"""
         self.model = None
         self._drawn = None
+        self._pending = None
         for s in self.bins:
             s.setData([], [])
         for item in (self.set_aside, self.excluded, self.resid_set_aside):
@@ -172,7 +175,9 @@ class FoldView(pg.GraphicsLayoutWidget):
         A model not fitted yet is fitted once the period (or the star: J/K
         held) rests for :data:`FIT_DELAY_MS`: meanwhile the points are drawn at
         once (folded with the last model's epoch, or for a new star with the
-        analysis's, ``core.folding.fold_points``) and the line waits.
+        analysis's, ``core.folding.fold_points``) and the line waits; with
+        ``workers`` the fit runs in one of them, and the line is drawn if it
+        is still wanted when it arrives.
         """
         lc = self.lc
         self.fit_timer.stop()
@@ -182,6 +187,8 @@ class FoldView(pg.GraphicsLayoutWidget):
         key = (float(period), id(lc), self.band, id(self.settings), self.eclipsing)
         if self._drawn == key:
             return  # nothing moved (the other fold's period did)
+        if self._running == key and self._pending == key:
+            return  # being fitted already
         args = (lc, float(period), self.settings, self.band, self.eclipsing, self.result)
         if self.desk.cached_fold_model(*args) is None:
             if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
@@ -200,14 +207,41 @@ class FoldView(pg.GraphicsLayoutWidget):
 
     @property
     def busy(self) -> bool:
-        """A model is waiting to be fitted."""
-        return self.fit_timer.isActive()
+        """A model is waiting to be fitted, or being fitted."""
+        return self.fit_timer.isActive() or self._running is not None
 
     def _fit_pending(self) -> None:
         key = self._pending
-        if key is not None and key[1] == id(self.lc):
-            args = (self.lc, key[0], self.settings, self.band, self.eclipsing, self.result)
+        if key is None or key[1] != id(self.lc):
+            return
+        args = (self.lc, key[0], self.settings, self.band, self.eclipsing, self.result)
+        if self.workers is None:
             self._fit(key, args)
+            return
+        # a 50,000-point fit takes half a second: the window keeps taking keys meanwhile
+        self._running = key
+        self.workers.start(
+            self.desk.fold_model,
+            *args,
+            on_result=lambda model, k=key: self._fitted(k, model),
+            on_error=lambda message, k=key: self._fitted(k, None, message),
+        )
+
+    def _fitted(self, key, model, message: str = "") -> None:
+        """A worker's fit arrived: drawn if it is still the one wanted."""
+        if self._running == key:
+            self._running = None
+        if key != self._pending:
+            return  # the period, star or band moved on meanwhile
+        self._pending = None
+        if model is None:
+            self.clear_fold()
+            self._set_title(f"{self.title}no fold: {message}")
+            return
+        self._drawn = key
+        self.period = key[0]
+        self.model = model
+        self._draw(model)
 
     def _fit(self, key, args) -> None:
         self._pending = None
@@ -309,11 +343,11 @@ class FoldPanel(QWidget):
     action = Signal(str)
     bandChanged = Signal(str)
 
-    def __init__(self, desk, parent=None) -> None:
+    def __init__(self, desk, parent=None, workers=None) -> None:
         super().__init__(parent)
         self.desk = desk
-        self.main = FoldView(desk, "")
-        self.alt = FoldView(desk, "Compare: ")
+        self.main = FoldView(desk, "", workers=workers)
+        self.alt = FoldView(desk, "Compare: ", workers=workers)
         self.spin = QDoubleSpinBox()
         self.spin.setDecimals(8)
         self.spin.setRange(1e-4, 1e5)

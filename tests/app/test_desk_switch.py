@@ -6,6 +6,8 @@ real ledger).  The speed itself is measured by ``benchmarks/bench_desk.py``.
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, Qt
@@ -43,12 +45,15 @@ def test_new_star_shows_its_points_first_and_its_model_line_when_it_rests(desk, 
     np.testing.assert_allclose(np.sort(y_after), np.sort(model.mag[used]), atol=1e-9)
 
 
-def test_holding_next_star_fits_only_the_star_it_rests_on(desk, qtbot, monkeypatch):
-    fitted = []
+def test_holding_next_star_fits_only_the_star_it_rests_on_off_the_gui_thread(
+    desk, qtbot, monkeypatch
+):
+    fitted, threads = [], set()
     original = desk.desk.fold_model
 
     def counting(lc, *args, **kwargs):
         fitted.append(lc.star_id)
+        threads.add(threading.current_thread())
         return original(lc, *args, **kwargs)
 
     monkeypatch.setattr(desk.desk, "fold_model", counting)
@@ -58,6 +63,8 @@ def test_holding_next_star_fits_only_the_star_it_rests_on(desk, qtbot, monkeypat
     qtbot.waitUntil(lambda: desk.fold.main.model is not None, timeout=20000)
     desk.wait_idle()
     assert fitted and set(fitted) == {"CAL-V005"}
+    # fitted in the window's workers: the window keeps taking keys meanwhile
+    assert threading.main_thread() not in threads
     assert desk.fold.main.model.time.size == np.sum(
         np.asarray(desk.desk.lc.band) == desk.fold.main.band
     )
