@@ -24,6 +24,7 @@ __all__ = [
     "power_at_fap",
     "FoldModel",
     "fold_model",
+    "fold_points",
     "FoldModelCache",
 ]
 
@@ -299,20 +300,13 @@ def fold_model(
         fit = fits.get(band)
     if not same_points:
         kept = lc
-    # every point of the band, excluded ones too (``band_mask`` holds good points only)
-    in_band = (np.asarray(lc.band) == band) & np.isfinite(lc.time) & np.isfinite(lc.mag)
-    index = np.flatnonzero(in_band)
-    index = index[np.argsort(np.asarray(lc.time)[index], kind="stable")]
-    time = np.asarray(lc.time, dtype=float)[index]
-    mag = np.asarray(lc.mag, dtype=float)[index]
+    index, time, mag, err, excluded = _band_points(lc, band)
     if trend and time.size:
         # every point drawn with the trend removed, on the fitted points' zero
         mag = mag - trend_values(trend, time, band)
         fitted = np.asarray(kept.good, dtype=bool)[index] if same_points else None
         if fitted is not None and fitted.any():
             mag += float(np.mean(np.asarray(kept.mag)[index][fitted] - mag[fitted]))
-    err = np.asarray(lc.mag_err, dtype=float)[index]
-    excluded = np.asarray(lc.excluded, dtype=bool)[index]
     aside = np.asarray(kept.excluded, dtype=bool)[index] & ~excluded
     used = ~(excluded | aside)
     if fit is not None:
@@ -323,12 +317,7 @@ def fold_model(
         residual = np.full(mag.shape, np.nan)
         epoch = float(time[used][0]) if used.any() else float(time[0]) if time.size else 0.0
         rms = None
-    kind = "maximum"
-    if eclipsing and used.sum() >= 8:
-        from .final import eclipse_shape
-
-        epoch = eclipse_shape(time[used], mag[used], err[used], period).epoch
-        kind = "primary_minimum"
+    epoch, kind = _epoch_rule(epoch, eclipsing, time, mag, err, used, period)
     phase_grid, grid_times = phase_grid_times(period, epoch, n_grid)
     model_grid = (
         np.asarray(fit.model(grid_times)) if fit is not None else np.full(phase_grid.shape, np.nan)
@@ -348,6 +337,81 @@ def fold_model(
         residual=residual,
         rms=rms,
         order=None if fit is None else int(fit.order),
+    )
+
+
+def _epoch_rule(epoch, eclipsing, time, mag, err, used, period) -> tuple[float, str]:
+    """(epoch, kind): primary minimum from the used points for eclipsing classes (as
+    the final numbers, ``core.final.eclipse_shape``), else ``epoch`` (maximum light)."""
+    if eclipsing and used.sum() >= 8:
+        from .final import eclipse_shape
+
+        return eclipse_shape(time[used], mag[used], err[used], period).epoch, "primary_minimum"
+    return epoch, "maximum"
+
+
+def _band_points(lc, band: str):
+    """Index, time, mag, err and excluded mask of every point of ``band`` with a finite
+    time and magnitude (excluded ones too), time-sorted."""
+    in_band = (np.asarray(lc.band) == band) & np.isfinite(lc.time) & np.isfinite(lc.mag)
+    index = np.flatnonzero(in_band)
+    index = index[np.argsort(np.asarray(lc.time)[index], kind="stable")]
+    return (
+        index,
+        np.asarray(lc.time, dtype=float)[index],
+        np.asarray(lc.mag, dtype=float)[index],
+        np.asarray(lc.mag_err, dtype=float)[index],
+        np.asarray(lc.excluded, dtype=bool)[index],
+    )
+
+
+def fold_points(lc, period: float, band: str, eclipsing: bool = False, result=None) -> FoldModel:
+    """The points :func:`fold_model` would draw, folded with no fit (nothing is fitted).
+
+    What the desk draws of a new star while its model is fitted: phase zero
+    at the stored analysis's ``epoch_max`` (the fit moves it to the model's
+    own maximum at this period) or, for eclipsing classes, at primary minimum
+    measured from the points as :func:`fold_model` does; the analysis's
+    ``set_aside`` points marked (none for eclipsing classes, as in
+    :func:`fold_model`), its ``trend`` removed.  ``order`` and ``rms`` are
+    None, ``residual`` nan.
+    """
+    if not np.isfinite(period) or period <= 0:
+        raise PhasewiseError(f"a period must be positive, got {period!r}", field="period")
+    result = result or {}
+    index, time, mag, err, excluded = _band_points(lc, band)
+    trend = result.get("trend")
+    if trend and time.size:
+        from .period_choice import trend_values
+
+        mag = mag - trend_values(trend, time, band)
+    aside = np.zeros(index.size, dtype=bool)
+    if not eclipsing and result.get("set_aside"):
+        chosen = np.asarray([int(i) for i in result["set_aside"]], dtype=int)
+        aside = np.isin(index, chosen) & ~excluded
+    epoch = result.get("epoch_max")
+    try:
+        epoch = float(epoch)
+    except (TypeError, ValueError):
+        epoch = float("nan")
+    if not np.isfinite(epoch):
+        epoch = float(time[0]) if time.size else 0.0
+    epoch, kind = _epoch_rule(epoch, eclipsing, time, mag, err, ~(excluded | aside), period)
+    return FoldModel(
+        period=float(period),
+        epoch=float(epoch),
+        epoch_kind=kind,
+        phase_grid=np.empty(0),
+        model_grid=np.empty(0),
+        time=time,
+        mag=mag,
+        err=err,
+        index=index,
+        excluded=excluded,
+        set_aside=aside,
+        residual=np.full(mag.shape, np.nan),
+        rms=None,
+        order=None,
     )
 
 

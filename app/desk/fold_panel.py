@@ -20,7 +20,7 @@ from PySide6.QtWidgets import (
 )
 
 from phasewise.core.errors import PhasewiseError
-from phasewise.core.folding import phase_fold, two_cycles
+from phasewise.core.folding import fold_points, phase_fold, two_cycles
 
 from .plots import FastPoints, cache_axes, full_range
 from .style import EXCLUDED_COLOUR, MODEL_COLOUR, TIME_BINS, fmt_period, time_colours
@@ -42,9 +42,11 @@ class FoldView(pg.GraphicsLayoutWidget):
     updated with ``setData``.
     """
 
-    def __init__(self, desk, title: str = "", parent=None) -> None:
+    def __init__(self, desk, title: str = "", parent=None, workers=None) -> None:
         super().__init__(parent)
         self.desk = desk
+        self.workers = workers  # a WorkerPool: fits off the GUI thread (None: in it)
+        self._running = None  # the key of the fit running in a worker
         self.ci.layout.setSpacing(2)
         self.ci.setContentsMargins(2, 2, 6, 2)
         self.fold = self.addPlot(row=0, col=0)
@@ -141,6 +143,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.result = result or {}
         self.eclipsing = bool(eclipsing)
         self.period = None
+        self.model = None  # another star's (or band's) model is not this one's
         self._drawn = None
         self._range_key = None
         self.resid.setLabel(
@@ -156,6 +159,7 @@ class FoldView(pg.GraphicsLayoutWidget):
         removes the plots, to that name on every GraphicsLayoutWidget.)"""
         self.model = None
         self._drawn = None
+        self._pending = None
         for s in self.bins:
             s.setData([], [])
         for item in (self.set_aside, self.excluded, self.resid_set_aside):
@@ -168,9 +172,12 @@ class FoldView(pg.GraphicsLayoutWidget):
     def set_period(self, period: float | None, epoch_hint: float | None = None) -> None:
         """Fold at ``period`` and draw the core model there.
 
-        A model not fitted yet at a new period of the same star is fitted once
-        the period rests for :data:`FIT_DELAY_MS`: meanwhile the points move at
-        once (folded with the last model's epoch) and the line waits.
+        A model not fitted yet is fitted once the period (or the star: J/K
+        held) rests for :data:`FIT_DELAY_MS`: meanwhile the points are drawn at
+        once (folded with the last model's epoch, or for a new star with the
+        analysis's, ``core.folding.fold_points``) and the line waits; with
+        ``workers`` the fit runs in one of them, and the line is drawn if it
+        is still wanted when it arrives.
         """
         lc = self.lc
         self.fit_timer.stop()
@@ -180,25 +187,61 @@ class FoldView(pg.GraphicsLayoutWidget):
         key = (float(period), id(lc), self.band, id(self.settings), self.eclipsing)
         if self._drawn == key:
             return  # nothing moved (the other fold's period did)
+        if self._running == key and self._pending == key:
+            return  # being fitted already
         args = (lc, float(period), self.settings, self.band, self.eclipsing, self.result)
-        if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
-            if self.desk.cached_fold_model(*args) is None:
-                self._draw(_points_only(self.model, float(period)))
-                self._pending = key
-                self.fit_timer.start()
-                return
+        if self.desk.cached_fold_model(*args) is None:
+            if self.model is not None and self._drawn is not None and self._drawn[1:] == key[1:]:
+                preview = _points_only(self.model, float(period))
+            else:
+                try:
+                    preview = fold_points(lc, float(period), self.band, self.eclipsing, self.result)
+                except PhasewiseError:
+                    preview = None  # the fit says why
+            if preview is not None:
+                self._draw(preview)
+            self._pending = key
+            self.fit_timer.start()
+            return
         self._fit(key, args)
 
     @property
     def busy(self) -> bool:
-        """A model is waiting to be fitted."""
-        return self.fit_timer.isActive()
+        """A model is waiting to be fitted, or being fitted."""
+        return self.fit_timer.isActive() or self._running is not None
 
     def _fit_pending(self) -> None:
         key = self._pending
-        if key is not None and key[1] == id(self.lc):
-            args = (self.lc, key[0], self.settings, self.band, self.eclipsing, self.result)
+        if key is None or key[1] != id(self.lc):
+            return
+        args = (self.lc, key[0], self.settings, self.band, self.eclipsing, self.result)
+        if self.workers is None:
             self._fit(key, args)
+            return
+        # a 50,000-point fit takes half a second: the window keeps taking keys meanwhile
+        self._running = key
+        self.workers.start(
+            self.desk.fold_model,
+            *args,
+            on_result=lambda model, k=key: self._fitted(k, model),
+            on_error=lambda message, k=key: self._fitted(k, None, message),
+        )
+
+    def _fitted(self, key, model, message: str = "") -> None:
+        """A worker's fit arrived: drawn if it is still the one wanted."""
+        if self._running == key:
+            self._running = None
+        if key != self._pending:
+            return  # the period, star or band moved on meanwhile
+        self._pending = None
+        if model is None:
+            self.clear_fold()
+            self._set_title(f"{self.title}no fold: {message}")
+            return
+        self._drawn = key
+        self.period = key[0]
+        self.model = model
+        self._draw(model)
 
     def _fit(self, key, args) -> None:
         self._pending = None
@@ -232,7 +275,7 @@ class FoldView(pg.GraphicsLayoutWidget):
             self.model_curve.setData([], [])
             self.resid_points.setData([], [])
             self.resid_set_aside.setData([], [])
-        self._draw_errors(phase)
+        self._draw_errors(phase, model)
         text = f"{self.title}P = {fmt_period(model.period)} d"
         if model.rms is not None:
             text += f" · rms {model.rms:.3f} mag (order {model.order})"
@@ -243,8 +286,8 @@ class FoldView(pg.GraphicsLayoutWidget):
         self._set_title(text)
         self._set_range(model)
 
-    def _draw_errors(self, phase=None) -> None:
-        model = self.model
+    def _draw_errors(self, phase=None, model=None) -> None:
+        model = model if model is not None else self.model
         if not self.show_errors or model is None or model.time.size == 0:
             self.error_bars.setVisible(False)
             return
@@ -300,11 +343,11 @@ class FoldPanel(QWidget):
     action = Signal(str)
     bandChanged = Signal(str)
 
-    def __init__(self, desk, parent=None) -> None:
+    def __init__(self, desk, parent=None, workers=None) -> None:
         super().__init__(parent)
         self.desk = desk
-        self.main = FoldView(desk, "")
-        self.alt = FoldView(desk, "Compare: ")
+        self.main = FoldView(desk, "", workers=workers)
+        self.alt = FoldView(desk, "Compare: ", workers=workers)
         self.spin = QDoubleSpinBox()
         self.spin.setDecimals(8)
         self.spin.setRange(1e-4, 1e5)

@@ -7,7 +7,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Signal
 from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
 
-from .plots import full_range, make_plot, points_in_polygon, set_labels
+from .plots import SymbolPoints, full_range, make_plot, points_in_polygon, set_labels
 from .style import EXCLUDED_COLOUR, band_style
 
 __all__ = ["LightCurvePanel"]
@@ -43,9 +43,8 @@ class LightCurvePanel(QWidget):
         self.errors = []
         for i in range(MAX_BANDS):
             colour, symbol = band_style(i)
-            s = pg.ScatterPlotItem(
-                size=6, symbol=symbol, pen=pg.mkPen(colour, width=1), brush=pg.mkBrush(colour)
-            )
+            # one symbol, pen and brush per band (not per point): a star switch stays cheap
+            s = SymbolPoints(symbol, 6, pen=pg.mkPen(colour, width=1), brush=pg.mkBrush(colour))
             e = pg.ErrorBarItem(pen=pg.mkPen(colour, width=1), beam=0)
             e.setVisible(False)
             self.plot.addItem(e)
@@ -120,22 +119,23 @@ class LightCurvePanel(QWidget):
         x = t - self.t0
         good = lc.good
         bands = list(lc.bands)
+        band = np.asarray(lc.band).astype(str)  # once, not per band (or per point)
         # bands with only excluded points still deserve a legend entry
-        for b in dict.fromkeys(str(v) for v in lc.band):
+        for b in np.unique(band).tolist():
             if b not in bands:
                 bands.append(b)
         entries = []
         for i in range(MAX_BANDS):
             s, e = self.scatter[i], self.errors[i]
             if i < len(bands):
-                sel = good & (lc.band == bands[i])
+                sel = good & (band == bands[i])
                 s.setData(x[sel], lc.mag[sel])
                 if self.show_errors.isChecked() and lc.has_errors:
                     e.setData(x=x[sel], y=lc.mag[sel], height=2 * lc.mag_err[sel])
                     e.setVisible(True)
                 else:
                     e.setVisible(False)
-                entries.append((s, f"{bands[i]} ({int(sel.sum())})"))
+                entries.append((s.legend_sample, f"{bands[i]} ({int(sel.sum())})"))
             else:
                 s.setData([], [])
                 e.setVisible(False)

@@ -100,7 +100,7 @@ class MainWindow(QMainWindow):
         self.star_list = StarListWidget(desk)
         self.lightcurve = LightCurvePanel(desk)
         self.periodogram = PeriodogramPanel(desk, self.services, self.workers)
-        self.fold = FoldPanel(desk)
+        self.fold = FoldPanel(desk, workers=self.workers)
         self.sheet = StarSheet(desk)
         self.top_splitter = QSplitter(Qt.Orientation.Horizontal)
         self.top_splitter.addWidget(self.lightcurve)

@@ -145,3 +145,41 @@ def test_fold_model_refuses_a_bad_period(analysed_rrab):
     lc, settings, _ = analysed_rrab
     with pytest.raises(PhasewiseError, match="period must be positive"):
         fold_model(lc, -1.0, settings)
+
+
+def test_fold_points_are_the_points_fold_model_draws_with_nothing_fitted(analysed_rrab):
+    from phasewise.core.folding import fold_model, fold_points
+
+    lc, settings, result = analysed_rrab
+    stored = result.to_dict()
+    band = result.primary_band
+    model = fold_model(lc, result.period, settings, band, result=stored)
+    points = fold_points(lc, result.period, band, result=stored)
+    for name in ("index", "time", "mag", "err", "excluded"):
+        np.testing.assert_array_equal(getattr(points, name), getattr(model, name))
+    # the analysis's set-aside points are marked before any fit (the fit may add its own)
+    marked = set(points.index[points.set_aside])
+    assert marked == set(stored["set_aside"]) & set(points.index) and marked
+    assert points.order is None and points.rms is None and points.model_grid.size == 0
+    assert np.isnan(points.residual).all()
+    # phase zero from the stored analysis: at its own period the fit puts it there too
+    assert points.epoch == stored["epoch_max"]
+    offset = ((model.epoch - points.epoch) / result.period + 0.5) % 1.0 - 0.5
+    assert abs(offset) < 1e-6
+
+
+def test_fold_points_eclipsing_marks_nothing_aside_and_refuses_a_bad_period(analysed_rrab):
+    from phasewise.core.folding import fold_model, fold_points
+
+    lc, settings, result = analysed_rrab
+    stored = result.to_dict()
+    band = result.primary_band
+    points = fold_points(lc, result.period, band, eclipsing=True, result=stored)
+    assert not points.set_aside.any()
+    # phase zero at primary minimum from the start, where the fitted fold puts it
+    model = fold_model(lc, result.period, settings, band, eclipsing=True, result=stored)
+    assert points.epoch_kind == model.epoch_kind == "primary_minimum"
+    offset = ((model.epoch - points.epoch) / result.period + 0.5) % 1.0 - 0.5
+    assert abs(offset) < 0.01
+    with pytest.raises(PhasewiseError, match="period must be positive"):
+        fold_points(lc, 0.0, result.primary_band, result=stored)
