@@ -815,6 +815,17 @@ class Ledger:
         ledger._token = token
         return ledger
 
+    @classmethod
+    def schema_version(cls, path: str | os.PathLike) -> int:
+        """The schema version of the ledger at ``path``, read without changing it."""
+        path = Path(path)
+        if not path.is_file():
+            raise LedgerError("no such ledger file", file=path)
+        problem = _header_problem(path)
+        if problem:
+            raise LedgerError(problem, file=path)
+        return cls._check_readonly(path, "none")
+
     @staticmethod
     def _check_readonly(path: Path, check: str) -> int:
         """Check the file on a read-only connection; return its schema version."""

@@ -198,6 +198,18 @@ def _keep_as_is(path: Path) -> bool:
         return True
 
 
+def _upgrade(path: Path) -> None:
+    """Migrate a demo ledger an older Phasewise wrote (its verdicts are kept), so
+    that it is reused or kept rather than taken for an unreadable file."""
+    from phasewise.core.ledger import SCHEMA_VERSION, Ledger
+
+    try:
+        if Ledger.schema_version(path) < SCHEMA_VERSION:
+            Ledger.open(path).close()
+    except PhasewiseError:
+        pass  # in use, damaged or read-only: _keep_as_is leaves it as it is
+
+
 def _demo_ledgers(target: Path) -> list[Path]:
     """``target`` and the fresh demo ledgers built beside it, newest first."""
     stem = target.name.removesuffix(".ledger.sqlite")
@@ -229,6 +241,8 @@ def demo_needs_build(
     files = demo_files(folder if folder is not None else demo_data_dir())
     target = ledger if ledger is not None else user_data_dir() / DEMO_LEDGER
     settings = CoreServices().default_settings()
+    for path in _demo_ledgers(target):
+        _upgrade(path)
     if not rebuild:
         for path in _demo_ledgers(target):
             if _up_to_date(path, files, settings):
