@@ -24,13 +24,15 @@ import argparse
 import json
 import os
 import resource
-import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from bench_export import child_json  # noqa: E402
 
 MODES = ("local", "dask-default", "dask-project")
 
@@ -67,14 +69,8 @@ def child(mode: str, path: str, workers: int) -> None:
 
 def run(mode: str, path: Path, workers: int) -> dict:
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
-    proc = subprocess.run(
-        [sys.executable, __file__, "--child", mode, str(path), str(workers)],
-        capture_output=True,
-        text=True,
-        check=True,
-    )
+    got = child_json(__file__, mode, path, workers)
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
-    got = json.loads(proc.stdout.strip().splitlines()[-1])
     got["cpu"] = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
     got["faults"] = after.ru_minflt - before.ru_minflt
     return got

@@ -133,14 +133,19 @@ def _peak_mb(usage) -> float:
     return usage.ru_maxrss / 1024
 
 
-def run_child(path: Path, fmt: str, out: Path) -> dict:
+def child_json(script: str, *args) -> dict:
+    """Run ``script --child ARGS...`` in a fresh process; its last line of JSON."""
     proc = subprocess.run(
-        [sys.executable, __file__, "--child", str(path), fmt, str(out)],
+        [sys.executable, script, "--child", *map(str, args)],
         capture_output=True,
         text=True,
         check=True,
     )
     return json.loads(proc.stdout.strip().splitlines()[-1])
+
+
+def run_child(path: Path, fmt: str, out: Path) -> dict:
+    return child_json(__file__, path, fmt, out)
 
 
 def main() -> None:

@@ -24,7 +24,6 @@ import json
 import os
 import resource
 import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -33,7 +32,7 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from bench_export import _peak_mb, build  # noqa: E402
+from bench_export import _peak_mb, build, child_json  # noqa: E402
 
 from phasewise.core.ledger import Ledger  # noqa: E402
 
@@ -64,13 +63,7 @@ def child(path: str, what: str, sample: int) -> None:
 
 
 def run_child(path: Path, what: str, sample: int) -> dict:
-    proc = subprocess.run(
-        [sys.executable, __file__, "--child", str(path), what, str(sample)],
-        capture_output=True,
-        text=True,
-        check=True,
-    )
-    return json.loads(proc.stdout.strip().splitlines()[-1])
+    return child_json(__file__, path, what, sample)
 
 
 def main() -> None:

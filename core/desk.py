@@ -31,14 +31,14 @@ Events (``model.subscribe(name, callback)``)
 from __future__ import annotations
 
 import math
-from collections import OrderedDict, defaultdict
+from collections import OrderedDict
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol, runtime_checkable
 
 from .classes import CLASSES, canonical_code
 from .errors import PhasewiseError
-from .vetting import NON_PERIODIC_CLASSES, VettingSession
+from .vetting import NON_PERIODIC_CLASSES, Listeners, VettingSession
 
 __all__ = ["DeskLedger", "DeskModel", "StarAnalyser", "StarData", "VerdictPlan", "EVENTS"]
 
@@ -98,7 +98,7 @@ class VerdictPlan:
     period: float | None
 
 
-class DeskModel:
+class DeskModel(Listeners):
     """The desk's ledger, current star, trial period, caches and verdict policy.
 
     Parameters
@@ -110,9 +110,12 @@ class DeskModel:
         change events go through it (default: run at once).
     """
 
+    EVENTS = EVENTS
+
     def __init__(
         self, ledger: DeskLedger | None = None, dispatch: Callable[[Callable], None] | None = None
     ) -> None:
+        super().__init__()
         self.dispatch = dispatch or (lambda fn: fn())
         self.session = VettingSession()
         self.ledger: DeskLedger | None = None
@@ -125,27 +128,8 @@ class DeskModel:
         self._periodograms: OrderedDict[tuple, Any] = OrderedDict()
         self._folds = None
         self._unsubscribe: Callable[[], None] | None = None
-        self._listeners: dict[str, list[Callable]] = defaultdict(list)
         if ledger is not None:
             self.set_ledger(ledger)
-
-    # ------------------------------------------------------------ listeners
-    def subscribe(self, event: str, callback: Callable) -> Callable[[], None]:
-        """Call ``callback`` on ``event`` (see :data:`EVENTS`); returns an unsubscribe."""
-        if event not in EVENTS:
-            raise PhasewiseError(
-                f"unknown event {event!r}; expected one of {', '.join(EVENTS)}", field="event"
-            )
-        self._listeners[event].append(callback)
-        return lambda: self.unsubscribe(event, callback)
-
-    def unsubscribe(self, event: str, callback: Callable) -> None:
-        if callback in self._listeners[event]:
-            self._listeners[event].remove(callback)
-
-    def _emit(self, event: str, *args) -> None:
-        for callback in list(self._listeners[event]):
-            callback(*args)
 
     # --------------------------------------------------------------- ledger
     @property

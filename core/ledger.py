@@ -764,12 +764,7 @@ class Ledger:
             Another live process holds it for writing.
         """
         path = Path(path)
-        if not path.is_file():
-            raise LedgerError("no such ledger file", file=path)
-        problem = _header_problem(path)
-        if problem:
-            raise LedgerError(problem, file=path)
-        version = cls._check_readonly(path, check)
+        version = cls._readable_version(path, check)
         if version > SCHEMA_VERSION:
             raise LedgerVersionError(
                 f"written by a newer Phasewise (schema version {version}; this version "
@@ -818,13 +813,17 @@ class Ledger:
     @classmethod
     def schema_version(cls, path: str | os.PathLike) -> int:
         """The schema version of the ledger at ``path``, read without changing it."""
-        path = Path(path)
+        return cls._readable_version(Path(path), "none")
+
+    @classmethod
+    def _readable_version(cls, path: Path, check: str) -> int:
+        """The schema version of a file that looks like a ledger (header, then ``check``)."""
         if not path.is_file():
             raise LedgerError("no such ledger file", file=path)
         problem = _header_problem(path)
         if problem:
             raise LedgerError(problem, file=path)
-        return cls._check_readonly(path, "none")
+        return cls._check_readonly(path, check)
 
     @staticmethod
     def _check_readonly(path: Path, check: str) -> int:

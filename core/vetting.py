@@ -17,7 +17,6 @@ Events
 from __future__ import annotations
 
 import math
-from collections import defaultdict
 from collections.abc import Callable, Sequence
 
 from .classes import ALIASES, CLASSES
@@ -26,6 +25,7 @@ from .folding import period_step
 
 __all__ = [
     "VettingSession",
+    "Listeners",
     "SMALL_STEP_CYCLES",
     "LARGE_STEP_CYCLES",
     "ECLIPSING_CLASSES",
@@ -47,32 +47,47 @@ NON_PERIODIC_CLASSES = frozenset(
 )
 
 
-class VettingSession:
-    """Current star, trial period and candidates of one vetting session."""
+class Listeners:
+    """Named events and their callbacks: the one listener scheme of the desk's models."""
+
+    #: The event names a subclass emits.
+    EVENTS: tuple[str, ...] = ()
 
     def __init__(self) -> None:
+        self._listeners: dict[str, list[Callable]] = {name: [] for name in self.EVENTS}
+
+    def subscribe(self, event: str, callback: Callable) -> Callable[[], None]:
+        """Call ``callback`` on ``event`` (one of :attr:`EVENTS`); returns an unsubscribe."""
+        if event not in self._listeners:
+            raise PhasewiseError(
+                f"unknown event {event!r}; expected one of {', '.join(self.EVENTS)}",
+                field="event",
+            )
+        self._listeners[event].append(callback)
+        return lambda: self.unsubscribe(event, callback)
+
+    def unsubscribe(self, event: str, callback: Callable) -> None:
+        if callback in self._listeners.get(event, ()):
+            self._listeners[event].remove(callback)
+
+    def _emit(self, event: str, *args) -> None:
+        for callback in list(self._listeners[event]):
+            callback(*args)
+
+
+class VettingSession(Listeners):
+    """Current star, trial period and candidates of one vetting session."""
+
+    EVENTS = ("star", "period")
+
+    def __init__(self) -> None:
+        super().__init__()
         self.star_id: str | None = None
         self.period: float | None = None
         self.analysed_period: float | None = None
         self.baseline: float = 0.0
         self.candidates: tuple[float, ...] = ()
         self.candidate_index: int | None = None
-        self._listeners: dict[str, list[Callable]] = defaultdict(list)
-
-    # ------------------------------------------------------------ listeners
-    def subscribe(self, event: str, callback: Callable) -> None:
-        """Call ``callback`` on ``event`` (``"star"`` or ``"period"``)."""
-        if event not in ("star", "period"):
-            raise PhasewiseError(f"unknown event {event!r}; expected 'star' or 'period'")
-        self._listeners[event].append(callback)
-
-    def unsubscribe(self, event: str, callback: Callable) -> None:
-        if callback in self._listeners[event]:
-            self._listeners[event].remove(callback)
-
-    def _emit(self, event: str, *args) -> None:
-        for callback in list(self._listeners[event]):
-            callback(*args)
 
     # --------------------------------------------------------------- state
     def load_star(
