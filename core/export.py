@@ -29,9 +29,11 @@ from __future__ import annotations
 import csv
 import io
 import json
+import marshal
 import math
 import os
 import re
+import struct
 import tempfile
 import warnings
 from collections.abc import Iterable, Iterator, Mapping
@@ -503,18 +505,24 @@ _DECIDED = ("confirmed", "relabelled", "rejected")
 
 
 # ------------------------------------------------------------------ the spool
+#: Length prefix of a spooled row.
+_LENGTH = struct.Struct("<I")
+
+
 class _Spool:
-    """Rows written once to a temporary file (JSON lines), with what the writers need."""
+    """Rows written once to a temporary file, with what the writers need."""
 
     def __init__(self, rows: Iterable[dict[str, Any]], folder: Path) -> None:
-        self.file = tempfile.TemporaryFile("w+", encoding="utf-8", dir=folder, suffix=".rows")
+        # our own temporary file, written and read by this process only: marshal
+        # keeps it fast (the rows are plain dicts of str, float and int)
+        self.file = tempfile.TemporaryFile("w+b", dir=folder, suffix=".rows")
         self.n = 0
         self.band_count: dict[str, int] = {}
         self.widths: dict[str, int] = {}
         self.relations: set[str] = set()
         self.time_scales: set[str] = set()
         widths = self.widths
-        encode = json.JSONEncoder(ensure_ascii=False, check_circular=False).encode
+        write = self.file.write
         try:
             for row in rows:
                 for band in row.pop(_BANDS_KEY):
@@ -532,7 +540,9 @@ class _Spool:
                         self.relations.update(r for r in row[key].split(" + ") if r)
                 if row["time_scale"]:
                     self.time_scales.add(row["time_scale"])
-                self.file.write(encode(row) + "\n")
+                record = marshal.dumps(row)
+                write(_LENGTH.pack(len(record)))
+                write(record)
                 self.n += 1
         except BaseException:
             self.file.close()
@@ -549,13 +559,14 @@ class _Spool:
 
     def batches(self, size: int) -> Iterator[list[dict[str, Any]]]:
         self.file.seek(0)
-        batch = []
-        for line in self.file:
-            batch.append(json.loads(line))
-            if len(batch) >= size:
-                yield batch
-                batch = []
-        if batch:
+        read = self.file.read
+        left = self.n
+        while left:
+            batch = []
+            for _ in range(min(size, left)):
+                (length,) = _LENGTH.unpack(read(_LENGTH.size))
+                batch.append(marshal.loads(read(length)))
+            left -= len(batch)
             yield batch
 
     def close(self) -> None:
@@ -652,12 +663,11 @@ def _cell_writers(columns: list[Column], text, missing_number: str):
         if c.kind == "int":
             return lambda row: str(int(row.get(name, -1)))
 
-        def number_cell(row):
+        def number_cell(row, isfinite=math.isfinite):
             value = row.get(name)
-            if value is None:
+            if value is None or not isfinite(value):
                 return missing_number
-            value = float(value)
-            return repr(value) if math.isfinite(value) else missing_number
+            return repr(float(value))
 
         return number_cell
 
