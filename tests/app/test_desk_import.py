@@ -33,6 +33,7 @@ def _odd_table(path: Path, n_stars: int = 3) -> Path:
     return path
 
 
+@pytest.mark.slow  # a few seconds (subprocesses or a worker); run by the slow suite
 def test_unrecognised_columns_open_the_mapping_dialog_with_a_preview(
     qtbot, qsettings, tmp_path, monkeypatch
 ):
@@ -92,6 +93,7 @@ def test_a_mapping_that_does_not_read_the_file_brings_the_dialog_back(
         dispose(window)
 
 
+@pytest.mark.slow  # a few seconds (subprocesses or a worker); run by the slow suite
 def test_a_failed_import_leaves_no_ledger_and_the_retry_works(tmp_path):
     from phasewise.core.analysis import AnalysisSettings
     from phasewise.core.io import ColumnMapping

@@ -7,6 +7,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 ROOT = Path(__file__).resolve().parents[2]
 
 PROBE = r"""
@@ -38,6 +40,7 @@ print(json.dumps({"n": len(names), "same": before == after,
 """
 
 
+@pytest.mark.slow  # a few seconds (subprocesses or a worker); run by the slow suite
 def test_importing_every_module_changes_no_environment_or_global_configuration():
     env = {"PATH": "/usr/bin:/bin", "HOME": "/tmp"}  # no thread variables set by the user
     out = subprocess.run(

@@ -4,6 +4,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 ROOT = Path(__file__).resolve().parents[2]
 
 PROBE = """
@@ -24,6 +26,7 @@ def _run(code: str) -> str:
     return result.stdout.strip()
 
 
+@pytest.mark.slow  # a few seconds (subprocesses or a worker); run by the slow suite
 def test_every_core_module_imports_without_qt():
     count, _, loaded = _run(PROBE).partition(" ")
     assert int(count) >= 3  # the walk really found modules
