@@ -138,6 +138,10 @@ class WorkerPool(QObject):
         **kwargs,
     ) -> Worker:
         worker = Worker(fn, *args, **kwargs)
+        if self.closed:
+            # a timer that fires after the window closed (a fold's rest timer)
+            # must not start a thread that outlives the window: never run
+            return worker
         if on_result:
             worker.signals.result.connect(self._guard(on_result))
         if on_error:
