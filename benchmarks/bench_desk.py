@@ -98,6 +98,7 @@ def window_on(path: Path):
 def dispose(window) -> None:
     from PySide6.QtCore import QCoreApplication, QEvent
 
+    window.wait_idle()  # no fit or periodogram thread left running into the teardown
     window.close()
     window.deleteLater()
     QCoreApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
