@@ -32,13 +32,17 @@ def test_benchmark_runs_in_smoke_mode(script, tmp_path):
         "XDG_DATA_HOME": str(tmp_path / ".local" / "share"),
     }
     proc = subprocess.run(
-        [sys.executable, str(script), "--smoke"],
+        # a crash prints every thread's Python stack (faulthandler)
+        [sys.executable, "-X", "faulthandler", str(script), "--smoke"],
         cwd=ROOT,
         capture_output=True,
         text=True,
         env=env,
         timeout=600,
     )
-    assert proc.returncode == 0, proc.stderr[-3000:]
+    assert proc.returncode == 0, (
+        f"exit code {proc.returncode}\n--- stdout:\n{proc.stdout[-2000:]}\n"
+        f"--- stderr:\n{proc.stderr[-6000:]}"
+    )
     assert proc.stdout.strip(), "a benchmark prints its figures"
     assert "Traceback" not in proc.stderr

@@ -452,8 +452,11 @@ class MainWindow(QMainWindow):
         super().closeEvent(event)
 
     # ============================================================ screenshots
-    def wait_idle(self, timeout_s: float = 30.0) -> None:
-        """Process events until no worker runs (for screenshots and tests)."""
+    def wait_idle(self, timeout_s: float = 30.0) -> bool:
+        """Process events until no worker runs (for screenshots and tests).
+
+        Returns False if workers were still running after ``timeout_s``.
+        """
         import time
 
         end = time.monotonic() + timeout_s
@@ -462,8 +465,9 @@ class MainWindow(QMainWindow):
             app.processEvents()
             if not (self.workers.busy or self.periodogram.feed.busy or self.fold.busy):
                 app.processEvents()
-                return
+                return True
             time.sleep(0.01)
+        return False
 
     def save_screenshot(self, path) -> Path:
         path = Path(path)
