@@ -34,6 +34,8 @@ import math
 import os
 import re
 import struct
+import subprocess
+import sys
 import tempfile
 import warnings
 from collections.abc import Iterable, Iterator, Mapping
@@ -464,7 +466,11 @@ def _check_statuses(statuses: Iterable[str]) -> tuple[str, ...]:
 
 
 def catalogue_rows(
-    ledger: Ledger, statuses: Iterable[str] = DEFAULT_STATUSES
+    ledger: Ledger,
+    statuses: Iterable[str] = DEFAULT_STATUSES,
+    *,
+    start: int = 0,
+    stop: int | None = None,
 ) -> Iterator[dict[str, Any]]:
     """The catalogue's rows, in import order, read from the ledger a chunk at a time.
 
@@ -472,11 +478,12 @@ def catalogue_rows(
     star's row comes from its verdict (with the final numbers stored with
     it) and its summary line; the full analysis result is read only for
     undecided stars and decisions stored without numbers, one query per
-    chunk.  At most one chunk of stars' records is in memory.
+    chunk.  At most one chunk of stars' records is in memory.  ``start`` and
+    ``stop`` select the stars at those import positions (as a slice does).
     """
     statuses = _check_statuses(statuses)
-    summaries = iter(ledger.star_rows())
-    for chunk in ledger.verdict_chunks(_READ_CHUNK):
+    summaries = iter(ledger.star_rows(start, stop))
+    for chunk in ledger.verdict_chunks(_READ_CHUNK, start=start, stop=stop):
         rows = []
         for verdict, info in chunk:
             # both come in import order, from the verdicts table
@@ -510,44 +517,92 @@ _LENGTH = struct.Struct("<I")
 
 
 class _Spool:
-    """Rows written once to a temporary file, with what the writers need."""
+    """Rows written once to temporary files, with what the writers need.
 
-    def __init__(self, rows: Iterable[dict[str, Any]], folder: Path) -> None:
-        # our own temporary file, written and read by this process only: marshal
-        # keeps it fast (the rows are plain dicts of str, float and int)
-        self.file = tempfile.TemporaryFile("w+b", dir=folder, suffix=".rows")
+    Rows are spooled with :meth:`add`; :meth:`absorb` takes over the file of
+    a part spooled by another process (:func:`_spool_part`).  ``batches``
+    reads the parts back in the order they were added.
+    """
+
+    def __init__(self, folder: Path) -> None:
+        self.folder = folder
+        self.parts: list[tuple[Any, int]] = []  # (open binary file, rows in it)
         self.n = 0
         self.band_count: dict[str, int] = {}
         self.widths: dict[str, int] = {}
         self.relations: set[str] = set()
         self.time_scales: set[str] = set()
-        widths = self.widths
-        write = self.file.write
+        self.leftovers: list[str] = []
+
+    @classmethod
+    def of(cls, rows: Iterable[dict[str, Any]], folder: Path) -> _Spool:
+        spool = cls(folder)
         try:
-            for row in rows:
-                for band in row.pop(_BANDS_KEY):
-                    self.band_count[band] = self.band_count.get(band, 0) + 1
-                for key in _TEXT_NAMES:
-                    value = row[key]
-                    if _CONTROL.search(value):
-                        value = row[key] = escape_controls(value)
-                    # FITS transliterates to ASCII: at most three characters for one
-                    width = len(value) if value.isascii() else 3 * len(value)
-                    if width > widths.get(key, 1):
-                        widths[key] = width
-                for key in ("feh_relation", "abs_mag_relation", "distance_relation"):
-                    if row[key]:
-                        self.relations.update(r for r in row[key].split(" + ") if r)
-                if row["time_scale"]:
-                    self.time_scales.add(row["time_scale"])
-                record = marshal.dumps(row)
-                write(_LENGTH.pack(len(record)))
-                write(record)
-                self.n += 1
+            spool.add(rows)
         except BaseException:
-            self.file.close()
+            spool.close()
             raise
-        self.file.seek(0)
+        return spool
+
+    def add(self, rows: Iterable[dict[str, Any]], file=None) -> None:
+        """Spool ``rows`` as one part (into ``file`` if given, else a temporary file)."""
+        # our own temporary files, written and read by Phasewise only: marshal
+        # keeps them fast (the rows are plain dicts of str, float and int)
+        if file is None:
+            file = tempfile.TemporaryFile("w+b", dir=self.folder, suffix=".rows")
+        n = 0
+        self.parts.append((file, 0))
+        widths = self.widths
+        write = file.write
+        for row in rows:
+            for band in row.pop(_BANDS_KEY):
+                self.band_count[band] = self.band_count.get(band, 0) + 1
+            for key in _TEXT_NAMES:
+                value = row[key]
+                if _CONTROL.search(value):
+                    value = row[key] = escape_controls(value)
+                # FITS transliterates to ASCII: at most three characters for one
+                width = len(value) if value.isascii() else 3 * len(value)
+                if width > widths.get(key, 1):
+                    widths[key] = width
+            for key in ("feh_relation", "abs_mag_relation", "distance_relation"):
+                if row[key]:
+                    self.relations.update(r for r in row[key].split(" + ") if r)
+            if row["time_scale"]:
+                self.time_scales.add(row["time_scale"])
+            record = marshal.dumps(row)
+            write(_LENGTH.pack(len(record)))
+            write(record)
+            n += 1
+        file.flush()
+        self.parts[-1] = (file, n)
+        self.n += n
+
+    def summary(self) -> dict[str, Any]:
+        """What the writers need besides the rows (plain values, for another process)."""
+        return {
+            "n": self.n,
+            "band_count": self.band_count,
+            "widths": self.widths,
+            "relations": sorted(self.relations),
+            "time_scales": sorted(self.time_scales),
+        }
+
+    def absorb(self, path: str, summary: Mapping[str, Any]) -> None:
+        """Take over a part spooled by another process into the file ``path``."""
+        file = open(path, "rb")  # noqa: SIM115 - kept open until close()
+        try:
+            os.unlink(path)  # the open file stays readable; nothing is left behind
+        except OSError:  # a system that keeps open files: removed at close()
+            self.leftovers.append(path)
+        self.parts.append((file, int(summary["n"])))
+        self.n += int(summary["n"])
+        for band, count in summary["band_count"].items():
+            self.band_count[band] = self.band_count.get(band, 0) + int(count)
+        for key, width in summary["widths"].items():
+            self.widths[key] = max(self.widths.get(key, 1), int(width))
+        self.relations.update(summary["relations"])
+        self.time_scales.update(summary["time_scales"])
 
     @property
     def bands(self) -> list[str]:
@@ -558,19 +613,162 @@ class _Spool:
         return list(_HEAD) + [c for b in self.bands for c in _band_columns(b)] + list(_TAIL)
 
     def batches(self, size: int) -> Iterator[list[dict[str, Any]]]:
-        self.file.seek(0)
-        read = self.file.read
-        left = self.n
-        while left:
-            batch = []
-            for _ in range(min(size, left)):
-                (length,) = _LENGTH.unpack(read(_LENGTH.size))
-                batch.append(marshal.loads(read(length)))
-            left -= len(batch)
-            yield batch
+        for file, n in self.parts:
+            file.seek(0)
+            read = file.read
+            left = n
+            while left:
+                batch = []
+                for _ in range(min(size, left)):
+                    (length,) = _LENGTH.unpack(read(_LENGTH.size))
+                    batch.append(marshal.loads(read(length)))
+                left -= len(batch)
+                yield batch
 
     def close(self) -> None:
-        self.file.close()
+        for file, _ in self.parts:
+            file.close()
+        self.parts = []
+        for path in self.leftovers:
+            Path(path).unlink(missing_ok=True)
+
+
+def _spool_part(ledger_path: str, statuses: list[str], start: int, stop: int, folder: str) -> dict:
+    """Spool the rows of import positions ``start:stop`` into a new file in ``folder``.
+
+    Runs in a process of its own (:func:`_parallel_spool`); returns the file's
+    path and the part's :meth:`_Spool.summary`.
+    """
+    spool = _Spool(Path(folder))
+    handle, name = tempfile.mkstemp(dir=folder, suffix=".rows")
+    try:
+        with Ledger.open(ledger_path, readonly=True) as ledger, os.fdopen(handle, "w+b") as file:
+            spool.add(catalogue_rows(ledger, tuple(statuses), start=start, stop=stop), file)
+            spool.parts = []  # the file is the caller's now
+    except BaseException:
+        Path(name).unlink(missing_ok=True)
+        raise
+    return {"file": name, **spool.summary()}
+
+
+def _part_main() -> None:
+    """``python -m phasewise.core.export`` with one JSON request on stdin (our own use)."""
+    request = json.loads(sys.stdin.read())
+    try:
+        reply = _spool_part(**request)
+    except PhasewiseError as exc:
+        reply = {"error": str(exc)}
+    print(json.dumps(reply), flush=True)
+
+
+#: Stars per process from which an export builds its rows in several
+#: processes (below it, starting a process costs more than it saves).
+_STARS_PER_PROCESS = 20_000
+#: At most this many processes build rows (memory: about 200 MB each).
+_MAX_PROCESSES = 4
+
+
+def _processes(n_stars: int) -> int:
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    return max(1, min(cores or 1, _MAX_PROCESSES, n_stars // _STARS_PER_PROCESS))
+
+
+def _spool_catalogue(ledger: Ledger, statuses: tuple[str, ...], folder: Path) -> tuple[_Spool, str]:
+    """Every row of the catalogue, spooled; built in several processes for large ledgers.
+
+    Each process reads its own slice of the stars in import order (read-only
+    connections to the same file) and the parts are read back in order, so
+    the rows are those of :func:`catalogue_rows`.  The ledger's checksum is
+    compared before and after: a ledger written meanwhile (a verdict recorded
+    during a long export) is read again, so the rows come from one state,
+    whose checksum is returned with the spool (for the provenance).
+    """
+    for _attempt in range(3):
+        before = ledger.checksum()
+        n_stars = ledger.n_stars
+        processes = _processes(n_stars)
+        if processes == 1:
+            spool = _Spool.of(catalogue_rows(ledger, statuses), folder)
+        else:
+            spool = _parallel_spool(ledger, statuses, folder, n_stars, processes)
+        if ledger.checksum() == before:
+            return spool, before
+        spool.close()
+    raise PhasewiseError(
+        "the ledger kept changing while the catalogue was written; write it again "
+        "when no analysis or other program is writing to it",
+        file=str(ledger.path),
+    )
+
+
+def _parallel_spool(
+    ledger: Ledger, statuses: tuple[str, ...], folder: Path, n_stars: int, processes: int
+) -> _Spool:
+    """Rows of slices of the stars spooled by other processes, the first by this one.
+
+    The others are fresh interpreters (``python -m phasewise.core.export``)
+    that import only core, whatever program calls the export (a window, a
+    script without a main guard).
+    """
+    edges = [round(i * n_stars / processes) for i in range(processes + 1)]
+    children = []
+    for start, stop in zip(edges[1:-1], edges[2:], strict=True):
+        request = {
+            "ledger_path": str(ledger.path),
+            "statuses": list(statuses),
+            "start": start,
+            "stop": stop,
+            "folder": str(folder),
+        }
+        # what a child says on stderr goes to a file: a full pipe would stall it
+        errors = tempfile.TemporaryFile("w+", dir=folder, suffix=".log")
+        child = subprocess.Popen(
+            [sys.executable, "-m", "phasewise.core.export"],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            stderr=errors,
+            text=True,
+        )
+        child.stdin.write(json.dumps(request))
+        child.stdin.close()
+        children.append((child, errors))
+    spool = _Spool(folder)
+    replies: list[dict] = []
+    try:
+        try:  # this process builds the first slice meanwhile
+            spool.add(catalogue_rows(ledger, statuses, start=0, stop=edges[1]))
+        except BaseException:
+            for child, _ in children:
+                child.kill()
+            raise
+        finally:  # every child is waited for; its file is taken over or removed
+            for child, errors in children:
+                out = child.stdout.read()
+                child.wait()
+                child.stdout.close()
+                errors.seek(0)
+                said = errors.read().strip()[-2000:]
+                errors.close()
+                try:
+                    reply = json.loads(out.strip().splitlines()[-1])
+                except (ValueError, IndexError):
+                    reply = {
+                        "error": f"a process building catalogue rows ended with exit code "
+                        f"{child.returncode}: {said}"
+                    }
+                replies.append(reply)
+        for reply in replies:
+            if "error" in reply:
+                raise PhasewiseError(reply["error"], file=str(ledger.path))
+        for reply in replies:
+            spool.absorb(reply.pop("file"), reply)
+    except BaseException:
+        spool.close()
+        for reply in replies:
+            if "file" in reply:
+                Path(reply["file"]).unlink(missing_ok=True)
+        raise
+    return spool
 
 
 def _missing(column: Column) -> Any:
@@ -606,21 +804,29 @@ def _table(spool: _Spool, columns: list[Column], meta: Mapping[str, Any]) -> Tab
 
 def catalogue_table(ledger: Ledger, statuses: Iterable[str] = DEFAULT_STATUSES) -> Table:
     """The vetted catalogue as an astropy Table (units, UCDs in ``col.meta``), in memory."""
-    spool = _Spool(catalogue_rows(ledger, statuses), Path(tempfile.gettempdir()))
+    spool, checksum = _spool_catalogue(
+        ledger, _check_statuses(statuses), Path(tempfile.gettempdir())
+    )
     try:
-        return _table(spool, spool.columns(), provenance(ledger, sorted(spool.relations)))
+        meta = provenance(ledger, sorted(spool.relations), checksum)
+        return _table(spool, spool.columns(), meta)
     finally:
         spool.close()
 
 
-def provenance(ledger: Ledger, relations: Iterable[str] = ()) -> dict[str, Any]:
-    """The provenance header: program, date, settings, relations cited, ledger checksum."""
+def provenance(
+    ledger: Ledger, relations: Iterable[str] = (), checksum: str | None = None
+) -> dict[str, Any]:
+    """The provenance header: program, date, settings, relations cited, ledger checksum.
+
+    ``checksum`` is the ledger's checksum when the rows were read (default: now).
+    """
     settings = ledger.analysis_settings()
     return {
         "program": f"phasewise {__version__}",
         "date": datetime.now(UTC).isoformat(timespec="seconds"),
         "ledger": Path(ledger.path).name,
-        "ledger_checksum": f"sha256:{ledger.checksum()}",
+        "ledger_checksum": f"sha256:{checksum or ledger.checksum()}",
         "settings_hash": None if settings is None else settings[1],
         "analysis_settings": None if settings is None else settings[0],
         "relations": sorted(relations),
@@ -936,10 +1142,10 @@ def write_catalogue(
         raise PhasewiseError("the folder does not exist", file=path.parent)
     if path.is_dir():
         raise PhasewiseError("is a folder; give a file name for the catalogue", file=path)
-    spool = _Spool(catalogue_rows(ledger, statuses), path.parent)
+    spool, checksum = _spool_catalogue(ledger, statuses, path.parent)
     try:
         columns = spool.columns()
-        meta = provenance(ledger, spool.relations)
+        meta = provenance(ledger, spool.relations, checksum)
         _replace_atomically(path, lambda temp: _WRITERS[format](spool, columns, meta, temp))
         if format == "csv":
             text = _sidecar(columns, meta, path)
@@ -949,3 +1155,7 @@ def write_catalogue(
     finally:
         spool.close()
     return spool.n
+
+
+if __name__ == "__main__":
+    _part_main()

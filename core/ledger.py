@@ -145,6 +145,10 @@ def _finite_or_none(value: Any) -> float | None:
     return number if math.isfinite(number) else None
 
 
+#: Larger than any star key (SQLite rowids are signed 64-bit integers).
+_MAX_KEY = 2**63 - 1
+
+
 # ------------------------------------------------------------------ records
 @dataclass(frozen=True)
 class StoredResult:
@@ -1535,7 +1539,9 @@ class Ledger:
         """
         return self._verdicts("", ())
 
-    def verdict_chunks(self, chunk: int = 2000) -> Iterator[list[tuple[Verdict, dict[str, Any]]]]:
+    def verdict_chunks(
+        self, chunk: int = 2000, *, start: int = 0, stop: int | None = None
+    ) -> Iterator[list[tuple[Verdict, dict[str, Any]]]]:
         """Every star's verdict (with its final numbers) and info, in import order, in chunks.
 
         Each chunk holds at most ``chunk`` stars as ``(verdict, star_info)``
@@ -1543,14 +1549,15 @@ class Ledger:
         but read with two queries per chunk, so a 100,000-star export keeps
         one chunk of final numbers in memory.  Seals are checked as
         :meth:`verdict` checks them: a damaged record raises
-        :class:`LedgerError` naming its star.
+        :class:`LedgerError` naming its star.  ``start`` and ``stop`` select
+        the stars at those import positions (as a slice does).
         """
         if chunk < 1:
             raise LedgerError(f"got chunk={chunk}; expected at least 1", field="chunk")
         keys = ("ra", "dec", "source_file", "source_checksum", "time_scale", "n_points")
-        last = 0  # star keys are SQLite rowids, from 1
+        last, end = self._position_keys(start, stop)
         while True:
-            verdicts = self._verdicts("WHERE v.star > ?", (last,), limit=chunk)
+            verdicts = self._verdicts("WHERE v.star > ? AND v.star <= ?", (last, end), limit=chunk)
             if not verdicts:
                 return
             first, last = self._key(verdicts[0].star_id), self._key(verdicts[-1].star_id)
@@ -1735,9 +1742,39 @@ class Ledger:
         return counts
 
     # ------------------------------------------------------------ the list
-    def star_rows(self) -> list[StarRow]:
-        """Every star's list line, in import order, from one query."""
-        return self._star_rows("", ())
+    def star_rows(self, start: int = 0, stop: int | None = None) -> list[StarRow]:
+        """Every star's list line, in import order, from one query.
+
+        ``start`` and ``stop`` select the stars at those import positions
+        (as a slice does).
+        """
+        if start <= 0 and stop is None:
+            return self._star_rows("", ())
+        last, end = self._position_keys(start, stop)
+        return self._star_rows("WHERE s.id > ? AND s.id <= ?", (last, end))
+
+    def _position_keys(self, start: int, stop: int | None) -> tuple[int, int]:
+        """Star keys ``(after, upto)`` that select import positions ``start:stop``."""
+        if start < 0 or (stop is not None and stop < 0):
+            raise LedgerError(
+                f"got start={start}, stop={stop}; expected positions from 0", field="start"
+            )
+
+        def key_before(position: int) -> int:
+            # the key of the star at ``position - 1`` (0 before the first star; star
+            # keys are SQLite rowids, from 1), or the largest key past the end
+            if position <= 0:
+                return 0
+            row = self._query(
+                "SELECT id FROM stars ORDER BY id LIMIT 1 OFFSET ?", (position - 1,)
+            ).fetchone()
+            if row is None:
+                row = self._query("SELECT COALESCE(MAX(id), 0) FROM stars").fetchone()
+            return int(row[0])
+
+        after = key_before(start)
+        upto = _MAX_KEY if stop is None else key_before(stop)
+        return after, max(after, upto)
 
     def point_rows(self, chunk: int = 5000) -> Iterator[PointRow]:
         """Every star's diagram records and verdict, in import order.

@@ -209,6 +209,46 @@ def test_interrupted_export_leaves_no_partial_file(field, tmp_path, monkeypatch)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["vetted.ecsv"]
 
 
+def _without_date(path):
+    return [line for line in path.read_text().splitlines() if "date" not in line]
+
+
+@pytest.mark.parametrize(("fmt", "suffix"), [("ecsv", ".ecsv"), ("csv", ".csv")])
+def test_rows_built_in_several_processes_equal_one_process(
+    field, tmp_path, monkeypatch, fmt, suffix
+):
+    # a survey-size export builds its rows in several processes (one slice of the
+    # stars each, read back in order): the file must be the one a single process writes
+    ledger, _ = field
+    one = tmp_path / f"one{suffix}"
+    write_catalogue(ledger, one, statuses=ALL)
+    monkeypatch.setattr(export_module, "_STARS_PER_PROCESS", 1)
+    monkeypatch.setattr(export_module, "_processes", lambda n: min(3, n))
+    several = tmp_path / f"several{suffix}"
+    assert write_catalogue(ledger, several, statuses=ALL) == ledger.n_stars
+    assert _without_date(several) == _without_date(one)
+    # the parts' spool files are gone
+    assert sorted(p.name for p in tmp_path.iterdir() if not p.name.endswith(".json")) == [
+        f"one{suffix}",
+        f"several{suffix}",
+    ]
+
+
+def test_a_ledger_written_during_the_export_is_read_again(field, tmp_path, monkeypatch):
+    ledger, _ = field
+    sums = iter(["before", "changed", "after", "after"])
+    monkeypatch.setattr(type(ledger), "checksum", lambda self: next(sums))
+    assert write_catalogue(ledger, tmp_path / "v.ecsv", statuses=ALL) == ledger.n_stars
+    # the provenance names the state the rows were read from
+    assert Table.read(tmp_path / "v.ecsv").meta["ledger_checksum"] == "sha256:after"
+    # a ledger that never stops changing is refused, and no file is left
+    monkeypatch.setattr(type(ledger), "checksum", lambda self: str(next(counter)))
+    counter = iter(range(100))
+    with pytest.raises(PhasewiseError, match="kept changing"):
+        write_catalogue(ledger, tmp_path / "w.ecsv", statuses=ALL)
+    assert not (tmp_path / "w.ecsv").exists()
+
+
 def test_format_errors(field, tmp_path):
     ledger, _ = field
     with pytest.raises(PhasewiseError, match=r"out\.txt: field 'format': cannot tell the format"):

@@ -126,3 +126,49 @@ def test_damaged_result_is_reported_by_both_reads(ledger_path):
         assert single.damaged and single.result is None
         assert batched[victim] == single
         assert sum(r.damaged for r in batched.values()) == 1
+
+
+@pytest.mark.parametrize(("start", "stop"), [(0, None), (0, 2), (2, 5), (4, None), (5, 5), (3, 99)])
+def test_slices_of_import_order_equal_slices_of_the_full_reads(ledger_path, start, stop):
+    # the export's processes each read one slice (core.export._parallel_spool)
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        pairs = _one_by_one(ledger)
+        rows = ledger.star_rows()
+        sliced = [p for c in ledger.verdict_chunks(2, start=start, stop=stop) for p in c]
+        assert sliced == pairs[start:stop]
+        assert ledger.star_rows(start, stop) == rows[start:stop]
+
+
+def test_negative_positions_are_refused(ledger_path):
+    with (
+        Ledger.open(ledger_path, readonly=True) as ledger,
+        pytest.raises(LedgerError, match="positions from 0"),
+    ):
+        ledger.star_rows(-1, 2)
+
+
+def test_a_damaged_star_read_by_another_process_is_named(ledger_path, tmp_path, monkeypatch):
+    # the export's other processes report a damaged record as this process would
+    from phasewise.core import export
+    from phasewise.core.errors import PhasewiseError
+
+    with Ledger.open(ledger_path, readonly=True) as ledger:
+        ids = ledger.star_ids()
+    victim = ids[-1]  # in the last slice: read by another process
+    conn = sqlite3.connect(ledger_path)
+    with conn:
+        conn.execute(
+            "UPDATE verdicts SET note = 'changed behind the ledger' "
+            "WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
+            (victim,),
+        )
+    conn.close()
+    monkeypatch.setattr(export, "_processes", lambda n: 2)
+    out = tmp_path / "out"
+    out.mkdir()
+    with (
+        Ledger.open(ledger_path, readonly=True) as ledger,
+        pytest.raises(PhasewiseError, match=f"star '{victim}'.*damaged"),
+    ):
+        export.write_catalogue(ledger, out / "v.ecsv", statuses=("unreviewed", "confirmed"))
+    assert list(out.iterdir()) == []  # no catalogue, no spool or log left behind
