@@ -663,7 +663,7 @@ def _part_main() -> None:
 
 #: Stars per process from which an export builds its rows in several
 #: processes (below it, starting a process costs more than it saves).
-_STARS_PER_PROCESS = 20_000
+_STARS_PER_PROCESS = 10_000
 #: At most this many processes build rows (memory: about 200 MB each).
 _MAX_PROCESSES = 4
 
