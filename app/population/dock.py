@@ -74,6 +74,8 @@ class PopulationLink(QtCore.QObject):
         if model is None or not hasattr(model, "update_star") or not hasattr(model, "value"):
             return
         flagged = set(reasons)
+        if hasattr(model, "prefetch"):
+            model.prefetch(self._flagged | flagged)  # one query per 500 stars, not one each
         for star_id in self._flagged | flagged:
             current = model.value(star_id, "flags")
             if current is None and model.row_of(star_id) is None:
