@@ -98,6 +98,9 @@ NO_LOCUS_CLASSES = frozenset(
     {"UNKNOWN", "REJECTED"} | {c.code for c in CLASSES.values() if not c.periodic}
 )
 
+#: Stars between two calls of :func:`star_points`'s ``progress``.
+PROGRESS_STEP = 5000
+
 #: Verdict states whose class is the person's, not the machine's.
 _DECIDED = frozenset({"confirmed", "relabelled"})
 
@@ -439,8 +442,11 @@ def _double_mode(period: float | None, result: StarResult) -> tuple[float | None
     return min(second, period), max(second, period)
 
 
-def star_points(ledger: Any) -> list[StarPoint]:
+def star_points(ledger: Any, progress: Callable[[int, int], Any] | None = None) -> list[StarPoint]:
     """One :class:`StarPoint` per star of a ledger, in the ledger's order.
+
+    ``progress(done, total)`` is called every :data:`PROGRESS_STEP` stars and
+    at the end (a view reading a survey in a worker thread shows it).
 
     Reads the small records the ledger keeps beside each result and each
     verdict's final numbers (``Ledger.point_rows``: one query, a few
@@ -449,9 +455,12 @@ def star_points(ledger: Any) -> list[StarPoint]:
     as :func:`star_point` does.  A failed or missing analysis gives a point
     without coordinates.
     """
-    out = []
+    out: list[StarPoint] = []
     no_result = None
+    total = getattr(ledger, "n_stars", 0) if progress is not None else 0
     for row in ledger.point_rows():
+        if progress is not None and len(out) % PROGRESS_STEP == 0:
+            progress(len(out), total)
         final = row.final_point if row.status in _DECIDED else None
         if (
             (row.status in _DECIDED and row.has_final and final is None)
@@ -475,6 +484,8 @@ def star_points(ledger: Any) -> list[StarPoint]:
                 owned=owned,
             )
         )
+    if progress is not None:
+        progress(len(out), total)
     return out
 
 

@@ -1032,10 +1032,17 @@ class Ledger:
         return _Transaction(self, what)
 
     def _load_ids(self) -> None:
-        rows = self._query("SELECT id, star_id FROM stars ORDER BY id").fetchall()
-        self._ids = {star_id: key for key, star_id in rows}
-        self._names = {key: star_id for key, star_id in rows}
-        self._order = [star_id for _, star_id in rows]
+        # one JSON array per column, not a row object per star: opening a survey
+        # of 10^5 stars reads its ids in a few tens of milliseconds
+        ordered = "FROM (SELECT id, star_id FROM stars ORDER BY id)"
+        first, last, n = self._query("SELECT min(id), max(id), count(*) FROM stars").fetchone()
+        order = json.loads(self._query(f"SELECT json_group_array(star_id) {ordered}").fetchone()[0])
+        if n and last - first + 1 == n:
+            keys: Iterable[int] = range(first, last + 1)  # no star was ever deleted
+        else:
+            keys = json.loads(self._query(f"SELECT json_group_array(id) {ordered}").fetchone()[0])
+        self._ids = dict(zip(order, keys, strict=True))
+        self._order = order
 
     def _key(self, star_id: str) -> int:
         try:

@@ -164,6 +164,7 @@ def attach(window: Any, *, visible: bool = False) -> PopulationView:
         def wait_idle_and_summary(timeout_s: float = 30.0) -> None:
             wait_idle(timeout_s)
             link.flush()
+            view.wait_for_points(int(timeout_s * 1000))
             view.wait_for_summary(int(timeout_s * 1000))
 
         window.wait_idle = wait_idle_and_summary
