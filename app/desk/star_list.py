@@ -251,18 +251,38 @@ class StarTableModel(QAbstractTableModel):
 
     def stars_changed(self, star_ids: Iterable[str]) -> bool:
         """Read these stars' lines again (after a ledger change); True if the
-        order was read again too (the model was reset)."""
-        star_ids = [s for s in star_ids if s in self.ledger]
+        order was read again too (the model was reset).
+
+        Lines stay where they are in a sorted list (as a verdict should not
+        make the list jump); under the status filter alone a star that left
+        it is taken out; otherwise a filter reads the order again.
+        """
+        star_ids = [s for s in dict.fromkeys(star_ids) if s in self.ledger]
         for star_id in star_ids:
             self._overrides.pop(star_id, None)
             self._lines.pop(star_id, None)
-        if self._status is not None or self._text or self._sort[0] is not None:
-            # a changed star may now pass or fail the filter, or sort elsewhere
-            self.refresh()
+        if self._text or (self._status is not None and not self._leave(star_ids)):
+            self.refresh()  # a changed star may now pass the filter
             return True
         for star_id in star_ids:
             self._changed(star_id)
         return False
+
+    def _leave(self, star_ids: list[str]) -> bool:
+        """Under the status filter: take out the stars whose status no longer
+        passes; False (nothing done) if a star not shown now passes it."""
+        self._read(star_ids)
+        passing = {s for s in star_ids if self._lines[s][1] == self._status}
+        if any(self.row_of(s) is None for s in passing):
+            return False
+        for star_id in star_ids:
+            row = self.row_of(star_id)
+            if star_id not in passing and row is not None:
+                self.beginRemoveRows(QModelIndex(), row, row)
+                del self._ids[row]
+                self._index = None
+                self.endRemoveRows()
+        return True
 
     def prefetch(self, star_ids: Iterable[str]) -> None:
         """Read the lines of many stars at once (before asking for their values)."""

@@ -107,3 +107,24 @@ def test_sort_and_filters_are_the_ledgers_order(survey_list, qtbot):
     assert widget.visible_star_ids() == [f"SV-{i:05d}" for i in range(1199, 699, -1)]
     ledger.set_verdict("SV-01199", "deferred")  # the list follows: the star leaves the filter
     assert widget.visible_star_ids()[0] == "SV-01198"
+
+
+def test_a_star_leaves_and_rejoins_the_status_filter(survey_list):
+    widget, ledger, _reads = survey_list
+    widget.status_box.setCurrentIndex(widget.status_box.findData("unreviewed"))
+    assert widget.visible_star_ids()[0] == "SV-00700"
+    ledger.set_verdict("SV-00700", "confirmed")  # taken out of the shown lines
+    assert widget.visible_star_ids()[:2] == ["SV-00701", "SV-00702"]
+    assert "499 of 1200 shown" in widget.counts_label.text()
+    ledger.undo()  # unreviewed again: back in its place
+    assert widget.visible_star_ids()[:2] == ["SV-00700", "SV-00701"]
+
+
+def test_a_verdict_does_not_move_the_lines_of_a_sorted_list(survey_list):
+    widget, ledger, _reads = survey_list
+    widget._sort_by(FIELDS.index("status"))  # ascending: confirmed first
+    before = widget.visible_star_ids()
+    assert widget.model.value(before[0], "status") == "confirmed"
+    ledger.set_verdict(before[0], "rejected")
+    assert widget.visible_star_ids() == before
+    assert widget.model.value(before[0], "status") == "rejected"
