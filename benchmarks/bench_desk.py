@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import shutil
 import statistics
 import subprocess
 import sys
@@ -197,20 +198,29 @@ w.open_ledger(sys.argv[1])
 app.processEvents()
 w.repaint()
 shown = time.time() - t_start
-print(f"{shown:.3f} {w.current_star} {time.process_time():.3f}")
+print(f"{shown:.3f} {w.current_star} {time.process_time():.3f} {w.ledger.n_stars}")
 w.workers.shutdown()
 w.close()
 """
 
 
-def bench_first_star(tmp: Path, n_stars: int) -> tuple[float, str]:
+def bench_first_star(tmp: Path, n_stars: int, ledger: Path | None = None) -> tuple[float, str, int]:
+    """Median wall ms from process start to the first star painted, that star, and the
+    ledger's number of stars.
+
+    ``ledger``: an existing ledger, copied (never written), instead of a new one.
+    """
     path = tmp / "big.ledger.sqlite"
     t0 = time.perf_counter()
-    make_ledger(path, n_stars, 100, analyse=False)
-    print(
-        f"  (made a {n_stars:,}-star ledger in {time.perf_counter() - t0:.1f} s, "
-        f"{path.stat().st_size / 1e6:.1f} MB)"
-    )
+    if ledger is not None:
+        shutil.copyfile(ledger, path)
+        print(f"  (copied {ledger}, {path.stat().st_size / 1e6:.1f} MB)")
+    else:
+        make_ledger(path, n_stars, 100, analyse=False)
+        print(
+            f"  (made a {n_stars:,}-star ledger in {time.perf_counter() - t0:.1f} s, "
+            f"{path.stat().st_size / 1e6:.1f} MB)"
+        )
     runs, cpu = [], []
     for _ in range(3):  # the first run may read the file from disk, the others from cache
         start = time.time()
@@ -236,7 +246,7 @@ def bench_first_star(tmp: Path, n_stars: int) -> tuple[float, str]:
         + ", ".join(f"{r:.0f} ms wall / {c:.0f} ms CPU" for r, c in zip(runs, cpu, strict=True))
         + ")"
     )
-    return statistics.median(runs), out[1]
+    return statistics.median(runs), out[1], int(out[3])
 
 
 def part_main(args) -> None:
@@ -299,6 +309,15 @@ def main() -> None:
         help="stars in the first-star ledger (default 10,000; 2,000 with --quick; the "
         "target is set at 100,000, a ledger that takes minutes to make)",
     )
+    parser.add_argument(
+        "--ledger",
+        type=Path,
+        default=None,
+        help="time the first star of a copy of this ledger (never written) instead of a new one",
+    )
+    parser.add_argument(
+        "--first-star-only", action="store_true", help="skip the nudge and star-switch timings"
+    )
     # one measurement in a child process (used by the script itself)
     parser.add_argument("--part", choices=("nudge", "switch"), help=argparse.SUPPRESS)
     parser.add_argument("--points", type=int, help=argparse.SUPPRESS)
@@ -319,7 +338,7 @@ def main() -> None:
             "beside them)",
             flush=True,
         )
-        for n, target in ((5_000, 16.0), (50_000, 50.0)):
+        for n, target in () if args.first_star_only else ((5_000, 16.0), (50_000, 50.0)):
             ms, cpu, fit = run_part("nudge", n, repeats, tmp)
             print(
                 f"nudge redraw, {n:>6,} points: {ms:7.1f} ms wall, {cpu:6.1f} ms CPU  "
@@ -327,7 +346,7 @@ def main() -> None:
                 f"the model line when the period rests: {fit:.1f} ms CPU to fit",
                 flush=True,
             )
-        for n in (700, 50_000):
+        for n in () if args.first_star_only else (700, 50_000):
             shown, cpu, full = run_part("switch", n, max(repeats // 2, 5), tmp)
             print(
                 f"star switch, {n:>6,} points, cached analysis: {shown:7.1f} ms wall, "
@@ -337,7 +356,7 @@ def main() -> None:
             )
         n_stars = 50 if args.smoke else 2_000 if args.quick else 10_000
         n_stars = args.stars or n_stars
-        ms, first = bench_first_star(tmp, n_stars)
+        ms, first, n_stars = bench_first_star(tmp, n_stars, args.ledger)
         print(
             f"{n_stars:,}-star ledger, first star ({first}) shown: {ms:7.0f} ms after start "
             f"(target 2000 ms, ratio {ms / 2000:.2f})"

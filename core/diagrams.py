@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from dataclasses import fields as dataclass_fields
 from typing import Any
 
@@ -97,6 +97,9 @@ DIAGRAMS: dict[str, str] = {
 NO_LOCUS_CLASSES = frozenset(
     {"UNKNOWN", "REJECTED"} | {c.code for c in CLASSES.values() if not c.periodic}
 )
+
+#: Stars between two calls of :func:`star_points`'s ``progress``.
+PROGRESS_STEP = 5000
 
 #: Verdict states whose class is the person's, not the machine's.
 _DECIDED = frozenset({"confirmed", "relabelled"})
@@ -193,27 +196,35 @@ class StarPoint:
         verdict_class: str | None = None,
         status: str = "unreviewed",
         final_record: Mapping[str, Any] | None = None,
+        owned: bool = False,
     ) -> StarPoint:
         """Build a point from the records of :func:`result_point_record` and
-        :func:`final_point_record` (as the ledger stores them) and the verdict."""
+        :func:`final_point_record` (as the ledger stores them) and the verdict.
+
+        ``owned``: the records were made for this point alone (decoded from
+        the ledger), so their mappings are used without a copy.
+        """
         top = record.get("top_class")
         code, source = class_used(status, verdict_class, [{"class": top}] if top else ())
-        point = cls(
-            star_id=str(star_id),
-            class_code=code,
-            class_source=source,
-            status=status,
-            period=record.get("period"),
-            amplitude_by_band=dict(record.get("amplitude_by_band") or {}),
-            mean_mag_by_band=dict(record.get("mean_mag_by_band") or {}),
-            R21=record.get("R21"),
-            phi31=record.get("phi31"),
-            shorter_period=record.get("shorter_period"),
-            longer_period=record.get("longer_period"),
-            primary_band=record.get("primary_band"),
-            features=dict(record.get("features") or {}),
-        )
-        return point.with_final_record(final_record) if final_record is not None else point
+        own = _as_is if owned else _copy
+        fields = {
+            "star_id": str(star_id),
+            "class_code": code,
+            "class_source": source,
+            "status": status,
+            "period": record.get("period"),
+            "amplitude_by_band": own(record.get("amplitude_by_band")),
+            "mean_mag_by_band": own(record.get("mean_mag_by_band")),
+            "R21": record.get("R21"),
+            "phi31": record.get("phi31"),
+            "shorter_period": record.get("shorter_period"),
+            "longer_period": record.get("longer_period"),
+            "primary_band": record.get("primary_band"),
+            "features": own(record.get("features")),
+        }
+        if final_record is not None:
+            _apply_final(fields, final_record, own)
+        return cls(**fields)
 
     def with_final(self, final: Mapping[str, Any]) -> StarPoint:
         """This point with a verdict's final numbers (``core.final``): every
@@ -222,38 +233,59 @@ class StarPoint:
 
     def with_final_record(self, record: Mapping[str, Any]) -> StarPoint:
         """This point with the record :func:`final_point_record` made of a verdict's final numbers."""
-        period = record.get("period")
-        if period is None:
-            return replace(self, period=None, shorter_period=None, longer_period=None)
-        amplitudes = dict(record.get("amplitude_by_band") or {})
-        means = dict(record.get("mean_mag_by_band") or {})
-        features = dict(self.features)
-        features.update({f"amplitude_{b}": v for b, v in amplitudes.items()})
-        features.update({f"mean_mag_{b}": v for b, v in means.items()})
-        for k, value in enumerate(record.get("A") or (None, None, None), start=1):
-            features[f"A{k}"] = value
-        features.update(
-            period=period,
-            period_err=record.get("period_err"),
-            log_period=math.log10(period),
-            R21=record.get("R21"),
-            phi31=record.get("phi31"),
-            primary_band=record.get("fourier_band") or self.primary_band,
-        )
-        shorter = longer = None
-        if record.get("period2") is not None:
-            shorter, longer = sorted((period, record["period2"]))
-        return replace(
-            self,
-            period=period,
-            amplitude_by_band=amplitudes,
-            mean_mag_by_band=means or self.mean_mag_by_band,
-            R21=record.get("R21"),
-            phi31=record.get("phi31"),
-            shorter_period=shorter,
-            longer_period=longer,
-            features=features,
-        )
+        fields = {f.name: getattr(self, f.name) for f in dataclass_fields(self)}
+        fields["features"] = dict(self.features)
+        _apply_final(fields, record, _copy)
+        return type(self)(**fields)
+
+
+def _as_is(mapping: Any) -> dict:
+    return {} if mapping is None else mapping
+
+
+def _copy(mapping: Any) -> dict:
+    return dict(mapping or {})
+
+
+def _apply_final(
+    fields: dict[str, Any], record: Mapping[str, Any], own: Callable[[Any], dict]
+) -> None:
+    """Put a verdict's final numbers (a :func:`final_point_record`) into a point's
+    fields, whose ``features`` mapping is the point's own."""
+    period = record.get("period")
+    if period is None:
+        fields.update(period=None, shorter_period=None, longer_period=None)
+        return
+    amplitudes = own(record.get("amplitude_by_band"))
+    means = own(record.get("mean_mag_by_band"))
+    features = fields["features"]
+    for band, value in amplitudes.items():
+        features[f"amplitude_{band}"] = value
+    for band, value in means.items():
+        features[f"mean_mag_{band}"] = value
+    for k, value in enumerate(record.get("A") or (None, None, None), start=1):
+        features[f"A{k}"] = value
+    features.update(
+        period=period,
+        period_err=record.get("period_err"),
+        log_period=math.log10(period),
+        R21=record.get("R21"),
+        phi31=record.get("phi31"),
+        primary_band=record.get("fourier_band") or fields["primary_band"],
+    )
+    shorter = longer = None
+    if record.get("period2") is not None:
+        shorter, longer = sorted((period, record["period2"]))
+    fields.update(
+        period=period,
+        amplitude_by_band=amplitudes,
+        mean_mag_by_band=means or fields["mean_mag_by_band"],
+        R21=record.get("R21"),
+        phi31=record.get("phi31"),
+        shorter_period=shorter,
+        longer_period=longer,
+        features=features,
+    )
 
 
 def result_point_record(
@@ -410,8 +442,11 @@ def _double_mode(period: float | None, result: StarResult) -> tuple[float | None
     return min(second, period), max(second, period)
 
 
-def star_points(ledger: Any) -> list[StarPoint]:
+def star_points(ledger: Any, progress: Callable[[int, int], Any] | None = None) -> list[StarPoint]:
     """One :class:`StarPoint` per star of a ledger, in the ledger's order.
+
+    ``progress(done, total)`` is called every :data:`PROGRESS_STEP` stars and
+    at the end (a view reading a survey in a worker thread shows it).
 
     Reads the small records the ledger keeps beside each result and each
     verdict's final numbers (``Ledger.point_rows``: one query, a few
@@ -420,9 +455,12 @@ def star_points(ledger: Any) -> list[StarPoint]:
     as :func:`star_point` does.  A failed or missing analysis gives a point
     without coordinates.
     """
-    out = []
+    out: list[StarPoint] = []
     no_result = None
+    total = getattr(ledger, "n_stars", 0) if progress is not None else 0
     for row in ledger.point_rows():
+        if progress is not None and len(out) % PROGRESS_STEP == 0:
+            progress(len(out), total)
         final = row.final_point if row.status in _DECIDED else None
         if (
             (row.status in _DECIDED and row.has_final and final is None)
@@ -432,10 +470,10 @@ def star_points(ledger: Any) -> list[StarPoint]:
             out.append(star_point(ledger, row.star_id))
             continue
         if row.analysed:
-            record = row.result_point
+            record, owned = row.result_point, True
         else:
             no_result = no_result or result_point_record(None)
-            record = no_result
+            record, owned = no_result, False
         out.append(
             StarPoint.from_record(
                 row.star_id,
@@ -443,8 +481,11 @@ def star_points(ledger: Any) -> list[StarPoint]:
                 verdict_class=row.class_code,
                 status=row.status,
                 final_record=final,
+                owned=owned,
             )
         )
+    if progress is not None:
+        progress(len(out), total)
     return out
 
 

@@ -226,7 +226,7 @@ class MainWindow(QMainWindow):
 
     def visible_star_ids(self) -> list[str]:
         """Stars that pass the star list's filters, in its order."""
-        return self.star_list.proxy.visible_star_ids()
+        return self.star_list.visible_star_ids()
 
     @property
     def current_star(self) -> str | None:

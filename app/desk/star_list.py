@@ -2,14 +2,12 @@
 
 from __future__ import annotations
 
-import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable
 
 from PySide6.QtCore import (
     QAbstractTableModel,
     QEvent,
     QModelIndex,
-    QSortFilterProxyModel,
     Qt,
     QTimer,
     Signal,
@@ -36,7 +34,6 @@ __all__ = [
     "COLUMNS",
     "STATUSES",
     "StarTableModel",
-    "StarFilterProxy",
     "StarListWidget",
     "row_values",
 ]
@@ -73,21 +70,13 @@ KEY_COLUMNS = VISUAL_ORDER[:7]
 #: The longest star id the list shows whole at its default width (13 digits).
 ID_SAMPLE = "0000000000000"
 CELL_PADDING_PX = 8
-#: Above this many changed stars the whole list is read again (one query).
+#: Above this many changed stars the whole list is read again.
 ROW_REFRESH_LIMIT = 200
+#: Lines read from the ledger at once (a screen or two).
+PAGE = 128
+#: Lines kept in memory before the model forgets them and reads again.
+KEPT_LINES = 20_000
 SORT_ARROW_PX = 10
-_ALIASES = {
-    "star_id": ("star_id", "id"),
-    "status": ("status", "verdict_status"),
-    "suggested_class": ("suggested_class", "suggestion", "suggested"),
-    "suggested_score": ("suggested_score", "score", "suggestion_score"),
-    "verdict_class": ("verdict_class", "class_code"),
-    "period": ("period",),
-    "amplitude": ("amplitude",),
-    "fap": ("fap",),
-    "flags": ("flags",),
-    "stale": ("stale",),
-}
 
 
 def listed_period(row: StarRow) -> float | None:
@@ -99,88 +88,59 @@ def listed_period(row: StarRow) -> float | None:
     return None if code in NON_PERIODIC_CLASSES else row.period
 
 
-def row_values(row) -> list:
+def row_values(row: StarRow) -> list:
     """The list of :data:`FIELDS` (+ stale) of one ledger star row."""
-    if isinstance(row, StarRow):
-        flags = ",".join(row.flags) if row.flags else ""
-        if row.failed:
-            flags = "failed," + flags if flags else "failed"
-        elif not row.analysed:
-            flags = "not analysed," + flags if flags else "not analysed"
-        return [
-            row.star_id,
-            row.status or "unreviewed",
-            row.suggested_class,
-            row.suggested_score,
-            row.verdict_class,
-            listed_period(row),
-            row.amplitude,
-            row.fap,
-            flags,
-            bool(row.stale),
-        ]
-    if isinstance(row, dict):
-        get = row.get
-    elif isinstance(row, Sequence) and not hasattr(row, "_fields"):
-        values = list(row) + [None] * (len(FIELDS) + 1 - len(row))
-        return _clean(values[: len(FIELDS) + 1])
-    else:
-
-        def get(name, default=None):
-            return getattr(row, name, default)
-
-    values = []
-    for name in (*FIELDS, "stale"):
-        value = None
-        for alias in _ALIASES[name]:
-            value = get(alias, None)
-            if value is not None:
-                break
-        values.append(value)
-    values = _clean(values)
-    extra = []
-    if get("failed", False):
-        extra.append("failed")
-    elif get("analysed", True) is False:
-        extra.append("not analysed")
-    if extra:
-        values[8] = ",".join(extra + ([values[8]] if values[8] else []))
-    return values
+    flags = ",".join(row.flags) if row.flags else ""
+    if row.failed:
+        flags = "failed," + flags if flags else "failed"
+    elif not row.analysed:
+        flags = "not analysed," + flags if flags else "not analysed"
+    return [
+        row.star_id,
+        row.status or "unreviewed",
+        row.suggested_class,
+        row.suggested_score,
+        row.verdict_class,
+        listed_period(row),
+        row.amplitude,
+        row.fap,
+        flags,
+        bool(row.stale),
+    ]
 
 
-def _clean(values: list) -> list:
-    values[0] = str(values[0])
-    values[1] = str(values[1] or "unreviewed")
-    flags = values[8]
-    if flags is None:
-        flags = ""
-    elif not isinstance(flags, str):
-        flags = ",".join(str(f) for f in flags)
-    values[8] = flags
-    values[9] = bool(values[9])
-    return values
-
-
-def _sort_key(value):
-    # missing values sort last in ascending order
-    if value is None:
-        return (2, 0, "")
-    if isinstance(value, (int, float)):
-        if isinstance(value, float) and not math.isfinite(value):
-            return (2, 0, "")
-        return (0, value, "")
-    return (1, 0, str(value).lower())
+_LINE_ROLES = frozenset(
+    {
+        Qt.ItemDataRole.DisplayRole,
+        Qt.ItemDataRole.UserRole,
+        Qt.ItemDataRole.ForegroundRole,
+        Qt.ItemDataRole.BackgroundRole,
+        Qt.ItemDataRole.FontRole,
+    }
+)
 
 
 class StarTableModel(QAbstractTableModel):
-    """Rows of the ledger's star list, held as plain lists."""
+    """The star list over the ledger's summary table, read a page at a time.
+
+    The model holds the ids of the stars shown, in their order (sorting and
+    filtering are the ledger's SQL, :meth:`Ledger.star_order`), and builds
+    the line of a star only when a view asks for it: opening a survey of
+    10^5 stars reads no line beyond the first screen.
+    """
 
     StarIdRole = Qt.ItemDataRole.UserRole + 1
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
-        self._rows: list[list] = []
-        self._index: dict[str, int] = {}
+        self.ledger = None
+        self._ids: list[str] = []
+        self._index: dict[str, int] | None = None  # built when first asked
+        self._lines: dict[str, list] = {}
+        self._overrides: dict[str, dict[str, object]] = {}
+        self._sort: tuple[str | None, bool] = (None, False)
+        self._status: str | None = None
+        self._text = ""
         self.current_star: str | None = None
         self._bold = QFont()
         self._bold.setBold(True)
@@ -188,59 +148,173 @@ class StarTableModel(QAbstractTableModel):
         self._current_bg = QColor("#FFF3C4")
 
     # ------------------------------------------------------------ contents
-    def set_rows(self, rows: Iterable) -> None:
+    def set_ledger(self, ledger) -> None:
+        """Show the stars of ``ledger`` (None: none), with the sort and filters kept."""
+        self.ledger = ledger
+        self._overrides.clear()
+        self.refresh()
+
+    def refresh(self) -> None:
+        """Read the shown stars' order again (every line is read afresh)."""
         self.beginResetModel()
-        self._rows = [row_values(r) for r in rows]
-        self._reindex()
+        self._lines.clear()
+        self._ids = self._order()
+        self._index = None
         self.endResetModel()
 
-    def _reindex(self) -> None:
-        self._index = {r[0]: i for i, r in enumerate(self._rows)}
+    def _order(self) -> list[str]:
+        if self.ledger is None:
+            return []
+        sort, descending = self._sort
+        if sort is None and self._status is None and not self._text:
+            return self.ledger.star_ids()  # import order, known since the ledger opened
+        ids = self.ledger.star_order(
+            sort,
+            descending=descending,
+            status=self._status,
+            text=self._text,
+            no_period=NON_PERIODIC_CLASSES,
+        )
+        if self._text:
+            # flags shown from other views (diagram outliers) are not in the ledger
+            extra = {
+                sid
+                for sid, fields in self._overrides.items()
+                if self._text in str(fields.get("flags", "")).lower()
+            } - set(ids)
+            if extra:
+                wanted = set(ids) | extra
+                every = self.ledger.star_order(
+                    sort, descending=descending, status=self._status, no_period=NON_PERIODIC_CLASSES
+                )
+                ids = [sid for sid in every if sid in wanted]
+        return ids
+
+    def set_filter(self, text: str | None = None, status: object = ...) -> None:
+        """Show only stars matching ``text`` (id, classes, flags) and of ``status``."""
+        text = self._text if text is None else text.strip().lower()
+        status = self._status if status is ... else status
+        if (text, status) != (self._text, self._status):
+            self._text, self._status = text, status
+            self.refresh()
 
     def star_ids(self) -> list[str]:
-        return [r[0] for r in self._rows]
+        """The ids of the stars shown, in their order."""
+        return list(self._ids)
 
     def row_of(self, star_id: str) -> int | None:
+        if self._index is None:
+            self._index = {sid: i for i, sid in enumerate(self._ids)}
         return self._index.get(star_id)
 
+    def line(self, star_id: str) -> list | None:
+        """The list values of a star (:data:`FIELDS` + stale), read if not yet read."""
+        values = self._lines.get(star_id)
+        if values is None:
+            if self.ledger is None or star_id not in self.ledger:
+                return None
+            self._read([star_id])
+            values = self._lines[star_id]
+        return values
+
+    def _line_at(self, row: int) -> list:
+        star_id = self._ids[row]
+        values = self._lines.get(star_id)
+        if values is None:
+            start = row - row % PAGE
+            self._read([s for s in self._ids[start : start + PAGE] if s not in self._lines])
+            values = self._lines[star_id]
+        return values
+
+    def _read(self, star_ids: list[str]) -> None:
+        if len(self._lines) > KEPT_LINES:
+            self._lines.clear()  # a long scroll through a survey: start again
+        for row in self.ledger.star_rows_of(star_ids):
+            values = row_values(row)
+            for name, value in self._overrides.get(row.star_id, {}).items():
+                values[FIELDS.index(name)] = value
+            self._lines[row.star_id] = values
+
     def value(self, star_id: str, field: str):
-        i = self._index.get(star_id)
-        return None if i is None else self._rows[i][FIELDS.index(field)]
+        values = self.line(star_id)
+        return None if values is None else values[FIELDS.index(field)]
 
     def update_star(self, star_id: str, **fields) -> None:
-        """Change some fields of one star's row (after a verdict)."""
-        i = self._index.get(star_id)
-        if i is None:
+        """Show other values in some fields of one star's line (kept until the
+        ledger changes that star: diagram outliers in the flags)."""
+        if self.line(star_id) is None:
             return
+        self._overrides.setdefault(star_id, {}).update(fields)
         for name, value in fields.items():
-            self._rows[i][FIELDS.index(name)] = value
-        self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
+            self._lines[star_id][FIELDS.index(name)] = value
+        self._changed(star_id)
 
-    def replace_row(self, row) -> None:
-        """Put a fresh ledger row in place of the star's current one."""
-        values = row_values(row)
-        i = self._index.get(values[0])
-        if i is None:
-            return
-        self._rows[i] = values
-        self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
+    def stars_changed(self, star_ids: Iterable[str]) -> bool:
+        """Read these stars' lines again (after a ledger change); True if the
+        order was read again too (the model was reset).
+
+        Lines stay where they are in a sorted list (as a verdict should not
+        make the list jump); under the status filter alone a star that left
+        it is taken out; otherwise a filter reads the order again.
+        """
+        star_ids = [s for s in dict.fromkeys(star_ids) if s in self.ledger]
+        for star_id in star_ids:
+            self._overrides.pop(star_id, None)
+            self._lines.pop(star_id, None)
+        if self._text or (self._status is not None and not self._leave(star_ids)):
+            self.refresh()  # a changed star may now pass the filter
+            return True
+        for star_id in star_ids:
+            self._changed(star_id)
+        return False
+
+    def _leave(self, star_ids: list[str]) -> bool:
+        """Under the status filter: take out the stars whose status no longer
+        passes; False (nothing done) if a star not shown now passes it."""
+        self._read(star_ids)
+        passing = {s for s in star_ids if self._lines[s][1] == self._status}
+        if any(self.row_of(s) is None for s in passing):
+            return False
+        for star_id in star_ids:
+            row = self.row_of(star_id)
+            if star_id not in passing and row is not None:
+                self.beginRemoveRows(QModelIndex(), row, row)
+                del self._ids[row]
+                self._index = None
+                self.endRemoveRows()
+        return True
+
+    def prefetch(self, star_ids: Iterable[str]) -> None:
+        """Read the lines of many stars at once (before asking for their values)."""
+        if self.ledger is not None:
+            self._read(
+                [s for s in dict.fromkeys(star_ids) if s not in self._lines and s in self.ledger]
+            )
+
+    def _changed(self, star_id: str) -> None:
+        i = self.row_of(star_id)
+        if i is not None:
+            self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
 
     def set_current(self, star_id: str | None) -> None:
         old, self.current_star = self.current_star, star_id
         for sid in (old, star_id):
-            i = self._index.get(sid) if sid else None
-            if i is not None:
-                self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
+            if sid:
+                self._changed(sid)
 
     def status_counts(self) -> dict[str, int]:
+        """Stars of each verdict status in the ledger (shown or not)."""
         counts = dict.fromkeys(STATUSES, 0)
-        for r in self._rows:
-            counts[r[1]] = counts.get(r[1], 0) + 1
+        if self.ledger is not None:
+            counts.update(self.ledger.status_counts())
         return counts
+
+    def n_stars(self) -> int:
+        return 0 if self.ledger is None else self.ledger.n_stars
 
     # ---------------------------------------------------------- Qt model API
     def rowCount(self, parent=QModelIndex()) -> int:  # noqa: B008
-        return 0 if parent.isValid() else len(self._rows)
+        return 0 if parent.isValid() else len(self._ids)
 
     def columnCount(self, parent=QModelIndex()) -> int:  # noqa: B008
         return 0 if parent.isValid() else len(COLUMNS)
@@ -256,8 +330,16 @@ class StarTableModel(QAbstractTableModel):
     def data(self, index, role=Qt.ItemDataRole.DisplayRole):
         if not index.isValid():
             return None
-        row = self._rows[index.row()]
+        if role == self.StarIdRole:
+            return self._ids[index.row()]
         col = index.column()
+        if role == Qt.ItemDataRole.TextAlignmentRole:
+            if col in (3, 5, 6, 7):
+                return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+            return None
+        if role not in _LINE_ROLES:
+            return None
+        row = self._line_at(index.row())
         if role == Qt.ItemDataRole.DisplayRole:
             value = row[col]
             if col == 5:
@@ -271,77 +353,39 @@ class StarTableModel(QAbstractTableModel):
             return "–" if value is None else str(value)
         if role == Qt.ItemDataRole.UserRole:
             return row[col]
-        if role == self.StarIdRole:
-            return row[0]
         if role == Qt.ItemDataRole.ForegroundRole and col == 1:
             return self._status_brush.get(row[1])
         if role == Qt.ItemDataRole.BackgroundRole and row[0] == self.current_star:
             return self._current_bg
         if role == Qt.ItemDataRole.FontRole and row[0] == self.current_star:
             return self._bold
-        if role == Qt.ItemDataRole.TextAlignmentRole and col in (3, 5, 6, 7):
-            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         return None
 
-    def sort(self, column: int, order=Qt.SortOrder.AscendingOrder) -> None:
-        self.layoutAboutToBeChanged.emit()
-        old_ids = [r[0] for r in self._rows]
-        persistent = self.persistentIndexList()
-        self._rows.sort(
-            key=lambda r: _sort_key(r[column]),
-            reverse=order == Qt.SortOrder.DescendingOrder,
+    def star_at(self, row: int) -> str:
+        return self._ids[row]
+
+    def status_at(self, row: int) -> str:
+        return self._line_at(row)[1]
+
+    def unreviewed_rows(self) -> list[int]:
+        """Rows of the shown stars whose verdict is still ``unreviewed``."""
+        if self.ledger is None or self._status not in (None, "unreviewed"):
+            return []
+        sort, descending = self._sort
+        waiting = self.ledger.star_order(
+            sort,
+            descending=descending,
+            status="unreviewed",
+            text=self._text,
+            no_period=NON_PERIODIC_CLASSES,
         )
-        self._reindex()
-        self.changePersistentIndexList(
-            persistent,
-            [self.index(self._index[old_ids[p.row()]], p.column()) for p in persistent],
-        )
-        self.layoutChanged.emit()
-
-
-class StarFilterProxy(QSortFilterProxyModel):
-    """Text and status filter; sorting is done by the source model (fast)."""
-
-    def __init__(self, parent=None) -> None:
-        super().__init__(parent)
-        self._text = ""
-        self._status: str | None = None
-
-    def set_text(self, text: str) -> None:
-        text = text.strip().lower()
-        if text != self._text:
-            self.beginFilterChange()
-            self._text = text
-            self.endFilterChange(QSortFilterProxyModel.Direction.Rows)
-
-    def set_status(self, status: str | None) -> None:
-        if status != self._status:
-            self.beginFilterChange()
-            self._status = status
-            self.endFilterChange(QSortFilterProxyModel.Direction.Rows)
-
-    def filterAcceptsRow(self, source_row: int, source_parent) -> bool:
-        row = self.sourceModel()._rows[source_row]
-        if self._status and row[1] != self._status:
-            return False
-        if self._text:
-            text = self._text
-            return (
-                text in row[0].lower()
-                or text in str(row[2] or "").lower()
-                or text in str(row[4] or "").lower()
-                or text in row[8].lower()
-            )
-        return True
+        rows = (self.row_of(s) for s in waiting)
+        return [r for r in rows if r is not None]
 
     def sort(self, column: int, order=Qt.SortOrder.AscendingOrder) -> None:
-        self.sourceModel().sort(column, order)
-
-    def visible_star_ids(self) -> list[str]:
-        model = self.sourceModel()
-        return [
-            model._rows[self.mapToSource(self.index(i, 0)).row()][0] for i in range(self.rowCount())
-        ]
+        """Order the stars by one column (the ledger's SQL; missing values last)."""
+        self._sort = (FIELDS[column], order == Qt.SortOrder.DescendingOrder)
+        self.refresh()
 
 
 class StarListWidget(QWidget):
@@ -356,8 +400,6 @@ class StarListWidget(QWidget):
         super().__init__(parent)
         self.desk = desk
         self.model = StarTableModel(self)
-        self.proxy = StarFilterProxy(self)
-        self.proxy.setSourceModel(self.model)
 
         self.filter_edit = QLineEdit(placeholderText="Filter: id, class or flag")
         self.filter_edit.setClearButtonEnabled(True)
@@ -369,7 +411,7 @@ class StarListWidget(QWidget):
         self.counts_label.setWordWrap(True)
 
         self.view = QTableView()
-        self.view.setModel(self.proxy)
+        self.view.setModel(self.model)
         self.view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.view.setSelectionMode(QAbstractItemView.SelectionMode.ExtendedSelection)
         self.view.setSortingEnabled(False)
@@ -424,21 +466,32 @@ class StarListWidget(QWidget):
     # ------------------------------------------------------ the desk model
     def reload(self) -> None:
         """Every line again from the ledger (the current star kept in view)."""
-        ledger = self.desk.ledger
-        self.set_rows(ledger.star_rows() if ledger is not None else [])
-        current = self.desk.star_id
-        if current:
-            self.model.set_current(current)
-            self.scroll_to(current)
+        self.model.set_ledger(self.desk.ledger)
+        self._after_reset()
 
     def rows_changed(self, star_ids) -> None:
         """Lines to re-read after a ledger change (all of them for an empty tuple)."""
         if not star_ids or len(star_ids) > ROW_REFRESH_LIMIT:
-            self.reload()
+            self.model.set_ledger(self.desk.ledger)
+        elif not self.model.stars_changed(star_ids):
+            self.update_counts()  # the lines stayed where they were
             return
-        for star_id in star_ids:
-            self.model.replace_row(self.desk.ledger.star_row(star_id))
+        self._after_reset()
+
+    def _after_reset(self) -> None:
+        """The counts, and the current star selected and in view again."""
         self.update_counts()
+        current = self.model.current_star or (self.desk.star_id if self.desk else None)
+        if current:
+            self.model.set_current(current)
+            index = self.index_of(current)
+            selection = self.view.selectionModel()
+            if index.isValid() and selection.currentIndex() != index:
+                selection.setCurrentIndex(
+                    index, selection.SelectionFlag.ClearAndSelect | selection.SelectionFlag.Rows
+                )
+            if index.isValid():
+                self.view.scrollTo(index)
 
     def _set_column_widths(self) -> None:
         """Columns as wide as their header or a typical value, ids of 13 digits whole."""
@@ -472,14 +525,10 @@ class StarListWidget(QWidget):
         return super().eventFilter(obj, event)
 
     # ------------------------------------------------------------- actions
-    def set_rows(self, rows) -> None:
-        self.model.set_rows(rows)
-        self.update_counts()
-
     def update_counts(self) -> None:
         counts = self.model.status_counts()
-        shown = self.proxy.rowCount()
-        total = self.model.rowCount()
+        shown = self.model.rowCount()
+        total = self.model.n_stars()
         parts = [f"{counts.get(s, 0)} {s}" for s in STATUSES]
         self.counts_label.setText(f"{shown} of {total} shown · " + " · ".join(parts))
 
@@ -492,19 +541,22 @@ class StarListWidget(QWidget):
         )
         self._sort_order[column] = order
         self.view.horizontalHeader().setSortIndicator(column, order)
-        self.proxy.sort(column, order)
-        if self.model.current_star:
-            self.scroll_to(self.model.current_star)
+        self.model.sort(column, order)
+        self._after_reset()
 
     def _text_changed(self, text: str) -> None:
-        self.proxy.set_text(text)
-        self.update_counts()
+        self.model.set_filter(text=text)
+        self._after_reset()
         self.filterChanged.emit()
 
     def _status_changed(self, _i: int) -> None:
-        self.proxy.set_status(self.status_box.currentData())
-        self.update_counts()
+        self.model.set_filter(status=self.status_box.currentData())
+        self._after_reset()
         self.filterChanged.emit()
+
+    def visible_star_ids(self) -> list[str]:
+        """Stars that pass the filters, in the list's order."""
+        return self.model.star_ids()
 
     def _row_changed(self, current, _previous) -> None:
         # react after the model finished its change (filtering can move the current row)
@@ -514,19 +566,18 @@ class StarListWidget(QWidget):
     def _emit_current(self) -> None:
         current = self.view.selectionModel().currentIndex()
         if current.isValid():
-            sid = self.proxy.data(current, StarTableModel.StarIdRole)
+            sid = self.model.data(current, StarTableModel.StarIdRole)
             if sid and sid != self.model.current_star:
                 self.currentStarChanged.emit(sid)
 
-    def proxy_index_of(self, star_id: str):
+    def index_of(self, star_id: str):
+        """The table index of a star's line (invalid if it is not shown)."""
         row = self.model.row_of(star_id)
-        if row is None:
-            return QModelIndex()
-        return self.proxy.mapFromSource(self.model.index(row, 0))
+        return QModelIndex() if row is None else self.model.index(row, 0)
 
     def select_star(self, star_id: str) -> bool:
         """Make ``star_id`` the current row (if it passes the filter)."""
-        index = self.proxy_index_of(star_id)
+        index = self.index_of(star_id)
         if not index.isValid():
             return False
         self.view.selectionModel().setCurrentIndex(
@@ -543,7 +594,7 @@ class StarListWidget(QWidget):
 
         selection = QItemSelection()
         for sid in star_ids:
-            index = self.proxy_index_of(sid)
+            index = self.index_of(sid)
             if index.isValid():
                 selection.select(index, index)
         flags = (
@@ -554,27 +605,32 @@ class StarListWidget(QWidget):
 
     def selected_star_ids(self) -> list[str]:
         rows = self.view.selectionModel().selectedRows()
-        return [self.proxy.data(i, StarTableModel.StarIdRole) for i in rows]
+        return [self.model.data(i, StarTableModel.StarIdRole) for i in rows]
 
     def scroll_to(self, star_id: str) -> None:
-        index = self.proxy_index_of(star_id)
+        index = self.index_of(star_id)
         if index.isValid():
             self.view.scrollTo(index)
 
     def neighbour(self, star_id: str | None, step: int, unreviewed: bool = False) -> str | None:
-        """The star ``step`` rows away in the shown order (or next unreviewed)."""
-        n = self.proxy.rowCount()
+        """The star ``step`` rows away in the shown order (or the next unreviewed one,
+        going round the end of the list)."""
+        model = self.model
+        n = model.rowCount()
         if n == 0:
             return None
-        index = self.proxy_index_of(star_id) if star_id else QModelIndex()
-        start = index.row() if index.isValid() else (-1 if step > 0 else n)
-        rows = self.model._rows
-        for k in range(1, n + 1):
-            r = start + k * step
-            if not unreviewed and not (0 <= r < n):
-                return None
-            r %= n
-            src = rows[self.proxy.mapToSource(self.proxy.index(r, 0)).row()]
-            if not unreviewed or src[1] == "unreviewed":
-                return src[0]
-        return None
+        row = model.row_of(star_id) if star_id else None
+        start = row if row is not None else (-1 if step > 0 else n)
+        if not unreviewed:
+            r = start + step
+            return model.star_at(r) if 0 <= r < n else None
+        # lines near the current one first (read a page at a time), then the ledger's query
+        for k in range(1, min(n, 2 * PAGE) + 1):
+            r = (start + k * step) % n
+            if model.status_at(r) == "unreviewed":
+                return model.star_at(r)
+        waiting = model.unreviewed_rows()
+        if not waiting:
+            return None
+        # the nearest in the direction of travel, round the end; the current star last
+        return model.star_at(min(waiting, key=lambda r: ((r - start) * step - 1) % n))

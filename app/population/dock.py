@@ -74,6 +74,8 @@ class PopulationLink(QtCore.QObject):
         if model is None or not hasattr(model, "update_star") or not hasattr(model, "value"):
             return
         flagged = set(reasons)
+        if hasattr(model, "prefetch"):
+            model.prefetch(self._flagged | flagged)  # one query per 500 stars, not one each
         for star_id in self._flagged | flagged:
             current = model.value(star_id, "flags")
             if current is None and model.row_of(star_id) is None:
@@ -162,6 +164,7 @@ def attach(window: Any, *, visible: bool = False) -> PopulationView:
         def wait_idle_and_summary(timeout_s: float = 30.0) -> None:
             wait_idle(timeout_s)
             link.flush()
+            view.wait_for_points(int(timeout_s * 1000))
             view.wait_for_summary(int(timeout_s * 1000))
 
         window.wait_idle = wait_idle_and_summary

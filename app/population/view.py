@@ -41,12 +41,16 @@ from .plot import DiagramPlot
 from .style import class_style, symbol_glyph
 from .summary import SummaryPanel
 
-__all__ = ["PopulationView", "CAUTION"]
+__all__ = ["PopulationView", "CAUTION", "BACKGROUND_READ_STARS"]
 
 CAUTION = (
     "Suggestions and distances come from empirical relations with known scatter and "
     "calibration ranges; the astronomer decides."
 )
+
+#: Ledgers of more stars than this are read in a worker thread (about 0.1 s
+#: per thousand stars: smaller ones are read at once).
+BACKGROUND_READ_STARS = 5000
 
 _GRID = (
     ("period_amplitude", 0, 0),
@@ -100,6 +104,35 @@ class _SummaryJob(QtCore.QRunnable):
             self.relay.done.emit(self.generation, state)
 
 
+class _ReadRelay(QtCore.QObject):
+    """Carries the progress and the points of a ledger read to the GUI thread."""
+
+    progress = QtCore.Signal(int, int, int)
+    done = QtCore.Signal(int, object)
+    failed = QtCore.Signal(int, str)
+
+
+class _ReadJob(QtCore.QRunnable):
+    """``core.diagrams.star_points`` off the GUI thread (seconds on a survey's ledger)."""
+
+    def __init__(self, generation: int, ledger: Any, relay: _ReadRelay):
+        super().__init__()
+        self.generation = generation
+        self.ledger = ledger
+        self.relay = relay
+
+    def run(self) -> None:
+        def progress(done: int, total: int) -> None:
+            self.relay.progress.emit(self.generation, done, total)
+
+        try:
+            points = dg.star_points(self.ledger, progress=progress)
+        except Exception as exc:  # noqa: BLE001 - shown in the view, never a silent worker death
+            self.relay.failed.emit(self.generation, f"{type(exc).__name__}: {exc}")
+        else:
+            self.relay.done.emit(self.generation, points)
+
+
 class PopulationView(QtWidgets.QWidget):
     """Diagrams of all stars, linked to the star list, with the field summary beside them.
 
@@ -146,10 +179,19 @@ class PopulationView(QtWidgets.QWidget):
         self._summary_done = 0
         self._pool = QtCore.QThreadPool(self)
         self._pool.setMaxThreadCount(1)
+        self._read_pool = QtCore.QThreadPool(self)
+        self._read_pool.setMaxThreadCount(1)
         # no Qt parent: a job still running when the view goes keeps its relay alive
         self._relay = _SummaryRelay()
         self._relay.done.connect(self._on_summary)
         self._relay.failed.connect(self._on_summary_failed)
+        self._read_generation = 0
+        self._reading = False
+        self._changed_while_reading: set[str] = set()
+        self._read_relay = _ReadRelay()
+        self._read_relay.progress.connect(self._on_read_progress)
+        self._read_relay.done.connect(self._on_read)
+        self._read_relay.failed.connect(self._on_read_failed)
 
         self.plots: dict[str, DiagramPlot] = {}
         self._build()
@@ -200,6 +242,9 @@ class PopulationView(QtWidgets.QWidget):
         for widget in (self.brush_button, self.reset_button, self.export_button):
             bar.addWidget(widget)
 
+        self.progress_label = QtWidgets.QLabel()
+        self.progress_label.setContentsMargins(6, 0, 6, 0)
+        self.progress_label.setVisible(False)
         self.legend_label = QtWidgets.QLabel(textFormat=QtCore.Qt.TextFormat.RichText)
         self.legend_label.setWordWrap(True)
         self.legend_label.setContentsMargins(6, 0, 6, 0)
@@ -221,6 +266,7 @@ class PopulationView(QtWidgets.QWidget):
         left_layout = QtWidgets.QVBoxLayout(left)
         left_layout.setContentsMargins(0, 0, 0, 0)
         left_layout.addLayout(bar)
+        left_layout.addWidget(self.progress_label)
         left_layout.addWidget(self.legend_label)
         left_layout.addWidget(grid_host, 1)
 
@@ -256,6 +302,9 @@ class PopulationView(QtWidgets.QWidget):
         """
         self.ledger = ledger
         self.points = []
+        self._read_generation += 1  # a read of the previous ledger is dropped
+        self._reading = False
+        self.progress_label.setVisible(False)
         self._physics_settings = _stored_physics(ledger)
         ebv = self._physics_settings.get("ebv")
         if isinstance(ebv, (int, float)):
@@ -276,22 +325,54 @@ class PopulationView(QtWidgets.QWidget):
     def refresh(self) -> None:
         """Re-read the ledger (after verdicts or analyses changed) and redraw.
 
-        The zoom is kept once stars are shown.
+        A ledger of more than :data:`BACKGROUND_READ_STARS` stars is read in a
+        worker thread, its progress shown above the diagrams; the zoom is kept
+        once stars are shown.
         """
-        if self.ledger is not None:
-            self._stale = False
-            # about 0.4 ms a star: seconds on a survey-size ledger
-            QtWidgets.QApplication.setOverrideCursor(QtCore.Qt.CursorShape.WaitCursor)
-            try:
-                points = dg.star_points(self.ledger)
-            finally:
-                QtWidgets.QApplication.restoreOverrideCursor()
-            self.set_points(points, auto_range=not self.points)
+        if self.ledger is None:
+            return
+        self._stale = False
+        self._read_generation += 1
+        self._changed_while_reading.clear()
+        if getattr(self.ledger, "n_stars", 0) <= BACKGROUND_READ_STARS:
+            self._reading = False
+            self.set_points(dg.star_points(self.ledger), auto_range=not self.points)
+            return
+        self._reading = True
+        self.progress_label.setText("Reading the stars of the ledger…")
+        self.progress_label.setVisible(True)
+        self._read_pool.start(_ReadJob(self._read_generation, self.ledger, self._read_relay))
+
+    def _on_read_progress(self, generation: int, done: int, total: int) -> None:
+        if generation == self._read_generation and self._reading:
+            self.progress_label.setText(f"Reading the stars of the ledger: {done:,} of {total:,}…")
+
+    def _on_read(self, generation: int, points: object) -> None:
+        if generation != self._read_generation:
+            return  # a newer read is under way, or the ledger changed
+        self._reading = False
+        self.progress_label.setVisible(False)
+        self.set_points(points, auto_range=not self.points)
+        changed, self._changed_while_reading = self._changed_while_reading, set()
+        if changed:
+            self.update_stars(changed)
+
+    def _on_read_failed(self, generation: int, message: str) -> None:
+        if generation == self._read_generation:
+            self._reading = False
+            self.progress_label.setText(f"The stars could not be read: {message}")
+
+    def is_reading(self) -> bool:
+        """True while the ledger is being read in the background."""
+        return self._reading
 
     def update_stars(self, star_ids: Iterable[str]) -> None:
         """Re-read these stars from the ledger (after their verdicts changed) and redraw."""
         if self.ledger is None or self._stale:
             return  # all stars are read when the view is next shown
+        if self._reading:
+            self._changed_while_reading.update(str(s) for s in star_ids)
+            return  # read again when the whole read has arrived
         fresh = {str(s): dg.star_point(self.ledger, str(s)) for s in star_ids}
         if fresh:
             self.set_points([fresh.get(p.star_id, p) for p in self.points], auto_range=False)
@@ -515,8 +596,20 @@ class PopulationView(QtWidgets.QWidget):
         QtWidgets.QApplication.processEvents()
         return self.summary_ready
 
+    def wait_for_points(self, timeout_ms: int = 60000) -> bool:
+        """Process events until a background read has arrived (scripts, screenshots)."""
+        timer = QtCore.QElapsedTimer()
+        timer.start()
+        while self._reading and timer.elapsed() < timeout_ms:
+            QtWidgets.QApplication.processEvents(QtCore.QEventLoop.ProcessEventsFlag.AllEvents, 50)
+            self._read_pool.waitForDone(20)
+        QtWidgets.QApplication.processEvents()
+        return not self._reading
+
     def closeEvent(self, event: QtGui.QCloseEvent) -> None:  # noqa: N802 (Qt naming)
         self._summary_generation += 1  # drop what is still being computed
+        self._read_generation += 1
+        self._read_pool.waitForDone()
         self._pool.waitForDone()
         super().closeEvent(event)
 
