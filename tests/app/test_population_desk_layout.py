@@ -45,7 +45,7 @@ def test_population_view_leaves_the_folds_their_room(desk_with_population, qtbot
 
 
 def _bounds(plot):
-    x, y = plot.scatter.getData()
+    x, y = plot.shown_xy()
     return (float(np.min(x)), float(np.max(x))), (float(np.min(y)), float(np.max(y)))
 
 
