@@ -27,7 +27,14 @@ from phasewise.core.errors import PhasewiseError
 
 from .style import class_style
 
-__all__ = ["BrushViewBox", "DiagramPlot", "EXPORT_WIDTH_PX", "FIGURE_SIZE", "clip_polyline"]
+__all__ = [
+    "BrushViewBox",
+    "DiagramPlot",
+    "EXPORT_WIDTH_PX",
+    "FIGURE_SIZE",
+    "OneStyleScatter",
+    "clip_polyline",
+]
 
 #: Width of an exported PNG: 2400 px is 8 inches at 300 dpi.
 EXPORT_WIDTH_PX = 2400
@@ -73,6 +80,32 @@ def clip_polyline(
             out_x += [xa + t0 * dx, xa + t1 * dx, np.nan]
             out_y += [ya + t0 * dy, ya + t1 * dy, np.nan]
     return np.array(out_x), np.array(out_y)
+
+
+class OneStyleScatter(pg.ScatterPlotItem):
+    """A scatter item whose points all take the item's symbol, size, pen and brush.
+
+    pyqtgraph looks up each new point's picture in its symbol atlas by a key
+    made per point (about 10 µs each: seconds for a survey); here every point
+    has the same picture, looked up once.  Per-point styles must not be given
+    (``setData`` with lists of symbols, sizes, pens or brushes), nor hover styles.
+    """
+
+    def updateSpots(self, dataSet=None):  # noqa: N802, N803 (pyqtgraph naming)
+        data = self.data if dataSet is None else dataSet
+        if self.opts["pxMode"] and self.opts["useCache"] and len(data):
+            new = data["sourceRect"]["w"] == 0
+            if np.any(new):
+                style = (
+                    self.opts["symbol"],
+                    self.opts["size"],
+                    self.opts["pen"],
+                    self.opts["brush"],
+                )
+                (rect,) = self.fragmentAtlas[[style]]
+                data["sourceRect"][new] = rect
+                self.invalidate()  # pyqtgraph's own path does this when it sets rectangles
+        super().updateSpots(dataSet)
 
 
 class BrushViewBox(pg.ViewBox):
@@ -138,6 +171,8 @@ class DiagramPlot(pg.PlotWidget):
         self._shown: np.ndarray = np.zeros(0, dtype=int)  # diagram indices drawn
         self._ids: np.ndarray = np.zeros(0, dtype=str)  # the diagram's star ids
         self._codes: np.ndarray = np.zeros(0, dtype=str)  # and class codes
+        self._index_of: dict[str, int] | None = None  # star id -> diagram index, when needed
+        self._shown_mask: np.ndarray = np.zeros(0, dtype=bool)
         self._brushes: dict[str, QtGui.QBrush] = {}
         # one scatter item per class style: (colour, symbol, size) -> item
         self._class_items: dict[tuple[str, str, float], pg.ScatterPlotItem] = {}
@@ -160,13 +195,13 @@ class DiagramPlot(pg.PlotWidget):
             item.getAxis(name).setStyle(showValues=False)
             item.getAxis(name).setPen(pg.mkPen("#222222"))
 
-        self.selected_marks = pg.ScatterPlotItem(
+        self.selected_marks = OneStyleScatter(
             pxMode=True, symbol="o", size=13, brush=None, pen=pg.mkPen(SELECTED_COLOUR, width=1.3)
         )
-        self.outlier_marks = pg.ScatterPlotItem(
+        self.outlier_marks = OneStyleScatter(
             pxMode=True, symbol="o", size=15, brush=None, pen=pg.mkPen(OUTLIER_COLOUR, width=1.6)
         )
-        self.current_mark = pg.ScatterPlotItem(
+        self.current_mark = OneStyleScatter(
             pxMode=True, symbol="o", size=21, brush=None, pen=pg.mkPen(CURRENT_COLOUR, width=2.6)
         )
         for z, overlay in enumerate((self.selected_marks, self.outlier_marks, self.current_mark)):
@@ -206,6 +241,7 @@ class DiagramPlot(pg.PlotWidget):
         self._class_of = {}  # built on the first tooltip
         self._ids = np.asarray(diagram.star_ids, dtype=str)
         self._codes = np.asarray(diagram.class_codes, dtype=str)
+        self._index_of = None
         item = self.getPlotItem()
         label_style = {"font-size": "11pt", "color": "#111111"}
         item.setLabel("bottom", diagram.x_label, **label_style)
@@ -418,7 +454,7 @@ class DiagramPlot(pg.PlotWidget):
         item = self._class_items.get(key)
         if item is None:
             colour, symbol, size = key
-            item = pg.ScatterPlotItem(
+            item = OneStyleScatter(
                 pxMode=True,
                 hoverable=True,
                 tip=self._tip,
@@ -433,20 +469,30 @@ class DiagramPlot(pg.PlotWidget):
             self._class_items[key] = item
         return item
 
-    def _in(self, indices: np.ndarray, wanted: Collection[str]) -> np.ndarray:
-        """The diagram indices among ``indices`` whose star id is in ``wanted``."""
-        if not len(indices) or not wanted:
+    def _indices(self, wanted: Collection[str]) -> np.ndarray:
+        """Sorted diagram indices of the stars in ``wanted`` (work per wanted star, not per point)."""
+        if self.diagram is None or not wanted:
             return np.zeros(0, dtype=int)
-        wanted_ids = np.fromiter((str(s) for s in wanted), dtype=object, count=len(wanted))
-        return indices[np.isin(self._ids[indices], wanted_ids.astype(str))]
+        if self._index_of is None:
+            self._index_of = {sid: i for i, sid in enumerate(self.diagram.star_ids)}
+        index_of = self._index_of
+        if len(index_of) < len(self._ids):  # a star drawn twice: every one of its points
+            keep = np.isin(self._ids, np.array([str(s) for s in wanted], dtype=str))
+            return np.flatnonzero(keep)
+        found = np.fromiter((index_of.get(sid, -1) for sid in wanted), dtype=int, count=len(wanted))
+        return np.unique(found[found >= 0])
 
     def _refresh_points(self) -> None:
         diagram = self.diagram
         if diagram is None:
             return
-        everything = np.arange(len(diagram))
-        shown = everything if self._visible is None else self._in(everything, self._visible)
+        if self._visible is None:
+            shown = np.arange(len(diagram))
+        else:
+            shown = self._indices(self._visible)
         self._shown = shown
+        self._shown_mask = np.zeros(len(diagram), dtype=bool)
+        self._shown_mask[shown] = True
         # the stars of each class style, in the diagram's order
         groups: dict[tuple[str, str, float], list[np.ndarray]] = {}
         codes, inverse = np.unique(self._codes[shown], return_inverse=True)
@@ -476,7 +522,8 @@ class DiagramPlot(pg.PlotWidget):
         diagram = self.diagram
         if diagram is None or not wanted:
             return np.zeros(0), np.zeros(0)
-        index = self._in(self._shown, wanted)
+        index = self._indices(wanted)
+        index = index[self._shown_mask[index]]
         return diagram.x[index], diagram.y[index]
 
     def _refresh_marks(self) -> None:
