@@ -1,5 +1,6 @@
 """Population view: points per class, click, brushing, filters, export (pytest-qt, offscreen)."""
 
+import numpy as np
 import pytest
 
 pytest.importorskip("pytestqt")
@@ -293,3 +294,56 @@ def test_extinction_starts_from_the_ledgers_analysis_settings(qtbot, tmp_path):
     finally:
         widget.close()
         ledger.close()
+
+
+def test_each_class_style_is_one_item_and_no_point_is_hidden(view):
+    from phasewise.app.population.style import class_style
+
+    for key, plot in view.plots.items():
+        diagram = plot.diagram
+        finite = [
+            sid
+            for sid, x, y in zip(diagram.star_ids, diagram.x, diagram.y, strict=True)
+            if np.isfinite(x) and np.isfinite(y)
+        ]
+        assert sorted(plot.shown_star_ids()) == sorted(finite), key
+        code_of = dict(zip(diagram.star_ids, diagram.class_codes, strict=True))
+        drawn = []
+        for item in plot.class_items():
+            ids = [str(s) for s in item.data["data"]]
+            drawn += ids
+            x, y = item.getData()
+            index = {sid: i for i, sid in enumerate(diagram.star_ids)}
+            assert np.array_equal(x, diagram.x[[index[s] for s in ids]]), key
+            assert np.array_equal(y, diagram.y[[index[s] for s in ids]]), key
+            styles = {class_style(code_of[s]) for s in ids}
+            # every point of an item has the item's own symbol, size and colour
+            assert {(s.symbol, s.size, s.colour) for s in styles} == {
+                (item.opts["symbol"], item.opts["size"], item.opts["brush"].color().name().upper())
+            }, key
+        assert sorted(drawn) == sorted(plot.shown_star_ids()), key
+
+
+def test_one_style_scatter_draws_what_pyqtgraph_draws(qapp):
+    import pyqtgraph as pg
+
+    from phasewise.app.population.plot import OneStyleScatter
+
+    rng = np.random.default_rng(4)
+    x, y = rng.normal(size=300), rng.normal(size=300)
+    images, rects = [], []
+    for kind in (pg.ScatterPlotItem, OneStyleScatter):
+        widget = pg.PlotWidget(background="w")
+        widget.resize(300, 260)
+        item = kind(pxMode=True, symbol="t1", size=8.0, brush=pg.mkBrush("#D55E00"), pen=None)
+        item.setData(x=x, y=y)
+        widget.addItem(item)
+        widget.setRange(xRange=(-3, 3), yRange=(-3, 3), padding=0)
+        widget.show()
+        qapp.processEvents()
+        rects.append(item.data["sourceRect"].copy())
+        images.append(widget.grab().toImage())
+        widget.close()
+    # pyqtgraph's own per-point look-up is the reference
+    assert np.array_equal(rects[0], rects[1])
+    assert images[0] == images[1]
