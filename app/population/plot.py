@@ -47,6 +47,8 @@ _LINE_PENS = {
     "guide": dict(color="#8A8A8A", width=1.2, style=QtCore.Qt.PenStyle.DotLine),
 }
 CURRENT_COLOUR = "#000000"
+#: Up to this many wanted stars are found by comparing ids; more through an id index.
+_FEW = 8
 SELECTED_COLOUR = "#202020"
 OUTLIER_COLOUR = "#E41A1C"
 
@@ -169,7 +171,7 @@ class DiagramPlot(pg.PlotWidget):
         self._outliers: set[str] = set()
         self._current: str | None = None
         self._shown: np.ndarray = np.zeros(0, dtype=int)  # diagram indices drawn
-        self._ids: np.ndarray = np.zeros(0, dtype=str)  # the diagram's star ids
+        self._ids: np.ndarray = np.zeros(0, dtype=object)  # the diagram's star ids (shared)
         self._codes: np.ndarray = np.zeros(0, dtype=str)  # and class codes
         self._index_of: dict[str, int] | None = None  # star id -> diagram index, when needed
         self._shown_mask: np.ndarray = np.zeros(0, dtype=bool)
@@ -239,7 +241,7 @@ class DiagramPlot(pg.PlotWidget):
         """Show a diagram's points and guide lines."""
         self.diagram = diagram
         self._class_of = {}  # built on the first tooltip
-        self._ids = np.asarray(diagram.star_ids, dtype=str)
+        self._ids = np.asarray(diagram.star_ids, dtype=object)
         self._codes = np.asarray(diagram.class_codes, dtype=str)
         self._index_of = None
         item = self.getPlotItem()
@@ -473,11 +475,16 @@ class DiagramPlot(pg.PlotWidget):
         """Sorted diagram indices of the stars in ``wanted`` (work per wanted star, not per point)."""
         if self.diagram is None or not wanted:
             return np.zeros(0, dtype=int)
+        if len(wanted) <= _FEW:  # the current star, a small selection: no index kept
+            keep = np.zeros(len(self._ids), dtype=bool)
+            for sid in wanted:
+                keep |= self._ids == sid
+            return np.flatnonzero(keep)
         if self._index_of is None:
             self._index_of = {sid: i for i, sid in enumerate(self.diagram.star_ids)}
         index_of = self._index_of
         if len(index_of) < len(self._ids):  # a star drawn twice: every one of its points
-            keep = np.isin(self._ids, np.array([str(s) for s in wanted], dtype=str))
+            keep = np.isin(self._ids.astype(str), np.array([str(s) for s in wanted], dtype=str))
             return np.flatnonzero(keep)
         found = np.fromiter((index_of.get(sid, -1) for sid in wanted), dtype=int, count=len(wanted))
         return np.unique(found[found >= 0])
