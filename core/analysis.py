@@ -696,9 +696,10 @@ PLATEAU_LEVEL = 0.15
 
 
 def _extra_features(lc: LightCurve, band: str) -> dict[str, Any]:
-    """Features not read off the result dict (see ``features_from_result``).
+    """Features of the points of ``band`` not read off the result dict.
 
-    ``plateau_fraction`` comes from the points, not the Fourier model: a
+    The analysis passes the band with most points: the shape of the points
+    needs many of them.  ``plateau_fraction`` comes from the points, not the Fourier model: a
     Fourier series of a narrow eclipse rings across the flat maximum.  With
     sampling that is random in phase, the share of points near maximum
     light is the share of the cycle spent there.
