@@ -296,3 +296,40 @@ def test_gaussian_noise_on_sparse_sampling_gives_no_further_frequency():
     assert len(spurious) <= 1
     for found in spurious:
         assert found.fap is not None and found.fap <= 1e-3
+
+
+def test_reflections_of_side_peaks_and_harmonics_are_named():
+    # nightly sampling: the 1 c/d reflection of a side peak or of a harmonic
+    # can be the higher of the two (frequencies invented)
+    from phasewise.core.prewhiten import _classify
+
+    settings = PrewhitenSettings()
+    day, f1, fm, res = 1.0027, 1.79, 1 / 60.0, 1e-3
+    kinds, labels, mods = _classify([f1, 2 * f1 + fm + day], res, f1, settings, window_freqs=(day,))
+    assert kinds[1] == "side peak" and mods[1] == pytest.approx(60.0, rel=1e-6)
+    assert labels[1].endswith(f"+{day:.4f}")
+    # beside a second mode (RRd-like ratio) the reflection of its harmonic is a harmonic,
+    # and no side peak is sought through the window
+    f2 = 0.745 * f1
+    kinds, labels, _ = _classify([f1, f2, 3 * f2 + day], res, f1, settings, window_freqs=(day,))
+    assert kinds == ["main", "independent", "harmonic"] and labels[2].startswith("3f2")
+    # without the window peak it stays independent
+    kinds, _, _ = _classify([f1, 2 * f1 + fm + day], res, f1, settings)
+    assert kinds[1] == "independent"
+
+
+def test_in_a_modulated_star_peaks_weaker_than_the_side_peaks_are_modulation():
+    from phasewise.core.prewhiten import FoundFrequency, _modulation_residue
+
+    def found(kind, amplitude):
+        return FoundFrequency(1.0, 1e-4, amplitude, 10.0, kind, "f", 1)
+
+    items = [found("main", 0.4), found("side peak", 0.08), found("independent", 0.03)]
+    assert [f.kind for f in _modulation_residue(items)] == ["main", "side peak", "modulation"]
+    # a second mode as strong as the side peaks or stronger stays one
+    items[2] = found("independent", 0.1)
+    assert _modulation_residue(items)[2].kind == "independent"
+    # no side peak: nothing changes
+    assert _modulation_residue([found("main", 0.4), found("independent", 0.03)])[1].kind == (
+        "independent"
+    )
