@@ -191,7 +191,8 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
             f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
             "the periodogram's peaks were weaker; "
             + (
-                f"{int(set_aside.sum())} point(s) brighter than their neighbours in phase by "
+                f"{int(set_aside.sum())} point(s) brighter than maximum light or their "
+                "neighbours in phase by "
                 f"more than {settings.set_aside_sigma:g} robust sigmas set aside"
                 if set_aside.any()
                 else "no points set aside"
@@ -398,7 +399,9 @@ def brighter_than_neighbours(
 
     The folded magnitudes themselves are judged by :func:`far_from_neighbours`
     (the neighbours' median stands for the model, which a Fourier series of
-    a narrow eclipse is not), and only points on the bright side go: an
+    a narrow eclipse is not), and so is their distance above the median
+    (at an eclipse's edge the neighbours scatter widely, but nothing is
+    brighter than maximum light); only points on the bright side go: an
     eclipse only ever makes a star fainter, so a point brighter than the
     light around it in phase is no part of one, while a lone faint point may
     be the one observation inside a narrow eclipse and stays.  A band with
@@ -408,7 +411,11 @@ def brighter_than_neighbours(
     for band in lc.bands:
         sel = np.flatnonzero(lc.band_mask(band))
         t, m = lc.time[sel], lc.mag[sel]
-        far = far_from_neighbours(t * frequency, m, limit, side=-1)
+        # brighter than maximum light: the median is on the flat maximum of
+        # a detached binary, and its robust sigma is the noise there
+        centre = np.median(m)
+        sigma = MAD_TO_SIGMA * np.median(np.abs(m - centre))
+        far = far_from_neighbours(t * frequency, m, limit, side=-1) | (m < centre - limit * sigma)
         if far.sum() <= max_share * t.size:
             out[sel[far]] = True
     return out
