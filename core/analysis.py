@@ -466,7 +466,9 @@ def _analyse(
         prewhitening=pw,
         eclipse=ecl,
         features={
-            **_extra_features(analysed, primary),
+            # shape from the points of the band with most of them: a sparse
+            # calibration band (50 V beside 400 I) cannot tell a plateau
+            **_extra_features(analysed, analysed.bands[0]),
             "cycles": working.baseline * frequency,
             # a strong variation the data cannot time still tells the class;
             # measured in the band with most points, which determines it best
@@ -693,15 +695,16 @@ def _decompose_with_outliers(
 PLATEAU_LEVEL = 0.15
 
 
-def _extra_features(lc: LightCurve, primary: str) -> dict[str, Any]:
-    """Features not read off the result dict (see ``features_from_result``).
+def _extra_features(lc: LightCurve, band: str) -> dict[str, Any]:
+    """Features of the points of ``band`` not read off the result dict.
 
-    ``plateau_fraction`` comes from the points, not the Fourier model: a
+    The analysis passes the band with most points: the shape of the points
+    needs many of them.  ``plateau_fraction`` comes from the points, not the Fourier model: a
     Fourier series of a narrow eclipse rings across the flat maximum.  With
     sampling that is random in phase, the share of points near maximum
     light is the share of the cycle spent there.
     """
-    _, mag, _ = lc.arrays(primary)
+    _, mag, _ = lc.arrays(band)
     if mag.size <= 2:
         return {}
     bright, faint = np.percentile(mag, [5.0, 99.0])

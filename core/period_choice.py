@@ -66,6 +66,7 @@ __all__ = [
     "outliers_against",
     "fit_trend",
     "far_from_neighbours",
+    "brighter_than_neighbours",
     "ECLIPSE_FAP_METHOD",
     "MAD_TO_SIGMA",
     "MIN_CYCLES",
@@ -177,10 +178,25 @@ def choose_period(lc: LightCurve, settings, pgram: Periodogram | None = None) ->
         everything, working, candidates, chosen, settings
     )
     if candidates[chosen].fap_method == ECLIPSE_FAP_METHOD:
-        working, set_aside = everything, np.zeros(lc.n_points, dtype=bool)
+        set_aside = np.zeros(lc.n_points, dtype=bool)
+        if settings.set_aside_sigma is not None:
+            set_aside = brighter_than_neighbours(
+                everything,
+                candidates[chosen].frequency,
+                settings.set_aside_sigma,
+                settings.set_aside_max_share,
+            )
+        working = everything.with_excluded(everything.excluded | set_aside)
         reasons.append(
             f"period from the phase-binned eclipse search (candidate {chosen + 1}); "
-            "the periodogram's peaks were weaker; no points set aside"
+            "the periodogram's peaks were weaker; "
+            + (
+                f"{int(set_aside.sum())} point(s) brighter than maximum light or their "
+                "neighbours in phase by "
+                f"more than {settings.set_aside_sigma:g} robust sigmas set aside"
+                if set_aside.any()
+                else "no points set aside"
+            )
         )
     elif chosen != 0:
         reasons.append(
@@ -269,11 +285,19 @@ def _fourier_bic(lc: LightCurve, frequency: float, settings) -> float:
 
 
 def _effective_points(lc: LightCurve, frequency: float, settings) -> float | None:
-    """Independent points of the residuals from the Fourier model, if clearly fewer.
+    """Independent points of the residuals from an adequate model, if clearly fewer.
 
     Residuals in units of their errors, all bands in time order
     (:func:`core.periodogram.effective_points`); None when they are at
-    least 90% of the points (white noise within its scatter).
+    least 90% of the points (white noise within its scatter).  The model is
+    the Fourier fit at ``frequency``; where that leaves correlated
+    residuals and the curve has two or more seasons, the same series fitted
+    season by season (:func:`_seasonal_residuals`) is taken instead when it
+    is called for (scaled BIC lower by ``trend_min_delta_bic``): a Mira's
+    cycle-to-cycle changes of amplitude and phase are signal, not noise,
+    and counted as noise they made a 4-magnitude, many-cycle signal "not
+    significant".  Night-to-night zero points and drifts within a season
+    stay in the residuals of either model.
     """
     fits = _band_fits(lc, frequency, settings)
     if fits is None:
@@ -287,7 +311,61 @@ def _effective_points(lc: LightCurve, frequency: float, settings) -> float | Non
     # (Pont, Zucker & Queloz 2006) also counts a strong signal's model
     # error (modulation) as noise and buried modulated RRab in the demo
     n_eff = effective_points(r_all)
+    if n_eff >= 0.9 * r_all.size:
+        return None
+    seasonal = _seasonal_residuals(fits, frequency, settings)
+    if seasonal is not None:
+        r_seasonal = np.concatenate(seasonal)[order]
+        n_eff = max(n_eff, effective_points(r_seasonal))
     return n_eff if n_eff < 0.9 * r_all.size else None
+
+
+def _seasonal_residuals(fits, frequency: float, settings) -> list[np.ndarray] | None:
+    """Scaled residuals of the Fourier series fitted season by season, if called for.
+
+    Each season (gaps over :data:`SEASON_GAP`) of each band gets its own
+    mean and harmonics at ``frequency``, mean and harmonic coefficients
+    changing linearly through the season (a Mira's amplitude and phase
+    drift within a season as well as between them).  The band's order is
+    lowered so that a season keeps two points per coefficient; a season
+    too short for one harmonic keeps the fixed model.  None with fewer than two seasons,
+    or when the seasonal model does not lower the scaled BIC (as the trend
+    test scales it) by ``settings.trend_min_delta_bic``.
+    """
+    scaled, chi2_fixed, chi2_seasonal, k_fixed, k_seasonal, n = [], 0.0, 0.0, 0, 0, 0
+    for t, m, e, band_order, fit in fits:
+        seasons = _seasons(t)
+        labels = np.unique(seasons)
+        if labels.size < 2:
+            return None
+        r = np.empty(t.size)
+        for label in labels:
+            sel = seasons == label
+            ts = t[sel]
+            order = min(band_order, max((int(sel.sum()) - 4) // 8, 0))
+            if order < 1:
+                # too short a season for a fit of its own: the fixed model's residuals
+                r[sel] = (m[sel] - fit.model(ts)) / e[sel]
+                continue
+            x = (ts - ts.mean()) / max(float(np.ptp(ts)), 1e-9)
+            harmonics = _basis_rows(2.0 * np.pi * frequency * (ts - ts.mean()), order)[1:]
+            design = np.stack([np.ones(ts.size), x, *harmonics, *(x * harmonics)], axis=1)
+            coef, *_ = linalg.lstsq(
+                design / e[sel, None], m[sel] / e[sel], lapack_driver="gelsy", check_finite=False
+            )
+            r[sel] = (m[sel] - design @ coef) / e[sel]
+            k_seasonal += design.shape[1]
+        scaled.append(r)
+        chi2_seasonal += float(r @ r)
+        chi2_fixed += float(np.sum(((m - fit.model(t)) / e) ** 2))
+        k_fixed += 1 + 2 * band_order
+        n += t.size
+    bics = _scaled_bics(
+        {"fixed": (chi2_fixed, k_fixed), "seasonal": (chi2_seasonal, k_seasonal)}, n
+    )
+    if bics["fixed"] - bics["seasonal"] < settings.trend_min_delta_bic:
+        return None
+    return scaled
 
 
 # ------------------------------------------------------------- set aside
@@ -314,13 +392,44 @@ def outliers_against(lc: LightCurve, frequency: float, settings) -> np.ndarray:
     return out
 
 
+def brighter_than_neighbours(
+    lc: LightCurve, frequency: float, limit: float, max_share: float
+) -> np.ndarray:
+    """Good points far brighter than their neighbours in phase, for an eclipse period.
+
+    The folded magnitudes themselves are judged by :func:`far_from_neighbours`
+    (the neighbours' median stands for the model, which a Fourier series of
+    a narrow eclipse is not), and so is their distance above the median
+    (at an eclipse's edge the neighbours scatter widely, but nothing is
+    brighter than maximum light); only points on the bright side go: an
+    eclipse only ever makes a star fainter, so a point brighter than the
+    light around it in phase is no part of one, while a lone faint point may
+    be the one observation inside a narrow eclipse and stays.  A band with
+    more than ``max_share`` of its points beyond gives none.
+    """
+    out = np.zeros(lc.n_points, dtype=bool)
+    for band in lc.bands:
+        sel = np.flatnonzero(lc.band_mask(band))
+        t, m = lc.time[sel], lc.mag[sel]
+        # brighter than maximum light: the median is on the flat maximum of
+        # a detached binary, and its robust sigma is the noise there
+        centre = np.median(m)
+        sigma = MAD_TO_SIGMA * np.median(np.abs(m - centre))
+        far = far_from_neighbours(t * frequency, m, limit, side=-1) | (m < centre - limit * sigma)
+        if far.sum() <= max_share * t.size:
+            out[sel[far]] = True
+    return out
+
+
 #: Neighbours in phase whose residuals give a point's local scale in
 #: :func:`far_from_neighbours` (our choice: enough for a median absolute
 #: deviation that two or three other bad points do not move).
 PHASE_NEIGHBOURS = 10
 
 
-def far_from_neighbours(cycles: np.ndarray, residual: np.ndarray, limit: float) -> np.ndarray:
+def far_from_neighbours(
+    cycles: np.ndarray, residual: np.ndarray, limit: float, side: int = 0
+) -> np.ndarray:
     """Points whose residual stands more than ``limit`` robust sigmas from their neighbours'.
 
     A point is judged against the :data:`PHASE_NEIGHBOURS` points nearest to
@@ -341,6 +450,9 @@ def far_from_neighbours(cycles: np.ndarray, residual: np.ndarray, limit: float) 
         Magnitude minus model, same length.
     limit : float
         In robust sigmas.
+    side : {0, -1, 1}
+        0: either way; -1: only points below their neighbours (brighter, in
+        magnitudes); 1: only points above.
     """
     n = residual.size
     out = np.zeros(n, dtype=bool)
@@ -362,7 +474,10 @@ def far_from_neighbours(cycles: np.ndarray, residual: np.ndarray, limit: float) 
     spread = max(1, k // 4)
     local = np.max([np.roll(local, shift) for shift in range(-spread, spread + 1)], axis=0)
     scale = np.maximum(local, whole)
-    out[order] = np.abs(r - local_centre) > limit * scale
+    deviation = r - local_centre
+    if side:
+        deviation = np.where(np.sign(deviation) == side, deviation, 0.0)
+    out[order] = np.abs(deviation) > limit * scale
     return out
 
 

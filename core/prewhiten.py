@@ -13,14 +13,28 @@ Each accepted frequency is then named, in this order of tests, with the
 frequency resolution ``1/T`` (times ``resolution_factor``) as tolerance:
 
 ``harmonic``
-    ``n f_j`` of an earlier independent frequency (n >= 2);
+    ``n f_j`` of an earlier independent frequency (n >= 2), or such a
+    harmonic reflected through a peak ``w`` of the spectral window;
 ``side peak``
     ``k f1 +- delta`` with ``delta`` resolved but below ``side_peak_fraction``
-    of ``f1``: a modulation (Blazhko-like) with period ``1/delta``;
+    of ``f1``: a modulation (Blazhko-like) with period ``1/delta``; also
+    such a side peak reflected through a peak ``w`` of the spectral window
+    (``k f1 +- delta +- w``, labelled with the window frequency) when
+    ``delta`` is at most :data:`ALIAS_SIDE_PEAK_MAX` and no second mode has
+    been found: on nightly sampling the 1 c/d reflection of a side peak can
+    be the higher of the two;
 ``combination``
     ``n f_a + m f_b`` of two earlier independent frequencies;
 ``independent``
-    anything else.
+    anything else, except:
+``modulation``
+    in a star with side peaks, an otherwise independent frequency weaker
+    than the strongest side peak.  A modulation is only partly modelled by
+    the side peaks found (each harmonic has its multiplet, and the sampling
+    window spreads every component), so such a peak cannot be told from
+    the modulation's own residual power; it is never reported as a second
+    mode.  (A second mode of a modulated star, as in a modulated RRd star,
+    is as strong as the side peaks or stronger.)
 
 The threshold accounts for the number of frequencies searched: for
 Gaussian noise the amplitude spectrum at one frequency follows a Rayleigh
@@ -29,6 +43,19 @@ exp(-pi k^2 / 4) (common practice, no source); over M = (f_max - f_min) T
 independent frequencies the false-alarm probability of a step stays at
 ``step_fap`` when k = sqrt(4 ln(M / step_fap) / pi).  The threshold used is
 the larger of that and ``snr_threshold``.
+
+The S/N alone does not hold that false-alarm rate on sparse sampling: the
+fitted amplitude at the highest residual peak exceeds the amplitude
+spectrum there, and removing the peak lowers the noise around it, so with
+100-150 points pure Gaussian noise passed the threshold at most steps.
+Each step therefore also needs a false-alarm probability of at most
+``step_fap`` for its chi-square reduction: the fraction z of the residual
+chi-square that the new sinusoid (refined with the rest) removes, judged
+as the main period's peaks are (:func:`core.periodogram.baluev_fap` for
+one band, :func:`core.periodogram.f_test_fap` for several) over the
+residual search's frequency range, with the points the earlier model left
+free.  The points are taken as independent: residuals correlated by a
+modulation are signal here (its side peaks are what is looked for).
 
 Peaks at known frequencies are not searched: the harmonics in the model,
 every frequency already found, and the reflections of these, of every
@@ -67,7 +94,7 @@ __all__ = [
     "snr_threshold_for",
 ]
 
-KINDS = ("main", "harmonic", "side peak", "combination", "independent")
+KINDS = ("main", "harmonic", "side peak", "combination", "independent", "modulation")
 
 #: ``search(residual_lightcurve) -> (frequency, power)``, larger power = better.
 Search = Callable[[LightCurve], tuple[np.ndarray, np.ndarray]]
@@ -170,6 +197,7 @@ class FoundFrequency:
     step: int
     modulation_period: float | None = None
     alternatives: tuple[float, ...] = ()
+    fap: float | None = None
 
     @property
     def period(self) -> float:
@@ -187,6 +215,7 @@ class FoundFrequency:
             "step": int(self.step),
             "modulation_period": _opt(self.modulation_period),
             "alternatives": [float(x) for x in self.alternatives],
+            "fap": _opt(self.fap),
         }
 
 
@@ -197,7 +226,7 @@ class Prewhitening:
     frequencies: tuple[FoundFrequency, ...]
     main_order: int
     resolution: float
-    stop_reason: str  # "snr", "limit", "no peak", "too few points", "search failed"
+    stop_reason: str  # "snr", "fap", "limit", "no peak", "too few points", "search failed"
     last_snr: float | None  # of the refused peak, when stopped by SNR
     residual_std: float
     n_points: int
@@ -372,7 +401,25 @@ def _label_independent(index: int) -> str:
     return f"f{index}"
 
 
-def _classify(freqs, resolution, main_frequency, settings):
+#: Largest offset (c/d) from a harmonic of a side peak seen through a window
+#: peak (module notes): modulation periods of 10 d and more (Blazhko periods
+#: run from about ten days to years; from memory).  Closer to a harmonic than
+#: this by chance, through one of a few window peaks, a second mode rarely is.
+ALIAS_SIDE_PEAK_MAX = 0.1
+
+
+def _side_peak(f, f1, resolution, settings, limit):
+    """``(label, modulation period)`` when ``f`` is ``k f1 +- delta`` (module notes), else None."""
+    k = max(int(round(f / f1)), 1)
+    delta = f - k * f1
+    if k <= settings.max_harmonic and resolution <= abs(delta) < limit:
+        sign = "+" if delta > 0 else "-"
+        head = "f1" if k == 1 else f"{k}f1"
+        return f"{head}{sign}{abs(delta):.4f}", 1 / abs(delta)
+    return None
+
+
+def _classify(freqs, resolution, main_frequency, settings, window_freqs=()):
     """Kinds and labels, in order of discovery; see the module text."""
     kinds, labels, mods = ["main"], ["f1"], [None]
     independent = [(1, freqs[0])]  # (label index, frequency)
@@ -385,13 +432,31 @@ def _classify(freqs, resolution, main_frequency, settings):
                 kind, label = "harmonic", f"{n}f{idx}"
                 break
         if kind is None:
-            k = max(int(round(f / f1)), 1)
-            delta = f - k * f1
-            if k <= settings.max_harmonic and resolution <= abs(delta):
-                if abs(delta) < settings.side_peak_fraction * f1:
-                    sign = "+" if delta > 0 else "-"
-                    head = "f1" if k == 1 else f"{k}f1"
-                    kind, label, mod = "side peak", f"{head}{sign}{abs(delta):.4f}", 1 / abs(delta)
+            side = _side_peak(f, f1, resolution, settings, settings.side_peak_fraction * f1)
+            if side is not None:
+                kind, (label, mod) = "side peak", side
+        for w in window_freqs if kind is None else ():
+            # a harmonic of a known mode seen through a window peak
+            for idx, fj in independent:
+                for shifted, sign in ((f - w, "+"), (f + w, "-")):
+                    n = int(round(shifted / fj))
+                    if kind is None and 2 <= n <= settings.max_harmonic:
+                        if abs(shifted - n * fj) < resolution:
+                            kind, label = "harmonic", f"{n}f{idx}{sign}{w:.4f}"
+        if kind is None and len(independent) == 1:
+            # only beside a single mode: the combinations of two modes and
+            # their reflections are so many that one falls there by chance
+            limit = min(settings.side_peak_fraction * f1, ALIAS_SIDE_PEAK_MAX)
+            for w in window_freqs:
+                for shifted, sign in ((f - w, "+"), (f + w, "-")):
+                    side = (
+                        _side_peak(shifted, f1, resolution, settings, limit)
+                        if shifted > 0
+                        else None
+                    )
+                    if side is not None and kind is None:
+                        kind, mod = "side peak", side[1]
+                        label = f"{side[0]}{sign}{w:.4f}"
         if kind is None and len(independent) >= 2:
             best = None
             span = range(-settings.max_combination, settings.max_combination + 1)
@@ -489,6 +554,7 @@ def prewhiten(
     freqs, orders = [f_main], [order]
     steps = [0]
     alternatives: list[tuple[float, ...]] = [()]
+    step_faps: list[float | None] = [None]
     fit = multi_frequency_fit(t, m, e, freqs, orders, bidx, refine=settings.refine)
     fit = _keep_near(fit, t, m, e, freqs, orders, bidx, resolution, settings)
     if windows is None:
@@ -554,13 +620,18 @@ def prewhiten(
         if snr < (threshold or settings.snr_threshold):
             stop, last_snr = "snr", float(snr)
             break
+        fap = _step_fap(fit, trial, t, e, bidx, grid, n_params)
+        if fap > settings.step_fap:
+            stop, last_snr = "fap", float(snr)
+            break
         fit, freqs, orders = trial, list(trial.frequencies), trial_orders
         steps.append(step)
         alternatives.append(others)
+        step_faps.append(fap)
 
     # final figures from the final joint fit
     final = [float(x) for x in fit.frequencies]
-    kinds, names_, mods = _classify(final, resolution, final[0], settings)
+    kinds, names_, mods = _classify(final, resolution, final[0], settings, window_freqs)
     found = []
     term = 0
     for j, fj in enumerate(final):
@@ -580,8 +651,10 @@ def prewhiten(
                 step=steps[j],
                 modulation_period=mods[j],
                 alternatives=alternatives[j],
+                fap=step_faps[j],
             )
         )
+    found = _modulation_residue(found)
     n_params = len(final) + len(band_names) * (1 + 2 * sum(orders))
     resid_std = float(np.sqrt(np.sum(fit.residuals**2) / max(t.size - n_params, 1)))
     return Prewhitening(
@@ -595,6 +668,38 @@ def prewhiten(
         note=note,
         threshold=threshold,
     )
+
+
+def _modulation_residue(found: list[FoundFrequency]) -> list[FoundFrequency]:
+    """Independent frequencies weaker than the strongest side peak become ``modulation``."""
+    side = [f.amplitude for f in found if f.kind == "side peak"]
+    if not side:
+        return found
+    strongest = max(side)
+    return [
+        replace(f, kind="modulation") if f.kind == "independent" and f.amplitude < strongest else f
+        for f in found
+    ]
+
+
+def _step_fap(before, after, t, err, bidx, grid, n_params) -> float:
+    """False-alarm probability of one step's chi-square reduction (module notes)."""
+    from .periodogram import baluev_fap, f_test_fap
+
+    chi2_before = float(np.sum((before.residuals / err) ** 2))
+    chi2_after = float(np.sum((after.residuals / err) ** 2))
+    if not chi2_before > 0:
+        return 1.0
+    z = min(max(1.0 - chi2_after / chi2_before, 0.0), 1.0)
+    # the points the earlier model left free
+    free = float(err.size - n_params)
+    n_bands = int(bidx.max()) + 1 if bidx.size else 1
+    fmax = float(grid[-1])
+    if n_bands == 1:
+        return float(baluev_fap(z, fmax, t, err, n_effective=free))
+    m_independent = (fmax - float(grid[0])) * float(np.ptp(t))
+    # the means are among the parameters already taken from the free points
+    return float(f_test_fap(z, free, 2 * n_bands, 0, m_independent))
 
 
 def _keep_near(fit, t, m, e, start, orders, bidx, resolution, settings):

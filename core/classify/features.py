@@ -14,11 +14,14 @@ Conventions (the analysis must follow them when it fills the mapping):
 * Fourier parameters are of the primary band and in the **sine** form
   ``m = A0 + sum A_i sin(2 pi i (t - t0) / P + phi_i)`` (Jurcsik & Kovács
   1996), phases in radians in [0, 2 pi).
-* ``skewness`` is the skewness of the primary band's Fourier *model* in
-  magnitudes, sampled evenly in phase: positive means a tail toward faint
-  values (narrow minima, as in eclipses), negative a tail toward bright values
-  (a sharp maximum, as in RRab stars).  :func:`features_from_result` computes
-  it (and ``rise_time`` if absent) from the Fourier amplitudes and phases.
+* ``skewness``: positive means a tail toward faint values (narrow minima,
+  as in eclipses), negative a tail toward bright values (a sharp maximum,
+  as in RRab stars).  The analysis measures it on the points of the band
+  with most points, without the points set aside (a Fourier series of a
+  narrow eclipse rings; a sparse band cannot show a tail); for a stored
+  result without it, :func:`features_from_result` computes it (and
+  ``rise_time`` if absent) from the primary band's Fourier model sampled
+  evenly in phase.
 """
 
 from __future__ import annotations
@@ -75,13 +78,15 @@ FEATURES: dict[str, Feature] = _features(
     (
         "skewness",
         "",
-        "skewness of the Fourier model magnitudes over one cycle (> 0: narrow minima); "
-        "the model, not the points, so outliers do not drive it",
+        "skewness of the magnitudes (> 0: narrow minima): the points of the band with most "
+        "points, without those set aside (the analysis), else the primary band's Fourier "
+        "model over one cycle",
     ),
     (
         "plateau_fraction",
         "",
-        "share of the primary band's points within 15% of their range of maximum light "
+        "share of the points of the band with most points within 15% of their range of "
+        "maximum light "
         "(range from the 5th to the 99th percentile; near 1: constant light between short "
         "eclipses, about 0.3 for a sinusoid); filled in by the analysis",
     ),

@@ -374,3 +374,60 @@ def test_a_mira_month_detrended_to_a_weak_period_is_still_long():
     assert features["slow_amplitude"] >= 0.2 and features["slow_share"] >= 0.8
     top = _top(result)
     assert top["class"] == "LONG" and top["period"] is None
+
+
+@pytest.mark.parametrize(("kind", "seed"), [("nightly", 1), ("nightly", 5), ("two_band", 3)])
+def test_modulated_rrab_carries_no_independent_secondary(kind, seed):
+    # the residual power of a modulated star (k f1 +- f_m and their
+    # reflections through the window) is modulation, not a second mode
+    lc, truth = battery_star(kind, "RRab", "", "modulated", seed=seed)
+    result = analyse(lc).to_dict()
+    assert result["period"] == pytest.approx(truth.period, rel=2e-3)
+    assert result["secondary_periods"] == []
+    assert result["period_ratio"] is None
+    kinds = {f["kind"] for f in result["prewhitening"]["frequencies"]}
+    assert "independent" not in kinds
+
+
+@pytest.mark.parametrize(("kind", "seed"), [("nightly", 3), ("sparse", 4), ("two_band", 5)])
+def test_rrd_keeps_its_period_ratio(kind, seed):
+    # RRd first-overtone / fundamental ratio 0.742-0.748 (Soszynski et al. 2016)
+    lc, truth = battery_star(kind, "RRd", seed=seed)
+    result = analyse(lc).to_dict()
+    assert result["period_ratio"] == pytest.approx(truth.period / truth.period2, abs=0.002)
+    assert _top(result)["class"] == "RRd"
+
+
+def test_sparse_miras_get_a_significant_period():
+    # cycle-to-cycle changes of a Mira are signal: judged against the
+    # season-by-season fit, the residuals leave most points independent
+    right = 0
+    for seed in (11, 12, 13, 14, 15):
+        lc, truth = battery_star("sparse", "LPV", "MIRA", seed=seed)
+        result = analyse(lc).to_dict()
+        if lc.baseline < 2 * truth.period:  # fewer than two cycles: no period claimed
+            right += _top(result)["class"] == "LONG"
+        elif result["status"] == "ok" and _top(result)["class"] == "LPV":
+            right += 1
+            # the phase wanders from cycle to cycle: a few per cent over 2-4 cycles
+            assert result["period"] == pytest.approx(truth.period, rel=0.05)
+    assert right >= 4
+
+
+def test_bright_outlier_of_an_algol_is_set_aside_at_the_eclipse_period():
+    # an eclipse only makes a star fainter: a point far brighter than its
+    # neighbours in phase is no part of one (while faint lone points stay)
+    from phasewise.core.period_choice import brighter_than_neighbours
+
+    rng = np.random.default_rng(3)
+    period = 3.7
+    t = np.sort(rng.uniform(0.0, 700.0, 90))
+    phase = (t / period) % 1.0
+    dip = (np.abs(phase - 0.5) < 0.03).astype(float)
+    mag = 15.0 + 0.6 * dip + rng.normal(0.0, 0.01, t.size)
+    mag[5] -= 0.8  # bright outlier
+    lone_faint = int(np.argmax(dip == 0) + 10)
+    mag[lone_faint] += 0.8  # a faint point that could be an eclipse
+    lc = LightCurve("EA-test", t, mag, np.full(t.size, 0.01))
+    out = brighter_than_neighbours(lc, 1.0 / period, 5.0, 0.03)
+    assert np.flatnonzero(out).tolist() == [5]

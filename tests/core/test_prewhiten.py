@@ -275,3 +275,61 @@ def test_bands_are_indexed_by_their_number_of_points():
     lc = LightCurve("bands", t, mag, np.full(t.size, 0.01), band=band)
     result = prewhiten(lc, 1 / 0.61, PrewhitenSettings(max_frequencies=1))
     assert result.frequencies[0].amplitude == pytest.approx(0.2, abs=0.01)  # I, not V
+
+
+def test_gaussian_noise_on_sparse_sampling_gives_no_further_frequency():
+    # ~120 points over three seasons, searched to 50 c/d: the S/N of the
+    # highest residual peak alone passed its threshold at most steps here
+    # (fitted amplitude above the spectrum, noise lowered by the removal);
+    # the step false-alarm probability (Baluev 2008) holds the rate near 1e-3
+    from phasewise.core.prewhiten import residual_search
+
+    spurious = []
+    for seed in range(12):
+        rng = np.random.default_rng(300 + seed)
+        nights = np.sort(rng.choice(np.arange(800), 120, replace=False)).astype(float)
+        t = nights + 0.5 + rng.uniform(-0.15, 0.15, nights.size)
+        mag = 15 + 0.3 * np.sin(TWO_PI * F1O * t) + 0.1 * np.sin(2 * TWO_PI * F1O * t + 1)
+        lc = _star(t, mag, 300 + seed)
+        res = prewhiten(lc, F1O, search=residual_search())
+        spurious += [f for f in res.frequencies if f.kind not in ("main", "harmonic")]
+    assert len(spurious) <= 1
+    for found in spurious:
+        assert found.fap is not None and found.fap <= 1e-3
+
+
+def test_reflections_of_side_peaks_and_harmonics_are_named():
+    # nightly sampling: the 1 c/d reflection of a side peak or of a harmonic
+    # can be the higher of the two (frequencies invented)
+    from phasewise.core.prewhiten import _classify
+
+    settings = PrewhitenSettings()
+    day, f1, fm, res = 1.0027, 1.79, 1 / 60.0, 1e-3
+    kinds, labels, mods = _classify([f1, 2 * f1 + fm + day], res, f1, settings, window_freqs=(day,))
+    assert kinds[1] == "side peak" and mods[1] == pytest.approx(60.0, rel=1e-6)
+    assert labels[1].endswith(f"+{day:.4f}")
+    # beside a second mode (RRd-like ratio) the reflection of its harmonic is a harmonic,
+    # and no side peak is sought through the window
+    f2 = 0.745 * f1
+    kinds, labels, _ = _classify([f1, f2, 3 * f2 + day], res, f1, settings, window_freqs=(day,))
+    assert kinds == ["main", "independent", "harmonic"] and labels[2].startswith("3f2")
+    # without the window peak it stays independent
+    kinds, _, _ = _classify([f1, 2 * f1 + fm + day], res, f1, settings)
+    assert kinds[1] == "independent"
+
+
+def test_in_a_modulated_star_peaks_weaker_than_the_side_peaks_are_modulation():
+    from phasewise.core.prewhiten import FoundFrequency, _modulation_residue
+
+    def found(kind, amplitude):
+        return FoundFrequency(1.0, 1e-4, amplitude, 10.0, kind, "f", 1)
+
+    items = [found("main", 0.4), found("side peak", 0.08), found("independent", 0.03)]
+    assert [f.kind for f in _modulation_residue(items)] == ["main", "side peak", "modulation"]
+    # a second mode as strong as the side peaks or stronger stays one
+    items[2] = found("independent", 0.1)
+    assert _modulation_residue(items)[2].kind == "independent"
+    # no side peak: nothing changes
+    assert _modulation_residue([found("main", 0.4), found("independent", 0.03)])[1].kind == (
+        "independent"
+    )
