@@ -368,13 +368,45 @@ def _dip_confirmed(t, y, w, f, n_bins) -> bool:
             continue
         rest = ys[~inside]
         centre = _sorted_median(rest)
-        sigma = MAD_TO_SIGMA * float(np.median(np.abs(rest - centre)))
+        sigma = MAD_TO_SIGMA * _sorted_mad(rest, centre)
         if not sigma > 0:
             continue
         # standard error of a median: 1.2533 sigma / sqrt(k) (common practice, no source)
         if (median_inside - centre) / (1.2533 * sigma / np.sqrt(k)) >= MIN_DIP_SNR:
             return True
     return False
+
+
+def _sorted_mad(values: np.ndarray, centre: float) -> float:
+    """``np.median(np.abs(values - centre))`` of a sorted array, by bisection.
+
+    The distances below ``centre`` (read backwards) and above it are two
+    sorted sequences; their middle elements are found without forming them.
+    """
+    m = values.size
+    split = int(np.searchsorted(values, centre))
+    below, above = split, m - split
+
+    def dist_below(i):  # i-th smallest distance of the points below centre
+        return centre - values[split - 1 - i]
+
+    def dist_above(j):
+        return values[split + j] - centre
+
+    def kth(k):  # k-th smallest (from 0) of both sequences together
+        lo, hi = max(0, k + 1 - above), min(k + 1, below)
+        while lo < hi:  # fewest taken from below with the next one not smaller
+            i = (lo + hi) // 2
+            if dist_below(i) < dist_above(k - i):
+                lo = i + 1
+            else:
+                hi = i
+        j = k + 1 - lo
+        return max(
+            dist_below(lo - 1) if lo > 0 else -np.inf, dist_above(j - 1) if j > 0 else -np.inf
+        )
+
+    return float(0.5 * (kth((m - 1) // 2) + kth(m // 2)))
 
 
 def _sorted_median(values: np.ndarray) -> float:

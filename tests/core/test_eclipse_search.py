@@ -306,3 +306,15 @@ def test_screened_search_on_noise_is_not_significant():
     )
     search = eclipse_search(lc)
     assert search.faps[0] > 0.01
+
+
+def test_sorted_mad_equals_numpy():
+    # definition: np.median(np.abs(values - centre)) of the sorted values
+    from phasewise.core.periodogram.eclipse_search import _sorted_mad
+
+    rng = np.random.default_rng(6)
+    for _ in range(500):
+        n = int(rng.integers(1, 60))
+        values = np.sort(np.round(rng.normal(size=n), int(rng.integers(0, 3))))  # ties too
+        for centre in (float(np.median(values)), float(values[n // 3]), float(rng.normal())):
+            assert _sorted_mad(values, centre) == np.median(np.abs(values - centre))
