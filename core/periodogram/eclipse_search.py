@@ -260,6 +260,50 @@ def harmonic_screen(t, y, w, df, k_first, k_last, n_harmonics):
     return power
 
 
+#: Phase drift, in bins, that the time cells of :func:`_aov_in_cells` allow
+#: at the highest frequency (our choice: a tenth of a bin moves only the
+#: points that close to a bin edge).
+CELL_SMEAR = 0.1
+
+
+def _aov_in_cells(t, y, w, frequency, n_bins) -> np.ndarray:
+    """The statistic with one bin offset, the points merged into short time cells.
+
+    For the robust S/N's centre and spread only (a summary of many noise
+    values, not a reported statistic).  Points within
+    ``CELL_SMEAR / (n_bins f_max)`` days of each other share a cell whose
+    weights and weighted magnitudes are summed, at the cell's mean time:
+    the bins' sums are those of the points but for points within a tenth
+    of a bin of an edge.  ``F`` keeps the points' degrees of freedom.  On
+    dense noise the median and MAD over many frequencies stay within a few
+    per cent of the plain statistic's (the scatter between two partitions).
+    """
+    from ._aov_loop import aov_binned_loop
+
+    width = CELL_SMEAR / (n_bins * float(np.max(frequency)))
+    origin = float(np.min(t))
+    cell = np.floor((t - origin) / width).astype(np.int64)
+    _, inverse = np.unique(cell, return_inverse=True)
+    n_cells = int(inverse.max()) + 1
+    if n_cells > 0.8 * t.size:  # hardly any merged: the plain statistic
+        return aov_binned(t, y, w, frequency, n_bins, shifts=(0.0,))[0]
+    sum_w = np.bincount(inverse, weights=w)
+    sum_wy = np.bincount(inverse, weights=w * y)
+    times = np.bincount(inverse, weights=w * (t - origin)) / sum_w
+    value, filled = aov_binned_loop(
+        times,
+        sum_w,
+        sum_wy,
+        float(np.dot(w * y, y)),
+        np.ascontiguousarray(frequency, dtype=float),
+        int(n_bins),
+        np.zeros(1),
+    )
+    # the loop counts cells as points: give F the points' degrees of freedom
+    dof = np.maximum(t.size - filled, 1) / np.maximum(n_cells - filled, 1)
+    return np.where(value > 0, value * dof, 0.0)
+
+
 def _distinct_peaks(frequency, value, k, separation) -> list[int]:
     """Indices of the k highest values at least ``separation`` apart."""
     inner = np.flatnonzero((value[1:-1] >= value[:-2]) & (value[1:-1] >= value[2:])) + 1
@@ -578,7 +622,7 @@ def eclipse_search(
     # statistic at evenly spread samples of the grid and near each peak
     if coarse_f is None:
         sample = coarse[:: max(1, coarse.size // SNR_SAMPLES)]
-        sample_f = aov_binned(t, y, w, sample, coarse_bins, shifts=(0.0,))[0]
+        sample_f = _aov_in_cells(t, y, w, sample, coarse_bins)
     else:
         sample_f = coarse_f
     centre = float(np.median(sample_f))

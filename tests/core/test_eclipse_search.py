@@ -318,3 +318,26 @@ def test_sorted_mad_equals_numpy():
         values = np.sort(np.round(rng.normal(size=n), int(rng.integers(0, 3))))  # ties too
         for centre in (float(np.median(values)), float(values[n // 3]), float(rng.normal())):
             assert _sorted_mad(values, centre) == np.median(np.abs(values - centre))
+
+
+def test_time_cells_keep_the_centre_and_spread_of_the_statistic():
+    # 20,000 points, many within seconds of each other (dense photometry):
+    # merged into cells, the statistic's median and MAD over 2,000 trial
+    # frequencies stay within 5% of the plain statistic's (seeds 0-5 of this
+    # set-up differed by 2.3% at most: the two partitions' own scatter)
+    from phasewise.core.periodogram.eclipse_search import _aov_in_cells
+
+    rng = np.random.default_rng(9)
+    starts = np.sort(rng.uniform(0.0, 300.0, 400))
+    t = np.sort(np.concatenate([s + np.arange(50) * 3e-4 for s in starts]))
+    y = rng.normal(0.0, 0.01, t.size) + 0.005 * np.sin(2 * np.pi * t / 17.0)
+    w = np.full(t.size, 1e4)
+    y -= y.mean()
+    f = np.linspace(0.05, 5.0, 2000)
+    plain = aov_binned(t, y, w, f, 10, shifts=(0.0,))[0]
+    cells = _aov_in_cells(t, y, w, f, 10)
+    for stat in (
+        np.median,
+        lambda v: np.median(np.abs(v - np.median(v))),
+    ):
+        assert stat(cells) == pytest.approx(stat(plain), rel=0.05)
