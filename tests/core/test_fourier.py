@@ -711,3 +711,21 @@ def test_order_choice_carries_the_chi_square_of_its_fit(frequency):
     fit = fit_fourier(t, m, e, frequency, choice.order)
     chi2 = float(np.sum(((m - fit.model(t)) / e) ** 2))
     assert choice.chi2 == pytest.approx(chi2, rel=1e-10)
+
+
+def test_joint_fit_at_fixed_frequencies_is_the_linear_least_squares_fit():
+    # reference: numpy's SVD least squares of each band on [1, cos k theta, sin k theta]
+    from phasewise.core.fourier import multi_frequency_fit
+
+    t, mag, err, band, freqs, orders = _two_band_signal()
+    fit = multi_frequency_fit(t, mag, err, freqs, orders, band, refine=False)
+    tc = fit.tc
+    for b in (0, 1):
+        sel = band == b
+        cols = [np.ones(sel.sum())]
+        for f, order in zip(freqs, orders, strict=True):
+            arg = TWO_PI * f * (t[sel] - tc)
+            cols += [g(k * arg) for k in range(1, order + 1) for g in (np.cos, np.sin)]
+        design = np.column_stack(cols) / err[sel, None]
+        beta, *_ = np.linalg.lstsq(design, mag[sel] / err[sel], rcond=None)
+        np.testing.assert_allclose(fit.coefficients[b], beta, rtol=1e-9, atol=1e-12)
