@@ -126,8 +126,13 @@ def test_excluded_and_set_aside_points_are_drawn_apart(outlier_desk, qtbot):
 
 def test_error_bars_on_the_folds(desk, qtbot):
     fold = desk.fold.main
+    # both folds' model fits arrive from worker threads: wait for them (and for the
+    # periodogram) so the bars are those of the fitted model, not of a preview
+    assert desk.wait_idle()
+    qtbot.waitUntil(lambda: fold.model is not None and desk.fold.alt.model is not None)
     assert not fold.error_bars.isVisible()
     desk.acts["errors"].trigger()
+    assert desk.wait_idle()
     assert fold.error_bars.isVisible() and desk.fold.alt.error_bars.isVisible()
     heights = fold.error_bars.opts["height"]
     np.testing.assert_allclose(heights[: fold.model.err.size], 2 * fold.model.err)
