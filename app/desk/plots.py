@@ -236,9 +236,13 @@ class SymbolPoints(FastPoints):
             return
         dpr = widget.devicePixelRatioF() if widget is not None else 1.0
         pixmap = self._pixmap(dpr)
-        xy = fn.ndarray_from_qpolygonf(painter.transform().map(self._poly))
+        # the mapped polygon is held while the array is used: the array is a view
+        # of its memory, not a copy (read through a freed temporary polygon, it
+        # crashed the window while a worker thread allocated at the same time)
+        mapped = painter.transform().map(self._poly)
         # far off-view points must not overflow Qt's integer device coordinates
-        xy = np.clip(xy, -(2.0**30), 2.0**30)
+        xy = np.clip(fn.ndarray_from_qpolygonf(mapped), -(2.0**30), 2.0**30)
+        del mapped  # xy is a new array now
         self._fragments.resize(xy.shape[0])
         frags = self._fragments.ndarray()
         frags[:, 0:2] = xy
