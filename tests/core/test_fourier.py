@@ -596,6 +596,17 @@ def test_joint_model_hessian_matches_finite_differences():
         )
 
 
+def _band_linear_fit(t, mag, err, sel, freqs, orders, tc):
+    """Weighted linear least squares of one band at fixed frequencies (numpy lstsq)."""
+    cols = [np.ones(sel.sum())]
+    for f, order in zip(freqs, orders, strict=True):
+        arg = TWO_PI * f * (t[sel] - tc)
+        cols += [g(k * arg) for k in range(1, order + 1) for g in (np.cos, np.sin)]
+    design = np.column_stack(cols) / err[sel, None]
+    beta, *_ = np.linalg.lstsq(design, mag[sel] / err[sel], rcond=None)
+    return beta
+
+
 def _plain_fit(t, mag, err, band, freqs, orders, tight=True):
     """The joint model written plainly, fitted by scipy.optimize.least_squares."""
     tc = 0.5 * (t.min() + t.max())
@@ -617,13 +628,7 @@ def _plain_fit(t, mag, err, band, freqs, orders, tight=True):
 
     start = np.concatenate([freqs, np.zeros(2 * per_band)])
     for b in (0, 1):  # linear start at the given frequencies
-        sel = band == b
-        cols = [np.ones(sel.sum())]
-        for f, order in zip(freqs, orders, strict=True):
-            arg = TWO_PI * f * (t[sel] - tc)
-            cols += [g(k * arg) for k in range(1, order + 1) for g in (np.cos, np.sin)]
-        design = np.column_stack(cols) / err[sel, None]
-        beta, *_ = np.linalg.lstsq(design, mag[sel] / err[sel], rcond=None)
+        beta = _band_linear_fit(t, mag, err, band == b, freqs, orders, tc)
         start[n_f + b * per_band : n_f + (b + 1) * per_band] = beta
     tol = {"ftol": 1e-15, "xtol": 1e-15, "gtol": 1e-15} if tight else {}
     return optimize.least_squares(
@@ -721,11 +726,5 @@ def test_joint_fit_at_fixed_frequencies_is_the_linear_least_squares_fit():
     fit = multi_frequency_fit(t, mag, err, freqs, orders, band, refine=False)
     tc = fit.tc
     for b in (0, 1):
-        sel = band == b
-        cols = [np.ones(sel.sum())]
-        for f, order in zip(freqs, orders, strict=True):
-            arg = TWO_PI * f * (t[sel] - tc)
-            cols += [g(k * arg) for k in range(1, order + 1) for g in (np.cos, np.sin)]
-        design = np.column_stack(cols) / err[sel, None]
-        beta, *_ = np.linalg.lstsq(design, mag[sel] / err[sel], rcond=None)
+        beta = _band_linear_fit(t, mag, err, band == b, freqs, orders, tc)
         np.testing.assert_allclose(fit.coefficients[b], beta, rtol=1e-9, atol=1e-12)

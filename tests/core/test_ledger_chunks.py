@@ -55,6 +55,18 @@ def ledger_path(seeded, tmp_path):
     return path
 
 
+def _change_behind_the_ledger(path, star_id) -> None:
+    """Change a verdict's note without its seal (as damage would)."""
+    conn = sqlite3.connect(path)
+    with conn:
+        conn.execute(
+            "UPDATE verdicts SET note = 'changed behind the ledger' "
+            "WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
+            (star_id,),
+        )
+    conn.close()
+
+
 def _one_by_one(ledger):
     return [(ledger.verdict(s), ledger.star_info(s)) for s in ledger.star_ids()]
 
@@ -80,14 +92,7 @@ def test_chunk_size_is_checked(ledger_path):
 def test_damaged_verdict_is_reported_by_both_reads(ledger_path):
     with Ledger.open(ledger_path, readonly=True) as ledger:
         victim = next(v.star_id for v, _ in _one_by_one(ledger) if v.final is not None)
-    conn = sqlite3.connect(ledger_path)
-    with conn:
-        conn.execute(
-            "UPDATE verdicts SET note = 'changed behind the ledger' "
-            "WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
-            (victim,),
-        )
-    conn.close()
+    _change_behind_the_ledger(ledger_path, victim)
     with Ledger.open(ledger_path, readonly=True) as ledger:
         with pytest.raises(LedgerError, match=f"star '{victim}'.*damaged") as single:
             ledger.verdict(victim)
@@ -155,14 +160,7 @@ def test_a_damaged_star_read_by_another_process_is_named(ledger_path, tmp_path, 
     with Ledger.open(ledger_path, readonly=True) as ledger:
         ids = ledger.star_ids()
     victim = ids[-1]  # in the last slice: read by another process
-    conn = sqlite3.connect(ledger_path)
-    with conn:
-        conn.execute(
-            "UPDATE verdicts SET note = 'changed behind the ledger' "
-            "WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
-            (victim,),
-        )
-    conn.close()
+    _change_behind_the_ledger(ledger_path, victim)
     monkeypatch.setattr(export, "_processes", lambda n: 2)
     out = tmp_path / "out"
     out.mkdir()
