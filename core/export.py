@@ -633,22 +633,19 @@ class _Spool:
             Path(path).unlink(missing_ok=True)
 
 
-def _spool_part(ledger_path: str, statuses: list[str], start: int, stop: int, folder: str) -> dict:
-    """Spool the rows of import positions ``start:stop`` into a new file in ``folder``.
+def _spool_part(
+    ledger_path: str, statuses: list[str], start: int, stop: int, file: str
+) -> dict[str, Any]:
+    """Spool the rows of import positions ``start:stop`` into ``file`` (made by the caller).
 
-    Runs in a process of its own (:func:`_parallel_spool`); returns the file's
-    path and the part's :meth:`_Spool.summary`.
+    Runs in a process of its own (:func:`_parallel_spool`); returns the part's
+    :meth:`_Spool.summary`.
     """
-    spool = _Spool(Path(folder))
-    handle, name = tempfile.mkstemp(dir=folder, suffix=".rows")
-    try:
-        with Ledger.open(ledger_path, readonly=True) as ledger, os.fdopen(handle, "w+b") as file:
-            spool.add(catalogue_rows(ledger, tuple(statuses), start=start, stop=stop), file)
-            spool.parts = []  # the file is the caller's now
-    except BaseException:
-        Path(name).unlink(missing_ok=True)
-        raise
-    return {"file": name, **spool.summary()}
+    spool = _Spool(Path(file).parent)
+    with Ledger.open(ledger_path, readonly=True) as ledger, open(file, "w+b") as out:
+        spool.add(catalogue_rows(ledger, tuple(statuses), start=start, stop=stop), out)
+        spool.parts = []  # the file is the caller's
+    return spool.summary()
 
 
 def _part_main() -> None:
@@ -712,13 +709,17 @@ def _parallel_spool(
     """
     edges = [round(i * n_stars / processes) for i in range(processes + 1)]
     children = []
+    files = []  # made here, so that they are removed whatever a child does
     for start, stop in zip(edges[1:-1], edges[2:], strict=True):
+        handle, name = tempfile.mkstemp(dir=folder, suffix=".rows")
+        os.close(handle)
+        files.append(name)
         request = {
             "ledger_path": str(ledger.path),
             "statuses": list(statuses),
             "start": start,
             "stop": stop,
-            "folder": str(folder),
+            "file": name,
         }
         # what a child says on stderr goes to a file: a full pipe would stall it
         errors = tempfile.TemporaryFile("w+", dir=folder, suffix=".log")
@@ -760,13 +761,12 @@ def _parallel_spool(
         for reply in replies:
             if "error" in reply:
                 raise PhasewiseError(reply["error"], file=str(ledger.path))
-        for reply in replies:
-            spool.absorb(reply.pop("file"), reply)
+        for name, reply in zip(files, replies, strict=True):
+            spool.absorb(name, reply)
     except BaseException:
         spool.close()
-        for reply in replies:
-            if "file" in reply:
-                Path(reply["file"]).unlink(missing_ok=True)
+        for name in files:
+            Path(name).unlink(missing_ok=True)
         raise
     return spool
 

@@ -170,3 +170,23 @@ def test_a_damaged_star_read_by_another_process_is_named(ledger_path, tmp_path, 
     ):
         export.write_catalogue(ledger, out / "v.ecsv", statuses=("unreviewed", "confirmed"))
     assert list(out.iterdir()) == []  # no catalogue, no spool or log left behind
+
+
+@pytest.mark.skipif(shutil.which("false") is None, reason="needs the 'false' command")
+def test_a_process_that_dies_is_reported_and_leaves_nothing(ledger_path, tmp_path, monkeypatch):
+    # a child that ends without its reply (killed, out of memory): the export says so
+    import sys
+
+    from phasewise.core import export
+    from phasewise.core.errors import PhasewiseError
+
+    monkeypatch.setattr(export, "_processes", lambda n: 2)
+    monkeypatch.setattr(sys, "executable", shutil.which("false"))  # ends at once, exit code 1
+    out = tmp_path / "out"
+    out.mkdir()
+    with (
+        Ledger.open(ledger_path, readonly=True) as ledger,
+        pytest.raises(PhasewiseError, match="ended with exit code 1"),
+    ):
+        export.write_catalogue(ledger, out / "v.ecsv", statuses=("unreviewed", "confirmed"))
+    assert list(out.iterdir()) == []
