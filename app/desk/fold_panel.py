@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import html
 from dataclasses import replace
 
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
+from PySide6.QtGui import QFont, QFontMetrics
 from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
@@ -68,6 +70,8 @@ class FoldView(pg.GraphicsLayoutWidget):
         self.resid.setLabel("left", "O − C (mag)")
         self.resid.setLabel("bottom", "Phase (0 = maximum light)")
         self.fold.hideAxis("bottom")
+        self._title_font = QFont()
+        self._title_font.setPointSizeF(9)
         self.fold.setTitle(title, size="9pt")
         # a long title must not widen the plot beyond its view (it is clipped instead):
         # the label keeps a fixed height and stops asking for its text's width
@@ -129,7 +133,19 @@ class FoldView(pg.GraphicsLayoutWidget):
         return None if self.model is None or self.model.order is None else self.model
 
     def _set_title(self, text: str) -> None:
-        self.fold.setTitle(text, size="9pt")
+        """Show ``text`` above the fold, cut with "…" where the view is too narrow
+        (the whole text stays in the tooltip)."""
+        self._title_text = text
+        self.fold.titleLabel.setToolTip(text)
+        width = max(0, int(self.fold.vb.width()) - 4)
+        metrics = QFontMetrics(self._title_font)
+        shown = metrics.elidedText(text, Qt.TextElideMode.ElideRight, width) if width else text
+        self.fold.setTitle(html.escape(shown), size="9pt")
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 (Qt's name)
+        super().resizeEvent(event)
+        if getattr(self, "_title_text", None):
+            self._set_title(self._title_text)
 
     def set_star(
         self, lc, band: str | None, settings=None, eclipsing: bool = False, result=None

@@ -43,3 +43,5 @@ def default_sizes(window) -> None:
     if short > 0:  # a small screen: the sheet gives up its share first (down to its minimum)
         sheet = max(window.sheet.minimumSizeHint().width(), sheet - short)
     splitter.setSizes([listed, width - listed - sheet, sheet])
+    centre = width - listed - sheet
+    window.top_splitter.setSizes([centre // 2, centre - centre // 2])

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QRectF, Signal
+from PySide6.QtCore import QRectF, Qt, Signal
 from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
 
-from .plots import SymbolPoints, full_range, make_plot, points_in_polygon, set_labels
+from .plots import Heading, SymbolPoints, full_range, make_plot, points_in_polygon, set_labels
 from .style import EXCLUDED_COLOUR, band_style
 
 __all__ = ["LightCurvePanel"]
@@ -33,12 +33,18 @@ class LightCurvePanel(QWidget):
         self.plot = make_plot(select=True)
         self.vb = self.plot.getPlotItem().getViewBox()
         self.vb.invertY(True)
-        self.legend = self.plot.getPlotItem().addLegend(
-            offset=(-10, 10),
-            labelTextSize="9pt",
-            brush=pg.mkBrush(255, 255, 255, 210),
-            pen=pg.mkPen("#bbbbbb"),
-        )
+        # the legend is one row above the view, never over the points it describes
+        item = self.plot.getPlotItem()
+        self.legend = pg.LegendItem(labelTextSize="9pt", colCount=1, verSpacing=-6, horSpacing=6)
+        item.layout.removeItem(item.titleLabel)  # this plot has no title
+        item.titleLabel.setVisible(False)
+        item.layout.addItem(self.legend, 0, 1)
+        item.layout.setAlignment(self.legend, Qt.AlignmentFlag.AlignLeft)
+        item.layout.setRowFixedHeight(0, 20)
+        self.legend.setMaximumHeight(20)
+        # a narrow panel clips the legend's row rather than widening the plot past its view
+        self.legend.setMinimumWidth(0)
+        self.legend.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
         self.scatter = []
         self.errors = []
         for i in range(MAX_BANDS):
@@ -69,10 +75,7 @@ class LightCurvePanel(QWidget):
         self.info = QLabel()
         self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         bar = QHBoxLayout()
-        heading = QLabel("<b>Light curve</b>")
-        # clipped, not a minimum width: at 1280 px the star list's key columns come first
-        heading.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
-        heading.setMinimumWidth(0)
+        heading = Heading("Light curve")
         bar.addWidget(heading, 1)
         bar.addWidget(self.select_box)
         bar.addWidget(self.lasso_box)
@@ -141,7 +144,8 @@ class LightCurvePanel(QWidget):
                 e.setVisible(False)
         bad = ~good & np.isfinite(x) & np.isfinite(lc.mag)
         self.excluded.setData(x[bad], lc.mag[bad])
-        entries.append((self.excluded, f"excluded ({int(bad.sum())})"))
+        if bad.any():  # the line below the plot counts them too; no room wasted on "(0)"
+            entries.append((self.excluded, f"excluded ({int(bad.sum())})"))
         self._set_legend(entries)
         set_labels(self.plot, f"Time − {self.t0:.0f} ({lc.time_scale}, d)", "Magnitude (mag)")
         self.info.setText(f"{lc.n_good} of {lc.n_points} points · {lc.baseline:.0f} d")
@@ -160,6 +164,7 @@ class LightCurvePanel(QWidget):
                     label.setText(text)
             return
         self.legend.clear()
+        self.legend.setColumnCount(max(1, len(entries)))  # one row, no empty columns
         for item, text in entries:
             self.legend.addItem(item, text)
 

@@ -105,6 +105,8 @@ class MainWindow(QMainWindow):
         self.top_splitter = QSplitter(Qt.Orientation.Horizontal)
         self.top_splitter.addWidget(self.lightcurve)
         self.top_splitter.addWidget(self.periodogram)
+        for index in (0, 1):  # the light curve and the periodogram share the row evenly
+            self.top_splitter.setStretchFactor(index, 1)
         self.centre_splitter = QSplitter(Qt.Orientation.Vertical)
         self.centre_splitter.addWidget(self.top_splitter)
         self.centre_splitter.addWidget(self.fold)

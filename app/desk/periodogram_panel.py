@@ -18,7 +18,7 @@ from PySide6.QtWidgets import (
 
 from phasewise.core.folding import snap_to_peak
 
-from .plots import make_plot, set_labels
+from .plots import Heading, make_plot, set_labels
 from .style import MARKER_COLOUR, fmt_period
 
 __all__ = ["PeriodogramPanel", "PeriodogramFeed", "METHODS"]
@@ -103,12 +103,16 @@ class PeriodogramPanel(QWidget):
         self.method_box.setSizeAdjustPolicy(
             QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
         )
-        self.method_box.setMinimumContentsLength(7)
+        self.method_box.setMinimumContentsLength(5)
         self.method_box.setToolTip("Periodogram method (recomputed in the background)")
         for key, text in METHODS:
             self.method_box.addItem(text, key)
         self.axis_box = QComboBox()
         self.axis_box.addItems(["Frequency", "Period"])
+        self.axis_box.setSizeAdjustPolicy(
+            QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
+        )
+        self.axis_box.setMinimumContentsLength(5)
         self.axis_box.setToolTip("Power against frequency or period (F)")
         self.log_box = QCheckBox("Log")
         self.log_box.setToolTip("Logarithmic frequency/period axis")
@@ -124,10 +128,7 @@ class PeriodogramPanel(QWidget):
         self.candidate_list.setWordWrap(True)
         self.candidate_list.setTextFormat(Qt.TextFormat.RichText)
         bar = QHBoxLayout()
-        heading = QLabel("<b>Periodogram</b>")
-        # clipped, not a minimum width: at 1280 px the star list's key columns come first
-        heading.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
-        heading.setMinimumWidth(0)
+        heading = Heading("Periodogram")
         bar.addWidget(heading, 1)
         bar.addWidget(self.method_box)
         bar.addWidget(self.axis_box)

@@ -8,7 +8,7 @@ from pyqtgraph import functions as fn
 from pyqtgraph.graphicsItems.ScatterPlotItem import renderSymbol
 from PySide6.QtCore import QRectF, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QPainter, QPen, QPixmap, QTransform
-from PySide6.QtWidgets import QGraphicsRectItem
+from PySide6.QtWidgets import QGraphicsRectItem, QLabel, QSizePolicy
 
 __all__ = [
     "SelectViewBox",
@@ -298,3 +298,21 @@ def set_labels(plot: pg.PlotWidget, bottom: str, left: str) -> None:
     item = plot.getPlotItem()
     item.setLabel("bottom", bottom)
     item.setLabel("left", left)
+
+
+class Heading(QLabel):
+    """A panel's bold heading that gives way to the panel's controls.
+
+    It asks for no width; when it cannot be shown whole it is not drawn at
+    all (a clipped "Periodog" or a lone "l" reads as a glitch).
+    """
+
+    def __init__(self, text: str, parent=None) -> None:
+        super().__init__(f"<b>{text}</b>", parent)
+        self.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.setMinimumWidth(0)
+        self.setToolTip(text)
+
+    def paintEvent(self, event) -> None:  # noqa: N802 (Qt's name)
+        if self.width() >= super().sizeHint().width():
+            super().paintEvent(event)

@@ -8,6 +8,7 @@ import itertools
 import numpy as np
 import pytest
 from PySide6.QtCore import QSettings
+from PySide6.QtGui import QFontMetrics
 
 from phasewise.app.desk import MainWindow
 from phasewise.app.desk.star_list import FIELDS, ID_SAMPLE, VISUAL_ORDER
@@ -89,5 +90,28 @@ def test_star_list_shows_long_ids_and_the_key_columns(qtbot, tmp_path, subset_co
         assert [header.logicalIndex(v) for v in range(len(VISUAL_ORDER))] == [
             FIELDS.index(f) for f in VISUAL_ORDER
         ]
+        _check_plots_readable(window, qtbot)
     finally:
         dispose(window)
+
+
+def _check_plots_readable(window, qtbot) -> None:
+    """At this size nothing is drawn over the points, and no title is cut mid-word."""
+    assert window.wait_idle()
+    qtbot.wait(50)
+    # the light curve and the periodogram share their row (neither squeezed to a sliver)
+    left, right = window.top_splitter.sizes()
+    assert min(left, right) >= 0.35 * (left + right)
+    # the light curve's legend is a row above the view, never over the points
+    panel = window.lightcurve
+    assert panel.legend.items, "no legend entries"
+    view = panel.vb.sceneBoundingRect()
+    assert not panel.legend.sceneBoundingRect().intersects(view)
+    # fold titles: shown whole, or cut with an ellipsis inside the view; whole in the tooltip
+    for fold in (window.fold.main, window.fold.alt):
+        text = fold._title_text
+        assert text and fold.fold.titleLabel.toolTip() == text
+        shown = fold.fold.titleLabel.text
+        assert shown == text or shown.endswith("…")
+        width = QFontMetrics(fold._title_font).horizontalAdvance(shown)
+        assert width <= fold.fold.vb.width()
