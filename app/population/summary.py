@@ -147,23 +147,23 @@ def _render(state: dg.FieldState, outliers: Sequence[dg.OutlierFlag], rule: dg.O
     if summary.distances:
         parts.append(
             '<table cellspacing="0" cellpadding="1"><tr><th align=left>class</th>'
-            "<th>N</th><th>μ₀ [mag]</th><th>d [kpc]</th></tr>"
+            "<th>μ₀ [mag]</th><th>d [kpc]</th></tr>"
         )
         for row in summary.distances:
             used = f"{row.n_used}" if row.n_used == row.n_stars else f"{row.n_used}/{row.n_stars}"
             parts.append(
-                f"<tr><td>{esc(row.class_code)}</td><td align=center>{used}"
-                f"</td><td>{_pm(row.mu0, row.mu0_err)}</td>"
-                f"<td>{_pm(row.distance_pc / 1000, row.distance_err_pc / 1000, '.2f')}"
+                f"<tr><td>{esc(row.class_code)}</td>"
+                f"<td nowrap>{_pm(row.mu0, row.mu0_err)}</td>"
+                f"<td nowrap>{_pm(row.distance_pc / 1000, row.distance_err_pc / 1000, '.2f')}"
                 "</td></tr>"
             )
-            details = [f"scatter {row.scatter:.3f} mag"]
+            details = [f"N = {used}", f"scatter {row.scatter:.3f} mag"]
             if state.relations.get(row.class_code):
                 details.append(state.relations[row.class_code])
             if row.outliers:
                 details.append("left out: " + ", ".join(row.outliers))
             parts.append(
-                f"<tr><td></td><td colspan=3><small>{esc('; '.join(details))}</small></td></tr>"
+                f"<tr><td></td><td colspan=2><small>{esc('; '.join(details))}</small></td></tr>"
             )
         parts.append("</table>")
         parts.append(
