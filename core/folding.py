@@ -21,6 +21,7 @@ __all__ = [
     "period_step",
     "snap_to_peak",
     "phase_grid_times",
+    "fap_power_levels",
     "power_at_fap",
     "FoldModel",
     "fold_model",
@@ -173,6 +174,29 @@ def power_at_fap(fap_of_power, fap: float, lo: float = 0.0, hi: float = 1.0, tol
         else:
             hi = mid
     return 0.5 * (lo + hi)
+
+
+def fap_power_levels(
+    periodogram, lc, settings, faps: tuple[float, ...] = (0.1, 0.01, 0.001)
+) -> tuple[tuple[float, float], ...]:
+    """``(fap, power)`` pairs: the power at which a peak's false-alarm
+    probability equals each of ``faps``, by the same rule the candidates'
+    FAPs use (GLS and multi-harmonic periodograms only; others give ``()``).
+    """
+    if periodogram.method not in ("gls", "mhgls"):
+        return ()
+    from .periodogram.candidates import _faps
+
+    def fap_of_power(power):
+        power = np.asarray(power, dtype=float)
+        return _faps(periodogram, lc, settings, np.zeros(len(power)), power)[0]
+
+    levels = []
+    for fap in faps:
+        level = power_at_fap(fap_of_power, fap)
+        if level is not None:
+            levels.append((fap, level))
+    return tuple(levels)
 
 
 @dataclass(frozen=True)

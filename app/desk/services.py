@@ -79,20 +79,9 @@ class CoreServices:
 
     def fap_levels(self, pgram, lc, pg_settings) -> tuple[tuple[float, float], ...]:
         """Power levels of FAP 0.1, 0.01 and 0.001 (GLS and multi-harmonic only)."""
-        if pgram.method not in ("gls", "mhgls"):
-            return ()
-        from phasewise.core.folding import power_at_fap
-        from phasewise.core.periodogram import candidates
+        from phasewise.core.folding import fap_power_levels
 
-        def fap_of_power(power):
-            return candidates._faps(pgram, lc, pg_settings, np.zeros(len(power)), power)[0]
-
-        levels = []
-        for fap in (0.1, 0.01, 0.001):
-            level = power_at_fap(fap_of_power, fap)
-            if level is not None:
-                levels.append((fap, level))
-        return tuple(levels)
+        return fap_power_levels(pgram, lc, pg_settings)
 
     def spectral_window(self, time, frequency) -> np.ndarray:
         from phasewise.core.periodogram import spectral_window
@@ -127,10 +116,9 @@ class CoreServices:
         For files whose columns were not recognised: the mapping dialog shows
         them so the person can say which column is which.
         """
-        from phasewise.core.io.readers import _open_table
+        from phasewise.core.io import raw_preview
 
-        table, _fmt = _open_table(Path(path), None, None)
-        return list(table.columns), table.preview(n)
+        return raw_preview(Path(path), n)
 
     def column_mapping(self, **roles):
         from phasewise.core.io import ColumnMapping

@@ -6,7 +6,14 @@ choosing columns, and :func:`write_stars` for writing a long table.
 """
 
 from .columns import ACCEPTED_NAMES, ColumnMapping, resolve_columns, time_scale_of_name
-from .readers import FORMATS, PhotometrySource, ReadReport, detect_format, open_photometry
+from .readers import (
+    FORMATS,
+    PhotometrySource,
+    ReadReport,
+    detect_format,
+    open_photometry,
+    raw_preview,
+)
 from .writers import write_stars
 
 __all__ = [
@@ -17,6 +24,7 @@ __all__ = [
     "ReadReport",
     "detect_format",
     "open_photometry",
+    "raw_preview",
     "resolve_columns",
     "time_scale_of_name",
     "write_stars",

@@ -1002,6 +1002,16 @@ def _too_large(path: Path, kind: str, size: int) -> None:
     )
 
 
+def raw_preview(path: Path, n: int = 20) -> tuple[list[str], list[dict[str, str]]]:
+    """Column names and the first ``n`` rows of a table, read with no column roles.
+
+    For a file whose columns were not recognised: the person is shown them
+    to say which column is which.
+    """
+    table, _fmt = _open_table(Path(path), None, None)
+    return list(table.columns), table.preview(n)
+
+
 def _open_table(path: Path, fmt: str | None, table):
     _check_regular(path)
     fmt = detect_format(path, fmt)

@@ -495,3 +495,14 @@ def test_abandoned_temporary_files_are_removed_by_the_next_write(tmp_path):
     os.utime(old, (hour_ago, hour_ago))
     assert remove_abandoned_temps(tmp_path / "vetted.ecsv", ".partial") == 1
     assert not old.exists() and fresh.exists()
+
+
+def test_raw_preview_shows_columns_no_role_was_found_for(tmp_path):
+    # the mapping dialog's view of a file whose columns are not recognised
+    from phasewise.core.io import raw_preview
+
+    path = tmp_path / "odd.csv"
+    path.write_text("when,howbright,spread\n2460000.1,15.2,0.02\n2460000.2,15.3,0.03\n")
+    columns, rows = raw_preview(path, n=1)
+    assert columns == ["when", "howbright", "spread"]
+    assert rows == [{"when": "2460000.1", "howbright": "15.2", "spread": "0.02"}]

@@ -215,3 +215,21 @@ def test_constant_curve_candidates_are_not_significant(method):
     pg = compute_periodogram(lc, PeriodogramSettings(method=method, fmax=3.0))
     cands = find_candidates(pg, lc)
     assert cands and all(c.fap == 1.0 and c.snr == 0.0 for c in cands)
+
+
+def test_fap_power_levels_match_astropy_false_alarm_level():
+    # Reference: astropy LombScargle.false_alarm_level(method="baluev") (Baluev 2008),
+    # the power a peak needs for a given false-alarm probability; the desk draws these.
+    from phasewise.core.folding import fap_power_levels
+
+    lc = _nightly_curve()
+    pg = compute_periodogram(lc, PeriodogramSettings(fmax=5.0))
+    levels = fap_power_levels(pg, lc, PeriodogramSettings(fmax=5.0))
+    assert [fap for fap, _ in levels] == [0.1, 0.01, 0.001]
+    t, y, e = lc.arrays()
+    ls = LombScargle(t, y, e)
+    for fap, power in levels:
+        expected = ls.false_alarm_level(fap, method="baluev", maximum_frequency=pg.frequency[-1])
+        # astropy's own fmax differs from ours by under a grid step
+        assert power == pytest.approx(float(expected), rel=1e-3)
+    assert [p for _, p in levels] == sorted(p for _, p in levels)  # rarer: higher
