@@ -26,6 +26,7 @@ Missing numbers are NaN (empty cells in the CSV); missing texts are empty.
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import io
 import json
@@ -710,29 +711,50 @@ def _parallel_spool(
     edges = [round(i * n_stars / processes) for i in range(processes + 1)]
     children = []
     files = []  # made here, so that they are removed whatever a child does
-    for start, stop in zip(edges[1:-1], edges[2:], strict=True):
-        handle, name = tempfile.mkstemp(dir=folder, suffix=".rows")
-        os.close(handle)
-        files.append(name)
-        request = {
-            "ledger_path": str(ledger.path),
-            "statuses": list(statuses),
-            "start": start,
-            "stop": stop,
-            "file": name,
-        }
-        # what a child says on stderr goes to a file: a full pipe would stall it
-        errors = tempfile.TemporaryFile("w+", dir=folder, suffix=".log")
-        child = subprocess.Popen(
-            [sys.executable, "-m", "phasewise.core.export"],
-            stdin=subprocess.PIPE,
-            stdout=subprocess.PIPE,
-            stderr=errors,
-            text=True,
-        )
-        child.stdin.write(json.dumps(request))
-        child.stdin.close()
-        children.append((child, errors))
+    try:
+        for start, stop in zip(edges[1:-1], edges[2:], strict=True):
+            handle, name = tempfile.mkstemp(dir=folder, suffix=".rows")
+            os.close(handle)
+            files.append(name)
+            request = {
+                "ledger_path": str(ledger.path),
+                "statuses": list(statuses),
+                "start": start,
+                "stop": stop,
+                "file": name,
+            }
+            # what a child says on stderr goes to a file: a full pipe would stall it
+            errors = tempfile.TemporaryFile("w+", dir=folder, suffix=".log")
+            try:
+                child = subprocess.Popen(
+                    [sys.executable, "-m", "phasewise.core.export"],
+                    stdin=subprocess.PIPE,
+                    stdout=subprocess.PIPE,
+                    stderr=errors,
+                    text=True,
+                )
+            except OSError as exc:
+                errors.close()
+                raise PhasewiseError(
+                    f"could not start a process to build catalogue rows: {exc}",
+                    file=str(ledger.path),
+                ) from None
+            children.append((child, errors))
+            try:
+                child.stdin.write(json.dumps(request))
+                child.stdin.close()
+            except BrokenPipeError:
+                # it ended before reading its request: its exit code is reported below
+                with contextlib.suppress(BrokenPipeError):
+                    child.stdin.close()
+    except BaseException:  # a child could not be started: none is left behind
+        for child, errors in children:
+            child.kill()
+            child.wait()
+            errors.close()
+        for name in files:
+            Path(name).unlink(missing_ok=True)
+        raise
     spool = _Spool(folder)
     replies: list[dict] = []
     try:

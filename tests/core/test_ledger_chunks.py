@@ -190,3 +190,23 @@ def test_a_process_that_dies_is_reported_and_leaves_nothing(ledger_path, tmp_pat
     ):
         export.write_catalogue(ledger, out / "v.ecsv", statuses=("unreviewed", "confirmed"))
     assert list(out.iterdir()) == []
+
+
+def test_a_process_that_cannot_start_is_reported_and_leaves_nothing(
+    ledger_path, tmp_path, monkeypatch
+):
+    import sys
+
+    from phasewise.core import export
+    from phasewise.core.errors import PhasewiseError
+
+    monkeypatch.setattr(export, "_processes", lambda n: 3)
+    monkeypatch.setattr(sys, "executable", str(tmp_path / "no-such-python"))
+    out = tmp_path / "out"
+    out.mkdir()
+    with (
+        Ledger.open(ledger_path, readonly=True) as ledger,
+        pytest.raises(PhasewiseError, match="could not start a process"),
+    ):
+        export.write_catalogue(ledger, out / "v.ecsv", statuses=("unreviewed", "confirmed"))
+    assert list(out.iterdir()) == []
