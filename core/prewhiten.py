@@ -387,9 +387,15 @@ def _near_mask(grid: np.ndarray, centres, tolerance: float) -> np.ndarray:
         return masked
     lo = np.maximum(np.searchsorted(grid, centres - tolerance) - 1, 0)
     hi = np.minimum(np.searchsorted(grid, centres + tolerance) + 1, grid.size)
-    for x, a, b in zip(centres, lo, hi, strict=True):
-        if a < b:
-            masked[a:b] |= np.abs(grid[a:b] - x) < tolerance
+    length = np.maximum(hi - lo, 0)
+    if not length.any():
+        return masked
+    # every run's indices at once: run k holds lo[k] .. hi[k] - 1
+    owner = np.repeat(np.arange(centres.size), length)
+    first = np.cumsum(length) - length
+    index = lo[owner] + np.arange(owner.size) - first[owner]
+    near = np.abs(grid[index] - centres[owner]) < tolerance
+    masked[index[near]] = True
     return masked
 
 
