@@ -369,6 +369,26 @@ def _top_peaks(grid, power, allowed, resolution, settings) -> list[float]:
     return chosen
 
 
+def _vertex(grid: np.ndarray, power: np.ndarray, peak: float) -> float:
+    """The vertex of the parabola through a grid peak and its two neighbours.
+
+    A start for the joint fit closer to the optimum than the grid point
+    (within half a step of it): the Newton iterations that follow converge
+    to the same frequency (to well below its standard error) in about one
+    evaluation fewer.  The grid point itself where a neighbour is missing
+    or the three powers do not bend down.
+    """
+    i = int(np.searchsorted(grid, peak))
+    if not (0 < i < grid.size - 1 and grid[i] == peak):
+        return peak
+    left, mid, right = power[i - 1], power[i], power[i + 1]
+    bend = left - 2.0 * mid + right
+    if not (np.isfinite(bend) and bend < 0):
+        return peak
+    offset = 0.5 * (left - right) / bend  # in grid steps
+    return float(peak + min(max(offset, -0.5), 0.5) * (grid[i + 1] - grid[i]))
+
+
 def _near_mask(grid: np.ndarray, centres, tolerance: float) -> np.ndarray:
     """``|grid - x| < tolerance`` for any ``x`` of ``centres``, as a boolean mask.
 
@@ -602,7 +622,8 @@ def prewhiten(
             stop = "no peak"
             break
         peaks = _top_peaks(grid, power, ~masked, resolution, settings)
-        trial_freqs = [*fit.frequencies, peaks[0]]
+        start = _vertex(grid, power, peaks[0]) if settings.refine else peaks[0]
+        trial_freqs = [*fit.frequencies, start]
         trial_orders = [*orders, 1]
         trial = multi_frequency_fit(
             t, m, e, trial_freqs, trial_orders, bidx, refine=settings.refine
