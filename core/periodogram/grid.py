@@ -87,6 +87,11 @@ def sampling_of(time: np.ndarray) -> Sampling:
     return found
 
 
+def clear_sampling_memo() -> None:
+    """Drop this thread's kept sampling results."""
+    _sampling_local.cache = OrderedDict()
+
+
 def sampling_step(time: np.ndarray) -> tuple[float, bool]:
     """``(step, regular)`` of :func:`sampling_of` as a plain tuple."""
     s = sampling_of(time)
