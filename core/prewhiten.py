@@ -589,6 +589,7 @@ def prewhiten(
         windows = candidate_windows(t, PeriodogramSettings())
     window_freqs = [w.frequency for w in windows]
     stop, last_snr, note, threshold = "limit", None, "", None
+    last_noise: tuple = (None, None, None)
     for step in range(1, settings.max_frequencies + 1):
         n_params = len(freqs) + len(band_names) * (1 + 2 * sum(orders))
         if t.size - n_params - 3 < 2 * len(band_names) + 1:
@@ -652,6 +653,7 @@ def prewhiten(
             stop, last_snr = "fap", float(snr)
             break
         fit, freqs, orders = trial, list(trial.frequencies), trial_orders
+        last_noise = (fit, f_found, noise)
         steps.append(step)
         alternatives.append(others)
         step_faps.append(fap)
@@ -664,9 +666,12 @@ def prewhiten(
     for j, fj in enumerate(final):
         amp = fit.term_amplitude(0, term)
         term += orders[j]
-        noise = _noise(
-            t[primary], fit.residuals[primary], sw[primary], fj, box, settings.noise_samples
-        )
+        if last_noise[0] is fit and last_noise[1] == fj:
+            noise = last_noise[2]  # the accepted step's own: same residuals, same box
+        else:
+            noise = _noise(
+                t[primary], fit.residuals[primary], sw[primary], fj, box, settings.noise_samples
+            )
         found.append(
             FoundFrequency(
                 frequency=fj,
