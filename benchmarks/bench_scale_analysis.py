@@ -152,13 +152,14 @@ def count_work(lc, settings: AnalysisSettings) -> dict[str, int]:
     eclipse_module = importlib.import_module("phasewise.core.periodogram.eclipse_search")
 
     counts = {"transforms": 0, "downdated": 0, "joint_fits": 0, "newton_evals": 0, "eclipse": 0}
-    saved = {
-        (gls, "trig_sums"): gls.trig_sums,
-        (gls, "_downdate"): gls._downdate,
-        (fourier, "multi_frequency_fit"): fourier.multi_frequency_fit,
-        (prewhiten, "multi_frequency_fit"): prewhiten.multi_frequency_fit,
-        (eclipse_module, "harmonic_screen"): eclipse_module.harmonic_screen,
-    }
+    places = [
+        (gls, "trig_sums"),
+        (gls, "_downdate"),  # absent from earlier versions
+        (fourier, "multi_frequency_fit"),
+        (prewhiten, "multi_frequency_fit"),
+        (eclipse_module, "harmonic_screen"),
+    ]
+    saved = {(m, name): getattr(m, name) for m, name in places if hasattr(m, name)}
 
     def counted(key, inner):
         def wrapper(*args, **kwargs):
