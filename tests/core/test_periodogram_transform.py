@@ -233,3 +233,21 @@ def test_only_a_subset_of_the_same_points_reuses_the_kept_sums():
     clear_weight_terms()
     gls_nufft(t, y, dy, None, grid=grid)
     assert gls_module._from_kept_sums(t[keep], y[keep], 1.0 / dy[keep] ** 2, grid) is not None
+
+
+def test_kept_sums_are_bounded(monkeypatch):
+    # over the byte budget only the newest search's sums stay (sums are kept
+    # for searches whose weight terms were computed, i.e. new points)
+    monkeypatch.setattr(gls_module, "KEPT_SUMS_BYTES", 1)
+    rng = np.random.default_rng(33)
+    grid = RegularGrid(0.01, 0.002, 1000)
+    clear_weight_terms()
+    times = [np.sort(rng.uniform(-50, 50, 100)) for _ in range(6)]
+    for t in times[:3]:
+        gls_nufft(t, np.sin(t), None, None, grid=grid)
+    assert len(gls_module._local.sums) == 1
+    assert np.array_equal(gls_module._local.sums[0].t, times[2])
+    monkeypatch.undo()
+    for t in times:
+        gls_nufft(t, np.cos(t), None, None, grid=grid)
+    assert len(gls_module._local.sums) == gls_module.KEPT_SUMS

@@ -50,7 +50,7 @@ def power_loop(f1, a, b, c, norm, out):
 
 
 #: Steps of the phase recurrence between exact evaluations in
-#: :func:`point_sums_loop` (its rounding grows with the steps: ~1e-12 here).
+#: :func:`downdate_loop` (its rounding grows with the steps: ~1e-12 here).
 ANCHOR_STEPS = 4096
 
 

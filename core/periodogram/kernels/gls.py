@@ -91,7 +91,10 @@ def gls_nufft(t, y, dy, frequency, settings=None, *, grid=None, n_threads=1):
     only; they are kept for the last few (times, weights, grid) seen in this
     thread (:func:`weight_terms`), so the residual searches of
     prewhitening, which keep the points and change only the magnitudes,
-    pay one transform each.
+    pay one transform each.  The three sums of the last few searches are
+    kept too: a search of the same points less a few (outliers set aside)
+    subtracts those points' terms instead of transforming again
+    (:func:`_from_kept_sums`).
     """
     if grid is None:
         return gls_exact(t, y, dy, frequency)
@@ -170,8 +173,16 @@ class _Sums(NamedTuple):
 
 
 #: Searches whose sums are kept per thread (the main search of each band
-#: of one star, and the trend step's).
+#: of one star, and the trend step's) ...
 KEPT_SUMS = 4
+#: ... and the most bytes they may hold together (72 bytes per frequency:
+#: four searches of the default ~232,000-frequency grid); the newest is
+#: always kept.
+KEPT_SUMS_BYTES = 80 * 2**20
+
+
+def _nbytes(sums: _Sums) -> int:
+    return sum(a.nbytes for a in (sums.t, sums.w, sums.y, *sums.sums, *sums.terms))
 
 
 def _grid_key(grid) -> tuple:
@@ -185,11 +196,13 @@ def _keep_sums(sums: _Sums) -> None:
     # copies: the caller's arrays may change after the search
     kept.insert(0, sums._replace(t=sums.t.copy(), w=sums.w.copy(), y=sums.y.copy()))
     del kept[KEPT_SUMS:]
+    while len(kept) > 1 and sum(_nbytes(k) for k in kept) > KEPT_SUMS_BYTES:
+        kept.pop()
 
 
 #: Most points a search may lose and still be computed from the last
 #: search's sums.  Each lost point costs one pass over the grid
-#: (:func:`_gls_loop.point_sums_loop`, ~1.2 ms per 232,000 frequencies),
+#: (:func:`_gls_loop.downdate_loop`, ~1.2 ms per 232,000 frequencies),
 #: a fresh search three transforms (~12 ms each for that grid from 700 to
 #: 50,000 points, the grid's FFT dominating), measured on the 2-core
 #: development machine: sixteen points cost about half a fresh search.
