@@ -32,7 +32,14 @@ import numpy as np
 from scipy import linalg
 
 from .errors import PhasewiseError
-from .fourier import FourierFit, FourierSettings, _basis, choose_order, fit_fourier
+from .fourier import (
+    FourierFit,
+    FourierSettings,
+    _basis,
+    _weighted_factor,
+    choose_order,
+    fit_fourier,
+)
 from .validation import finite_or_none, require_int, require_positive, require_range
 
 __all__ = ["EclipseSettings", "EclipseTest", "eclipse_test"]
@@ -281,8 +288,10 @@ def eclipse_test(
             f"{t.size} points cannot support a Fourier fit of order {order} at twice the period",
             field="order",
         )
-    q, r = np.linalg.qr(design * sw[:, None])
-    beta = linalg.solve_triangular(r, q.T @ (m * sw))
+    # R and Q^T y from one Householder QR of the design with y appended:
+    # Q (points x columns) is never formed (0.2 s at 50,000 points)
+    r, qy, _, _ = _weighted_factor(design.T, m, sw)
+    beta = linalg.solve_triangular(r, qy)
     resid = (m - design @ beta) * sw
     rinv = linalg.solve_triangular(r, np.eye(r.shape[0]))
     cov = rinv @ rinv.T * float(resid @ resid) / (t.size - beta.size)

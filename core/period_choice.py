@@ -715,7 +715,9 @@ def _trend_description(lc, option, frequency, orders, t_ref, t_scale, delta_bic)
         cols = [trend_cols]
         if frequency is not None:
             cols.append(_harmonic_columns(t, frequency, orders[band]))
-        _, coef = _wls(np.concatenate(cols, axis=1), m, e)
+        columns = np.concatenate(cols, axis=1)
+        # normal equations where well conditioned, else _wls (_SharedColumns.fit)
+        _, coef = _SharedColumns(columns, m, e).fit(np.arange(columns.shape[1]))
         coefficients[band] = [float(c) for c in coef[1 : 1 + trend_cols.shape[1]]]
     if kind == "polynomial":
         text = f"polynomial of degree {degree} in time"

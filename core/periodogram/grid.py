@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import threading
+from collections import OrderedDict
 from typing import NamedTuple
 
 import numpy as np
@@ -30,6 +32,14 @@ REGULAR_TOLERANCE = 0.1
 #: is refused as too large (peaks are still sampled twice per width 1/T).
 MIN_DEFAULT_OVERSAMPLING = 2.0
 
+#: Sampling results kept per thread, keyed by the times' values: one star's
+#: analysis asks for the same times' sampling about ten times (every grid,
+#: every residual search, the period choice's warning), and a sort of the
+#: times each time cost more than the key.
+SAMPLING_MEMO_ENTRIES = 8
+
+_sampling_local = threading.local()
+
 
 class Sampling(NamedTuple):
     """The typical sampling step (days) and whether the sampling is regular."""
@@ -53,13 +63,33 @@ def sampling_of(time: np.ndarray) -> Sampling:
     pseudo-Nyquist frequency 1/(2 step) about which peaks reflect; irregular
     sampling reaches above it (Eyer & Bartholdi 1999, from memory).
     """
-    t = np.unique(np.asarray(time, dtype=float))
+    time = np.ascontiguousarray(time, dtype=float)
+    key = time.tobytes()
+    cache: OrderedDict = getattr(_sampling_local, "cache", None)
+    if cache is None:
+        cache = _sampling_local.cache = OrderedDict()
+    known = cache.get(key)
+    if known is not None:
+        cache.move_to_end(key)
+        return known
+    t = np.unique(time)
     if t.size < 3:
-        return Sampling(float("nan"), False)
-    dt = np.diff(t)
-    median = float(np.median(dt))
-    regular = bool(np.mean(np.abs(dt - median) <= REGULAR_TOLERANCE * median) >= REGULAR_SHARE)
-    return Sampling(median if regular else float(np.percentile(dt, 5)), regular)
+        found = Sampling(float("nan"), False)
+    else:
+        dt = np.diff(t)
+        median = float(np.median(dt))
+        share = np.mean(np.abs(dt - median) <= REGULAR_TOLERANCE * median)
+        regular = bool(share >= REGULAR_SHARE)
+        found = Sampling(median if regular else float(np.percentile(dt, 5)), regular)
+    cache[key] = found
+    while len(cache) > SAMPLING_MEMO_ENTRIES:
+        cache.popitem(last=False)
+    return found
+
+
+def clear_sampling_memo() -> None:
+    """Drop this thread's kept sampling results."""
+    _sampling_local.cache = OrderedDict()
 
 
 def sampling_step(time: np.ndarray) -> tuple[float, bool]:

@@ -388,6 +388,18 @@ def test_irregular_sampling_keeps_the_physical_limit():
     assert grid_parameters(t, PeriodogramSettings()).fmax == pytest.approx(50.0, abs=0.01)
 
 
+def test_sampling_kept_by_value_follows_the_times():
+    # sampling_of keeps its answers per thread, keyed by the times' values:
+    # the same values give the same answer, changed values (same size) a new one
+    t = np.arange(0.0, 27.0, 1.0 / 48.0)
+    first = sampling_of(t)
+    assert sampling_of(t.copy()) == first
+    t[::3] += 0.004  # the same array object, changed in place: no longer regular
+    assert not sampling_of(t).regular
+    assert sampling_of(t) == sampling_of(np.array(t))
+    assert sampling_of(np.arange(0.0, 27.0, 1.0 / 48.0)) == first
+
+
 def test_long_irregular_series_coarsened_not_refused():
     # 20 years of random nights up to 50 c/d: 5 points per peak would need
     # 1.8 million frequencies; the default range samples peaks more coarsely

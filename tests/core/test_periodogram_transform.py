@@ -172,3 +172,82 @@ def test_plan_cache_is_bounded_by_grid_points(monkeypatch):
     assert kept == [416, 320]  # 1024 + 416 + 320 is over the budget: the oldest went
     trig_sums(t, c, 0.1, 0.01, 2000)  # one plan alone may exceed it
     assert [key[0] for key in nufft._local.plans] == [plan_size(2000)]
+
+
+@pytest.mark.parametrize("n_removed", [1, 3, 16])
+def test_a_search_less_a_few_points_equals_a_fresh_one(n_removed, monkeypatch):
+    # A search of the same points less a few (outliers set aside) is computed
+    # from the kept sums of the last search less those points' terms; it must
+    # give the power a fresh computation gives, and astropy's exact GLS
+    # (Zechmeister & Kuerster 2009; astropy method="slow") on a sample of it.
+    rng = np.random.default_rng(31)
+    t = np.sort(rng.uniform(-300.0, 300.0, 400))
+    dy = rng.uniform(0.01, 0.05, t.size)
+    y = 15.0 + 0.2 * np.sin(2 * np.pi * 1.37 * t) + rng.normal(0, 0.02, t.size)
+    y[[50, 200]] += 1.0  # outliers whose removal changes the mean and the spectrum
+    grid = RegularGrid(1.0 / 600.0, 1.0 / 3000.0, 40_000)  # wider than one anchor run
+    clear_weight_terms()
+    gls_nufft(t, y, dy, None, grid=grid)
+    keep = np.ones(t.size, bool)
+    if n_removed == 3:
+        keep[[50, 120, 200]] = False  # the outliers and one more
+    else:
+        keep[rng.choice(np.arange(1, t.size - 1), n_removed, replace=False)] = False
+    transforms = []
+    monkeypatch.setattr(gls_module, "trig_sums", lambda *a, **k: transforms.append(a))
+    downdated, _ = gls_nufft(t[keep], y[keep], dy[keep], None, grid=grid)
+    assert not transforms  # computed from the kept sums, no transform
+    monkeypatch.undo()
+    clear_weight_terms()
+    fresh, _ = gls_nufft(t[keep], y[keep], dy[keep], None, grid=grid)
+    assert np.max(np.abs(downdated - fresh)) < 1e-8
+    sample = np.arange(0, grid.n, 997)
+    ls = LombScargle(t[keep], y[keep], dy[keep], normalization="standard")
+    exact = ls.power(grid.frequencies()[sample], method="slow")
+    assert np.max(np.abs(downdated[sample] - exact)) < 1e-7
+
+
+def test_only_a_subset_of_the_same_points_reuses_the_kept_sums():
+    # a changed magnitude, a changed weight or too many points removed: a fresh search
+    rng = np.random.default_rng(32)
+    t = np.sort(rng.uniform(-100.0, 100.0, 200))
+    dy = np.full(t.size, 0.02)
+    y = np.sin(2 * np.pi * 0.8 * t) + rng.normal(0, 0.05, t.size)
+    grid = RegularGrid(0.005, 0.001, 5000)
+    keep = np.ones(t.size, bool)
+    keep[[10, 20]] = False
+    y2 = y.copy()
+    y2[30] += 0.1
+    dy2 = dy.copy()
+    dy2[40] = 0.03
+    many = np.ones(t.size, bool)
+    many[1 : 2 + gls_module.DOWNDATE_MAX_POINTS] = False
+    for tt, yy, ee in (
+        (t[keep], y2[keep], dy[keep]),
+        (t[keep], y[keep], dy2[keep]),
+        (t[many], y[many], dy[many]),
+    ):
+        clear_weight_terms()
+        gls_nufft(t, y, dy, None, grid=grid)
+        assert gls_module._from_kept_sums(tt, yy, 1.0 / ee**2, grid) is None
+    clear_weight_terms()
+    gls_nufft(t, y, dy, None, grid=grid)
+    assert gls_module._from_kept_sums(t[keep], y[keep], 1.0 / dy[keep] ** 2, grid) is not None
+
+
+def test_kept_sums_are_bounded(monkeypatch):
+    # over the byte budget only the newest search's sums stay (sums are kept
+    # for searches whose weight terms were computed, i.e. new points)
+    monkeypatch.setattr(gls_module, "KEPT_SUMS_BYTES", 1)
+    rng = np.random.default_rng(33)
+    grid = RegularGrid(0.01, 0.002, 1000)
+    clear_weight_terms()
+    times = [np.sort(rng.uniform(-50, 50, 100)) for _ in range(6)]
+    for t in times[:3]:
+        gls_nufft(t, np.sin(t), None, None, grid=grid)
+    assert len(gls_module._local.sums) == 1
+    assert np.array_equal(gls_module._local.sums[0].t, times[2])
+    monkeypatch.undo()
+    for t in times:
+        gls_nufft(t, np.cos(t), None, None, grid=grid)
+    assert len(gls_module._local.sums) == gls_module.KEPT_SUMS

@@ -333,3 +333,35 @@ def test_in_a_modulated_star_peaks_weaker_than_the_side_peaks_are_modulation():
     assert _modulation_residue([found("main", 0.4), found("independent", 0.03)])[1].kind == (
         "independent"
     )
+
+
+def test_joint_fit_started_at_the_peak_vertex_reaches_the_same_frequency():
+    # the residual peak's parabola vertex (a better start, common practice, no
+    # source) lies within half a grid step, nearer the injected frequency, and
+    # the joint fit from it converges where the fit from the grid point does
+    from phasewise.core.fourier import multi_frequency_fit
+    from phasewise.core.prewhiten import _vertex
+
+    rng = np.random.default_rng(41)
+    t = np.sort(rng.uniform(0.0, 80.0, 600))
+    e = np.full(t.size, 0.01)
+    f_true = 2.34567
+    y = 0.1 * np.sin(2 * np.pi * f_true * t + 0.3) + rng.normal(0, 0.01, t.size)
+    grid = 2.0 + np.arange(4000) / (3 * 80.0)  # three samples per peak width
+    from phasewise.core.periodogram.kernels.gls import gls_exact
+
+    power, _ = gls_exact(t, y, e, grid)
+    peak = float(grid[np.argmax(power)])
+    start = _vertex(grid, power, peak)
+    step = grid[1] - grid[0]
+    assert abs(start - peak) <= 0.5 * step
+    assert abs(start - f_true) < abs(peak - f_true)
+    bands = np.zeros(t.size, int)
+    from_grid = multi_frequency_fit(t, y, e, [peak], [1], bands)
+    from_vertex = multi_frequency_fit(t, y, e, [start], [1], bands)
+    assert from_vertex.nfev <= from_grid.nfev
+    err = from_grid.frequencies_err[0]
+    assert abs(from_vertex.frequencies[0] - from_grid.frequencies[0]) < 1e-3 * err
+    # no neighbour on one side, or no downward bend: the grid point itself
+    assert _vertex(grid, power, float(grid[0])) == float(grid[0])
+    assert _vertex(grid, np.ones(grid.size), float(grid[5])) == float(grid[5])

@@ -14,6 +14,7 @@ numpy's rules (``error_model="numpy"``: x/0 gives inf or nan, no exception).
 from __future__ import annotations
 
 import numba
+import numpy as np
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
@@ -46,3 +47,63 @@ def power_loop(f1, a, b, c, norm, out):
         yc = f1[j].real
         ys = f1[j].imag
         out[j] = (a[j] * yc * yc + b[j] * ys * ys + c[j] * yc * ys) * scale
+
+
+#: Steps of the phase recurrence between exact evaluations in
+#: :func:`downdate_loop` (its rounding grows with the steps: ~1e-12 here).
+ANCHOR_STEPS = 4096
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def downdate_loop(
+    t, cw, cy, fmin, df, ratio, shift, old_w, old_2w, old_y, new_w, new_2w, new_y, a, b, c
+):
+    """The three sums of a search less a few points, and their weight terms.
+
+    ``old_*`` and ``new_*`` are complex: the sums of ``w`` at f (``_w``), of
+    ``w`` at 2f (``_2w``) and of the centred ``w y`` at f (``_y``), with
+    normalised weights.  The
+    points ``t`` (strengths ``cw``, ``cy`` on the old normalisation and
+    mean) are removed by direct sums on the grid ``fmin + j df``; the rest
+    is renormalised by ``ratio`` (old over new sum of weights) and the
+    magnitudes re-centred by ``shift`` (new mean less old).  Each point's
+    phase factor is advanced by one multiplication per frequency and
+    evaluated exactly every :data:`ANCHOR_STEPS` frequencies; the points
+    are the inner loop, so each output is written once.  ``a, b, c`` as
+    :func:`weight_terms_loop` writes them.
+    """
+    n = old_w.size
+    k = t.size
+    two_pi = 2.0 * np.pi
+    step = np.empty(k, dtype=np.complex128)
+    z = np.empty(k, dtype=np.complex128)
+    for i in range(k):
+        step[i] = complex(np.cos(two_pi * df * t[i]), np.sin(two_pi * df * t[i]))
+    for j in range(n):
+        if j % ANCHOR_STEPS == 0:
+            for i in range(k):
+                phase = two_pi * (fmin + j * df) * t[i]
+                z[i] = complex(np.cos(phase), np.sin(phase))
+        sw = complex(0.0, 0.0)
+        s2 = complex(0.0, 0.0)
+        sy = complex(0.0, 0.0)
+        for i in range(k):
+            zi = z[i]
+            sw += cw[i] * zi
+            s2 += cw[i] * (zi * zi)
+            sy += cy[i] * zi
+            z[i] = zi * step[i]
+        fw = (old_w[j] - sw) * ratio
+        f2 = (old_2w[j] - s2) * ratio
+        new_w[j] = fw
+        new_2w[j] = f2
+        new_y[j] = (old_y[j] - sy) * ratio - shift * fw
+        cwr = fw.real
+        swr = fw.imag
+        cc = 0.5 * (1.0 + f2.real) - cwr * cwr
+        ss = 0.5 * (1.0 - f2.real) - swr * swr
+        cs = 0.5 * f2.imag - cwr * swr
+        inv = 1.0 / (cc * ss - cs * cs)
+        a[j] = ss * inv
+        b[j] = cc * inv
+        c[j] = -2.0 * cs * inv
