@@ -79,6 +79,7 @@ __all__ = [
     "Verdict",
     "StarRow",
     "PointRow",
+    "PointChunk",
     "HistoryEntry",
     "Action",
     "Change",
@@ -248,6 +249,27 @@ class PointRow(NamedTuple):
     analysed: bool  # a result is stored and it did not fail
     result_point: dict[str, Any] | None  # core.diagrams.result_point_record of the result
     final_point: dict[str, Any] | None  # core.diagrams.final_point_record of the final numbers
+
+
+class PointChunk(NamedTuple):
+    """Parallel columns of a chunk of stars (``Ledger.point_columns``)."""
+
+    star_ids: list[str]
+    status: list[str]
+    class_code: list[str | None]
+    has_period: np.ndarray  # the person chose a period
+    has_final: np.ndarray  # the verdict has final numbers stored
+    analysed: np.ndarray  # a result is stored and it did not fail
+    has_result_point: np.ndarray  # a diagram record of the result is stored
+    has_final_point: np.ndarray  # a diagram record of the final numbers is stored
+    result_plain: np.ndarray  # that record is plain JSON (its fields were read)
+    final_plain: np.ndarray
+    result_numbers: np.ndarray  # (stars, paths), NaN where missing
+    final_numbers: np.ndarray
+    result_texts: list[list[str | None]]  # one list per text path
+    final_texts: list[list[str | None]]
+    bands: tuple[str, ...] = ()  # bands of the band objects' numbers, in order
+    new_bands: bool = False  # a record has a band not in ``bands`` (read again)
 
 
 @dataclass(frozen=True)
@@ -1849,6 +1871,220 @@ class Ledger:
                     records[2 * k],
                     records[2 * k + 1],
                 )
+
+    def point_columns(
+        self,
+        result_numbers: Sequence[str],
+        final_numbers: Sequence[str],
+        result_texts: Sequence[str] = (),
+        final_texts: Sequence[str] = (),
+        *,
+        band_maps: Sequence[str] = (),
+        chunk: int = 5000,
+    ) -> Iterator[PointChunk]:
+        """Every star's verdict and chosen fields of its diagram records, as columns.
+
+        The fields are JSON paths (``"$.period"``) into the records of the
+        result (``core.diagrams.result_point_record``) and of the verdict's
+        final numbers (``final_point_record``); ``band_maps`` names objects of
+        both records keyed by band (``"amplitude_by_band"``), whose numbers
+        come after the others, band by band (``PointChunk.bands``).  SQLite's
+        JSON functions pick the numbers out in C as the text Python wrote, and
+        each chunk's are decoded by one JSON call: no Python object is made
+        per record.  A missing or null field is NaN (numbers) or None (texts).
+        A record that is not plain JSON (a NaN written by Python, or damage)
+        comes back with ``*_plain`` False and its fields missing: read that
+        star in full.  ``chunk`` stars are read per query.  Raises ValueError
+        for a band name a JSON path cannot hold (with ``"`` or ``\\``).
+        """
+        bands: list[str] = []
+        last = 0  # star keys are SQLite rowids, from 1
+        while True:
+            paths = [f'$.{m}."{b}"' for m in band_maps for b in bands]
+            rows = self._point_chunk(
+                (*result_numbers, *paths),
+                (*final_numbers, *paths),
+                result_texts,
+                final_texts,
+                band_maps,
+                bands,
+                last,
+                chunk,
+            )
+            if not rows:
+                return
+            columns = self._point_chunk_columns(
+                rows,
+                len(result_numbers) + len(paths),
+                len(final_numbers) + len(paths),
+                len(result_texts),
+                len(final_texts),
+                tuple(bands),
+            )
+            if columns.new_bands:
+                # a band none of the chunks before had: find this chunk's and read it again
+                found = self._point_bands(band_maps, last, rows[-1][0])
+                if found <= set(bands) or any('"' in b or "\\" in b for b in found):
+                    raise ValueError(f"band names a JSON path cannot hold: {sorted(found)!r}")
+                bands = sorted(set(bands) | set(found))
+                continue
+            last = rows[-1][0]
+            yield columns
+
+    def _point_bands(self, maps: Sequence[str], after: int, upto: int) -> set[str]:
+        """Keys of the named objects of the diagram records of stars ``after < key <= upto``."""
+        found: set[str] = set()
+        for column in ("result_point", "final_point"):
+            for name in maps:
+                found.update(
+                    str(row[0])
+                    for row in self._query(
+                        f"SELECT DISTINCT j.key FROM points p, json_each(p.{column}, ?) j "
+                        f"WHERE p.star > ? AND p.star <= ? AND json_valid(p.{column})",
+                        (f"$.{name}", after, upto),
+                    ).fetchall()
+                )
+        return found
+
+    def _point_chunk(
+        self,
+        result_numbers: Sequence[str],
+        final_numbers: Sequence[str],
+        result_texts: Sequence[str],
+        final_texts: Sequence[str],
+        band_maps: Sequence[str],
+        bands: Sequence[str],
+        after: int,
+        chunk: int,
+    ) -> list[tuple[Any, ...]]:
+        """The rows of one chunk of :meth:`point_columns`: ``(key, flags, numbers
+        of the result, of the final numbers, texts)``, the last three as the
+        comma-separated JSON values of each.  Records that are not plain JSON
+        are looked for only when SQLite finds one (then a second query)."""
+        remove = "".join(", ?" for _ in bands)
+        band_params = [p for name in band_maps for p in (f"$.{name}", *(f'$."{b}"' for b in bands))]
+        texts = [
+            *("p.result_point ->> ?" for _ in result_texts),
+            *("p.final_point ->> ?" for _ in final_texts),
+        ]
+        for guarded in (False, True):
+
+            def plain(column: str, expression: str, guarded: bool = guarded) -> str:
+                return (
+                    f"CASE WHEN json_valid(p.{column}) THEN {expression} END"
+                    if guarded
+                    else expression
+                )
+
+            def unknown_bands(column: str) -> str:
+                # the band objects less the known bands: anything left is a new band
+                tests = [
+                    f"COALESCE(json_remove(p.{column} -> ?{remove}), '{{}}') <> '{{}}'"
+                    for _ in band_maps
+                ]
+                return plain(column, "(" + (" OR ".join(tests) or "0") + ")")
+
+            def numbers(column: str, paths: Sequence[str]) -> str:
+                extract = f"json_extract(p.{column}, {', '.join('?' * len(paths))})"
+                return f"CAST(trim({plain(column, extract)}, '[]') AS BLOB)"
+
+            text_array = ", ".join(
+                [
+                    "s.star_id",
+                    "v.status",
+                    "v.class_code",
+                    *(plain("result_point", t) for t in texts[: len(result_texts)]),
+                    *(plain("final_point", t) for t in texts[len(result_texts) :]),
+                ]
+            )
+            flags = " | ".join(
+                f"(({test}) << {bit})"
+                for bit, test in enumerate(
+                    (
+                        "v.period IS NOT NULL",
+                        "f.star IS NOT NULL",
+                        "r.star IS NOT NULL AND NOT r.failed",
+                        "p.result_point IS NOT NULL",
+                        "p.final_point IS NOT NULL",
+                        "json_valid(p.result_point)" if guarded else "1",
+                        "json_valid(p.final_point)" if guarded else "1",
+                        f"COALESCE({unknown_bands('result_point')}, 0) OR "
+                        f"COALESCE({unknown_bands('final_point')}, 0)",
+                    )
+                )
+            )
+            sql = (
+                f"SELECT s.id, {flags}, {numbers('result_point', result_numbers)}, "
+                f"{numbers('final_point', final_numbers)}, "
+                f"CAST(trim(json_array({text_array}), '[]') AS BLOB) "
+                "FROM stars s JOIN verdicts v ON v.star = s.id "
+                "LEFT JOIN results r ON r.star = s.id LEFT JOIN finals f ON f.star = s.id "
+                "LEFT JOIN points p ON p.star = s.id WHERE s.id > ? ORDER BY s.id LIMIT ?"
+            )
+            params = (
+                *band_params,
+                *band_params,
+                *result_numbers,
+                *final_numbers,
+                *result_texts,
+                *final_texts,
+                after,
+                int(chunk),
+            )
+            with self._mutex:
+                if self._conn is None:
+                    raise LedgerError("the ledger is closed", file=self.path)
+                try:
+                    return self._conn.execute(sql, params).fetchall()
+                except sqlite3.OperationalError as exc:
+                    if guarded or "malformed json" not in str(exc).lower():
+                        raise _write_error(exc, self.path) from None
+                except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
+                    raise _damaged_file(exc, self.path) from None
+        raise AssertionError("unreachable")  # pragma: no cover
+
+    @staticmethod
+    def _point_chunk_columns(
+        rows: list[tuple[Any, ...]],
+        n_result: int,
+        n_final: int,
+        n_result_texts: int,
+        n_final_texts: int,
+        bands: tuple[str, ...],
+    ) -> PointChunk:
+        keys, flags, result, final, texts = zip(*rows, strict=True)
+        flags = np.array(flags, dtype=np.int64)
+
+        def flag(bit: int) -> np.ndarray:
+            return (flags >> bit & 1).astype(bool)
+
+        def numbers(values: Sequence[bytes | None], width: int) -> np.ndarray:
+            empty = b",".join([b"null"] * width)
+            # one JSON call for the chunk's records, no list per record; null -> NaN
+            flat = json.loads(b"[" + b",".join(v or empty for v in values) + b"]")
+            return np.array(flat, dtype=float).reshape(len(rows), width)
+
+        n_texts = 3 + n_result_texts + n_final_texts
+        flat = json.loads(b"[" + b",".join(texts) + b"]")
+        columns = [flat[k::n_texts] for k in range(n_texts)]
+        return PointChunk(
+            star_ids=columns[0],
+            status=columns[1],
+            class_code=columns[2],
+            has_period=flag(0),
+            has_final=flag(1),
+            analysed=flag(2),
+            has_result_point=flag(3),
+            has_final_point=flag(4),
+            result_plain=flag(5),
+            final_plain=flag(6),
+            result_numbers=numbers(result, n_result),
+            final_numbers=numbers(final, n_final),
+            result_texts=columns[3 : 3 + n_result_texts],
+            final_texts=columns[3 + n_result_texts :],
+            bands=bands,
+            new_bands=bool(np.any(flag(7))),
+        )
 
     def star_row(self, star_id: str) -> StarRow:
         """One star's list line (to refresh a row after a change)."""
