@@ -680,7 +680,7 @@ def point_table(ledger: Any, progress: Callable[[int, int], Any] | None = None) 
     missing or not plain JSON) is read in full, as :func:`star_point` does.
     A failed or missing analysis gives a row without coordinates.
     """
-    total = getattr(ledger, "n_stars", 0)
+    total = ledger.n_stars
     chunks = []
     try:
         for chunk in ledger.point_columns(

@@ -161,6 +161,11 @@ def _dumps(value: Any) -> str:
     return json.dumps(_plain(value), separators=(",", ":"), allow_nan=True)
 
 
+def _dumps_plain(value: Any) -> str:
+    """:func:`_dumps` of data that is plain JSON already (decoded from JSON): the same text."""
+    return json.dumps(value, separators=(",", ":"), allow_nan=True)
+
+
 def _loads(text: str | None) -> Any:
     return None if text is None else json.loads(text)
 
@@ -1077,6 +1082,10 @@ class Ledger:
             raise LedgerError(f"no star {star_id!r} in this ledger", file=self.path) from None
 
     def _new_action(self, kind: str, label: str, target: int | None = None) -> int:
+        return self._new_action_at(kind, label, target)[0]
+
+    def _new_action_at(self, kind: str, label: str, target: int | None = None) -> tuple[int, str]:
+        """Append an action; returns its id and time."""
         state = "done" if kind == "do" else None
         if kind == "do":
             # a new action makes every undone action unreachable for redo
@@ -1087,7 +1096,7 @@ class Ledger:
             "INSERT INTO actions(kind, label, at, target, state, seal) VALUES (?, ?, ?, ?, ?, ?)",
             (*values, _seal(*values)),
         )
-        return int(cursor.lastrowid)
+        return int(cursor.lastrowid), values[2]
 
     def _set_action_state(self, action_id: int, state: str) -> None:
         kind, label, at, target = self._query(
@@ -1099,12 +1108,19 @@ class Ledger:
         )
 
     def _log(self, action: int, star_id: str | None, what: str, old: Any, new: Any) -> None:
-        values = (action, _now(), star_id, what, _dumps(old), _dumps(new))
-        self._query(
+        self._log_texts(action, star_id, what, _dumps(old), _dumps(new))
+
+    def _log_texts(
+        self, action: int, star_id: str | None, what: str, old: str | None, new: str | None
+    ) -> tuple[int, str]:
+        """Append a history row of values already in JSON; returns its id and time."""
+        values = (action, _now(), star_id, what, old, new)
+        cursor = self._query(
             "INSERT INTO history(action, at, star_id, what, old, new, seal) "
             "VALUES (?, ?, ?, ?, ?, ?, ?)",
             (*values, _seal(*values)),
         )
+        return int(cursor.lastrowid), values[1]
 
     def _account(self, table: str, key: int, old: bytes | None, new: bytes | None) -> None:
         """Keep the content sum up to date when a record's seal changes."""
@@ -1649,6 +1665,22 @@ class Ledger:
             out.append(Verdict(star_id, status, class_code, period, note, decided_at, _loads(text)))
         return out
 
+    def _verdict_seal(self, key: int, star_id: str) -> bytes:
+        """The seal of a star's verdict record, checked (as :meth:`verdict` checks it)."""
+        row = self._query(
+            "SELECT v.status, v.class_code, v.period, v.note, v.decided_at, v.seal, f.codec, "
+            "f.data FROM verdicts v LEFT JOIN finals f ON f.star = v.star WHERE v.star = ?",
+            (key,),
+        ).fetchone()
+        status, class_code, period, note, decided_at, seal, codec, data = row
+        try:
+            text = None if data is None else self._codec.unpack(codec, data)
+        except ValueError:
+            raise self._damaged(star_id, "verdict") from None
+        if _seal(key, status, class_code, period, note, decided_at, text) != seal:
+            raise self._damaged(star_id, "verdict")
+        return seal
+
     def set_verdict(
         self,
         star_id: str,
@@ -1764,14 +1796,21 @@ class Ledger:
         return Verdict(star_id, status, class_code, period, note or None, decided_at, final)
 
     def _apply_verdict(
-        self, verdict: Verdict, *, key: int | None = None, new: bool = False
+        self,
+        verdict: Verdict,
+        *,
+        key: int | None = None,
+        new: bool = False,
+        plain: bool = False,
+        old_seal: bytes | None = None,
     ) -> None:
         key = self._key(verdict.star_id) if key is None else key
-        text = None if verdict.final is None else _dumps(verdict.final)
+        dumps = _dumps_plain if plain else _dumps
+        text = None if verdict.final is None else dumps(verdict.final)
         values = (verdict.status, verdict.class_code, verdict.period, verdict.note)
         seal = _seal(key, *values, verdict.decided_at, text)
-        old = None
-        if not new:
+        old = old_seal
+        if not new and old is None:
             old = self._query("SELECT seal FROM verdicts WHERE star = ?", (key,)).fetchone()[0]
         self._query(
             "INSERT OR REPLACE INTO verdicts(star, status, class_code, period, note, decided_at, "
@@ -2308,23 +2347,39 @@ class Ledger:
                 (target_id,),
             ).fetchall()
             entries = [self._history_entry((r[0], r[1], "do"), r[2:7], r[7]) for r in rows]
-            action = self._new_action(direction, f"{direction} {label}", target_id)
+            texts = [(r[5], r[6]) for r in rows]  # old, new as stored: logged again as they are
+            label = f"{direction} {label}"
+            action, at = self._new_action_at(direction, label, target_id)
+            order = range(len(entries))
             if direction == "undo":
-                entries = entries[::-1]
-            for entry in entries:
-                before, after = entry.new, entry.old
-                if direction == "redo":
-                    before, after = after, before
+                order = order[::-1]
+            done = []
+            for k in order:
+                entry, (old, new) = entries[k], texts[k]
+                before, after = (
+                    (entry.new, entry.old) if direction == "undo" else (entry.old, entry.new)
+                )
+                before_text, after_text = (new, old) if direction == "undo" else (old, new)
                 self._restore(entry.star_id, entry.what, after)
-                self._log(action, entry.star_id, entry.what, before, after)
+                row_id, row_at = self._log_texts(
+                    action, entry.star_id, entry.what, before_text, after_text
+                )
+                done.append(
+                    HistoryEntry(
+                        row_id, action, direction, row_at, entry.star_id, entry.what, before, after
+                    )
+                )
                 tx.star_ids.append(entry.star_id)
             self._set_action_state(target_id, "undone" if direction == "undo" else "done")
-        return self._action(action)
+        # what was written, without reading it back
+        return Action(action, direction, label, at, target_id, tuple(done))
 
     def _restore(self, star_id: str, what: str, value: Any) -> None:
         if what == "verdict":
-            self.verdict(star_id)  # a damaged record is reported, not sealed over
-            self._apply_verdict(Verdict(star_id, **value))
+            key = self._key(star_id)
+            old = self._verdict_seal(key, star_id)  # a damaged record is reported, not sealed over
+            # the value was read from the history's JSON: plain data already
+            self._apply_verdict(Verdict(star_id, **value), key=key, plain=True, old_seal=old)
         elif what == "excluded":
             key = self._key(star_id)
             n = self._photometry_row(star_id)[7]  # checked before it is changed

@@ -335,7 +335,7 @@ class PopulationView(QtWidgets.QWidget):
         self._stale = False
         self._read_generation += 1
         self._changed_while_reading.clear()
-        if getattr(self.ledger, "n_stars", 0) <= BACKGROUND_READ_STARS:
+        if self.ledger.n_stars <= BACKGROUND_READ_STARS:
             self._reading = False
             self.set_points(dg.point_table(self.ledger), auto_range=not len(self.table))
             return
