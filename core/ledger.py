@@ -582,6 +582,7 @@ class _Codec:
     def __init__(self, conn: sqlite3.Connection) -> None:
         self.conn = conn
         self.zdicts: dict[int, bytes] = dict(conn.execute("SELECT id, zdict FROM codecs"))
+        self._packers: dict[int, Any] = {}
 
     def pack(self, text: str) -> tuple[int | None, bytes]:
         data = text.encode("utf-8")
@@ -590,7 +591,12 @@ class _Codec:
             self.conn.execute("INSERT INTO codecs(id, zdict) VALUES (1, ?)", (zdict,))
             self.zdicts[1] = zdict
         codec = max(self.zdicts)
-        packer = zlib.compressobj(6, zdict=self.zdicts[codec])
+        primed = self._packers.get(codec)
+        if primed is None:
+            primed = self._packers[codec] = zlib.compressobj(6, zdict=self.zdicts[codec])
+        # a copy of a compressor primed with the dictionary: the same bytes,
+        # without loading the dictionary again for every record
+        packer = primed.copy()
         return codec, packer.compress(data) + packer.flush()
 
     def unpack(self, codec: int | None, data: bytes) -> str:
@@ -1098,10 +1104,16 @@ class Ledger:
         )
         return int(cursor.lastrowid), values[2]
 
-    def _set_action_state(self, action_id: int, state: str) -> None:
-        kind, label, at, target = self._query(
-            "SELECT kind, label, at, target FROM actions WHERE id = ?", (action_id,)
-        ).fetchone()
+    def _set_action_state(
+        self, action_id: int, state: str, known: tuple[Any, ...] | None = None
+    ) -> None:
+        """Change an action's state; ``known``: its (kind, label, at, target), already read."""
+        kind, label, at, target = (
+            known
+            or self._query(
+                "SELECT kind, label, at, target FROM actions WHERE id = ?", (action_id,)
+            ).fetchone()
+        )
         self._query(
             "UPDATE actions SET state = ?, seal = ? WHERE id = ?",
             (state, _seal(kind, label, at, target, state), action_id),
@@ -2307,6 +2319,11 @@ class Ledger:
         return None if action is None else action[1]
 
     def _next_action(self, direction: str) -> tuple[int, str] | None:
+        row = self._next_action_row(direction)
+        return None if row is None else (row[0], row[1])
+
+    def _next_action_row(self, direction: str) -> tuple[Any, ...] | None:
+        """The action undo (or redo) would walk: (id, label, kind, at, target), checked."""
         if direction == "undo":
             sql = "WHERE state = 'done' ORDER BY id DESC LIMIT 1"
         else:
@@ -2322,7 +2339,7 @@ class Ledger:
                 "run 'phasewise ledger check' on this ledger",
                 file=self.path,
             )
-        return row[0], row[1]
+        return row[:5]
 
     def undo(self) -> Action | None:
         """Undo the latest action still done; returns what changed (None if nothing)."""
@@ -2340,7 +2357,8 @@ class Ledger:
 
     def _walk_one(self, direction: str) -> Action:
         with self._write(direction) as tx:
-            target_id, label = self._next_action(direction)
+            target_id, label, kind, at, target = self._next_action_row(direction)
+            known = (kind, label, at, target)
             rows = self._query(
                 "SELECT id, action, at, star_id, what, old, new, seal FROM history "
                 "WHERE action = ? ORDER BY id",
@@ -2370,7 +2388,7 @@ class Ledger:
                     )
                 )
                 tx.star_ids.append(entry.star_id)
-            self._set_action_state(target_id, "undone" if direction == "undo" else "done")
+            self._set_action_state(target_id, "undone" if direction == "undo" else "done", known)
         # what was written, without reading it back
         return Action(action, direction, label, at, target_id, tuple(done))
 
