@@ -1293,26 +1293,23 @@ def find_outliers(
     """
     flags = []
     for diagram in diagrams:
-        codes = np.asarray(diagram.class_codes, dtype=object)
-        tested = set(diagram.class_codes) - NO_LOCUS_CLASSES
+        # one sort per diagram, then classes as integers (no comparison per star and class)
+        names, inverse = np.unique(np.asarray(diagram.class_codes, dtype=str), return_inverse=True)
+        tested = set(names.tolist()) - NO_LOCUS_CLASSES
         if diagram.locus_classes is not None:
             tested &= set(diagram.locus_classes)
         for code in sorted(tested):
-            members = np.flatnonzero(codes == code)
+            members = np.flatnonzero(inverse == int(np.searchsorted(names, code)))
             if len(members) < rule.min_members:
                 continue
             d = robust_distance(diagram.x[members], diagram.y[members], diagram.scale_floor)
-            for index, distance in zip(members, d, strict=True):
-                if distance > rule.threshold:
-                    flags.append(
-                        OutlierFlag(
-                            diagram.star_ids[index],
-                            code,
-                            diagram.key,
-                            float(distance),
-                            rule.threshold,
-                        )
+            far = d > rule.threshold
+            for index, distance in zip(members[far], d[far], strict=True):
+                flags.append(
+                    OutlierFlag(
+                        diagram.star_ids[index], code, diagram.key, float(distance), rule.threshold
                     )
+                )
     flags.sort(key=lambda f: (f.star_id, -f.distance))
     return tuple(flags)
 
