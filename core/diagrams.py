@@ -1388,6 +1388,26 @@ def star_physics(points: Iterable[StarPoint], settings: Any = None) -> list[Any]
     return out
 
 
+def _table_physics(table: PointTable, rows: np.ndarray, settings: Any) -> list[Any]:
+    """:func:`star_physics` of these rows of a table, without a :class:`StarPoint` each."""
+    features = {name: column[rows].tolist() for name, column in table.features.items()}
+    bands = table.feature_band[rows].tolist()
+    candle = np.isin(table.class_code[rows], list(STANDARD_CANDLES)).tolist()
+    ids, codes = table.star_ids[rows].tolist(), table.class_code[rows].tolist()
+    periods = [None if math.isnan(p) else p for p in table.period[rows].tolist()]
+    out = []
+    for k, code in enumerate(codes):
+        values = ()
+        if candle[k]:
+            # the features of PointTable.point: NaN is a feature not given
+            given = {name: column[k] for name, column in features.items() if column[k] == column[k]}
+            if bands[k] is not None:
+                given["primary_band"] = bands[k]
+            values = physics.derive(code, given, settings)
+        out.append(physics.StarPhysics(str(ids[k]), code, periods[k], values))
+    return out
+
+
 def pl_relations(band: str, *, with_classes: bool = False) -> list[tuple]:
     """``(name, label)`` of the period–luminosity relations calibrated in ``band``.
 
@@ -1440,8 +1460,15 @@ def field_state(
     summary's distance of the class with most members used (RRab first).
     """
     settings = physics_settings_from(physics_settings, ebv)
-    members = summary_members(points)
-    stars = star_physics(members, settings)
+    if isinstance(points, PointTable):
+        rows = np.flatnonzero(~np.isin(points.class_code, list(NO_LOCUS_CLASSES)))
+        stars = _table_physics(points, rows, settings)
+        # the P–L guide needs only the stars of its relation's classes as points
+        pl_classes = list(physics.RELATIONS[pl_relation].applies_to) if pl_relation else []
+        members = points.points(rows[np.isin(points.class_code[rows], pl_classes)])
+    else:
+        members = summary_members(points)
+        stars = star_physics(members, settings)
     summary = physics.population_summary(stars)
     relations: dict[str, str] = {}
     for star in stars:

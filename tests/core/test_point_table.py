@@ -105,8 +105,15 @@ def test_diagrams_and_summary_are_those_of_the_points(ledger):
     for make in (dg.phi31_logp, dg.r21_logp, dg.period_ratio, dg.colour_magnitude):
         _same_diagram(make(table), make(points))
     assert len(dg.period_amplitude(table, "V")) >= 5
-    state = dg.field_state(table, ebv=0.1, pl_relation=None)
-    assert state.to_dict() == dg.field_state(points, ebv=0.1, pl_relation=None).to_dict()
+    for relation in (None, *(name for name, _ in dg.pl_relations("V"))):
+        state = dg.field_state(table, ebv=0.1, pl_relation=relation)
+        expected = dg.field_state(points, ebv=0.1, pl_relation=relation)
+        assert state.to_dict() == expected.to_dict()
+        assert [(line.x.tolist(), line.y.tolist()) for line in state.pl_lines] == [
+            (line.x.tolist(), line.y.tolist()) for line in expected.pl_lines
+        ]
+    # physics was really derived and compared (not only empty summaries)
+    assert any(star.values for star in dg.star_physics(dg.summary_members(points)))
 
 
 def test_a_point_list_round_trips_through_a_table(ledger):
@@ -128,8 +135,8 @@ def test_a_record_that_is_not_plain_json_is_read_in_full(ledger, seeded):
     with conn:
         # Python writes NaN, which is not JSON to SQLite: that star is read in full
         conn.execute(
-            "UPDATE points SET result_point = replace(result_point, '\"R21\":', '\"R21\":NaN,"
-            "\"R21_old\":') WHERE star = (SELECT id FROM stars WHERE star_id = ?)",
+            'UPDATE points SET result_point = replace(result_point, \'"R21":\', \'"R21":NaN,'
+            '"R21_old":\') WHERE star = (SELECT id FROM stars WHERE star_id = ?)',
             (roles["rrc"],),
         )
     conn.close()
