@@ -661,7 +661,8 @@ def as_table(points: PointTable | Iterable[StarPoint]) -> PointTable:
 #: Fields of the records (``result_point_record``, ``final_point_record``) read as columns.
 _RESULT_NUMBERS = ("period", "R21", "phi31", "shorter_period", "longer_period")
 _RESULT_TEXTS = ("$.top_class", "$.primary_band", "$.features.primary_band")
-_FINAL_NUMBERS = ("period", "period_err", "period2", "R21", "phi31", "A[0]", "A[1]", "A[2]")
+# A2 is none of FEATURE_COLUMNS: the final numbers' A[1] is never read
+_FINAL_NUMBERS = ("period", "period_err", "period2", "R21", "phi31", "A[0]", "A[2]")
 _FINAL_TEXTS = ("$.fourier_band",)
 
 
@@ -766,8 +767,7 @@ def _chunk_table(ledger: Any, chunk: Any) -> PointTable:
         ("period_err", 1),
         ("phi31", 4),
         ("A1", 5),
-        ("A2", 6),
-        ("A3", 7),
+        ("A3", 6),
     ):
         if name in features:
             features[name] = np.where(with_period, f[:, j], features[name])

@@ -2014,10 +2014,6 @@ class Ledger:
         are looked for only when SQLite finds one (then a second query)."""
         remove = "".join(", ?" for _ in bands)
         band_params = [p for name in band_maps for p in (f"$.{name}", *(f'$."{b}"' for b in bands))]
-        texts = [
-            *("p.result_point ->> ?" for _ in result_texts),
-            *("p.final_point ->> ?" for _ in final_texts),
-        ]
         for guarded in (False, True):
 
             def plain(column: str, expression: str, guarded: bool = guarded) -> str:
@@ -2036,6 +2032,7 @@ class Ledger:
                 return plain(column, "(" + (" OR ".join(tests) or "0") + ")")
 
             def numbers(column: str, paths: Sequence[str]) -> str:
+                # the numbers' paths, then the texts': one JSON call per record
                 extract = f"json_extract(p.{column}, {', '.join('?' * len(paths))})"
                 return f"CAST(trim({plain(column, extract)}, '[]') AS BLOB)"
 
@@ -2044,8 +2041,6 @@ class Ledger:
                     "s.star_id",
                     "v.status",
                     "v.class_code",
-                    *(plain("result_point", t) for t in texts[: len(result_texts)]),
-                    *(plain("final_point", t) for t in texts[len(result_texts) :]),
                 ]
             )
             flags = " | ".join(
@@ -2065,8 +2060,9 @@ class Ledger:
                 )
             )
             sql = (
-                f"SELECT s.id, {flags}, {numbers('result_point', result_numbers)}, "
-                f"{numbers('final_point', final_numbers)}, "
+                f"SELECT s.id, {flags}, "
+                f"{numbers('result_point', (*result_numbers, *result_texts))}, "
+                f"{numbers('final_point', (*final_numbers, *final_texts))}, "
                 f"CAST(trim(json_array({text_array}), '[]') AS BLOB) "
                 "FROM stars s JOIN verdicts v ON v.star = s.id "
                 "LEFT JOIN results r ON r.star = s.id LEFT JOIN finals f ON f.star = s.id "
@@ -2076,8 +2072,8 @@ class Ledger:
                 *band_params,
                 *band_params,
                 *result_numbers,
-                *final_numbers,
                 *result_texts,
+                *final_numbers,
                 *final_texts,
                 after,
                 int(chunk),
@@ -2109,15 +2105,24 @@ class Ledger:
         def flag(bit: int) -> np.ndarray:
             return (flags >> bit & 1).astype(bool)
 
-        def numbers(values: Sequence[bytes | None], width: int) -> np.ndarray:
-            empty = b",".join([b"null"] * width)
-            # one JSON call for the chunk's records, no list per record; null -> NaN
+        def fields(
+            values: Sequence[bytes | None], width: int, n_texts: int
+        ) -> tuple[np.ndarray, list[list[Any]]]:
+            """Numbers (null -> NaN) and texts of one record kind: one JSON call for the
+            chunk's records, no list per record."""
+            size = width + n_texts
+            empty = b",".join([b"null"] * size)
             flat = json.loads(b"[" + b",".join(v or empty for v in values) + b"]")
-            return np.array(flat, dtype=float).reshape(len(rows), width)
+            if len(flat) != size * len(rows):
+                raise ValueError("a diagram record holds a list or object where a value belongs")
+            numbers = np.array([flat[j::size] for j in range(width)], dtype=float)
+            texts = [flat[width + j :: size] for j in range(n_texts)]
+            return numbers.T, texts
 
-        n_texts = 3 + n_result_texts + n_final_texts
         flat = json.loads(b"[" + b",".join(texts) + b"]")
-        columns = [flat[k::n_texts] for k in range(n_texts)]
+        columns = [flat[k::3] for k in range(3)]
+        result_numbers, result_texts = fields(result, n_result, n_result_texts)
+        final_numbers, final_texts = fields(final, n_final, n_final_texts)
         return PointChunk(
             star_ids=columns[0],
             status=columns[1],
@@ -2129,10 +2134,10 @@ class Ledger:
             has_final_point=flag(4),
             result_plain=flag(5),
             final_plain=flag(6),
-            result_numbers=numbers(result, n_result),
-            final_numbers=numbers(final, n_final),
-            result_texts=columns[3 : 3 + n_result_texts],
-            final_texts=columns[3 + n_result_texts :],
+            result_numbers=result_numbers,
+            final_numbers=final_numbers,
+            result_texts=result_texts,
+            final_texts=final_texts,
             bands=bands,
             new_bands=bool(np.any(flag(7))),
         )
