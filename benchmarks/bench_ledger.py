@@ -15,11 +15,13 @@ results).  Usage::
 
     python benchmarks/bench_ledger.py [--stars 100000] [--points 100] [--keep DIR]
     python benchmarks/bench_ledger.py --smoke     # 300 stars, a quick run
+    python benchmarks/bench_ledger.py --undo-of PATH   # only the undo, on a copy of PATH
 """
 
 from __future__ import annotations
 
 import argparse
+import shutil
 import statistics
 import sys
 import tempfile
@@ -71,6 +73,58 @@ def timed(func, repeat=1):
     return value, statistics.median(times)
 
 
+def measure_undo(ledger: Ledger, pick: list[str], repeat: int = 40) -> None:
+    """Undo of one verdict (recorded after the bulk action), and a commit alone, interleaved.
+
+    Wall time includes the commit's fsync (``synchronous=FULL``); CPU time is
+    the undo's own work (queries, JSON, seals), which the disk does not blur.
+    """
+    undo_times, undo_cpu, commit_times, commit_cpu = [], [], [], []
+    for k in range(repeat):
+        ledger.set_verdict(pick[k % len(pick)], "rejected", note="blend")
+        start, cpu = time.perf_counter(), time.process_time()
+        action = ledger.undo()
+        undo_times.append(time.perf_counter() - start)
+        undo_cpu.append(time.process_time() - cpu)
+        assert action is not None and len(action.entries) == 1
+        start, cpu = time.perf_counter(), time.process_time()
+        with ledger._write("bench"):  # a commit alone: what durability costs on this disk
+            ledger._put_meta("bench", str(k))
+        commit_times.append(time.perf_counter() - start)
+        commit_cpu.append(time.process_time() - cpu)
+    history = len(ledger.history())
+    t_undo, t_commit = statistics.median(undo_times), statistics.median(commit_times)
+    c_undo, c_commit = statistics.median(undo_cpu), statistics.median(commit_cpu)
+    print(
+        f"  undo of one verdict after the bulk action {t_undo * 1e3:6.2f} ms "
+        f"(median of {repeat}; {history:,} history rows; target <= 2 ms)"
+    )
+    print(
+        f"    of which the commit's fsync      {t_commit * 1e3:8.2f} ms (one committed write "
+        f"alone, median); undo's own work {max(0.0, t_undo - t_commit) * 1e3:.2f} ms"
+    )
+    print(
+        f"    CPU: undo {c_undo * 1e3:.2f} ms, a committed write alone {c_commit * 1e3:.2f} ms "
+        f"(medians)"
+    )
+
+
+def undo_of(source: Path) -> None:
+    """Only the undo measurement, on a copy of an existing ledger (its last action a bulk one)."""
+    folder = Path(tempfile.mkdtemp(prefix="bench_ledger_undo_"))
+    path = folder / "copy.ledger.sqlite"
+    try:
+        shutil.copyfile(source, path)
+        with Ledger.open(path) as ledger:
+            print(f"undo on a copy of {source} ({ledger.n_stars:,} stars)")
+            print(f"  last action: {ledger.undo_label()!r}")
+            ids = ledger.star_ids()
+            pick = [ids[i] for i in np.random.default_rng(2).integers(0, len(ids), 50)]
+            measure_undo(ledger, pick)
+    finally:
+        shutil.rmtree(folder)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--stars", type=int, default=100_000)
@@ -78,7 +132,13 @@ def main() -> None:
     parser.add_argument("--analysed", type=int, default=40, help="stars really analysed")
     parser.add_argument("--keep", type=Path, help="folder to keep the ledger in")
     parser.add_argument("--smoke", action="store_true", help="300 stars: a quick run")
+    parser.add_argument(
+        "--undo-of", type=Path, help="only the undo, on a copy of this ledger (never written)"
+    )
     args = parser.parse_args()
+    if args.undo_of:
+        undo_of(args.undo_of)
+        return
     if args.smoke:
         args.stars, args.analysed = 300, 4
     folder = args.keep or Path(tempfile.mkdtemp(prefix="bench_ledger_"))
@@ -152,27 +212,7 @@ def main() -> None:
             lambda: [ledger.set_verdict(s, "deferred", note="look again") for s in pick[:20]]
         )
         print(f"  verdict committed                {t_verdict / 20 * 1e3:8.2f} ms per verdict")
-        undo_times, commit_times = [], []
-        for k, s in enumerate(pick[:20]):
-            ledger.set_verdict(s, "rejected", note="blend")
-            start = time.perf_counter()
-            action = ledger.undo()
-            undo_times.append(time.perf_counter() - start)
-            assert action is not None and len(action.entries) == 1
-            start = time.perf_counter()
-            with ledger._write("bench"):  # a commit alone: what durability costs on this disk
-                ledger._put_meta("bench", str(k))
-            commit_times.append(time.perf_counter() - start)
-        history = len(ledger.history())
-        t_undo, t_commit = statistics.median(undo_times), statistics.median(commit_times)
-        print(
-            f"  undo of one verdict after the bulk action {t_undo * 1e3:6.2f} ms "
-            f"(median of 20; {history:,} history rows; target <= 2 ms)"
-        )
-        print(
-            f"    of which the commit's fsync      {t_commit * 1e3:8.2f} ms (one committed write "
-            f"alone); undo's own work {max(0.0, t_undo - t_commit) * 1e3:.2f} ms"
-        )
+        measure_undo(ledger, pick)
         while ledger.undo_label() not in (None, "bulk confirm"):
             ledger.undo()
         _, t_bulk_undo = timed(ledger.undo)

@@ -73,7 +73,9 @@ def invented_points(n_stars: int, seed: int = 5) -> list[dg.StarPoint]:
     return points
 
 
-def time_summary(points: list[dg.StarPoint], repeat: int) -> tuple[float, dg.FieldState]:
+def time_summary(
+    points: dg.PointTable | list[dg.StarPoint], repeat: int
+) -> tuple[float, dg.FieldState]:
     best, state = float("inf"), None
     for _ in range(repeat):
         start = time.perf_counter()
@@ -82,7 +84,7 @@ def time_summary(points: list[dg.StarPoint], repeat: int) -> tuple[float, dg.Fie
     return best, state
 
 
-def time_core(points: list[dg.StarPoint], repeat: int = 1) -> tuple[float, float]:
+def time_core(points: dg.PointTable | list[dg.StarPoint], repeat: int = 1) -> tuple[float, float]:
     start = time.perf_counter()
     planes = [
         dg.period_amplitude(points, "V"),
@@ -131,7 +133,7 @@ def old_vs_new(points: list[dg.StarPoint], repeat: int) -> None:
     )
 
 
-def time_gui(points: list[dg.StarPoint]) -> float:
+def time_gui(points: dg.PointTable | list[dg.StarPoint]) -> float:
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from PySide6 import QtWidgets
 
@@ -170,6 +172,7 @@ def main() -> None:
         time_gui(small[:50])
     rows = []
     for label, points in ((f"{len(small)} stars", small), (f"{len(large)} stars", large)):
+        points = dg.PointTable.from_points(points)  # the columns the view reads from a ledger
         diagrams, summary = time_core(points, args.repeat)
         gui = time_gui(points) if args.gui else float("nan")
         rows.append((label, diagrams, summary, gui))

@@ -10,7 +10,8 @@ thread, is left out (``bench_population.py`` times it).
 
 The points are the real analysis results of ``--pool`` seeded stars
 (``core.synthetic.make_survey`` + ``core.analysis.analyse``) replicated with
-new ids: what is measured is the drawing, not the read.  Target (issue 17):
+new ids, as the columns (``core.diagrams.PointTable``) the view gets from
+the ledger's read: what is measured is the drawing, not the read.  Target (issue 17):
 the population view at 100,000 stars within 3 s and 500 MB.  Usage::
 
     python benchmarks/bench_population_draw.py [--stars 10000 100000] [--pool 40]
@@ -59,7 +60,7 @@ def since(start: tuple[float, float]) -> tuple[float, float]:
     return wall - start[0], cpu - start[1]
 
 
-def core_only(points: list[dg.StarPoint]) -> tuple[float, float]:
+def core_only(points: dg.PointTable) -> tuple[float, float]:
     """The diagrams and the outlier rule as the view computes them (no drawing)."""
     start = clock()
     diagrams = [
@@ -96,7 +97,8 @@ def main() -> None:
     qt = QtWidgets.QApplication.instance() or QtWidgets.QApplication([])
     rows = []
     for n in args.stars:
-        points = replicate(pool, n)
+        # the columns the view gets from the ledger's read (point_table)
+        points = dg.PointTable.from_points(replicate(pool, n))
         core = core_only(points)
         view = PopulationView()
         view._start_summary = lambda *a, **k: None  # the summary is not the drawing

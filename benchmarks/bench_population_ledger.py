@@ -1,12 +1,17 @@
 """The population view's read of a survey-size ledger: time and peak memory.
 
-``core.diagrams.star_points`` reads every star's diagram records with one
-query (``Ledger.point_rows``); before schema 4 it decoded every full
-result.  This prints, measured in fresh child processes in one run: the
-floor (imports, open, star ids), the fast read of every star, and the full
-read (``star_point``, star by star) of a sample, scaled to the ledger's size.
-Target (issue "survey scale"): the population's read at 100,000 stars within
-3 s and 500 MB.
+``core.diagrams.point_table`` reads the diagram numbers of every star as
+columns (``Ledger.point_columns``: SQLite's JSON functions pick them out of
+the small records kept beside each result, one JSON decode per chunk).
+This prints, measured in fresh child processes one after the other in one
+run: the floor (imports, open, star ids); the former read of the same
+records (``Ledger.point_rows``, every record decoded in Python and a
+``StarPoint`` per star, as the view read them until 2026-12-03); the
+columnar read; the columnar read with the six diagrams and the outlier rule
+(what the view computes before it draws); the field summary of the table
+(computed afterwards in its own worker); and the full read (``star_point``,
+star by star) of a sample, scaled to the ledger's size.  Target (issue
+"survey scale"): the population's read at 100,000 stars within 3 s and 500 MB.
 
 The ledger is built as ``bench_export.py`` builds its own (real analysis
 results of seeded stars, nine in ten confirmed with final numbers), or given
@@ -37,25 +42,85 @@ from bench_export import _peak_mb, build, child_json  # noqa: E402
 from phasewise.core.ledger import Ledger  # noqa: E402
 
 
+def former_star_points(ledger) -> list:
+    """The population read before the columns: every record decoded, a point per star."""
+    from phasewise.core import diagrams as dg
+
+    decided = ("confirmed", "relabelled")
+    out = []
+    for row in ledger.point_rows():
+        final = row.final_point if row.status in decided else None
+        if (
+            (row.status in decided and row.has_final and final is None)
+            or (row.analysed and row.result_point is None)
+            or (row.period is not None and (final is None or final.get("period") is None))
+        ):
+            out.append(dg.star_point(ledger, row.star_id))
+            continue
+        record = row.result_point if row.analysed else dg.result_point_record(None)
+        out.append(
+            dg.StarPoint.from_record(
+                row.star_id,
+                record,
+                verdict_class=row.class_code,
+                status=row.status,
+                final_record=final,
+                owned=row.analysed,
+            )
+        )
+    return out
+
+
+def diagrams_of(table) -> int:
+    """The six diagrams and the outlier rule, as the view computes them before drawing."""
+    from phasewise.core import diagrams as dg
+
+    bands = dg.available_bands(table)
+    band = "V" if "V" in bands else (bands[0] if bands else "V")
+    shown = [
+        dg.period_amplitude(table, band),
+        dg.phi31_logp(table),
+        dg.r21_logp(table),
+        dg.period_ratio(table),
+        dg.period_luminosity(table, band),
+        dg.colour_magnitude(table),
+    ]
+    dg.find_outliers(shown)
+    return sum(len(d) for d in shown)
+
+
 def child(path: str, what: str, sample: int) -> None:
     """In a fresh process: one read, its wall and CPU time and peak memory."""
     from phasewise.core import diagrams as dg
 
     start, cpu = time.perf_counter(), time.process_time()
     with Ledger.open(path, readonly=True) as ledger:
+        extra = None
+        if what == "summary":
+            table = dg.point_table(ledger)  # not timed: the summary's own cost
+            start, cpu = time.perf_counter(), time.process_time()
         if what == "floor":
             n = len(ledger.star_ids())
-        elif what == "fast":
-            n = len(dg.star_points(ledger))
+        elif what == "former":
+            n = len(former_star_points(ledger))
+        elif what == "columns":
+            n = len(dg.point_table(ledger))
+        elif what == "drawn":
+            table = dg.point_table(ledger)
+            n, extra = len(table), diagrams_of(table)
+        elif what == "summary":
+            n, extra = len(table), len(dg.field_state(table).counts)
         else:
             ids = ledger.star_ids()[:sample]
             n = len([dg.star_point(ledger, s) for s in ids])
+        seconds, cpu = time.perf_counter() - start, time.process_time() - cpu
     print(
         json.dumps(
             {
                 "n": n,
-                "seconds": time.perf_counter() - start,
-                "cpu": time.process_time() - cpu,
+                "extra": extra,
+                "seconds": seconds,
+                "cpu": cpu,
                 "peak_mb": _peak_mb(resource.getrusage(resource.RUSAGE_SELF)),
             }
         )
@@ -99,24 +164,33 @@ def main() -> None:
         else:
             build(path, args.stars, args.points, args.pool)
         floor = run_child(path, "floor", 0)
-        fast = run_child(path, "fast", 0)
+        runs = [
+            ("former: records, a point each", run_child(path, "former", 0)),
+            ("columns (point_table)", run_child(path, "columns", 0)),
+            ("columns + diagrams + outliers", run_child(path, "drawn", 0)),
+            ("field summary of the table", run_child(path, "summary", 0)),
+        ]
         full = run_child(path, "full", args.sample)
-        n = fast["n"]
+        n = runs[1][1]["n"]
         scaled = full["cpu"] / max(full["n"], 1) * n
-        print(f"  {'read':28s} {'stars':>7s} {'wall s':>8s} {'CPU s':>8s} {'peak MB':>8s}")
-        for name, got in (("floor: open, star ids", floor), ("star_points (records)", fast)):
+        print("  (time from the open, the summary's from the table; peak of the whole child)")
+        print(f"  {'read':32s} {'stars':>7s} {'wall s':>8s} {'CPU s':>8s} {'peak MB':>8s}")
+        for name, got in (("floor: open, star ids", floor), *runs):
             print(
-                f"  {name:28s} {got['n']:7d} {got['seconds']:8.2f} {got['cpu']:8.2f} "
+                f"  {name:32s} {got['n']:7d} {got['seconds']:8.2f} {got['cpu']:8.2f} "
                 f"{got['peak_mb']:8.0f}"
             )
         print(
-            f"  {'star_point, star by star':28s} {full['n']:7d} {full['seconds']:8.2f} "
+            f"  {'star_point, star by star':32s} {full['n']:7d} {full['seconds']:8.2f} "
             f"{full['cpu']:8.2f} {full['peak_mb']:8.0f}   (x{n / max(full['n'], 1):.0f}: "
             f"{scaled:.1f} s CPU for all)"
         )
+        former, columns = runs[0][1], runs[1][1]
         print(
-            f"  records / full read, CPU per star: {fast['cpu'] / n / (full['cpu'] / full['n']):.3f}"
-            f"; peak above the floor {fast['peak_mb'] - floor['peak_mb']:.0f} MB"
+            f"  columns / former, CPU: {columns['cpu'] / max(former['cpu'], 1e-9):.3f}; "
+            f"wall: {columns['seconds'] / max(former['seconds'], 1e-9):.3f}; peak above the "
+            f"floor {columns['peak_mb'] - floor['peak_mb']:.0f} MB against "
+            f"{former['peak_mb'] - floor['peak_mb']:.0f} MB"
         )
         print(
             "  load average (1, 5, 15 min) at the end: {:.2f} {:.2f} {:.2f}".format(

@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from dataclasses import fields as dataclass_fields
 from typing import Any
 
@@ -59,6 +59,10 @@ __all__ = [
     "result_point_record",
     "final_point_record",
     "star_point",
+    "PointTable",
+    "point_table",
+    "as_table",
+    "FEATURE_COLUMNS",
     "available_bands",
     "period_amplitude",
     "phi31_logp",
@@ -445,48 +449,11 @@ def _double_mode(period: float | None, result: StarResult) -> tuple[float | None
 def star_points(ledger: Any, progress: Callable[[int, int], Any] | None = None) -> list[StarPoint]:
     """One :class:`StarPoint` per star of a ledger, in the ledger's order.
 
-    ``progress(done, total)`` is called every :data:`PROGRESS_STEP` stars and
-    at the end (a view reading a survey in a worker thread shows it).
-
-    Reads the small records the ledger keeps beside each result and each
-    verdict's final numbers (``Ledger.point_rows``: one query, a few
-    hundred bytes per star); a star whose point needs more (a period set by
-    the person without final numbers, or a record missing) is read in full,
-    as :func:`star_point` does.  A failed or missing analysis gives a point
-    without coordinates.
+    The points of :func:`point_table` (``progress`` as there): a Python
+    object per star, for scripts and small ledgers; the population view
+    keeps the table.
     """
-    out: list[StarPoint] = []
-    no_result = None
-    total = getattr(ledger, "n_stars", 0) if progress is not None else 0
-    for row in ledger.point_rows():
-        if progress is not None and len(out) % PROGRESS_STEP == 0:
-            progress(len(out), total)
-        final = row.final_point if row.status in _DECIDED else None
-        if (
-            (row.status in _DECIDED and row.has_final and final is None)
-            or (row.analysed and row.result_point is None)
-            or (row.period is not None and (final is None or final.get("period") is None))
-        ):
-            out.append(star_point(ledger, row.star_id))
-            continue
-        if row.analysed:
-            record, owned = row.result_point, True
-        else:
-            no_result = no_result or result_point_record(None)
-            record, owned = no_result, False
-        out.append(
-            StarPoint.from_record(
-                row.star_id,
-                record,
-                verdict_class=row.class_code,
-                status=row.status,
-                final_record=final,
-                owned=owned,
-            )
-        )
-    if progress is not None:
-        progress(len(out), total)
-    return out
+    return point_table(ledger, progress).points()
 
 
 def star_point(ledger: Any, star_id: str) -> StarPoint:
@@ -507,13 +474,349 @@ def _point(ledger: Any, verdict: Any) -> StarPoint:
     )
 
 
-def available_bands(points: Iterable[StarPoint]) -> list[str]:
+# --------------------------------------------------------------------------- columns
+#: The numbers of ``core.physics.derive`` the table keeps a column of (the
+#: features' primary band is a text column of its own).
+FEATURE_COLUMNS = tuple(sorted(FEATURES_READ - {"primary_band"}))
+
+_TEXT_COLUMNS = ("star_ids", "class_code", "class_source", "status", "primary_band", "feature_band")
+_NUMBER_COLUMNS = ("period", "R21", "phi31", "shorter_period", "longer_period")
+_BAND_COLUMNS = ("amplitude", "mean_mag", "features")
+
+
+def _number(value: Any) -> float:
+    """A stored number as a float, NaN for None (or anything not a number)."""
+    if value is None:
+        return math.nan
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def _or_none(value: float) -> float | None:
+    return None if math.isnan(value) else float(value)
+
+
+def _texts(values: Iterable[Any]) -> np.ndarray:
+    values = list(values)
+    out = np.empty(len(values), dtype=object)
+    out[:] = values
+    return out
+
+
+@dataclass(frozen=True, eq=False)
+class PointTable:
+    """The numbers the population diagrams use of every star, as columns.
+
+    What a list of :class:`StarPoint` holds, with one numpy array per
+    quantity (NaN where a number is missing, None where a text is), so that
+    a survey's stars are read, drawn and summed up without a Python object
+    per star.  ``star_ids``, ``class_code``, ``class_source``, ``status``
+    and ``primary_band`` are object arrays of texts; ``amplitude`` and
+    ``mean_mag`` map a band to its column; ``features`` maps each name of
+    :data:`FEATURE_COLUMNS` to its column and ``feature_band`` is the
+    features' primary band (what :func:`core.physics.derive` reads).
+    :meth:`point` gives one star's :class:`StarPoint` (tooltips, the dock).
+    """
+
+    star_ids: np.ndarray
+    class_code: np.ndarray
+    class_source: np.ndarray
+    status: np.ndarray
+    period: np.ndarray
+    R21: np.ndarray
+    phi31: np.ndarray
+    shorter_period: np.ndarray
+    longer_period: np.ndarray
+    primary_band: np.ndarray
+    amplitude: Mapping[str, np.ndarray]
+    mean_mag: Mapping[str, np.ndarray]
+    features: Mapping[str, np.ndarray]
+    feature_band: np.ndarray
+    _rows: dict[str, int] = field(default_factory=dict, repr=False)
+
+    def __len__(self) -> int:
+        return len(self.star_ids)
+
+    @classmethod
+    def from_points(cls, points: Iterable[StarPoint]) -> PointTable:
+        """The table of these points (a loop over them: for small lists)."""
+        points = list(points)
+
+        def numbers(get: Callable[[StarPoint], Any]) -> np.ndarray:
+            return np.array([_number(get(p)) for p in points], dtype=float)
+
+        def bands(name: str) -> dict[str, np.ndarray]:
+            keys = sorted({b for p in points for b in getattr(p, name)})
+            return {b: numbers(lambda p, b=b: getattr(p, name).get(b)) for b in keys}
+
+        return cls(
+            **{
+                name: _texts(getattr(p, attr) for p in points)
+                for name, attr in (
+                    ("star_ids", "star_id"),
+                    ("class_code", "class_code"),
+                    ("class_source", "class_source"),
+                    ("status", "status"),
+                    ("primary_band", "primary_band"),
+                )
+            },
+            **{name: numbers(lambda p, n=name: getattr(p, n)) for name in _NUMBER_COLUMNS},
+            amplitude=bands("amplitude_by_band"),
+            mean_mag=bands("mean_mag_by_band"),
+            features={k: numbers(lambda p, k=k: p.features.get(k)) for k in FEATURE_COLUMNS},
+            feature_band=_texts(p.features.get("primary_band") for p in points),
+        )
+
+    @classmethod
+    def concat(cls, tables: Sequence[PointTable]) -> PointTable:
+        """The rows of these tables, one after the other."""
+        if not tables:
+            return cls.from_points(())
+        columns: dict[str, Any] = {
+            name: np.concatenate([getattr(t, name) for t in tables])
+            for name in (*_TEXT_COLUMNS, *_NUMBER_COLUMNS)
+        }
+        for name in _BAND_COLUMNS:
+            keys = sorted(set().union(*(getattr(t, name) for t in tables)))
+            columns[name] = {
+                k: np.concatenate(
+                    [getattr(t, name).get(k, np.full(len(t), np.nan)) for t in tables]
+                )
+                for k in keys
+            }
+        return cls(**columns)
+
+    def row_of(self, star_id: str) -> int | None:
+        """Row of a star (None when it is not in the table)."""
+        if not self._rows and len(self):
+            self._rows.update((str(s), k) for k, s in enumerate(self.star_ids))
+        return self._rows.get(str(star_id))
+
+    def point(self, row: int) -> StarPoint:
+        """The :class:`StarPoint` of one row."""
+        k = int(row)
+
+        def band_map(columns: Mapping[str, np.ndarray]) -> dict[str, float]:
+            return {b: float(c[k]) for b, c in columns.items() if not math.isnan(c[k])}
+
+        features: dict[str, Any] = band_map(self.features)
+        if self.feature_band[k] is not None:
+            features["primary_band"] = self.feature_band[k]
+        return StarPoint(
+            star_id=str(self.star_ids[k]),
+            class_code=str(self.class_code[k]),
+            class_source=str(self.class_source[k]),
+            status=str(self.status[k]),
+            period=_or_none(self.period[k]),
+            amplitude_by_band=band_map(self.amplitude),
+            mean_mag_by_band=band_map(self.mean_mag),
+            R21=_or_none(self.R21[k]),
+            phi31=_or_none(self.phi31[k]),
+            shorter_period=_or_none(self.shorter_period[k]),
+            longer_period=_or_none(self.longer_period[k]),
+            primary_band=self.primary_band[k],
+            features=features,
+        )
+
+    def points(self, rows: Iterable[int] | None = None) -> list[StarPoint]:
+        """The :class:`StarPoint` of these rows (all by default)."""
+        return [self.point(k) for k in (range(len(self)) if rows is None else rows)]
+
+    def with_points(self, points: Iterable[StarPoint]) -> PointTable:
+        """This table with the rows of these stars replaced (others are ignored)."""
+        points = [p for p in points if self.row_of(p.star_id) is not None]
+        if not points:
+            return self
+        other = PointTable.from_points(points)
+        rows = np.array([self.row_of(p.star_id) for p in points], dtype=int)
+        columns: dict[str, Any] = {}
+        for name in (*_TEXT_COLUMNS, *_NUMBER_COLUMNS):
+            column = getattr(self, name).copy()
+            column[rows] = getattr(other, name)
+            columns[name] = column
+        for name in _BAND_COLUMNS:
+            mine, theirs = getattr(self, name), getattr(other, name)
+            columns[name] = {}
+            for key in sorted(set(mine) | set(theirs)):
+                column = mine[key].copy() if key in mine else np.full(len(self), np.nan)
+                column[rows] = theirs.get(key, np.full(len(rows), np.nan))
+                columns[name][key] = column
+        return PointTable(**columns, _rows=self._rows)
+
+    def class_counts(self, rows: np.ndarray | None = None) -> dict[str, int]:
+        """Number of stars per class used (of the rows given by a mask or indices)."""
+        codes = self.class_code if rows is None else self.class_code[rows]
+        names, first, counts = np.unique(codes.astype(str), return_index=True, return_counts=True)
+        order = np.argsort(first)
+        return {str(names[k]): int(counts[k]) for k in order}
+
+
+def as_table(points: PointTable | Iterable[StarPoint]) -> PointTable:
+    """A :class:`PointTable` of the points (the table itself when given one)."""
+    return points if isinstance(points, PointTable) else PointTable.from_points(points)
+
+
+#: Fields of the records (``result_point_record``, ``final_point_record``) read as columns.
+_RESULT_NUMBERS = ("period", "R21", "phi31", "shorter_period", "longer_period")
+_RESULT_TEXTS = ("$.top_class", "$.primary_band", "$.features.primary_band")
+# A2 is none of FEATURE_COLUMNS: the final numbers' A[1] is never read
+_FINAL_NUMBERS = ("period", "period_err", "period2", "R21", "phi31", "A[0]", "A[2]")
+_FINAL_TEXTS = ("$.fourier_band",)
+
+
+def point_table(ledger: Any, progress: Callable[[int, int], Any] | None = None) -> PointTable:
+    """The :class:`PointTable` of a ledger's stars, in the ledger's order.
+
+    ``progress(done, total)`` is called after each chunk of
+    :data:`PROGRESS_STEP` stars and at the end (a view reading a survey in a
+    worker thread shows it).
+
+    The ledger picks the numbers out of the small records it keeps beside
+    each result and each verdict's final numbers (``Ledger.point_columns``);
+    the class used and the final numbers are then applied column by column,
+    as :meth:`StarPoint.from_record` does for one star.  A star whose point
+    needs more (a period set by the person without final numbers, a record
+    missing or not plain JSON) is read in full, as :func:`star_point` does.
+    A failed or missing analysis gives a row without coordinates.
+    """
+    total = ledger.n_stars
+    chunks = []
+    try:
+        for chunk in ledger.point_columns(
+            [f"$.{k}" for k in _RESULT_NUMBERS] + [f"$.features.{k}" for k in FEATURE_COLUMNS],
+            [f"$.{k}" for k in _FINAL_NUMBERS],
+            _RESULT_TEXTS,
+            _FINAL_TEXTS,
+            band_maps=("amplitude_by_band", "mean_mag_by_band"),
+            chunk=PROGRESS_STEP,
+        ):
+            chunks.append(_chunk_table(ledger, chunk))
+            if progress is not None:
+                progress(sum(len(t) for t in chunks), total)
+    except ValueError:
+        # a record the columns cannot hold (a band name no JSON path can name): read in full
+        chunks = [PointTable.from_points(star_point(ledger, s) for s in ledger.star_ids())]
+        if progress is not None:
+            progress(len(chunks[0]), total)
+    if progress is not None and not chunks:
+        progress(0, total)
+    return PointTable.concat(chunks)
+
+
+def _chunk_table(ledger: Any, chunk: Any) -> PointTable:
+    """The rows of one chunk of ``Ledger.point_columns`` (see :func:`point_table`)."""
+    bands = chunk.bands
+    n_bands = len(bands)
+    status = _texts(chunk.status)
+    decided = (status == "confirmed") | (status == "relabelled")
+    final = decided & chunk.has_final_point
+    final_period = chunk.final_numbers[:, 0]
+    full = (
+        (decided & chunk.has_final & ~chunk.has_final_point)
+        | (chunk.analysed & ~chunk.has_result_point)
+        | (chunk.analysed & chunk.has_result_point & ~chunk.result_plain)
+        | (final & ~chunk.final_plain)
+        | (chunk.has_period & ~(final & ~np.isnan(final_period)))
+    )
+    # an unanalysed star (no result, or a failed one) has no numbers of its own
+    numbers = np.where(chunk.analysed[:, None], chunk.result_numbers, np.nan)
+    top, band, feature_band = (
+        _texts(t if a else None for t, a in zip(texts, chunk.analysed, strict=True))
+        for texts in chunk.result_texts
+    )
+    columns: dict[str, Any] = dict(zip(_RESULT_NUMBERS, numbers.T, strict=False))
+    k = len(_RESULT_NUMBERS)
+    features = dict(zip(FEATURE_COLUMNS, numbers[:, k : k + len(FEATURE_COLUMNS)].T, strict=True))
+    k += len(FEATURE_COLUMNS)
+    amplitude = dict(zip(bands, numbers[:, k : k + n_bands].T, strict=True))
+    mean_mag = dict(zip(bands, numbers[:, k + n_bands :].T, strict=True))
+
+    # the class used (class_used, column by column)
+    verdict_class = _texts(chunk.class_code)
+    by_person = decided & _truthy(verdict_class)
+    has_top = _truthy(top)
+    rejected = status == "rejected"
+    columns["class_code"] = np.where(
+        rejected, "REJECTED", np.where(by_person, verdict_class, np.where(has_top, top, "UNKNOWN"))
+    ).astype(object)
+    columns["class_source"] = np.where(
+        rejected | by_person | (has_top & (status == "confirmed")),
+        "verdict",
+        np.where(has_top, "suggestion", "none"),
+    ).astype(object)
+
+    # the verdict's final numbers (_apply_final, column by column)
+    f = chunk.final_numbers
+    no_period = final & np.isnan(final_period)
+    with_period = final & ~np.isnan(final_period)
+    final_amplitude = f[:, len(_FINAL_NUMBERS) : len(_FINAL_NUMBERS) + n_bands]
+    final_means = f[:, len(_FINAL_NUMBERS) + n_bands :]
+    new_means = with_period & ~np.all(np.isnan(final_means), axis=1)
+    for j, b in enumerate(bands):
+        amplitude[b] = np.where(with_period, final_amplitude[:, j], amplitude[b])
+        mean_mag[b] = np.where(new_means, final_means[:, j], mean_mag[b])
+        if f"mean_mag_{b}" in features:
+            given = with_period & ~np.isnan(final_means[:, j])
+            features[f"mean_mag_{b}"] = np.where(
+                given, final_means[:, j], features[f"mean_mag_{b}"]
+            )
+    for name, j in (
+        ("period", 0),
+        ("period_err", 1),
+        ("phi31", 4),
+        ("A1", 5),
+        ("A3", 6),
+    ):
+        if name in features:
+            features[name] = np.where(with_period, f[:, j], features[name])
+    fourier_band = _texts(chunk.final_texts[0])
+    feature_band = np.where(
+        with_period, np.where(_truthy(fourier_band), fourier_band, band), feature_band
+    ).astype(object)
+    second = f[:, 2]
+    columns.update(
+        period=np.where(no_period, np.nan, np.where(with_period, final_period, columns["period"])),
+        R21=np.where(with_period, f[:, 3], columns["R21"]),
+        phi31=np.where(with_period, f[:, 4], columns["phi31"]),
+        shorter_period=np.where(
+            no_period | with_period, np.fmin(final_period, second), columns["shorter_period"]
+        ),
+        longer_period=np.where(
+            no_period | with_period, np.fmax(final_period, second), columns["longer_period"]
+        ),
+    )
+    single = no_period | (with_period & np.isnan(second))
+    columns["shorter_period"] = np.where(single, np.nan, columns["shorter_period"])
+    columns["longer_period"] = np.where(single, np.nan, columns["longer_period"])
+    table = PointTable(
+        star_ids=_texts(chunk.star_ids),
+        status=status,
+        primary_band=band,
+        amplitude=amplitude,
+        mean_mag=mean_mag,
+        features=features,
+        feature_band=feature_band,
+        **columns,
+    )
+    if np.any(full):
+        table = table.with_points(
+            star_point(ledger, table.star_ids[k]) for k in np.flatnonzero(full)
+        )
+    return table
+
+
+def _truthy(texts: np.ndarray) -> np.ndarray:
+    """Which texts are neither None nor empty."""
+    return np.array([bool(t) for t in texts], dtype=bool)
+
+
+def available_bands(points: PointTable | Iterable[StarPoint]) -> list[str]:
     """Bands with a mean magnitude, the most common first."""
-    counts: dict[str, int] = {}
-    for point in points:
-        for band in point.mean_mag_by_band:
-            counts[band] = counts.get(band, 0) + 1
-    return sorted(counts, key=lambda b: (-counts[b], b))
+    table = as_table(points)
+    counts = {b: int(np.count_nonzero(~np.isnan(c))) for b, c in table.mean_mag.items()}
+    return sorted((b for b in counts if counts[b]), key=lambda b: (-counts[b], b))
 
 
 # --------------------------------------------------------------------------- diagrams
@@ -571,43 +874,43 @@ class Diagram:
         return [self.star_ids[i] for i in np.flatnonzero(keep)]
 
 
-def _build(
-    key: str,
-    rows: list[tuple[str, str, float, float]],
-    **kwargs: Any,
-) -> Diagram:
-    ids = tuple(r[0] for r in rows)
-    codes = tuple(r[1] for r in rows)
-    x = np.array([r[2] for r in rows], dtype=float)
-    y = np.array([r[3] for r in rows], dtype=float)
+def _build(key: str, table: PointTable, x: Any, y: Any, keep: Any = True, **kwargs: Any) -> Diagram:
+    """The diagram of the stars whose coordinates are both finite (and ``keep``)."""
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    rows = np.flatnonzero(np.isfinite(x) & np.isfinite(y) & keep)
+    x, y = x[rows], y[rows]
     x.flags.writeable = False
     y.flags.writeable = False
     return Diagram(
-        key=key, title=DIAGRAMS[key], star_ids=ids, class_codes=codes, x=x, y=y, **kwargs
+        key=key,
+        title=DIAGRAMS[key],
+        star_ids=tuple(table.star_ids[rows].tolist()),
+        class_codes=tuple(table.class_code[rows].tolist()),
+        x=x,
+        y=y,
+        **kwargs,
     )
 
 
-def _log_period(point: StarPoint) -> float | None:
-    if point.period is None or point.period <= 0:
-        return None
-    return math.log10(point.period)
+def _log_period(period: np.ndarray) -> np.ndarray:
+    """log10 of the periods, NaN where a period is missing or not positive."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(period > 0, np.log10(np.where(period > 0, period, 1.0)), np.nan)
 
 
-def _rows(points: Iterable[StarPoint], xy: Callable[[StarPoint], tuple[Any, Any]]) -> list:
-    rows = []
-    for point in points:
-        x, y = xy(point)
-        if x is not None and y is not None and math.isfinite(x) and math.isfinite(y):
-            rows.append((point.star_id, point.class_code, float(x), float(y)))
-    return rows
+def _band(columns: Mapping[str, np.ndarray], band: str, n: int) -> np.ndarray:
+    return columns.get(band, np.full(n, np.nan))
 
 
-def period_amplitude(points: Iterable[StarPoint], band: str) -> Diagram:
+def period_amplitude(points: PointTable | Iterable[StarPoint], band: str) -> Diagram:
     """log10 P against peak-to-peak amplitude in ``band``."""
-    rows = _rows(points, lambda p: (_log_period(p), p.amplitude_by_band.get(band)))
+    table = as_table(points)
     return _build(
         "period_amplitude",
-        rows,
+        table,
+        _log_period(table.period),
+        _band(table.amplitude, band, len(table)),
         x_label="log₁₀ P [d]",
         y_label=f"peak-to-peak amplitude {band} [mag]",
         note=f"band {band}",
@@ -631,24 +934,20 @@ def phase_window_start(phases: Sequence[float]) -> float:
     return round(start, 1)
 
 
-def phi31_logp(points: Iterable[StarPoint]) -> Diagram:
+def phi31_logp(points: PointTable | Iterable[StarPoint]) -> Diagram:
     """phi31 (sine series) against log10 P, primary band.
 
     phi31 is an angle: it is shown in a 2π window cut where no star lies
     (:func:`phase_window_start`), so that a class near 0 ≡ 2π is not split.
     """
-    points = list(points)
-    start = phase_window_start([p.phi31 for p in points if p.phi31 is not None])
-
-    def xy(p: StarPoint) -> tuple[Any, Any]:
-        if p.phi31 is None:
-            return _log_period(p), None
-        return _log_period(p), start + (p.phi31 - start) % (2 * math.pi)
-
-    rows = _rows(points, xy)
+    table = as_table(points)
+    phi31 = table.phi31
+    start = phase_window_start(phi31[~np.isnan(phi31)])
     return _build(
         "phi31_logp",
-        rows,
+        table,
+        _log_period(table.period),
+        start + np.mod(phi31 - start, 2 * math.pi),
         x_label="log₁₀ P [d]",
         y_label="φ31 (sine series) [rad]",
         note=(
@@ -659,12 +958,14 @@ def phi31_logp(points: Iterable[StarPoint]) -> Diagram:
     )
 
 
-def r21_logp(points: Iterable[StarPoint]) -> Diagram:
+def r21_logp(points: PointTable | Iterable[StarPoint]) -> Diagram:
     """R21 against log10 P, primary band."""
-    rows = _rows(points, lambda p: (_log_period(p), p.R21))
+    table = as_table(points)
     return _build(
         "r21_logp",
-        rows,
+        table,
+        _log_period(table.period),
+        table.R21,
         x_label="log₁₀ P [d]",
         y_label="R21 = A2/A1",
         note="primary band of each star",
@@ -693,39 +994,28 @@ _NOT_PULSATING = frozenset(
 ) - {"UNKNOWN"}
 
 
-def period_ratio(points: Iterable[StarPoint]) -> Diagram:
+def period_ratio(points: PointTable | Iterable[StarPoint]) -> Diagram:
     """Shorter/longer period against log10 of the longer period (double-mode stars).
 
     A star is drawn when it has an independent second period whose ratio to
     the first lies in :data:`RATIO_WINDOW`, unless its class used is
     constant, eclipsing, long-period or rejected.
     """
-    points = list(points)
+    table = as_table(points)
     low, high = RATIO_WINDOW
-
-    def xy(p: StarPoint) -> tuple[Any, Any]:
-        if p.longer_period is None or p.ratio is None or p.class_code in _NOT_PULSATING:
-            return None, None
-        if not low <= p.ratio <= high:
-            return None, None
-        return math.log10(p.longer_period), p.ratio
-
-    rows = _rows(points, xy)
-    xs = [r[2] for r in rows] or [-0.5, 0.5]
-    # guides span the stars drawn, so that they (and their labels) stay in view
-    x_span = np.array([min(xs), max(xs)]) + np.array([-0.02, 0.02])
-    lines = []
-    for label, g_low, g_high, citation in RATIO_GUIDES if rows else ():
-        for value in sorted({g_low, g_high}):
-            lines.append(
-                DiagramLine(label, x_span, np.full(2, value), kind="guide", citation=citation)
-            )
-    return _build(
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = table.shorter_period / table.longer_period
+        log_longer = np.log10(table.longer_period)
+    pulsating = ~np.isin(table.class_code, list(_NOT_PULSATING))
+    keep = pulsating & (ratio >= low) & (ratio <= high)
+    diagram = _build(
         "period_ratio",
-        rows,
+        table,
+        log_longer,
+        ratio,
+        keep,
         x_label="log₁₀ P_long [d]",
         y_label="P_short / P_long",
-        lines=tuple(lines),
         note=(
             f"stars with an independent second period, ratio {low:g}–{high:g}; "
             "guide lines at published ratios"
@@ -733,16 +1023,29 @@ def period_ratio(points: Iterable[StarPoint]) -> Diagram:
         scale_floor=(0.005, 0.002),
         locus_classes=DOUBLE_MODE_CLASSES,
     )
+    if not len(diagram):
+        return diagram
+    # guides span the stars drawn, so that they (and their labels) stay in view
+    x_span = np.array([diagram.x.min(), diagram.x.max()]) + np.array([-0.02, 0.02])
+    lines = []
+    for label, g_low, g_high, citation in RATIO_GUIDES:
+        for value in sorted({g_low, g_high}):
+            lines.append(
+                DiagramLine(label, x_span, np.full(2, value), kind="guide", citation=citation)
+            )
+    return replace(diagram, lines=tuple(lines))
 
 
 def period_luminosity(
-    points: Iterable[StarPoint], band: str, lines: Sequence[DiagramLine] = ()
+    points: PointTable | Iterable[StarPoint], band: str, lines: Sequence[DiagramLine] = ()
 ) -> Diagram:
     """log10 P against mean magnitude in ``band``; bright at the top."""
-    rows = _rows(points, lambda p: (_log_period(p), p.mean_mag_by_band.get(band)))
+    table = as_table(points)
     return _build(
         "period_luminosity",
-        rows,
+        table,
+        _log_period(table.period),
+        _band(table.mean_mag, band, len(table)),
         x_label="log₁₀ P [d]",
         y_label=f"mean {band} [mag]",
         invert_y=True,
@@ -753,16 +1056,19 @@ def period_luminosity(
 
 
 def colour_magnitude(
-    points: Iterable[StarPoint],
+    points: PointTable | Iterable[StarPoint],
     blue: str = "V",
     red: str = "I",
     lines: Sequence[DiagramLine] = (),
 ) -> Diagram:
     """Colour ``blue − red`` against ``blue`` magnitude; bright at the top."""
-    rows = _rows(points, lambda p: (p.colour(blue, red), p.mean_mag_by_band.get(blue)))
+    table = as_table(points)
+    blue_mag = _band(table.mean_mag, blue, len(table))
     return _build(
         "colour_magnitude",
-        rows,
+        table,
+        blue_mag - _band(table.mean_mag, red, len(table)),
+        blue_mag,
         x_label=f"{blue} − {red} [mag]",
         y_label=f"mean {blue} [mag]",
         invert_y=True,
@@ -987,26 +1293,23 @@ def find_outliers(
     """
     flags = []
     for diagram in diagrams:
-        codes = np.asarray(diagram.class_codes, dtype=object)
-        tested = set(diagram.class_codes) - NO_LOCUS_CLASSES
+        # one sort per diagram, then classes as integers (no comparison per star and class)
+        names, inverse = np.unique(np.asarray(diagram.class_codes, dtype=str), return_inverse=True)
+        tested = set(names.tolist()) - NO_LOCUS_CLASSES
         if diagram.locus_classes is not None:
             tested &= set(diagram.locus_classes)
         for code in sorted(tested):
-            members = np.flatnonzero(codes == code)
+            members = np.flatnonzero(inverse == int(np.searchsorted(names, code)))
             if len(members) < rule.min_members:
                 continue
             d = robust_distance(diagram.x[members], diagram.y[members], diagram.scale_floor)
-            for index, distance in zip(members, d, strict=True):
-                if distance > rule.threshold:
-                    flags.append(
-                        OutlierFlag(
-                            diagram.star_ids[index],
-                            code,
-                            diagram.key,
-                            float(distance),
-                            rule.threshold,
-                        )
+            far = d > rule.threshold
+            for index, distance in zip(members[far], d[far], strict=True):
+                flags.append(
+                    OutlierFlag(
+                        diagram.star_ids[index], code, diagram.key, float(distance), rule.threshold
                     )
+                )
     flags.sort(key=lambda f: (f.star_id, -f.distance))
     return tuple(flags)
 
@@ -1055,16 +1358,16 @@ class FieldState:
         }
 
 
-def class_counts(points: Iterable[StarPoint]) -> dict[str, int]:
-    """Number of stars per class used."""
-    counts: dict[str, int] = {}
-    for point in points:
-        counts[point.class_code] = counts.get(point.class_code, 0) + 1
-    return counts
+def class_counts(points: PointTable | Iterable[StarPoint]) -> dict[str, int]:
+    """Number of stars per class used, in the order the classes first appear."""
+    return as_table(points).class_counts()
 
 
-def summary_members(points: Iterable[StarPoint]) -> list[StarPoint]:
+def summary_members(points: PointTable | Iterable[StarPoint]) -> list[StarPoint]:
     """The stars the field summary uses: all but rejected, UNKNOWN and CONST."""
+    if isinstance(points, PointTable):
+        codes = points.class_code
+        return points.points(np.flatnonzero(~np.isin(codes, list(NO_LOCUS_CLASSES))))
     return [p for p in points if p.class_code not in NO_LOCUS_CLASSES]
 
 
@@ -1082,6 +1385,26 @@ def star_physics(points: Iterable[StarPoint], settings: Any = None) -> list[Any]
         if point.class_code in STANDARD_CANDLES:
             values = physics.derive(point.class_code, point.features, settings)
         out.append(physics.StarPhysics(point.star_id, point.class_code, point.period, values))
+    return out
+
+
+def _table_physics(table: PointTable, rows: np.ndarray, settings: Any) -> list[Any]:
+    """:func:`star_physics` of these rows of a table, without a :class:`StarPoint` each."""
+    features = {name: column[rows].tolist() for name, column in table.features.items()}
+    bands = table.feature_band[rows].tolist()
+    candle = np.isin(table.class_code[rows], list(STANDARD_CANDLES)).tolist()
+    ids, codes = table.star_ids[rows].tolist(), table.class_code[rows].tolist()
+    periods = [None if math.isnan(p) else p for p in table.period[rows].tolist()]
+    out = []
+    for k, code in enumerate(codes):
+        values = ()
+        if candle[k]:
+            # the features of PointTable.point: NaN is a feature not given
+            given = {name: column[k] for name, column in features.items() if column[k] == column[k]}
+            if bands[k] is not None:
+                given["primary_band"] = bands[k]
+            values = physics.derive(code, given, settings)
+        out.append(physics.StarPhysics(str(ids[k]), code, periods[k], values))
     return out
 
 
@@ -1113,7 +1436,7 @@ def band_extinction(band: str, a_v: float, rv: float = 3.1) -> float | None:
 
 
 def field_state(
-    points: Sequence[StarPoint],
+    points: PointTable | Sequence[StarPoint],
     *,
     ebv: float = 0.0,
     pl_band: str = "V",
@@ -1137,8 +1460,15 @@ def field_state(
     summary's distance of the class with most members used (RRab first).
     """
     settings = physics_settings_from(physics_settings, ebv)
-    members = summary_members(points)
-    stars = star_physics(members, settings)
+    if isinstance(points, PointTable):
+        rows = np.flatnonzero(~np.isin(points.class_code, list(NO_LOCUS_CLASSES)))
+        stars = _table_physics(points, rows, settings)
+        # the P–L guide needs only the stars of its relation's classes as points
+        pl_classes = list(physics.RELATIONS[pl_relation].applies_to) if pl_relation else []
+        members = points.points(rows[np.isin(points.class_code[rows], pl_classes)])
+    else:
+        members = summary_members(points)
+        stars = star_physics(members, settings)
     summary = physics.population_summary(stars)
     relations: dict[str, str] = {}
     for star in stars:

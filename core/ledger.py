@@ -79,6 +79,7 @@ __all__ = [
     "Verdict",
     "StarRow",
     "PointRow",
+    "PointChunk",
     "HistoryEntry",
     "Action",
     "Change",
@@ -158,6 +159,11 @@ def _plain(value: Any) -> Any:
 def _dumps(value: Any) -> str:
     # NaN/inf are kept (Python's json reads them back); results use them.
     return json.dumps(_plain(value), separators=(",", ":"), allow_nan=True)
+
+
+def _dumps_plain(value: Any) -> str:
+    """:func:`_dumps` of data that is plain JSON already (decoded from JSON): the same text."""
+    return json.dumps(value, separators=(",", ":"), allow_nan=True)
 
 
 def _loads(text: str | None) -> Any:
@@ -248,6 +254,27 @@ class PointRow(NamedTuple):
     analysed: bool  # a result is stored and it did not fail
     result_point: dict[str, Any] | None  # core.diagrams.result_point_record of the result
     final_point: dict[str, Any] | None  # core.diagrams.final_point_record of the final numbers
+
+
+class PointChunk(NamedTuple):
+    """Parallel columns of a chunk of stars (``Ledger.point_columns``)."""
+
+    star_ids: list[str]
+    status: list[str]
+    class_code: list[str | None]
+    has_period: np.ndarray  # the person chose a period
+    has_final: np.ndarray  # the verdict has final numbers stored
+    analysed: np.ndarray  # a result is stored and it did not fail
+    has_result_point: np.ndarray  # a diagram record of the result is stored
+    has_final_point: np.ndarray  # a diagram record of the final numbers is stored
+    result_plain: np.ndarray  # that record is plain JSON (its fields were read)
+    final_plain: np.ndarray
+    result_numbers: np.ndarray  # (stars, paths), NaN where missing
+    final_numbers: np.ndarray
+    result_texts: list[list[str | None]]  # one list per text path
+    final_texts: list[list[str | None]]
+    bands: tuple[str, ...] = ()  # bands of the band objects' numbers, in order
+    new_bands: bool = False  # a record has a band not in ``bands`` (read again)
 
 
 @dataclass(frozen=True)
@@ -555,6 +582,7 @@ class _Codec:
     def __init__(self, conn: sqlite3.Connection) -> None:
         self.conn = conn
         self.zdicts: dict[int, bytes] = dict(conn.execute("SELECT id, zdict FROM codecs"))
+        self._packers: dict[int, Any] = {}
 
     def pack(self, text: str) -> tuple[int | None, bytes]:
         data = text.encode("utf-8")
@@ -563,7 +591,12 @@ class _Codec:
             self.conn.execute("INSERT INTO codecs(id, zdict) VALUES (1, ?)", (zdict,))
             self.zdicts[1] = zdict
         codec = max(self.zdicts)
-        packer = zlib.compressobj(6, zdict=self.zdicts[codec])
+        primed = self._packers.get(codec)
+        if primed is None:
+            primed = self._packers[codec] = zlib.compressobj(6, zdict=self.zdicts[codec])
+        # a copy of a compressor primed with the dictionary: the same bytes,
+        # without loading the dictionary again for every record
+        packer = primed.copy()
         return codec, packer.compress(data) + packer.flush()
 
     def unpack(self, codec: int | None, data: bytes) -> str:
@@ -1055,6 +1088,10 @@ class Ledger:
             raise LedgerError(f"no star {star_id!r} in this ledger", file=self.path) from None
 
     def _new_action(self, kind: str, label: str, target: int | None = None) -> int:
+        return self._new_action_at(kind, label, target)[0]
+
+    def _new_action_at(self, kind: str, label: str, target: int | None = None) -> tuple[int, str]:
+        """Append an action; returns its id and time."""
         state = "done" if kind == "do" else None
         if kind == "do":
             # a new action makes every undone action unreachable for redo
@@ -1065,24 +1102,37 @@ class Ledger:
             "INSERT INTO actions(kind, label, at, target, state, seal) VALUES (?, ?, ?, ?, ?, ?)",
             (*values, _seal(*values)),
         )
-        return int(cursor.lastrowid)
+        return int(cursor.lastrowid), values[2]
 
-    def _set_action_state(self, action_id: int, state: str) -> None:
-        kind, label, at, target = self._query(
-            "SELECT kind, label, at, target FROM actions WHERE id = ?", (action_id,)
-        ).fetchone()
+    def _set_action_state(
+        self, action_id: int, state: str, known: tuple[Any, ...] | None = None
+    ) -> None:
+        """Change an action's state; ``known``: its (kind, label, at, target), already read."""
+        kind, label, at, target = (
+            known
+            or self._query(
+                "SELECT kind, label, at, target FROM actions WHERE id = ?", (action_id,)
+            ).fetchone()
+        )
         self._query(
             "UPDATE actions SET state = ?, seal = ? WHERE id = ?",
             (state, _seal(kind, label, at, target, state), action_id),
         )
 
     def _log(self, action: int, star_id: str | None, what: str, old: Any, new: Any) -> None:
-        values = (action, _now(), star_id, what, _dumps(old), _dumps(new))
-        self._query(
+        self._log_texts(action, star_id, what, _dumps(old), _dumps(new))
+
+    def _log_texts(
+        self, action: int, star_id: str | None, what: str, old: str | None, new: str | None
+    ) -> tuple[int, str]:
+        """Append a history row of values already in JSON; returns its id and time."""
+        values = (action, _now(), star_id, what, old, new)
+        cursor = self._query(
             "INSERT INTO history(action, at, star_id, what, old, new, seal) "
             "VALUES (?, ?, ?, ?, ?, ?, ?)",
             (*values, _seal(*values)),
         )
+        return int(cursor.lastrowid), values[1]
 
     def _account(self, table: str, key: int, old: bytes | None, new: bytes | None) -> None:
         """Keep the content sum up to date when a record's seal changes."""
@@ -1627,6 +1677,22 @@ class Ledger:
             out.append(Verdict(star_id, status, class_code, period, note, decided_at, _loads(text)))
         return out
 
+    def _verdict_seal(self, key: int, star_id: str) -> bytes:
+        """The seal of a star's verdict record, checked (as :meth:`verdict` checks it)."""
+        row = self._query(
+            "SELECT v.status, v.class_code, v.period, v.note, v.decided_at, v.seal, f.codec, "
+            "f.data FROM verdicts v LEFT JOIN finals f ON f.star = v.star WHERE v.star = ?",
+            (key,),
+        ).fetchone()
+        status, class_code, period, note, decided_at, seal, codec, data = row
+        try:
+            text = None if data is None else self._codec.unpack(codec, data)
+        except ValueError:
+            raise self._damaged(star_id, "verdict") from None
+        if _seal(key, status, class_code, period, note, decided_at, text) != seal:
+            raise self._damaged(star_id, "verdict")
+        return seal
+
     def set_verdict(
         self,
         star_id: str,
@@ -1742,14 +1808,21 @@ class Ledger:
         return Verdict(star_id, status, class_code, period, note or None, decided_at, final)
 
     def _apply_verdict(
-        self, verdict: Verdict, *, key: int | None = None, new: bool = False
+        self,
+        verdict: Verdict,
+        *,
+        key: int | None = None,
+        new: bool = False,
+        plain: bool = False,
+        old_seal: bytes | None = None,
     ) -> None:
         key = self._key(verdict.star_id) if key is None else key
-        text = None if verdict.final is None else _dumps(verdict.final)
+        dumps = _dumps_plain if plain else _dumps
+        text = None if verdict.final is None else dumps(verdict.final)
         values = (verdict.status, verdict.class_code, verdict.period, verdict.note)
         seal = _seal(key, *values, verdict.decided_at, text)
-        old = None
-        if not new:
+        old = old_seal
+        if not new and old is None:
             old = self._query("SELECT seal FROM verdicts WHERE star = ?", (key,)).fetchone()[0]
         self._query(
             "INSERT OR REPLACE INTO verdicts(star, status, class_code, period, note, decided_at, "
@@ -1849,6 +1922,225 @@ class Ledger:
                     records[2 * k],
                     records[2 * k + 1],
                 )
+
+    def point_columns(
+        self,
+        result_numbers: Sequence[str],
+        final_numbers: Sequence[str],
+        result_texts: Sequence[str] = (),
+        final_texts: Sequence[str] = (),
+        *,
+        band_maps: Sequence[str] = (),
+        chunk: int = 5000,
+    ) -> Iterator[PointChunk]:
+        """Every star's verdict and chosen fields of its diagram records, as columns.
+
+        The fields are JSON paths (``"$.period"``) into the records of the
+        result (``core.diagrams.result_point_record``) and of the verdict's
+        final numbers (``final_point_record``); ``band_maps`` names objects of
+        both records keyed by band (``"amplitude_by_band"``), whose numbers
+        come after the others, band by band (``PointChunk.bands``).  SQLite's
+        JSON functions pick the numbers out in C as the text Python wrote, and
+        each chunk's are decoded by one JSON call: no Python object is made
+        per record.  A missing or null field is NaN (numbers) or None (texts).
+        A record that is not plain JSON (a NaN written by Python, or damage)
+        comes back with ``*_plain`` False and its fields missing: read that
+        star in full.  ``chunk`` stars are read per query.  Raises ValueError
+        for a band name a JSON path cannot hold (with ``"`` or ``\\``).
+        """
+        bands: list[str] = []
+        last = 0  # star keys are SQLite rowids, from 1
+        while True:
+            paths = [f'$.{m}."{b}"' for m in band_maps for b in bands]
+            rows = self._point_chunk(
+                (*result_numbers, *paths),
+                (*final_numbers, *paths),
+                result_texts,
+                final_texts,
+                band_maps,
+                bands,
+                last,
+                chunk,
+            )
+            if not rows:
+                return
+            columns = self._point_chunk_columns(
+                rows,
+                len(result_numbers) + len(paths),
+                len(final_numbers) + len(paths),
+                len(result_texts),
+                len(final_texts),
+                tuple(bands),
+            )
+            if columns.new_bands:
+                # a band none of the chunks before had: find this chunk's and read it again
+                found = self._point_bands(band_maps, last, rows[-1][0])
+                if found <= set(bands) or any('"' in b or "\\" in b for b in found):
+                    raise ValueError(f"band names a JSON path cannot hold: {sorted(found)!r}")
+                bands = sorted(set(bands) | set(found))
+                continue
+            last = rows[-1][0]
+            yield columns
+
+    def _point_bands(self, maps: Sequence[str], after: int, upto: int) -> set[str]:
+        """Keys of the named objects of the diagram records of stars ``after < key <= upto``."""
+        found: set[str] = set()
+        for column in ("result_point", "final_point"):
+            for name in maps:
+                found.update(
+                    str(row[0])
+                    for row in self._query(
+                        f"SELECT DISTINCT j.key FROM points p, json_each(p.{column}, ?) j "
+                        f"WHERE p.star > ? AND p.star <= ? AND json_valid(p.{column})",
+                        (f"$.{name}", after, upto),
+                    ).fetchall()
+                )
+        return found
+
+    def _point_chunk(
+        self,
+        result_numbers: Sequence[str],
+        final_numbers: Sequence[str],
+        result_texts: Sequence[str],
+        final_texts: Sequence[str],
+        band_maps: Sequence[str],
+        bands: Sequence[str],
+        after: int,
+        chunk: int,
+    ) -> list[tuple[Any, ...]]:
+        """The rows of one chunk of :meth:`point_columns`: ``(key, flags, numbers
+        of the result, of the final numbers, texts)``, the last three as the
+        comma-separated JSON values of each.  Records that are not plain JSON
+        are looked for only when SQLite finds one (then a second query)."""
+        remove = "".join(", ?" for _ in bands)
+        band_params = [p for name in band_maps for p in (f"$.{name}", *(f'$."{b}"' for b in bands))]
+        for guarded in (False, True):
+
+            def plain(column: str, expression: str, guarded: bool = guarded) -> str:
+                return (
+                    f"CASE WHEN json_valid(p.{column}) THEN {expression} END"
+                    if guarded
+                    else expression
+                )
+
+            def unknown_bands(column: str) -> str:
+                # the band objects less the known bands: anything left is a new band
+                tests = [
+                    f"COALESCE(json_remove(p.{column} -> ?{remove}), '{{}}') <> '{{}}'"
+                    for _ in band_maps
+                ]
+                return plain(column, "(" + (" OR ".join(tests) or "0") + ")")
+
+            def numbers(column: str, paths: Sequence[str]) -> str:
+                # the numbers' paths, then the texts': one JSON call per record
+                extract = f"json_extract(p.{column}, {', '.join('?' * len(paths))})"
+                return f"CAST(trim({plain(column, extract)}, '[]') AS BLOB)"
+
+            text_array = ", ".join(
+                [
+                    "s.star_id",
+                    "v.status",
+                    "v.class_code",
+                ]
+            )
+            flags = " | ".join(
+                f"(({test}) << {bit})"
+                for bit, test in enumerate(
+                    (
+                        "v.period IS NOT NULL",
+                        "f.star IS NOT NULL",
+                        "r.star IS NOT NULL AND NOT r.failed",
+                        "p.result_point IS NOT NULL",
+                        "p.final_point IS NOT NULL",
+                        "json_valid(p.result_point)" if guarded else "1",
+                        "json_valid(p.final_point)" if guarded else "1",
+                        f"COALESCE({unknown_bands('result_point')}, 0) OR "
+                        f"COALESCE({unknown_bands('final_point')}, 0)",
+                    )
+                )
+            )
+            sql = (
+                f"SELECT s.id, {flags}, "
+                f"{numbers('result_point', (*result_numbers, *result_texts))}, "
+                f"{numbers('final_point', (*final_numbers, *final_texts))}, "
+                f"CAST(trim(json_array({text_array}), '[]') AS BLOB) "
+                "FROM stars s JOIN verdicts v ON v.star = s.id "
+                "LEFT JOIN results r ON r.star = s.id LEFT JOIN finals f ON f.star = s.id "
+                "LEFT JOIN points p ON p.star = s.id WHERE s.id > ? ORDER BY s.id LIMIT ?"
+            )
+            params = (
+                *band_params,
+                *band_params,
+                *result_numbers,
+                *result_texts,
+                *final_numbers,
+                *final_texts,
+                after,
+                int(chunk),
+            )
+            with self._mutex:
+                if self._conn is None:
+                    raise LedgerError("the ledger is closed", file=self.path)
+                try:
+                    return self._conn.execute(sql, params).fetchall()
+                except sqlite3.OperationalError as exc:
+                    if guarded or "malformed json" not in str(exc).lower():
+                        raise _write_error(exc, self.path) from None
+                except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
+                    raise _damaged_file(exc, self.path) from None
+        raise AssertionError("unreachable")  # pragma: no cover
+
+    @staticmethod
+    def _point_chunk_columns(
+        rows: list[tuple[Any, ...]],
+        n_result: int,
+        n_final: int,
+        n_result_texts: int,
+        n_final_texts: int,
+        bands: tuple[str, ...],
+    ) -> PointChunk:
+        keys, flags, result, final, texts = zip(*rows, strict=True)
+        flags = np.array(flags, dtype=np.int64)
+
+        def flag(bit: int) -> np.ndarray:
+            return (flags >> bit & 1).astype(bool)
+
+        def fields(
+            values: Sequence[bytes | None], width: int, n_texts: int
+        ) -> tuple[np.ndarray, list[list[Any]]]:
+            """Numbers (null -> NaN) and texts of one record kind: one JSON call for the
+            chunk's records, no list per record."""
+            size = width + n_texts
+            empty = b",".join([b"null"] * size)
+            flat = json.loads(b"[" + b",".join(v or empty for v in values) + b"]")
+            if len(flat) != size * len(rows):
+                raise ValueError("a diagram record holds a list or object where a value belongs")
+            numbers = np.array([flat[j::size] for j in range(width)], dtype=float)
+            texts = [flat[width + j :: size] for j in range(n_texts)]
+            return numbers.T, texts
+
+        flat = json.loads(b"[" + b",".join(texts) + b"]")
+        columns = [flat[k::3] for k in range(3)]
+        result_numbers, result_texts = fields(result, n_result, n_result_texts)
+        final_numbers, final_texts = fields(final, n_final, n_final_texts)
+        return PointChunk(
+            star_ids=columns[0],
+            status=columns[1],
+            class_code=columns[2],
+            has_period=flag(0),
+            has_final=flag(1),
+            analysed=flag(2),
+            has_result_point=flag(3),
+            has_final_point=flag(4),
+            result_plain=flag(5),
+            final_plain=flag(6),
+            result_numbers=result_numbers,
+            final_numbers=final_numbers,
+            result_texts=result_texts,
+            final_texts=final_texts,
+            bands=bands,
+            new_bands=bool(np.any(flag(7))),
+        )
 
     def star_row(self, star_id: str) -> StarRow:
         """One star's list line (to refresh a row after a change)."""
@@ -2032,6 +2324,11 @@ class Ledger:
         return None if action is None else action[1]
 
     def _next_action(self, direction: str) -> tuple[int, str] | None:
+        row = self._next_action_row(direction)
+        return None if row is None else (row[0], row[1])
+
+    def _next_action_row(self, direction: str) -> tuple[Any, ...] | None:
+        """The action undo (or redo) would walk: (id, label, kind, at, target), checked."""
         if direction == "undo":
             sql = "WHERE state = 'done' ORDER BY id DESC LIMIT 1"
         else:
@@ -2047,7 +2344,7 @@ class Ledger:
                 "run 'phasewise ledger check' on this ledger",
                 file=self.path,
             )
-        return row[0], row[1]
+        return row[:5]
 
     def undo(self) -> Action | None:
         """Undo the latest action still done; returns what changed (None if nothing)."""
@@ -2065,30 +2362,47 @@ class Ledger:
 
     def _walk_one(self, direction: str) -> Action:
         with self._write(direction) as tx:
-            target_id, label = self._next_action(direction)
+            target_id, label, kind, at, target = self._next_action_row(direction)
+            known = (kind, label, at, target)
             rows = self._query(
                 "SELECT id, action, at, star_id, what, old, new, seal FROM history "
                 "WHERE action = ? ORDER BY id",
                 (target_id,),
             ).fetchall()
             entries = [self._history_entry((r[0], r[1], "do"), r[2:7], r[7]) for r in rows]
-            action = self._new_action(direction, f"{direction} {label}", target_id)
+            texts = [(r[5], r[6]) for r in rows]  # old, new as stored: logged again as they are
+            label = f"{direction} {label}"
+            action, at = self._new_action_at(direction, label, target_id)
+            order = range(len(entries))
             if direction == "undo":
-                entries = entries[::-1]
-            for entry in entries:
-                before, after = entry.new, entry.old
-                if direction == "redo":
-                    before, after = after, before
+                order = order[::-1]
+            done = []
+            for k in order:
+                entry, (old, new) = entries[k], texts[k]
+                before, after = (
+                    (entry.new, entry.old) if direction == "undo" else (entry.old, entry.new)
+                )
+                before_text, after_text = (new, old) if direction == "undo" else (old, new)
                 self._restore(entry.star_id, entry.what, after)
-                self._log(action, entry.star_id, entry.what, before, after)
+                row_id, row_at = self._log_texts(
+                    action, entry.star_id, entry.what, before_text, after_text
+                )
+                done.append(
+                    HistoryEntry(
+                        row_id, action, direction, row_at, entry.star_id, entry.what, before, after
+                    )
+                )
                 tx.star_ids.append(entry.star_id)
-            self._set_action_state(target_id, "undone" if direction == "undo" else "done")
-        return self._action(action)
+            self._set_action_state(target_id, "undone" if direction == "undo" else "done", known)
+        # what was written, without reading it back
+        return Action(action, direction, label, at, target_id, tuple(done))
 
     def _restore(self, star_id: str, what: str, value: Any) -> None:
         if what == "verdict":
-            self.verdict(star_id)  # a damaged record is reported, not sealed over
-            self._apply_verdict(Verdict(star_id, **value))
+            key = self._key(star_id)
+            old = self._verdict_seal(key, star_id)  # a damaged record is reported, not sealed over
+            # the value was read from the history's JSON: plain data already
+            self._apply_verdict(Verdict(star_id, **value), key=key, plain=True, old_seal=old)
         elif what == "excluded":
             key = self._key(star_id)
             n = self._photometry_row(star_id)[7]  # checked before it is changed

@@ -3,22 +3,25 @@
 :func:`attach` is what ``phasewise demo`` / ``phasewise open`` call (through
 ``app.cli.gui``) after making the desk window.  It uses only the desk's
 extension points: ``add_view``, ``select_star``, ``select_stars``,
-``visible_star_ids``, ``current_star``, ``ledger`` and the signals
-``starChanged(str)``, ``ledgerChanged()``, ``verdictChanged(str)``,
+``visible_star_ids``, ``current_star``, ``ledger``, ``desk`` (the
+``core.desk.DeskModel``, whose ``"change"`` event it listens to),
+``star_list`` (declared by :class:`StarList` and :class:`ListedStars`) and
+the signals ``starChanged(str)``, ``ledgerChanged()``, ``verdictChanged(str)``,
 ``filterChanged()``.
 """
 
 from __future__ import annotations
 
-from typing import Any
+from collections.abc import Iterable
+from typing import Any, Protocol, runtime_checkable
 
-from PySide6 import QtCore
+from PySide6 import QtCore, QtWidgets
 
 from phasewise.core.errors import LedgerError
 
 from .view import PopulationView
 
-__all__ = ["attach", "VIEW_NAME", "OUTLIER_FLAG", "PopulationLink"]
+__all__ = ["attach", "VIEW_NAME", "OUTLIER_FLAG", "PopulationLink", "StarList", "ListedStars"]
 
 #: The name of the view in the desk (``--view population``).
 VIEW_NAME = "population"
@@ -29,6 +32,28 @@ VERDICT_DELAY_MS = 250
 #: The flag the star list shows for stars far from their class's locus
 #: (type it in the list's filter to see them all).
 OUTLIER_FLAG = "diagram outlier"
+
+
+@runtime_checkable
+class ListedStars(Protocol):
+    """What the link uses of the star list's rows (``app.desk.star_list.StarTableModel``)."""
+
+    def row_of(self, star_id: str) -> int | None: ...
+    def value(self, star_id: str, field: str) -> Any: ...
+    def update_star(self, star_id: str, **fields: Any) -> None: ...
+    def prefetch(self, star_ids: Iterable[str]) -> None: ...
+
+
+@runtime_checkable
+class StarList(Protocol):
+    """What the link uses of the desk's star list (``app.desk.star_list.StarListWidget``):
+    its rows (``model``, :class:`ListedStars`), its table (``view``, whose
+    selection model reports the selection) and ``selected_star_ids()``."""
+
+    model: Any
+    view: QtWidgets.QAbstractItemView
+
+    def selected_star_ids(self) -> list[str]: ...
 
 
 class PopulationLink(QtCore.QObject):
@@ -58,24 +83,24 @@ class PopulationLink(QtCore.QObject):
         view.stars_brushed.connect(window.select_stars)
         view.outliers_changed.connect(self.mark_outliers)
         # the list's selection, marked in the diagrams (the desk has no signal for it:
-        # listen to its table's selection model when there is one)
-        star_list = getattr(window, "star_list", None)
-        table = getattr(star_list, "view", None)
-        selection = table.selectionModel() if hasattr(table, "selectionModel") else None
-        if selection is not None and hasattr(star_list, "selected_star_ids"):
-            selection.selectionChanged.connect(self.selection_changed)
+        # listen to its table's selection model)
+        star_list = window.star_list
+        if not isinstance(star_list, StarList) or not isinstance(star_list.model, ListedStars):
+            raise TypeError(
+                "the population view needs the desk's star list (app.population.dock.StarList)"
+            )
+        self._rows: ListedStars = star_list.model
+        self._selected_ids = star_list.selected_star_ids
+        star_list.view.selectionModel().selectionChanged.connect(self.selection_changed)
 
     def selection_changed(self, *_: Any) -> None:
-        self.view.set_selected_stars(self.window.star_list.selected_star_ids())
+        self.view.set_selected_stars(self._selected_ids())
 
     def mark_outliers(self, reasons: dict) -> None:
         """Show the outlier rule's verdict in the star list's flags column."""
-        model = getattr(getattr(self.window, "star_list", None), "model", None)
-        if model is None or not hasattr(model, "update_star") or not hasattr(model, "value"):
-            return
+        model = self._rows
         flagged = set(reasons)
-        if hasattr(model, "prefetch"):
-            model.prefetch(self._flagged | flagged)  # one query per 500 stars, not one each
+        model.prefetch(self._flagged | flagged)  # one query per 500 stars, not one each
         for star_id in self._flagged | flagged:
             current = model.value(star_id, "flags")
             if current is None and model.row_of(star_id) is None:
@@ -154,7 +179,7 @@ def attach(window: Any, *, visible: bool = False) -> PopulationView:
             placed.append(True)
 
     dock.visibilityChanged.connect(place)
-    if getattr(window, "ledger", None) is not None:
+    if window.ledger is not None:
         link.ledger_changed()
 
     # screenshots wait for the window's workers; let them wait for the summary too

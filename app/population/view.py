@@ -32,6 +32,7 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from phasewise.core import diagrams as dg
@@ -86,7 +87,7 @@ class _SummaryRelay(QtCore.QObject):
 class _SummaryJob(QtCore.QRunnable):
     """``core.diagrams.field_state`` off the GUI thread (it derives every star's physics)."""
 
-    def __init__(self, generation: int, points: list, settings: dict, relay: _SummaryRelay):
+    def __init__(self, generation: int, points: Any, settings: dict, relay: _SummaryRelay):
         super().__init__()
         self.generation = generation
         self.points = points
@@ -113,7 +114,7 @@ class _ReadRelay(QtCore.QObject):
 
 
 class _ReadJob(QtCore.QRunnable):
-    """``core.diagrams.star_points`` off the GUI thread (seconds on a survey's ledger)."""
+    """``core.diagrams.point_table`` off the GUI thread (seconds on a survey's ledger)."""
 
     def __init__(self, generation: int, ledger: Any, relay: _ReadRelay):
         super().__init__()
@@ -126,11 +127,11 @@ class _ReadJob(QtCore.QRunnable):
             self.relay.progress.emit(self.generation, done, total)
 
         try:
-            points = dg.star_points(self.ledger, progress=progress)
+            table = dg.point_table(self.ledger, progress=progress)
         except Exception as exc:  # noqa: BLE001 - shown in the view, never a silent worker death
             self.relay.failed.emit(self.generation, f"{type(exc).__name__}: {exc}")
         else:
-            self.relay.done.emit(self.generation, points)
+            self.relay.done.emit(self.generation, table)
 
 
 class PopulationView(QtWidgets.QWidget):
@@ -139,7 +140,7 @@ class PopulationView(QtWidgets.QWidget):
     Parameters
     ----------
     ledger : core.ledger.Ledger, optional
-        Read with :func:`core.diagrams.star_points` when the view is shown
+        Read with :func:`core.diagrams.point_table` when the view is shown
         (at once if it is visible); call :meth:`update_stars` or
         :meth:`refresh` after verdicts change.
     outlier_rule : core.diagrams.OutlierRule, optional
@@ -161,7 +162,7 @@ class PopulationView(QtWidgets.QWidget):
         self.setObjectName("population_view")
         self.ledger = ledger
         self.outlier_rule = outlier_rule or dg.OutlierRule()
-        self.points: list[dg.StarPoint] = []
+        self.table = dg.PointTable.from_points(())
         self.diagrams: dict[str, dg.Diagram] = {}
         self.outliers: tuple[dg.OutlierFlag, ...] = ()
         self.field: dg.FieldState | None = None
@@ -170,11 +171,11 @@ class PopulationView(QtWidgets.QWidget):
         self._selected: set[str] = set()
         self._updating = False
         self._relation_chosen = False  # the person picked a P–L relation (or none)
-        self._field_points: list | None = None
+        self._field_points: dg.PointTable | None = None
         self._field_settings: dict | None = None
         self._physics_settings: dict = {}
         self._stale = False  # the ledger changed while the view was hidden
-        self._job_points: dict[int, list] = {}
+        self._job_points: dict[int, tuple] = {}
         self._summary_generation = 0
         self._summary_done = 0
         self._pool = QtCore.QThreadPool(self)
@@ -301,7 +302,7 @@ class PopulationView(QtWidgets.QWidget):
         ledger's analysis used.
         """
         self.ledger = ledger
-        self.points = []
+        self.table = dg.PointTable.from_points(())
         self._read_generation += 1  # a read of the previous ledger is dropped
         self._reading = False
         self.progress_label.setVisible(False)
@@ -334,9 +335,9 @@ class PopulationView(QtWidgets.QWidget):
         self._stale = False
         self._read_generation += 1
         self._changed_while_reading.clear()
-        if getattr(self.ledger, "n_stars", 0) <= BACKGROUND_READ_STARS:
+        if self.ledger.n_stars <= BACKGROUND_READ_STARS:
             self._reading = False
-            self.set_points(dg.star_points(self.ledger), auto_range=not self.points)
+            self.set_points(dg.point_table(self.ledger), auto_range=not len(self.table))
             return
         self._reading = True
         self.progress_label.setText("Reading the stars of the ledger…")
@@ -352,7 +353,7 @@ class PopulationView(QtWidgets.QWidget):
             return  # a newer read is under way, or the ledger changed
         self._reading = False
         self.progress_label.setVisible(False)
-        self.set_points(points, auto_range=not self.points)
+        self.set_points(points, auto_range=not len(self.table))
         changed, self._changed_while_reading = self._changed_while_reading, set()
         if changed:
             self.update_stars(changed)
@@ -373,13 +374,24 @@ class PopulationView(QtWidgets.QWidget):
         if self._reading:
             self._changed_while_reading.update(str(s) for s in star_ids)
             return  # read again when the whole read has arrived
-        fresh = {str(s): dg.star_point(self.ledger, str(s)) for s in star_ids}
+        fresh = [
+            dg.star_point(self.ledger, str(s))
+            for s in set(star_ids)
+            if self.table.row_of(str(s)) is not None
+        ]
         if fresh:
-            self.set_points([fresh.get(p.star_id, p) for p in self.points], auto_range=False)
+            self.set_points(self.table.with_points(fresh), auto_range=False)
 
-    def set_points(self, points: Sequence[dg.StarPoint], *, auto_range: bool = True) -> None:
-        """Show these stars (the ledger's, or any list of points)."""
-        self.points = list(points)
+    @property
+    def points(self) -> list[dg.StarPoint]:
+        """The stars shown, a :class:`core.diagrams.StarPoint` each (made on each call)."""
+        return self.table.points()
+
+    def set_points(
+        self, points: dg.PointTable | Sequence[dg.StarPoint], *, auto_range: bool = True
+    ) -> None:
+        """Show these stars (the ledger's table, or any list of points)."""
+        self.table = dg.as_table(points)
         self._fill_band_boxes()
         self._recompute(auto_range=auto_range)
 
@@ -462,7 +474,7 @@ class PopulationView(QtWidgets.QWidget):
 
     # --------------------------------------------------------------- compute
     def _fill_band_boxes(self) -> None:
-        bands = dg.available_bands(self.points)
+        bands = dg.available_bands(self.table)
         self._updating = True
         try:
             for box, preferred in (
@@ -491,7 +503,7 @@ class PopulationView(QtWidgets.QWidget):
         current = self.relation_box.currentData()
         self.relation_box.clear()
         self.relation_box.addItem("none", None)
-        present = {p.class_code for p in self.points}
+        present = set(self.table.class_counts())
         default = 0
         for name, label, classes in dg.pl_relations(self.band_box.currentText(), with_classes=True):
             self.relation_box.addItem(label, name)
@@ -504,7 +516,7 @@ class PopulationView(QtWidgets.QWidget):
         """Redraw the diagrams now; compute the field summary in the background."""
         band = self.band_box.currentText()
         blue, red = self.blue_box.currentText(), self.red_box.currentText()
-        points = self.points
+        points = self.table
         settings = {
             "physics_settings": self._physics_settings,
             "ebv": self.summary_panel.extinction(),
@@ -561,7 +573,7 @@ class PopulationView(QtWidgets.QWidget):
         """True when the summary shown belongs to the current stars and settings."""
         return self._summary_done == self._summary_generation
 
-    def _start_summary(self, points: list[dg.StarPoint], **settings: Any) -> None:
+    def _start_summary(self, points: dg.PointTable, **settings: Any) -> None:
         self._summary_generation += 1
         self.summary_panel.show_pending()
         self._job_points = {self._summary_generation: (points, settings)}
@@ -614,10 +626,11 @@ class PopulationView(QtWidgets.QWidget):
         super().closeEvent(event)
 
     def _update_legend(self) -> None:
-        counts: dict[str, int] = {}
-        for point in self.points:
-            if self._visible is None or point.star_id in self._visible:
-                counts[point.class_code] = counts.get(point.class_code, 0) + 1
+        shown = None
+        if self._visible is not None:
+            visible = self._visible
+            shown = np.fromiter((s in visible for s in self.table.star_ids), bool, len(self.table))
+        counts = self.table.class_counts(shown)
         parts = []
         for code in sorted(counts, key=lambda c: (-counts[c], c)):
             style = class_style(code)

@@ -8,6 +8,7 @@ desk = pytest.importorskip("phasewise.app.desk")
 from PySide6.QtCore import QSettings  # noqa: E402
 
 from phasewise.app.population import attach  # noqa: E402
+from phasewise.app.population.dock import ListedStars, StarList  # noqa: E402
 
 from .population_fakes import build_ledger  # noqa: E402
 
@@ -15,6 +16,8 @@ from .population_fakes import build_ledger  # noqa: E402
 def test_population_view_in_the_desk(qtbot, tmp_path):
     w = desk.MainWindow(settings=QSettings(str(tmp_path / "l.ini"), QSettings.Format.IniFormat))
     qtbot.addWidget(w)
+    # the desk's star list is what the population link declares it uses
+    assert isinstance(w.star_list, StarList) and isinstance(w.star_list.model, ListedStars)
     view = attach(w)
     w.show()
     led = build_ledger(tmp_path / "n.ledger.sqlite")

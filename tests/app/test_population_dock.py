@@ -3,7 +3,7 @@
 import pytest
 
 pytest.importorskip("pytestqt")
-from PySide6 import QtCore, QtWidgets  # noqa: E402
+from PySide6 import QtCore, QtGui, QtWidgets  # noqa: E402
 
 from phasewise.app.population import VIEW_NAME, attach  # noqa: E402
 from phasewise.core.desk import DeskModel  # noqa: E402
@@ -26,6 +26,21 @@ class StandInRows:
     def update_star(self, star_id, **fields):
         self.flags[star_id] = fields["flags"]
 
+    def prefetch(self, star_ids):
+        self.prefetched = set(star_ids)
+
+
+class StandInStarList:
+    """The star list's ``model`` (rows), ``view`` (a table) and ``selected_star_ids``."""
+
+    def __init__(self):
+        self.model = StandInRows()
+        self.view = QtWidgets.QTableView()
+        self.view.setModel(QtGui.QStandardItemModel(0, 1))
+
+    def selected_star_ids(self):
+        return []
+
 
 class StandInDesk(QtWidgets.QMainWindow):
     """The extension points of ``app.desk.MainWindow`` that the population view uses."""
@@ -43,7 +58,7 @@ class StandInDesk(QtWidgets.QMainWindow):
         self.selected = []
         self.visible = None
         self.waited = 0
-        self.star_list = type("StarList", (), {"model": StandInRows()})()
+        self.star_list = StandInStarList()
 
     @property
     def ledger(self):
