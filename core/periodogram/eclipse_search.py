@@ -215,10 +215,10 @@ SCREEN_MIN_POINTS = 500
 #: gains nothing).
 SCREEN_MIN_WORK = 5_000_000
 
-#: Share of the coarse grid's distinct peaks refined by the fine pass when
-#: that is more than ``n_seeds`` (our choice: a narrow eclipse seen in ten
-#: points of a sparse survey ranked ~90th of ~20,000 coarse frequencies; the
-#: fine pass then costs about a sixth of the coarse one).
+#: Share of the exact coarse pass's frequencies whose distinct peaks the
+#: fine pass refines when that is more than ``n_seeds`` (our choice: a
+#: narrow eclipse seen in ten points of a sparse survey ranked ~90th of
+#: ~20,000 coarse frequencies; after the harmonic screen ``n_seeds`` stay).
 SEED_SHARE = 0.01
 
 #: Coarse frequencies at which the exact statistic is sampled for the
@@ -596,9 +596,10 @@ def eclipse_search(
         seed_values = coarse_f = aov_binned(t, y, w, coarse, coarse_bins, shifts=(0.0,))[0]
     fine_df = 1.0 / (2.0 * settings.n_bins * baseline)  # phase drift under half a bin
     # a narrow eclipse keeps little of its statistic in the coarse bins (the
-    # phase drifts by up to a coarse bin between grid points): refine the
-    # top SEED_SHARE of the coarse grid, at least n_seeds peaks
-    n_seeds = max(settings.n_seeds, int(SEED_SHARE * seed_grid.size))
+    # phase drifts by up to a coarse bin between grid points): after the
+    # exact coarse pass, refine its top SEED_SHARE, at least n_seeds peaks
+    # (the fine pass then costs about a sixth of the coarse one)
+    n_seeds = settings.n_seeds if screened else max(settings.n_seeds, int(SEED_SHARE * coarse.size))
     seeds = _distinct_peaks(seed_grid, seed_values, n_seeds, 1.5 / baseline)
     offsets = np.arange(-df, df + 0.5 * fine_df, fine_df)
     frequency = np.unique(np.concatenate([seed_grid[i] + offsets for i in seeds]))
