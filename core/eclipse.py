@@ -22,7 +22,7 @@ the covariance of that fit.  Where the curve at ``P`` has one dip, the
 points decide whether alternate minima differ (a narrow eclipse no
 low-order series follows): in phase bins, odd cycles against even ones
 (:func:`alternate_cycles_differ`): a difference found there counts; with
-five points a bin at ``2P`` no difference there counts too; otherwise the
+five points a bin at ``2P`` on average, nothing else does; with fewer, the
 Fourier depths, or where those are equal the points in the dip compared
 between odd and even cycles.
 """
@@ -262,7 +262,8 @@ def alternate_cycles_differ(
     probability, times the bins compared and the two offsets, is below the
     two-sided tail of ``significance`` sigmas, and that bin's halves differ
     by at least ``min_fraction`` of the fold's range of bin means.  None
-    when no bin holds two points of each parity (nothing could be compared).
+    when no difference is found and the deepest bin (the eclipse) never
+    held two points of each parity: then nothing that matters was compared.
     """
     from scipy import special
 
@@ -281,7 +282,10 @@ def alternate_cycles_differ(
         tested = np.all(count >= 2, axis=1)
         if not tested.any():
             continue
-        compared = True
+        # no difference counts only where the deepest bin (the eclipse) was compared
+        sums = count.sum(axis=1)
+        bin_mean = np.where(sums > 0, total.sum(axis=1) / np.maximum(sums, 1), -np.inf)
+        compared = compared or bool(tested[int(np.argmax(bin_mean))])
         k, mean = count[tested], total[tested] / count[tested]
         dof = k.sum(axis=1) - 2
         within = (square[tested] - k * mean**2).sum(axis=1) / dof
@@ -424,8 +428,11 @@ def eclipse_test(
             settings.significance,
             settings.min_depth_fraction,
         )
-    if binned is True or (binned is False and alternate_cycles_decide(t.size)):
-        unequal = binned
+    if binned is True or (second_at_p is None and alternate_cycles_decide(t.size)):
+        # with points enough the binned comparison decides; where the
+        # eclipse bin held too few of each parity nothing says the minima
+        # differ (a series that cannot follow the eclipse does not count)
+        unequal = bool(binned)
     elif not unequal and second_at_p is None:
         # one dip at P: do its points differ from cycle to cycle (a narrow
         # eclipse alternating with a shallower one, found at half the orbit)?

@@ -902,35 +902,72 @@ def with_eclipse_search(
 
 
 def _orbit_of(lc: LightCurve, frequency: float, settings) -> tuple[float, tuple[str, ...]]:
-    """The eclipse search's frequency, or half of it where alternate cycles differ.
+    """The eclipse search's frequency, or the one the fold repeats at.
 
-    The search often peaks at half the orbit, the primary and secondary
-    eclipses folded together.  Where odd and even cycles of the band with
-    most points differ in phase bins (:func:`core.eclipse.alternate_cycles_differ`),
-    the orbit is taken here and timed by
-    the eclipse statistic itself: twice a period timed at half the orbit is
-    off by as much as the secondary eclipse is off phase 0.5 (an eccentric
-    orbit), which no later step can undo.
+    The search peaks at half the orbit (primary and secondary eclipses
+    folded together) or at twice the period (one eclipse seen twice a
+    cycle) about as strongly as at the period, and which of them it reports
+    first is chance.  Odd and even cycles of the band with most points are
+    compared in phase bins (:func:`core.eclipse.alternate_cycles_differ`):
+    where they differ at ``frequency``, the orbit is half of it; where, with
+    points enough for the comparison to decide, they do not differ at twice
+    ``frequency`` and the search's statistic is as significant there
+    (:func:`_as_significant`), the fold repeats at half the period and that is taken
+    (the plainer answer; whether it is half an orbit of two equal eclipses
+    is the eclipse test's and the classifier's).  The frequency taken is
+    timed by the eclipse statistic itself: twice a period timed at half the
+    orbit is off by as much as the secondary eclipse is off phase 0.5 (an
+    eccentric orbit), which no later step can undo.
     """
-    from .eclipse import alternate_cycles_bins, alternate_cycles_differ
+    from .eclipse import alternate_cycles_bins, alternate_cycles_decide, alternate_cycles_differ
 
     t, m, e = lc.arrays(lc.bands[0])
-    differ = alternate_cycles_differ(
-        t,
-        m,
-        e,
-        frequency,
-        alternate_cycles_bins(t.size),
-        settings.eclipse.significance,
-        settings.eclipse.min_depth_fraction,
-    )
-    if differ is not True:
-        return frequency, ()
-    orbit = eclipse_timing(lc, 0.5 * frequency, settings.eclipse_search)
-    return orbit, (
-        f"alternate cycles at {1 / frequency:.6g} d differ: the orbit {1 / orbit:.6g} d "
-        "taken and timed",
-    )
+
+    def differ(f):
+        return alternate_cycles_differ(
+            t,
+            m,
+            e,
+            f,
+            alternate_cycles_bins(t.size),
+            settings.eclipse.significance,
+            settings.eclipse.min_depth_fraction,
+        )
+
+    if differ(frequency) is True:
+        orbit = eclipse_timing(lc, 0.5 * frequency, settings.eclipse_search)
+        return orbit, (
+            f"alternate cycles at {1 / frequency:.6g} d differ: the orbit {1 / orbit:.6g} d "
+            "taken and timed",
+        )
+    if (
+        alternate_cycles_decide(t.size)
+        and differ(2.0 * frequency) is False
+        and _as_significant(lc, 2.0 * frequency, frequency, settings.eclipse_search)
+    ):
+        half = eclipse_timing(lc, 2.0 * frequency, settings.eclipse_search)
+        return half, (
+            f"the fold at {1 / frequency:.6g} d repeats at half of it: {1 / half:.6g} d "
+            "taken and timed",
+        )
+    return frequency, ()
+
+
+def _as_significant(lc: LightCurve, f_new: float, f_old: float, search_settings) -> bool:
+    """Whether the search's statistic at ``f_new`` is as significant as at ``f_old``.
+
+    "As significant": its single-trial probability at most
+    ``1 / SUBHARMONIC_FACTOR`` times the other's, the factor by which the
+    search itself calls one frequency clearly better than another.
+    """
+    from scipy import special
+
+    from .periodogram.eclipse_search import SUBHARMONIC_FACTOR, _prepare, aov_binned
+
+    t, y, w = _prepare(lc, search_settings.clip)
+    values, filled = aov_binned(t, y, w, np.array([f_new, f_old]), search_settings.n_bins)
+    p_new, p_old = special.fdtrc(filled - 1, t.size - filled, values)
+    return bool(p_new * SUBHARMONIC_FACTOR <= p_old)
 
 
 #: Steps of the eclipse timing grid per step of the search's fine grid.
