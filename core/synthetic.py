@@ -71,6 +71,8 @@ __all__ = [
     "battery_star",
     "battery_star_with_model",
     "period_determinable",
+    "eclipses_sampled",
+    "MIN_ECLIPSES_SAMPLED",
     "DETECTION_SNR",
 ]
 
