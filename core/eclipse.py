@@ -253,15 +253,20 @@ def alternate_cycles_differ(
     of its two minima at ``2P`` can differ by several of their formal errors
     when the curve repeats at ``P``.  Phase bins follow any shape.  The
     points are binned at ``P`` (``n_bins``, two bin offsets) and each bin's
-    points split by the parity of their cycle; in every bin with at least
+    points split by the parity of their cycle (counted from half a cycle
+    before the deepest bin, so that one eclipse's points share a parity);
+    in every bin with at least
     two points of each parity the two means are compared against the
     scatter inside the bin's own halves (Student's t; the scatter at least
     the points' errors), because inside an eclipse that scatter is the
     eclipse's shape, not the noise, and points of one parity may sample
-    one part of it.  Alternate cycles differ when the smallest two-sided
-    probability, times the bins compared and the two offsets, is below the
-    two-sided tail of ``significance`` sigmas, and that bin's halves differ
-    by at least ``min_fraction`` of the fold's range of bin means.  None
+    one part of it.  Alternate cycles differ when, below the two-sided
+    tail of ``significance`` sigmas, either the bin that differs most
+    (its probability times the bins compared) or the bins of the dip
+    together (deeper than half the deepest bin's depth below the median
+    bin; their t values as normal deviates, summed over the root of their
+    number) differ, at either bin offset (probabilities doubled), by at
+    least ``min_fraction`` of the fold's range of bin means.  None
     when no difference is found and the deepest bin (the eclipse) never
     held two points of each parity: then nothing that matters was compared.
     """
@@ -269,6 +274,13 @@ def alternate_cycles_differ(
 
     t, m, e = (np.asarray(a, float) for a in (t, m, e))
     cycles = (t - t.min()) * frequency
+    # cycles counted from half a cycle before the dip: the points of one
+    # eclipse share a parity
+    index = np.floor(np.mod(cycles, 1.0) * n_bins).astype(int)
+    counts = np.bincount(index, minlength=n_bins)
+    means = np.bincount(index, weights=m, minlength=n_bins) / np.maximum(counts, 1)
+    dip = (int(np.argmax(np.where(counts > 0, means, -np.inf))) + 0.5) / n_bins
+    cycles = cycles - dip + 0.5
     parity = (np.floor(cycles) % 2).astype(int)
     limit = 2.0 * special.ndtr(-significance)
     compared = False
@@ -291,17 +303,25 @@ def alternate_cycles_differ(
         within = (square[tested] - k * mean**2).sum(axis=1) / dof
         within = np.maximum(within, noise[tested] / k.sum(axis=1))
         diff = mean[:, 0] - mean[:, 1]
-        stat = np.abs(diff) / np.sqrt(within * (1.0 / k[:, 0] + 1.0 / k[:, 1]))
-        p = 2.0 * special.stdtr(dof, -stat)
-        best = int(np.argmin(p))
-        if 2.0 * tested.sum() * p[best] >= limit:
-            continue
-        filled = np.bincount(index, minlength=n_bins) > 0
-        means = (
-            np.bincount(index, weights=m, minlength=n_bins)[filled]
-            / np.bincount(index, minlength=n_bins)[filled]
-        )
-        if abs(diff[best]) >= min_fraction * float(np.ptp(means)):
+        stat = diff / np.sqrt(within * (1.0 / k[:, 0] + 1.0 / k[:, 1]))
+        # each bin's t as a normal z (same tail probability)
+        z = -np.sign(stat) * special.ndtri(np.clip(special.stdtr(dof, -np.abs(stat)), 1e-300, 0.5))
+        pooled = bin_mean[tested]
+        level = float(np.median(bin_mean[np.isfinite(bin_mean) & (sums > 0)]))
+        in_dip = pooled - level >= 0.5 * (float(pooled.max()) - level)
+        span = float(np.ptp(bin_mean[sums > 0]))
+        # the bin that differs most (a narrow eclipse), and the dip's bins
+        # together (Stouffer's sum: an eclipse spread over several bins)
+        best = int(np.argmax(np.abs(z)))
+        one = 2.0 * tested.sum() * 2.0 * special.ndtr(-abs(z[best]))
+        together = 2.0 * special.ndtr(-abs(z[in_dip].sum()) / np.sqrt(max(in_dip.sum(), 1)))
+        if one < limit and abs(diff[best]) >= min_fraction * span:
+            return True
+        if (
+            in_dip.any()
+            and 2.0 * together < limit
+            and abs(np.mean(diff[in_dip])) >= min_fraction * span
+        ):
             return True
     return False if compared else None
 
