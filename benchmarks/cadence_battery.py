@@ -31,7 +31,7 @@ with magnitude.  For each cadence x class, over the seeds, it prints
   points) right, and right or at 2x / 0.5x;
 * for constant stars, how many we made variable (status ok and a variable
   class on top, or ``LONG`` on top) and how many have FAP < 0.01, ours and astropy's Baluev FAP
-  of its highest peak.
+  of its highest peak (and ours below 0.1: a calibrated FAP puts ~10% there).
 
 Everything is measured in this run.  Nothing here is tuned to a seed or a
 cadence: the numbers are a report.
@@ -138,6 +138,7 @@ def run_star(kind, code, sub, opt, seed):
         and top_class not in CONSTANT
         and (result["status"] == "ok" or top_class == SLOWER_THAN_DATA),
         "fap_low": constant and result["fap"] is not None and result["fap"] < 0.01,
+        "fap_below_tenth": constant and result["fap"] is not None and result["fap"] < 0.1,
         "ls_fap_low": constant and ls_fap < 0.01,
         "seconds": elapsed,
         "label": f"{code}{'(' + opt + ')' if opt else ''}",
@@ -201,7 +202,7 @@ def main(argv=None) -> int:
                 totals[key] += c[key]
             totals["n"] += n
             if code == "NONVAR":
-                for key in ("made_var", "fap_low", "ls_fap_low"):
+                for key in ("made_var", "fap_low", "fap_below_tenth", "ls_fap_low"):
                     totals[key] += c[key]
                 totals["n_const"] += n
             print(
@@ -228,7 +229,8 @@ def main(argv=None) -> int:
             f"class right {class_share:.1%} (target {TARGET_CLASS:.0%}); constants made "
             f"variable {fraction(t['made_var'], t['n_const'])} ({made:.1%}, target <= "
             f"{TARGET_CONST:.0%}); FAP < 0.01 among constants ours "
-            f"{fraction(t['fap_low'], t['n_const'])} ({low:.1%}), astropy "
+            f"{fraction(t['fap_low'], t['n_const'])} ({low:.1%}; FAP < 0.1 "
+            f"{fraction(t['fap_below_tenth'], t['n_const'])}), astropy "
             f"{fraction(t['ls_fap_low'], t['n_const'])}\n"
         )
     print(
