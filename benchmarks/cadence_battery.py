@@ -15,9 +15,13 @@ with magnitude.  For each cadence x class, over the seeds, it prints
   (``core.synthetic.period_determinable``): at least 2 cycles in the
   baseline, a period at least twice the typical sampling step (the median
   time difference for regular sampling, the 5th percentile for irregular),
-  and a clear signal, (A/2) sqrt(N/2) / median error >= 8;
+  and a clear signal, (A/2) sqrt(N/2) / median error >= 8; for eclipsing
+  binaries also at least 4 distinct eclipses sampled (a point 3 errors
+  into the eclipse, from the noise-free magnitudes);
 * ``ours P``: our top suggestion's period right among those (relative
   error < 1e-3; 1% for LPV; the orbital period for eclipsing binaries);
+  for an LPV the period judged is its mean period over the observations
+  (a Mira's cycle length wanders: ~1-2% from the nominal at 3-7 cycles);
 * ``ours cls``: the top suggestion's class right (all stars of the row);
   for a star with fewer than two cycles in the baseline (a Mira or a long
   Cepheid seen for a month) ``LONG``, "long-period, period undetermined",
@@ -27,7 +31,7 @@ with magnitude.  For each cadence x class, over the seeds, it prints
   points) right, and right or at 2x / 0.5x;
 * for constant stars, how many we made variable (status ok and a variable
   class on top, or ``LONG`` on top) and how many have FAP < 0.01, ours and astropy's Baluev FAP
-  of its highest peak.
+  of its highest peak (and ours below 0.1: a calibrated FAP puts ~10% there).
 
 Everything is measured in this run.  Nothing here is tuned to a seed or a
 cadence: the numbers are a report.
@@ -52,7 +56,7 @@ from phasewise.core.analysis import analyse  # noqa: E402
 from phasewise.core.synthetic import (  # noqa: E402
     BATTERY_CADENCES,
     BATTERY_CLASSES,
-    battery_star,
+    battery_star_with_model,
     period_determinable,
 )
 from phasewise.core.threads import limit_blas_threads  # noqa: E402
@@ -78,12 +82,18 @@ TARGET_PERIOD, TARGET_CLASS, TARGET_CONST = 0.95, 0.90, 0.02
 
 
 def period_right(found: float | None, truth, loose: bool = False) -> bool:
-    """Relative error < 1e-3 (1% for LPV); with ``loose`` also at 2x or 0.5x."""
+    """Relative error < 1e-3 (1% for LPV); with ``loose`` also at 2x or 0.5x.
+
+    The period judged is the star's mean period over the observations
+    (``truth.period_mean``: the nominal one but where the cycle length
+    wanders, as a Mira's does).
+    """
     if found is None or not np.isfinite(found):
         return False
     tol = 0.01 if truth.class_code == "LPV" else 1e-3
     factors = (1.0, 2.0, 0.5) if loose else (1.0,)
-    return any(abs(found * k - truth.period) <= tol * truth.period for k in factors)
+    target = truth.period_mean if np.isfinite(truth.period_mean) else truth.period
+    return any(abs(found * k - target) <= tol * target for k in factors)
 
 
 def astropy_peak(lc) -> tuple[float, float]:
@@ -102,7 +112,7 @@ def astropy_peak(lc) -> tuple[float, float]:
 
 
 def run_star(kind, code, sub, opt, seed):
-    lc, truth = battery_star(kind, code, sub, opt, seed=seed)
+    lc, truth, true_mag = battery_star_with_model(kind, code, sub, opt, seed=seed)
     start = time.process_time()
     result = analyse(lc).to_dict()
     elapsed = time.process_time() - start
@@ -111,7 +121,7 @@ def run_star(kind, code, sub, opt, seed):
     period = result["period"]
     if top is not None and top.get("period") is not None:
         period = top["period"]  # the top suggestion's period (2P for binaries)
-    det, _ = period_determinable(lc, truth)
+    det, _ = period_determinable(lc, truth, true_mag)
     ls_period, ls_fap = astropy_peak(lc)
     constant = code == "NONVAR"
     accepted = ACCEPTED[code]
@@ -128,6 +138,7 @@ def run_star(kind, code, sub, opt, seed):
         and top_class not in CONSTANT
         and (result["status"] == "ok" or top_class == SLOWER_THAN_DATA),
         "fap_low": constant and result["fap"] is not None and result["fap"] < 0.01,
+        "fap_below_tenth": constant and result["fap"] is not None and result["fap"] < 0.1,
         "ls_fap_low": constant and ls_fap < 0.01,
         "seconds": elapsed,
         "label": f"{code}{'(' + opt + ')' if opt else ''}",
@@ -191,7 +202,7 @@ def main(argv=None) -> int:
                 totals[key] += c[key]
             totals["n"] += n
             if code == "NONVAR":
-                for key in ("made_var", "fap_low", "ls_fap_low"):
+                for key in ("made_var", "fap_low", "fap_below_tenth", "ls_fap_low"):
                     totals[key] += c[key]
                 totals["n_const"] += n
             print(
@@ -218,7 +229,8 @@ def main(argv=None) -> int:
             f"class right {class_share:.1%} (target {TARGET_CLASS:.0%}); constants made "
             f"variable {fraction(t['made_var'], t['n_const'])} ({made:.1%}, target <= "
             f"{TARGET_CONST:.0%}); FAP < 0.01 among constants ours "
-            f"{fraction(t['fap_low'], t['n_const'])} ({low:.1%}), astropy "
+            f"{fraction(t['fap_low'], t['n_const'])} ({low:.1%}; FAP < 0.1 "
+            f"{fraction(t['fap_below_tenth'], t['n_const'])}), astropy "
             f"{fraction(t['ls_fap_low'], t['n_const'])}\n"
         )
     print(

@@ -18,9 +18,13 @@ tested period ``P`` the light curve then shows two minima per cycle:
 
 The tests run on the band with most points.  Depths come from a Fourier fit
 at ``2P`` (order chosen by BIC within the sampling limits); their error from
-the covariance of that fit.  Where that fit sees equal minima and the curve
-at ``P`` has one dip, the points in the dip are also compared between odd
-and even cycles (a narrow eclipse no low-order series follows).
+the covariance of that fit.  Where the curve at ``P`` has one dip, the
+points decide whether alternate minima differ (a narrow eclipse no
+low-order series follows): in phase bins, odd cycles against even ones
+(:func:`alternate_cycles_differ`): a difference found there counts; with
+five points a bin at ``2P`` on average, nothing else does; with fewer, the
+Fourier depths, or where those are equal the points in the dip compared
+between odd and even cycles.
 """
 
 from __future__ import annotations
@@ -42,7 +46,14 @@ from .fourier import (
 )
 from .validation import finite_or_none, require_int, require_positive, require_range
 
-__all__ = ["EclipseSettings", "EclipseTest", "eclipse_test"]
+__all__ = [
+    "EclipseSettings",
+    "EclipseTest",
+    "eclipse_test",
+    "alternate_cycles_differ",
+    "alternate_cycles_bins",
+    "alternate_cycles_decide",
+]
 
 TWO_PI = 2.0 * np.pi
 _GRID = 2048
@@ -218,6 +229,110 @@ def _alternate_dips_differ(t, m, fit, faint_phase, settings) -> bool:
     )
 
 
+#: Points per phase bin at ``2P``, on average, from which the binned
+#: comparison of alternate cycles decides alone (our choice: a bin of five
+#: points has a mean and a scatter); with fewer it can only find a
+#: difference, and the Fourier depths still count.
+ALTERNATE_POINTS_PER_BIN = 5
+#: Fewest and most phase bins at ``P`` of the binned comparison (the eclipse
+#: search's 20 at least; 100 resolve an eclipse of 1% of the orbit).
+ALTERNATE_MIN_BINS, ALTERNATE_MAX_BINS = 20, 100
+
+
+def alternate_cycles_bins(n_points: int) -> int:
+    """Phase bins at ``P`` for :func:`alternate_cycles_differ` (five points a bin at 2P)."""
+    return int(
+        np.clip(n_points // (2 * ALTERNATE_POINTS_PER_BIN), ALTERNATE_MIN_BINS, ALTERNATE_MAX_BINS)
+    )
+
+
+def alternate_cycles_decide(n_points: int) -> bool:
+    """Whether the binned comparison has points enough to decide alone."""
+    return n_points >= 2 * ALTERNATE_POINTS_PER_BIN * ALTERNATE_MIN_BINS
+
+
+def alternate_cycles_differ(
+    t, m, e, frequency: float, n_bins: int, significance: float, min_fraction: float
+) -> bool | None:
+    """Whether odd and even cycles at ``frequency`` differ, from the points in phase bins.
+
+    A low-order Fourier series cannot follow a narrow eclipse, so the depths
+    of its two minima at ``2P`` can differ by several of their formal errors
+    when the curve repeats at ``P``.  Phase bins follow any shape.  The
+    points are binned at ``P`` (``n_bins``, two bin offsets) and each bin's
+    points split by the parity of their cycle (counted from half a cycle
+    before the deepest bin, so that one eclipse's points share a parity);
+    in every bin with at least
+    two points of each parity the two means are compared against the
+    scatter inside the bin's own halves (Student's t; the scatter at least
+    the points' errors), because inside an eclipse that scatter is the
+    eclipse's shape, not the noise, and points of one parity may sample
+    one part of it.  Alternate cycles differ when, below the two-sided
+    tail of ``significance`` sigmas, either the bin that differs most
+    (its probability times the bins compared) or the bins of the dip
+    together (deeper than half the deepest bin's depth below the median
+    bin; their t values as normal deviates, summed over the root of their
+    number) differ, at either bin offset (probabilities doubled), by at
+    least ``min_fraction`` of the fold's range of bin means.  None
+    when no difference is found and the deepest bin (the eclipse) never
+    held two points of each parity: then nothing that matters was compared.
+    """
+    from scipy import special
+
+    t, m, e = (np.asarray(a, float) for a in (t, m, e))
+    cycles = (t - t.min()) * frequency
+    # cycles counted from half a cycle before the dip: the points of one
+    # eclipse share a parity
+    index = np.floor(np.mod(cycles, 1.0) * n_bins).astype(int)
+    counts = np.bincount(index, minlength=n_bins)
+    means = np.bincount(index, weights=m, minlength=n_bins) / np.maximum(counts, 1)
+    dip = (int(np.argmax(np.where(counts > 0, means, -np.inf))) + 0.5) / n_bins
+    cycles = cycles - dip + 0.5
+    parity = (np.floor(cycles) % 2).astype(int)
+    limit = 2.0 * special.ndtr(-significance)
+    compared = False
+    for shift in (0.0, 0.5):
+        index = np.floor(np.mod(cycles, 1.0) * n_bins + shift).astype(int) % n_bins
+        split = 2 * index + parity
+        count = np.bincount(split, minlength=2 * n_bins).reshape(n_bins, 2)
+        total = np.bincount(split, weights=m, minlength=2 * n_bins).reshape(n_bins, 2)
+        square = np.bincount(split, weights=m * m, minlength=2 * n_bins).reshape(n_bins, 2)
+        noise = np.bincount(index, weights=e * e, minlength=n_bins)
+        tested = np.all(count >= 2, axis=1)
+        if not tested.any():
+            continue
+        # no difference counts only where the deepest bin (the eclipse) was compared
+        sums = count.sum(axis=1)
+        bin_mean = np.where(sums > 0, total.sum(axis=1) / np.maximum(sums, 1), -np.inf)
+        compared = compared or bool(tested[int(np.argmax(bin_mean))])
+        k, mean = count[tested], total[tested] / count[tested]
+        dof = k.sum(axis=1) - 2
+        within = (square[tested] - k * mean**2).sum(axis=1) / dof
+        within = np.maximum(within, noise[tested] / k.sum(axis=1))
+        diff = mean[:, 0] - mean[:, 1]
+        stat = diff / np.sqrt(within * (1.0 / k[:, 0] + 1.0 / k[:, 1]))
+        # each bin's t as a normal z (same tail probability)
+        z = -np.sign(stat) * special.ndtri(np.clip(special.stdtr(dof, -np.abs(stat)), 1e-300, 0.5))
+        pooled = bin_mean[tested]
+        level = float(np.median(bin_mean[np.isfinite(bin_mean) & (sums > 0)]))
+        in_dip = pooled - level >= 0.5 * (float(pooled.max()) - level)
+        span = float(np.ptp(bin_mean[sums > 0]))
+        # the bin that differs most (a narrow eclipse), and the dip's bins
+        # together (Stouffer's sum: an eclipse spread over several bins)
+        best = int(np.argmax(np.abs(z)))
+        one = 2.0 * tested.sum() * 2.0 * special.ndtr(-abs(z[best]))
+        together = 2.0 * special.ndtr(-abs(z[in_dip].sum()) / np.sqrt(max(in_dip.sum(), 1)))
+        if one < limit and abs(diff[best]) >= min_fraction * span:
+            return True
+        if (
+            in_dip.any()
+            and 2.0 * together < limit
+            and abs(np.mean(diff[in_dip])) >= min_fraction * span
+        ):
+            return True
+    return False if compared else None
+
+
 def eclipse_test(
     lc: Any,
     frequency: float,
@@ -327,7 +442,27 @@ def eclipse_test(
     ratio = float(amps[1] / amps[0]) if amps[0] > 0 else np.inf
 
     unequal = bool(sigma > settings.significance and diff > settings.min_depth_fraction * depth1)
-    if not unequal and second_at_p is None:
+    binned = None
+    if second_at_p is None:
+        # one dip at P: do the points in phase bins differ between odd and
+        # even cycles?  A series that cannot follow a narrow eclipse sees
+        # unequal minima in a curve that repeats at P, and misses them in one
+        # found at half its orbit
+        binned = alternate_cycles_differ(
+            t,
+            m,
+            e,
+            f,
+            alternate_cycles_bins(t.size),
+            settings.significance,
+            settings.min_depth_fraction,
+        )
+    if binned is True or (second_at_p is None and alternate_cycles_decide(t.size)):
+        # with points enough the binned comparison decides; where the
+        # eclipse bin held too few of each parity nothing says the minima
+        # differ (a series that cannot follow the eclipse does not count)
+        unequal = bool(binned)
+    elif not unequal and second_at_p is None:
         # one dip at P: do its points differ from cycle to cycle (a narrow
         # eclipse alternating with a shallower one, found at half the orbit)?
         unequal = _alternate_dips_differ(t, m, fit_p, faint, settings)

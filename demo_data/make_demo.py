@@ -86,7 +86,7 @@ def truth_for_file(survey) -> Table:
     truth = survey.truth_table()
     for name in truth.colnames:
         if truth[name].dtype.kind == "f":
-            digits = 7 if name in ("period", "period2") else 5
+            digits = 7 if name in ("period", "period2", "period_mean") else 5
             truth[name] = np.round(truth[name], digits)
     return truth
 

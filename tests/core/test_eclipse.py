@@ -7,7 +7,13 @@ import json
 import numpy as np
 import pytest
 
-from phasewise.core.eclipse import EclipseSettings, eclipse_test
+from phasewise.core.eclipse import (
+    EclipseSettings,
+    alternate_cycles_bins,
+    alternate_cycles_decide,
+    alternate_cycles_differ,
+    eclipse_test,
+)
 from phasewise.core.errors import PhasewiseError, SettingsError
 from phasewise.core.lightcurve import LightCurve
 
@@ -191,3 +197,42 @@ def test_alternate_dips_are_told_by_the_points_not_by_one_outlier():
     equal[in_dip[0]] += 1.2  # one bad point in the dip
     fit_equal = fit_fourier(t, equal, e, 1.0 / period, 8)
     assert not _alternate_dips_differ(t, equal, fit_equal, -fit_equal.rise_time, settings)
+
+
+# ---------------------------------------------- alternate cycles in phase bins
+def _alternating(depth2, n=700, width=0.02, seed=3, period=2.3, noise=0.01):
+    """An invented Algol: primary 0.5 in flux at phase 0, ``depth2`` at 0.5."""
+    t = np.sort(np.random.default_rng(seed).uniform(0, 300, n))
+    phase = t / period
+    flux = 1.0 - 0.5 * _dip(phase, 0.0, width) - depth2 * _dip(phase, 0.5, width)
+    lc = _star("ALT", t, flux, noise=noise, seed=seed)
+    return lc.arrays()[0], lc.arrays()[1], lc.arrays()[2], period
+
+
+def test_alternate_cycles_differ_at_half_an_orbit_of_unequal_eclipses():
+    # folded at half the orbit, odd cycles hold the primary, even the secondary
+    t, m, e, period = _alternating(depth2=0.2)
+    f_half = 2.0 / period
+    assert alternate_cycles_differ(t, m, e, f_half, alternate_cycles_bins(t.size), 3.0, 0.1)
+
+
+def test_alternate_cycles_agree_at_half_an_orbit_of_equal_eclipses_and_at_the_orbit():
+    t, m, e, period = _alternating(depth2=0.5)
+    assert alternate_cycles_differ(t, m, e, 2.0 / period, 35, 3.0, 0.1) is False
+    t, m, e, period = _alternating(depth2=0.0)  # one eclipse a cycle, at its period
+    assert alternate_cycles_differ(t, m, e, 1.0 / period, 35, 3.0, 0.1) is False
+
+
+def test_alternate_cycles_undecided_without_points_in_the_eclipse_of_each_parity():
+    # 40 points: the eclipse bin never holds two points of each parity
+    t, m, e, period = _alternating(depth2=0.2, n=40, width=0.005)
+    assert alternate_cycles_differ(t, m, e, 2.0 / period, 20, 3.0, 0.1) is None
+    assert alternate_cycles_decide(40) is False and alternate_cycles_decide(700) is True
+
+
+def test_one_eclipse_a_cycle_at_its_period_is_not_doubled():
+    # a narrow eclipse no Fourier series follows: its two "minima" at 2P are
+    # the same eclipse, and the binned comparison says so
+    t, m, e, period = _alternating(depth2=0.0, width=0.01)
+    lc = LightCurve("ONE", t, m, e)
+    assert eclipse_test(lc, 1.0 / period).unequal_minima is False
