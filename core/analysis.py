@@ -26,7 +26,7 @@ from functools import cached_property
 from typing import Any
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special, stats
 
 from . import __version__
 from .classify import features_from_result, load_rulebook, suggest
@@ -679,11 +679,14 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     points is modelled as its own level and linear drift (a survey's zero
     point moves from season to season and within one) plus the whole
     Fourier shape ``S`` of ``fit`` scaled and shifted in time, linearised:
-    ``a_s S(t) + b_s S'(t)``.  The null model shares ``a`` and ``b`` between
-    seasons.  The extra chi-square reduction of the per-season model is
-    judged against the scatter of its own residuals (an F test), not against
-    the formal errors: nightly zero-point noise and the harmonics a
-    first-order fit leaves out would otherwise pass as changes of shape.
+    ``a_s S(t) + b_s S'(t)``, with one common term ``c (t - tmean) S'(t)``
+    (a slightly wrong period drifts the phase steadily; that is no
+    modulation).  The test is that all ``a_s`` and all ``b_s`` are equal.
+    It is judged against the scatter of the model's own residuals (an F
+    test), with a scatter common to all points added to the errors in
+    quadrature first (nightly zero points, a noise floor): against the
+    formal errors, or with a first-order fit that leaves the harmonics in
+    the residuals, unmodulated stars passed as modulated.
 
     Returns
     -------
@@ -705,8 +708,9 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     one_hot = np.eye(kept.size)[index]
     period = 1.0 / fit.frequency
     step = 1e-3 * period
-    shape = fit.model(t) - fit.A0
-    slope = (fit.model(t + step) - fit.model(t - step)) / (2.0 * step)
+    now, later, earlier = np.split(fit.model(np.concatenate([t, t + step, t - step])), 3)
+    shape = now - fit.A0
+    slope = (later - earlier) / (2.0 * step)
     span = np.ptp(t) or 1.0
     levels = np.hstack([one_hot, one_hot * ((t - t.mean()) / span)[:, None]])
     # a slightly wrong period drifts the phase linearly: the null model may
@@ -720,7 +724,8 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     # the survey's zero-point noise adds about the same variance to every
     # point: added in quadrature to the errors (chi-square per degree of
     # freedom one), so that the weights say how well each point is known
-    sigma = np.hypot(e, _extra_scatter(design, m, e, dof))
+    coef, *_ = np.linalg.lstsq(design / e[:, None], m / e, rcond=None)
+    sigma = np.hypot(e, _extra_scatter(m - design @ coef, e, dof))
     xw = design / sigma[:, None]
     coef, *_ = np.linalg.lstsq(xw, m / sigma, rcond=None)
     residual = (m - design @ coef) / sigma
@@ -740,26 +745,28 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
         # a S(t) + b S'(t) ~ a S(t + b/a): the shape arrives b/a days early
         phase = -shift / scale / period
     return {
-        "p": float(stats.f.sf(f_value, extra, dof)),
+        "p": float(special.fdtrc(extra, dof, f_value)),
         "n_seasons": int(k),
         "amplitude_scale": [float(x) for x in scale],
         "phase_shift": [float(x) for x in phase],
     }
 
 
-def _extra_scatter(design: np.ndarray, m: np.ndarray, e: np.ndarray, dof: int) -> float:
-    """Scatter added in quadrature to ``e`` that makes the weighted fit's chi-square ``dof``."""
+def _extra_scatter(residual: np.ndarray, e: np.ndarray, dof: int) -> float:
+    """Scatter that, added in quadrature to ``e``, makes the residuals' chi-square ``dof``.
+
+    The residuals are those of the fit weighted by ``e`` alone (one step of
+    reweighting; the refit with the new errors moves them little).
+    """
+    r2 = residual**2
 
     def excess(extra: float) -> float:
-        sigma = np.hypot(e, extra)
-        coef, *_ = np.linalg.lstsq(design / sigma[:, None], m / sigma, rcond=None)
-        return float(np.sum(((m - design @ coef) / sigma) ** 2)) / dof - 1.0
+        return float(np.sum(r2 / (e**2 + extra**2))) / dof - 1.0
 
     if excess(0.0) <= 0:
         return 0.0
-    top = float(np.std(m)) + float(np.max(e))
-    if excess(top) >= 0:
-        return top
+    # with that scatter alone the chi-square is at most dof
+    top = float(np.sqrt(np.sum(r2) / dof))
     return float(optimize.brentq(excess, 0.0, top, xtol=1e-5))
 
 
