@@ -17,7 +17,9 @@ frequency resolution ``1/T`` (times ``resolution_factor``) as tolerance:
     harmonic reflected through a peak ``w`` of the spectral window;
 ``side peak``
     ``k f1 +- delta`` with ``delta`` resolved but below ``side_peak_fraction``
-    of ``f1``: a modulation (Blazhko-like) with period ``1/delta``; also
+    of ``f1``: a modulation (Blazhko-like) with period ``1/delta`` when
+    that repeats :data:`MIN_MODULATION_CYCLES` times in the baseline (a
+    closer side peak may be a lobe of a slower change; it gets none); also
     such a side peak reflected through a peak ``w`` of the spectral window
     (``k f1 +- delta +- w``, labelled with the window frequency) when
     ``delta`` is at most :data:`ALIAS_SIDE_PEAK_MAX` and no second mode has
