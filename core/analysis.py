@@ -655,7 +655,7 @@ def find_modulation(
         except PhasewiseError:
             return None
     change = seasonal_change(t, m, e, fit)
-    if change is None or change["p"] >= MODULATION_P:
+    if change is None or not change["p"] < MODULATION_P:  # NaN: no evidence
         return None
     n = change["n_seasons"]
     return {
@@ -747,8 +747,8 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     return {
         "p": float(special.fdtrc(extra, dof, f_value)),
         "n_seasons": int(k),
-        "amplitude_scale": [float(x) for x in scale],
-        "phase_shift": [float(x) for x in phase],
+        "amplitude_scale": [finite_or_none(x) for x in scale],
+        "phase_shift": [finite_or_none(x) for x in phase],
     }
 
 
