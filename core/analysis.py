@@ -620,7 +620,8 @@ def find_modulation(
     with no period.  Otherwise, with two or more seasons (gaps over 60 d)
     of at least :data:`MIN_SEASON_POINTS` points in ``band``, the seasonal
     test of :func:`seasonal_change` decides, with no period (a few seasons
-    cannot give one).
+    cannot give one): its probability must be below :data:`MODULATION_P`
+    with every point and with any one point left out.
 
     Parameters
     ----------
@@ -662,6 +663,14 @@ def find_modulation(
     change = seasonal_change(t, m, e, fit)
     if change is None or not change["p"] < MODULATION_P:  # NaN: no evidence
         return None
+    # on sparse data one point on the steep branch can carry a season's
+    # phase, through the shape as much as through the seasons' terms: a
+    # change that does not survive leaving out any one point is not claimed
+    for i in range(t.size):
+        keep = np.arange(t.size) != i
+        again = seasonal_change(t[keep], m[keep], e[keep], fit)
+        if again is None or not again["p"] < MODULATION_P:
+            return None
     n = change["n_seasons"]
     return {
         "kind": "seasonal change",
@@ -741,6 +750,7 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     coef, *_ = np.linalg.lstsq(xw, m / sigma, rcond=None)
     residual = (m - design @ coef) / sigma
     cov = np.linalg.pinv(xw.T @ xw) * float(residual @ residual) / dof
+
     # every season's scale and shift against the first's
     contrast = np.zeros((2 * (k - 1), design.shape[1]))
     for j in range(1, k):
