@@ -26,7 +26,7 @@ from functools import cached_property
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import optimize, special, stats
 
 from . import __version__
 from .classify import features_from_result, load_rulebook, suggest
@@ -38,6 +38,7 @@ from .fourier import (
     FourierFit,
     FourierSettings,
     RefinedFrequency,
+    choose_order,
     decompose,
     fit_fourier,
     refine_frequency,
@@ -424,7 +425,10 @@ def _analyse(
     # the residuals are searched on the main search's range
     residuals = residual_search(pw_settings.search_oversampling, settings.periodogram)
     pw = prewhiten(analysed, frequency, pw_settings, search=residuals, windows=choice.windows)
-    modulation = find_modulation(analysed, frequency, pw, primary)
+    # the seasonal test in the band with most points, which tells changes best
+    modulation = find_modulation(
+        analysed, frequency, pw, analysed.bands[0], fits.get(analysed.bands[0])
+    )
     if modulation is not None:
         flags.append(f"modulated: {modulation['description']}")
     try:
@@ -588,76 +592,222 @@ def _calibration_band() -> str:
 
 
 #: Probability below which amplitude or phase changes between seasons count
-#: as modulation (our choice; a chi-square test of the per-season values).
+#: as modulation (our choice; an F test of the per-season shape, below).
 MODULATION_P = 1e-3
 
+#: Free parameters of each season in the seasonal test: level, drift,
+#: amplitude scale, phase shift.
+SEASON_PARAMETERS = 4
 
-def find_modulation(lc: LightCurve, frequency: float, pw, band: str) -> dict[str, Any] | None:
+#: Refinements of the period inside the seasonal test, and the phase drift
+#: over the baseline (cycles) below which it stops (our choice).
+SEASON_REFINE_STEPS = 3
+SEASON_REFINE_CYCLES = 1e-3
+
+#: Fewest good points a season needs in the seasonal test: five for each of
+#: its free parameters (common practice, no source).
+MIN_SEASON_POINTS = 5 * SEASON_PARAMETERS
+
+
+def find_modulation(
+    lc: LightCurve, frequency: float, pw, band: str, fit: FourierFit | None = None
+) -> dict[str, Any] | None:
     """Modulation of the main mode: side peaks, or changes between seasons.
 
     Side peaks ``k f1 +- delta`` found by prewhitening give the modulation
-    period 1/delta (their mean).  Otherwise, with two or more seasons (gaps
-    over 60 d) of at least 20 points in ``band``, a first-order Fourier fit
-    per season gives A1 and phi1 with errors; amplitudes or phases that
-    differ between seasons with chi-square probability below
-    :data:`MODULATION_P` mark the star as modulated, with no period (a few
-    seasons cannot give one).
-    """
-    if pw is not None and pw.modulation_period is not None:
-        peaks = [f for f in pw.frequencies if f.kind == "side peak"]
-        return {
-            "kind": "side peaks",
-            "period": float(pw.modulation_period),
-            "side_peaks": [f.label for f in peaks],
-            "snr": [float(f.snr) for f in peaks],
-            "description": f"side peaks, modulation period {pw.modulation_period:.4g} d",
-        }
-    from .period_choice import _seasons
+    period 1/delta (their mean); side peaks closer to ``k f1`` than the data
+    can time (:data:`core.prewhiten.MIN_MODULATION_CYCLES`) flag the star
+    with no period.  Otherwise, with two or more seasons (gaps over 60 d)
+    of at least :data:`MIN_SEASON_POINTS` points in ``band``, the seasonal
+    test of :func:`seasonal_change` decides, with no period (a few seasons
+    cannot give one): its probability must be below :data:`MODULATION_P`
+    with every point and with any one point left out.
 
+    Parameters
+    ----------
+    lc : LightCurve
+        The analysed light curve (outliers excluded).
+    frequency : float
+        The main frequency (cycles/day).
+    pw : Prewhitening or None
+    band : str
+        Band of the seasonal test.
+    fit : FourierFit, optional
+        The main mode's fit in ``band`` (its shape); fitted here if not given.
+    """
+    if pw is not None:
+        peaks = [f for f in pw.frequencies if f.kind == "side peak"]
+        if peaks:
+            period = pw.modulation_period
+            text = (
+                f"side peaks, modulation period {period:.4g} d"
+                if period is not None
+                else "side peaks too close to the main mode to time: the amplitude or phase "
+                "changes more slowly than the baseline can tell (no modulation period)"
+            )
+            return {
+                "kind": "side peaks",
+                "period": None if period is None else float(period),
+                "side_peaks": [f.label for f in peaks],
+                "snr": [float(f.snr) for f in peaks],
+                "description": text,
+            }
     t, m, e = lc.arrays(band)
     if t.size == 0:
         return None
-    seasons = _seasons(t)
-    amps, amp_errs, phases, phase_errs = [], [], [], []
-    for s in np.unique(seasons):
-        sel = seasons == s
-        if sel.sum() < 20:
-            continue
+    if fit is None:
         try:
-            # one epoch for every season, so the phases compare
-            fit = fit_fourier(t[sel], m[sel], e[sel], frequency, 1, epoch=float(t[0]))
+            fit = fit_fourier(t, m, e, frequency, choose_order(t, m, e, frequency).order)
         except PhasewiseError:
-            continue
-        amps.append(fit.amplitudes[0])
-        amp_errs.append(fit.amplitudes_err[0])
-        phases.append(fit.phases[0])
-        phase_errs.append(fit.phases_err[0])
-    if len(amps) < 2:
+            return None
+    change = seasonal_change(t, m, e, fit)
+    if change is None or not change["p"] < MODULATION_P:  # NaN: no evidence
         return None
-    amps, amp_errs = np.array(amps), np.array(amp_errs)
-    phases, phase_errs = np.unwrap(np.array(phases)), np.array(phase_errs)
-    dof = len(amps) - 1
-    changes = []
-    for name, values, errs in (("amplitude", amps, amp_errs), ("phase", phases, phase_errs)):
-        if not np.all(np.isfinite(errs)) or np.any(errs <= 0):
-            continue
-        w = 1.0 / errs**2
-        mean = np.dot(w, values) / w.sum()
-        chi2 = float(np.dot(w, (values - mean) ** 2))
-        if stats.chi2.sf(chi2, dof) < MODULATION_P:
-            changes.append(name)
-    if not changes:
-        return None
+    # on sparse data one point on the steep branch can carry a season's
+    # phase, through the shape as much as through the seasons' terms: a
+    # change that does not survive leaving out any one point is not claimed
+    for i in range(t.size):
+        keep = np.arange(t.size) != i
+        again = seasonal_change(t[keep], m[keep], e[keep], fit)
+        if again is None or not again["p"] < MODULATION_P:
+            return None
+    n = change["n_seasons"]
     return {
-        "kind": "seasonal " + " and ".join(changes) + " change",
+        "kind": "seasonal change",
         "period": None,
-        "n_seasons": len(amps),
-        "amplitudes": [float(a) for a in amps],
+        "n_seasons": n,
+        "p": change["p"],
+        "amplitude_scale": change["amplitude_scale"],
+        "phase_shift": change["phase_shift"],
         "description": (
-            f"the {' and '.join(changes)} of the main mode change between {len(amps)} "
-            "seasons (no modulation period from so few seasons)"
+            f"the amplitude or phase of the main mode changes between {n} seasons "
+            f"(F test, p = {change['p']:.2g}; no modulation period from so few seasons)"
         ),
     }
+
+
+def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit) -> dict | None:
+    """F test of a change of amplitude or phase of the light-curve shape between seasons.
+
+    Each season (gaps over 60 d) of at least :data:`MIN_SEASON_POINTS`
+    points is modelled as its own level and linear drift (a survey's zero
+    point moves from season to season and within one) plus the whole
+    Fourier shape ``S`` of ``fit`` scaled and shifted in time, linearised:
+    ``a_s S(t) + b_s S'(t)``, with one common term ``c (t - tmean) S'(t)``
+    (a slightly wrong period drifts the phase steadily; that is no
+    modulation).  The test is that all ``a_s`` and all ``b_s`` are equal.
+    It is judged against the scatter of the model's own residuals (an F
+    test), with a scatter common to all points added to the errors in
+    quadrature first (nightly zero points, a noise floor): against the
+    formal errors, or with a first-order fit that leaves the harmonics in
+    the residuals, unmodulated stars passed as modulated.
+
+    Returns
+    -------
+    dict or None
+        ``p`` (the F test's probability), ``n_seasons``, ``amplitude_scale``
+        and ``phase_shift`` (cycles, later than the mean shape) per season;
+        None with fewer than two seasons of enough points.
+    """
+    from .period_choice import _seasons
+
+    seasons = _seasons(t)
+    labels, counts = np.unique(seasons, return_counts=True)
+    kept = labels[counts >= MIN_SEASON_POINTS]
+    if kept.size < 2:
+        return None
+    sel = np.isin(seasons, kept)
+    t, m, e = t[sel], m[sel], e[sel]
+    index = np.searchsorted(kept, seasons[sel])
+    one_hot = np.eye(kept.size)[index]
+    k = kept.size
+    span = np.ptp(t) or 1.0
+    for _ in range(SEASON_REFINE_STEPS):
+        design = _season_design(t, fit, one_hot)
+        coef, *_ = np.linalg.lstsq(design / e[:, None], m / e, rcond=None)
+        # a S(t) + c (t - tmean) S'(t) ~ a S((1 + c/a) t + const): the period
+        # the data prefer; the shape is refitted there (a period error of
+        # 3e-5 drifts an RRab by 0.04 cycles over three seasons, beyond
+        # what the linearised shift follows)
+        rate = coef[-1] / np.mean(coef[2 * k : 3 * k])
+        if not np.isfinite(rate) or abs(rate) * span * fit.frequency < SEASON_REFINE_CYCLES:
+            break
+        try:
+            fit = fit_fourier(t, m, e, fit.frequency * (1.0 + rate), fit.order, form=fit.form)
+        except PhasewiseError:
+            return None
+    period = 1.0 / fit.frequency
+    design = _season_design(t, fit, one_hot)
+    dof = t.size - design.shape[1]
+    if dof < 2 * k:
+        return None
+    # the survey's zero-point noise adds about the same variance to every
+    # point: added in quadrature to the errors (chi-square per degree of
+    # freedom one), so that the weights say how well each point is known
+    coef, *_ = np.linalg.lstsq(design / e[:, None], m / e, rcond=None)
+    sigma = np.hypot(e, _extra_scatter(m - design @ coef, e, dof))
+    xw = design / sigma[:, None]
+    coef, *_ = np.linalg.lstsq(xw, m / sigma, rcond=None)
+    residual = (m - design @ coef) / sigma
+    cov = np.linalg.pinv(xw.T @ xw) * float(residual @ residual) / dof
+
+    # every season's scale and shift against the first's
+    contrast = np.zeros((2 * (k - 1), design.shape[1]))
+    for j in range(1, k):
+        for block in (2, 3):
+            row = (block - 2) * (k - 1) + j - 1
+            contrast[row, block * k] = -1.0
+            contrast[row, block * k + j] = 1.0
+    diff = contrast @ coef
+    extra = contrast.shape[0]
+    f_value = float(diff @ np.linalg.pinv(contrast @ cov @ contrast.T) @ diff) / extra
+    scale, shift = coef[2 * k : 3 * k], coef[3 * k : 4 * k]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # a S(t) + b S'(t) ~ a S(t + b/a): the shape arrives b/a days early
+        phase = -shift / scale / period
+    return {
+        "p": float(special.fdtrc(extra, dof, f_value)),
+        "n_seasons": int(k),
+        "amplitude_scale": [finite_or_none(x) for x in scale],
+        "phase_shift": [finite_or_none(x) for x in phase],
+    }
+
+
+def _season_design(t: np.ndarray, fit: FourierFit, one_hot: np.ndarray) -> np.ndarray:
+    """Columns of :func:`seasonal_change`'s model: levels, drifts, scales, shifts, period drift."""
+    step = 1e-3 / fit.frequency
+    now, later, earlier = np.split(fit.model(np.concatenate([t, t + step, t - step])), 3)
+    shape = now - fit.A0
+    slope = (later - earlier) / (2.0 * step)
+    centred = t - t.mean()
+    span = np.ptp(t) or 1.0
+    return np.hstack(
+        [
+            one_hot,
+            one_hot * (centred / span)[:, None],
+            one_hot * shape[:, None],
+            one_hot * slope[:, None],
+            (slope * centred)[:, None],
+        ]
+    )
+
+
+def _extra_scatter(residual: np.ndarray, e: np.ndarray, dof: int) -> float:
+    """Scatter that, added in quadrature to ``e``, makes the residuals' chi-square ``dof``.
+
+    The residuals are those of the fit weighted by ``e`` alone (one step of
+    reweighting; the refit with the new errors moves them little).
+    """
+    r2 = residual**2
+
+    def excess(extra: float) -> float:
+        return float(np.sum(r2 / (e**2 + extra**2))) / dof - 1.0
+
+    if excess(0.0) <= 0:
+        return 0.0
+    # with that scatter alone the chi-square is at most dof
+    top = float(np.sqrt(np.sum(r2) / dof))
+    return float(optimize.brentq(excess, 0.0, top, xtol=1e-5))
 
 
 def _decompose_with_outliers(

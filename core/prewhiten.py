@@ -17,7 +17,9 @@ frequency resolution ``1/T`` (times ``resolution_factor``) as tolerance:
     harmonic reflected through a peak ``w`` of the spectral window;
 ``side peak``
     ``k f1 +- delta`` with ``delta`` resolved but below ``side_peak_fraction``
-    of ``f1``: a modulation (Blazhko-like) with period ``1/delta``; also
+    of ``f1``: a modulation (Blazhko-like) with period ``1/delta`` when
+    that repeats :data:`MIN_MODULATION_CYCLES` times in the baseline (a
+    closer side peak may be a lobe of a slower change; it gets none); also
     such a side peak reflected through a peak ``w`` of the spectral window
     (``k f1 +- delta +- w``, labelled with the window frequency) when
     ``delta`` is at most :data:`ALIAS_SIDE_PEAK_MAX` and no second mode has
@@ -266,8 +268,12 @@ class Prewhitening:
 
     @property
     def modulation_period(self) -> float | None:
-        """Mean modulation period of the side peaks, if any."""
-        periods = [f.modulation_period for f in self.frequencies if f.kind == "side peak"]
+        """Mean modulation period of the side peaks that time one, if any."""
+        periods = [
+            f.modulation_period
+            for f in self.frequencies
+            if f.kind == "side peak" and f.modulation_period is not None
+        ]
         return float(np.mean(periods)) if periods else None
 
     def to_dict(self) -> dict[str, Any]:
@@ -434,14 +440,29 @@ def _label_independent(index: int) -> str:
 ALIAS_SIDE_PEAK_MAX = 0.1
 
 
+#: Fewest modulation cycles in the baseline T for a side peak to give a
+#: modulation period.  A change of amplitude or phase slower than the
+#: baseline spreads over the main peak's window lobes, whose first two side
+#: lobes lie near 1.4/T and 2.5/T (those of sinc(f T); common practice, no
+#: source): a side peak closer to ``k f1`` than 3/T may be such a lobe, so
+#: it shows a modulation but not its period.
+MIN_MODULATION_CYCLES = 3.0
+
+
 def _side_peak(f, f1, resolution, settings, limit):
-    """``(label, modulation period)`` when ``f`` is ``k f1 +- delta`` (module notes), else None."""
+    """``(label, modulation period)`` when ``f`` is ``k f1 +- delta`` (module notes), else None.
+
+    The period is None when ``delta`` repeats fewer than
+    :data:`MIN_MODULATION_CYCLES` times in the baseline.
+    """
     k = max(int(round(f / f1)), 1)
     delta = f - k * f1
     if k <= settings.max_harmonic and resolution <= abs(delta) < limit:
         sign = "+" if delta > 0 else "-"
         head = "f1" if k == 1 else f"{k}f1"
-        return f"{head}{sign}{abs(delta):.4f}", 1 / abs(delta)
+        baseline = settings.resolution_factor / resolution
+        timed = abs(delta) * baseline >= MIN_MODULATION_CYCLES
+        return f"{head}{sign}{abs(delta):.4f}", (1 / abs(delta) if timed else None)
     return None
 
 
