@@ -607,6 +607,10 @@ SEASON_REFINE_CYCLES = 1e-3
 #: Fewest good points a season needs in the seasonal test: five for each of
 #: its free parameters (common practice, no source).
 MIN_SEASON_POINTS = 5 * SEASON_PARAMETERS
+#: Points of highest leverage left out in turn before a seasonal change is
+#: claimed (our choice: on sparse data about half the points; the rest of a
+#: survey's points each carry a small share of a season).
+LEAVE_ONE_OUT_POINTS = 40
 
 
 def find_modulation(
@@ -666,7 +670,10 @@ def find_modulation(
     # on sparse data one point on the steep branch can carry a season's
     # phase, through the shape as much as through the seasons' terms: a
     # change that does not survive leaving out any one point is not claimed
-    for i in range(t.size):
+    # only a point of high leverage can carry a season alone: the
+    # LEAVE_ONE_OUT_POINTS of highest leverage are left out in turn (all of
+    # them on sparse data; a dense survey's points each weigh little)
+    for i in np.argsort(change["leverage"])[::-1][:LEAVE_ONE_OUT_POINTS]:
         keep = np.arange(t.size) != i
         again = seasonal_change(t[keep], m[keep], e[keep], fit)
         if again is None or not again["p"] < MODULATION_P:
@@ -706,8 +713,10 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     -------
     dict or None
         ``p`` (the F test's probability), ``n_seasons``, ``amplitude_scale``
-        and ``phase_shift`` (cycles, later than the mean shape) per season;
-        None with fewer than two seasons of enough points.
+        and ``phase_shift`` (cycles, later than the mean shape) per season,
+        ``leverage`` (each point's hat-matrix diagonal; 0 for points of
+        seasons too short to count); None with fewer than two seasons of
+        enough points.
     """
     from .period_choice import _seasons
 
@@ -730,7 +739,12 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
         # 3e-5 drifts an RRab by 0.04 cycles over three seasons, beyond
         # what the linearised shift follows)
         rate = coef[-1] / np.mean(coef[2 * k : 3 * k])
-        if not np.isfinite(rate) or abs(rate) * span * fit.frequency < SEASON_REFINE_CYCLES:
+        drift = abs(rate) * span * fit.frequency  # cycles over the seasons
+        if not np.isfinite(rate) or drift < SEASON_REFINE_CYCLES:
+            break
+        if drift > 1.0:
+            # a cycle or more: no small period error (a shape the seasons do
+            # not share, as for a constant star); refitting there is meaningless
             break
         try:
             fit = fit_fourier(t, m, e, fit.frequency * (1.0 + rate), fit.order, form=fit.form)
@@ -749,7 +763,11 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
     xw = design / sigma[:, None]
     coef, *_ = np.linalg.lstsq(xw, m / sigma, rcond=None)
     residual = (m - design @ coef) / sigma
-    cov = np.linalg.pinv(xw.T @ xw) * float(residual @ residual) / dof
+    normal_inverse = np.linalg.pinv(xw.T @ xw)
+    cov = normal_inverse * float(residual @ residual) / dof
+    # each point's leverage (hat-matrix diagonal), at the points' own indices
+    leverage = np.zeros(sel.size)
+    leverage[sel] = np.einsum("ij,jk,ik->i", xw, normal_inverse, xw)
 
     # every season's scale and shift against the first's
     contrast = np.zeros((2 * (k - 1), design.shape[1]))
@@ -770,6 +788,7 @@ def seasonal_change(t: np.ndarray, m: np.ndarray, e: np.ndarray, fit: FourierFit
         "n_seasons": int(k),
         "amplitude_scale": [finite_or_none(x) for x in scale],
         "phase_shift": [finite_or_none(x) for x in phase],
+        "leverage": leverage,
     }
 
 
