@@ -1667,15 +1667,21 @@ class Ledger:
         )
         out = []
         for key, star_id, status, class_code, period, note, decided_at, seal, codec, data in rows:
-            text = None
-            try:
-                text = None if data is None else self._codec.unpack(codec, data)
-            except ValueError:
-                raise self._damaged(star_id, "verdict") from None
-            if _seal(key, status, class_code, period, note, decided_at, text) != seal:
-                raise self._damaged(star_id, "verdict")
+            text = self._sealed_final_text(
+                key, star_id, (status, class_code, period, note, decided_at), seal, codec, data
+            )
             out.append(Verdict(star_id, status, class_code, period, note, decided_at, _loads(text)))
         return out
+
+    def _sealed_final_text(self, key, star_id, fields, seal, codec, data) -> str | None:
+        """A verdict's final numbers as stored text, its seal checked (damage named)."""
+        try:
+            text = None if data is None else self._codec.unpack(codec, data)
+        except ValueError:
+            raise self._damaged(star_id, "verdict") from None
+        if _seal(key, *fields, text) != seal:
+            raise self._damaged(star_id, "verdict")
+        return text
 
     def _verdict_seal(self, key: int, star_id: str) -> bytes:
         """The seal of a star's verdict record, checked (as :meth:`verdict` checks it)."""
@@ -1684,13 +1690,8 @@ class Ledger:
             "f.data FROM verdicts v LEFT JOIN finals f ON f.star = v.star WHERE v.star = ?",
             (key,),
         ).fetchone()
-        status, class_code, period, note, decided_at, seal, codec, data = row
-        try:
-            text = None if data is None else self._codec.unpack(codec, data)
-        except ValueError:
-            raise self._damaged(star_id, "verdict") from None
-        if _seal(key, status, class_code, period, note, decided_at, text) != seal:
-            raise self._damaged(star_id, "verdict")
+        *fields, seal, codec, data = row
+        self._sealed_final_text(key, star_id, fields, seal, codec, data)
         return seal
 
     def set_verdict(
